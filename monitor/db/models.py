@@ -1,0 +1,396 @@
+"""The programme database: SQLModel tables.
+
+Integrity lives in the database as well as in Python: foreign keys (SQLite's
+pragma is switched on at connect), unique keys and CHECK constraints on value
+ranges.  No foreign key cascades a delete onto recorded observations: every
+foreign key that points at a recorded row is ``ON DELETE RESTRICT``.
+
+Constraint names follow one convention (``metadata.naming_convention``) so that
+Alembic can alter tables on SQLite in batch mode.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from sqlalchemy import CheckConstraint, Column, ForeignKey, Index, Integer, MetaData, UniqueConstraint
+from sqlmodel import Field, SQLModel
+
+from monitor import columns as C
+
+NAMING_CONVENTION = {
+    "ix": "ix_%(column_0_label)s",
+    "uq": "uq_%(table_name)s_%(column_0_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+SQLModel.metadata = MetaData(naming_convention=NAMING_CONVENTION)
+metadata = SQLModel.metadata
+
+
+def _in(column: str, values: tuple[str, ...]) -> str:
+    quoted = ", ".join(f"'{v}'" for v in values)
+    return f"{column} IN ({quoted})"
+
+
+def _fk(target: str, nullable: bool = False, index: bool = True) -> Column:
+    """A RESTRICT foreign key: deleting a referenced row is refused, never cascaded."""
+    return Column(Integer, ForeignKey(target, ondelete="RESTRICT"), nullable=nullable, index=index)
+
+
+VISIT_STATUSES = C.VISIT_STATUSES
+ROUND_STATUSES = ("planned", "open", "certified")
+STATION_STATES = ("in_service", "retired", "lost")
+
+
+class Programme(SQLModel, table=True):
+    """A monitoring programme: one reserve's set of sites, stations and target species."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    code: str = Field(unique=True, max_length=40)
+    name: str
+    description: str = ""
+    organisation: str = ""
+    contact: str = ""
+    crs_epsg: int = Field(description="projected CRS of all x/y in metres")
+    default_quadrat_width_m: float = 1.0
+    default_quadrat_length_m: float = 1.0
+    blanks_mean_zero: bool = False
+    allow_lone_working: bool = False
+    change_margin: float = Field(default=0.02, description="margin of change that matters [fraction a year]")
+    settings_json: str = Field(default="{}", description="further settings as JSON (effort, units, ...)")
+    created_at: dt.datetime = Field(default_factory=lambda: dt.datetime.now(dt.UTC).replace(tzinfo=None))
+
+    __table_args__ = (
+        CheckConstraint("default_quadrat_width_m > 0", name="quadrat_width_positive"),
+        CheckConstraint("default_quadrat_length_m > 0", name="quadrat_length_positive"),
+        CheckConstraint("change_margin >= 0", name="margin_non_negative"),
+    )
+
+
+class Site(SQLModel, table=True):
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    code: str = Field(max_length=40)
+    name: str = ""
+    habitat: str = ""
+    area_m2: float
+    boundary_geojson: str | None = Field(default=None, description="GeoJSON geometry in the programme CRS")
+    base_x: float | None = Field(default=None, description="start point (car park / base) easting [m]")
+    base_y: float | None = None
+    access_until: dt.date | None = Field(default=None, description="landowner permission or permit valid until")
+    access_notes: str = ""
+
+    __table_args__ = (
+        UniqueConstraint("programme_id", "code", name="uq_site_programme_code"),
+        CheckConstraint("area_m2 > 0", name="area_positive"),
+    )
+
+
+class Stratum(SQLModel, table=True):
+    id: int | None = Field(default=None, primary_key=True)
+    site_id: int = Field(sa_column=_fk("site.id"))
+    code: str = Field(max_length=40)
+    area_m2: float
+    boundary_geojson: str | None = None
+
+    __table_args__ = (
+        UniqueConstraint("site_id", "code", name="uq_stratum_site_code"),
+        CheckConstraint("area_m2 > 0", name="area_positive"),
+    )
+
+
+class Panel(SQLModel, table=True):
+    """A revisit panel: its rule in revisit-design notation, e.g. "[1-0]" every year, "[1-3]" one in four."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    code: str = Field(max_length=40)
+    rule: str = Field(description="revisit notation [visits-gap], e.g. [1-0] or [1-3]")
+    start_year: int
+    description: str = ""
+
+    __table_args__ = (UniqueConstraint("programme_id", "code", name="uq_panel_programme_code"),)
+
+
+class Station(SQLModel, table=True):
+    """A permanent quadrat."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    code: str = Field(max_length=40)
+    site_id: int = Field(sa_column=_fk("site.id"))
+    stratum_id: int | None = Field(default=None, sa_column=_fk("stratum.id", nullable=True))
+    panel_id: int | None = Field(default=None, sa_column=_fk("panel.id", nullable=True))
+    placement: str = Field(description="how the position was chosen; 'targeted' is flagged in analyses")
+    placement_seed: int | None = Field(default=None, description="seed of the placement run, if drawn")
+    x: float
+    y: float
+    crs_epsg: int
+    fix_method: str = Field(default="", description="e.g. 'GNSS RTK', 'handheld GPS', 'tape from marker'")
+    accuracy_m: float | None = None
+    quadrat_width_m: float
+    quadrat_length_m: float
+    transect: str | None = None
+    distance_m: float | None = Field(default=None, description="distance along its transect [m]")
+    established: dt.date | None = None
+    state: str = "in_service"
+    retired: dt.date | None = None
+    retired_reason: str = ""
+    replaced_by_id: int | None = Field(default=None, sa_column=_fk("station.id", nullable=True))
+    marker: str = Field(default="", description="permanent marker, e.g. 'steel pin SW corner'")
+    relocation_notes: str = Field(default="", description="offset and bearing from a landmark")
+
+    __table_args__ = (
+        UniqueConstraint("programme_id", "code", name="uq_station_programme_code"),
+        CheckConstraint("quadrat_width_m > 0", name="quadrat_width_positive"),
+        CheckConstraint("quadrat_length_m > 0", name="quadrat_length_positive"),
+        CheckConstraint("accuracy_m IS NULL OR accuracy_m >= 0", name="accuracy_non_negative"),
+        CheckConstraint("distance_m IS NULL OR distance_m >= 0", name="distance_non_negative"),
+        CheckConstraint(_in("placement", C.PLACEMENTS), name="placement_known"),
+        CheckConstraint(_in("state", STATION_STATES), name="state_known"),
+        CheckConstraint("(state = 'in_service') = (retired IS NULL)", name="retired_has_date"),
+    )
+
+
+class Species(SQLModel, table=True):
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    code: str = Field(max_length=40)
+    scientific_name: str = ""
+    common_name: str = ""
+    sensitive: bool = Field(default=False, description="coordinates generalised in every export")
+
+    __table_args__ = (UniqueConstraint("programme_id", "code", name="uq_species_programme_code"),)
+
+
+class Measure(SQLModel, table=True):
+    """The vocabulary of measures; rows are written by the first migration."""
+
+    code: str = Field(primary_key=True, max_length=20)
+    description: str
+    unit: str
+    needs_n: bool = Field(description="k of n: the record stores n (cells or pins)")
+
+
+class Target(SQLModel, table=True):
+    """What every visit records: a species and measure (with n cells or pins where it applies)."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    species_id: int = Field(sa_column=_fk("species.id"))
+    measure: str = Field(sa_column=Column(ForeignKey("measure.code", ondelete="RESTRICT"), nullable=False))
+    n: int | None = Field(default=None, description="cells in the grid or pins in the frame")
+
+    __table_args__ = (
+        UniqueConstraint("programme_id", "species_id", "measure", name="uq_target_programme_species_measure"),
+        CheckConstraint(
+            "(measure IN ('frequency', 'pin_hits') AND n IS NOT NULL AND n > 0) OR (measure NOT IN ('frequency', 'pin_hits') AND n IS NULL)",
+            name="n_for_k_of_n",
+        ),
+    )
+
+
+class SeasonWindow(SQLModel, table=True):
+    """When a plant can be recorded: programme-wide (species_id NULL) or per species (flowering)."""
+
+    __tablename__ = "season_window"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    species_id: int | None = Field(default=None, sa_column=_fk("species.id", nullable=True))
+    start_md: str = Field(max_length=5, description="MM-DD")
+    end_md: str = Field(max_length=5, description="MM-DD")
+
+    __table_args__ = (
+        CheckConstraint("start_md <= end_md", name="opens_before_close"),
+        CheckConstraint("length(start_md) = 5 AND length(end_md) = 5", name="month_day_form"),
+    )
+
+
+class Round(SQLModel, table=True):
+    """A survey round: one season's visits to the stations due."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    year: int
+    window_start: dt.date
+    window_end: dt.date
+    status: str = "open"
+    certified_by: str | None = None
+    certified_at: dt.datetime | None = None
+
+    __table_args__ = (
+        UniqueConstraint("programme_id", "year", name="uq_round_programme_year"),
+        CheckConstraint("window_start <= window_end", name="window_order"),
+        CheckConstraint(_in("status", ROUND_STATUSES), name="status_known"),
+    )
+
+
+class Observer(SQLModel, table=True):
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    code: str = Field(max_length=40)
+    name: str = ""
+    trained: dt.date | None = None
+    calibrated: dt.date | None = None
+
+    __table_args__ = (UniqueConstraint("programme_id", "code", name="uq_observer_programme_code"),)
+
+
+class ProtocolVersion(SQLModel, table=True):
+    __tablename__ = "protocol_version"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    code: str = Field(max_length=40)
+    description: str = ""
+    effective_from: dt.date
+
+    __table_args__ = (UniqueConstraint("programme_id", "code", name="uq_protocol_version_programme_code"),)
+
+
+class ImportBatch(SQLModel, table=True):
+    __tablename__ = "import_batch"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    kind: str = Field(description="what was imported: records, sites, stations, ...")
+    file_name: str
+    content_hash: str = Field(max_length=64, description="sha256 of the file's bytes")
+    row_count: int
+    imported_by: str = ""
+    imported_at: dt.datetime
+
+    __table_args__ = (
+        UniqueConstraint("programme_id", "kind", "content_hash", name="uq_import_batch_programme_kind_hash"),
+        CheckConstraint("row_count >= 0", name="row_count_non_negative"),
+    )
+
+
+class Visit(SQLModel, table=True):
+    """One visit of a station in a round.  repeat_no 0 is the visit; 1, 2, ... are marked repeats."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    station_id: int = Field(sa_column=_fk("station.id"))
+    round_id: int = Field(sa_column=_fk("round.id"))
+    date: dt.date
+    status: str
+    repeat_no: int = 0
+    protocol_id: int | None = Field(default=None, sa_column=_fk("protocol_version.id", nullable=True))
+    notes: str = ""
+    import_batch_id: int | None = Field(default=None, sa_column=_fk("import_batch.id", nullable=True))
+
+    __table_args__ = (
+        UniqueConstraint("station_id", "round_id", "repeat_no", name="uq_visit_station_round_repeat"),
+        CheckConstraint(_in("status", VISIT_STATUSES), name="status_known"),
+        CheckConstraint("repeat_no >= 0", name="repeat_non_negative"),
+    )
+
+
+class VisitObserver(SQLModel, table=True):
+    __tablename__ = "visit_observer"
+
+    visit_id: int = Field(sa_column=Column(Integer, ForeignKey("visit.id", ondelete="RESTRICT"), primary_key=True))
+    observer_id: int = Field(
+        sa_column=Column(Integer, ForeignKey("observer.id", ondelete="RESTRICT"), primary_key=True)
+    )
+
+
+class Observation(SQLModel, table=True):
+    """One recorded value: a species and measure at a visit.  Zero is a recorded absence."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    visit_id: int = Field(sa_column=_fk("visit.id"))
+    species_id: int = Field(sa_column=_fk("species.id"))
+    measure: str = Field(sa_column=Column(ForeignKey("measure.code", ondelete="RESTRICT"), nullable=False))
+    value: float
+    n: int | None = None
+
+    __table_args__ = (
+        UniqueConstraint("visit_id", "species_id", "measure", name="uq_observation_visit_species_measure"),
+        CheckConstraint("measure <> 'count' OR (value >= 0 AND value = round(value))", name="count_whole"),
+        CheckConstraint("measure <> 'cover' OR (value >= 0 AND value <= 100)", name="cover_percent"),
+        CheckConstraint(
+            "measure NOT IN ('frequency', 'pin_hits') OR (n IS NOT NULL AND n > 0 AND value >= 0 AND value <= n AND value = round(value))",
+            name="k_of_n",
+        ),
+        CheckConstraint("measure <> 'presence' OR value IN (0, 1)", name="presence_binary"),
+        CheckConstraint("measure IN ('frequency', 'pin_hits') OR n IS NULL", name="n_only_for_k_of_n"),
+    )
+
+
+class Covariate(SQLModel, table=True):
+    """An environmental value at a station (visit_id NULL) or at one visit."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    station_id: int = Field(sa_column=_fk("station.id"))
+    visit_id: int | None = Field(default=None, sa_column=_fk("visit.id", nullable=True))
+    name: str
+    unit: str = ""
+    value: float
+
+    __table_args__ = (
+        Index("ix_covariate_station_visit_name", "station_id", "visit_id", "name", unique=True),
+    )
+
+
+class ManagementEvent(SQLModel, table=True):
+    __tablename__ = "management_event"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    site_id: int | None = Field(default=None, sa_column=_fk("site.id", nullable=True))
+    station_id: int | None = Field(default=None, sa_column=_fk("station.id", nullable=True))
+    kind: str = Field(description="grazing, cutting, burning, flooding, ...")
+    start_date: dt.date
+    end_date: dt.date | None = None
+    notes: str = ""
+
+    __table_args__ = (
+        CheckConstraint("end_date IS NULL OR end_date >= start_date", name="dates_ordered"),
+        CheckConstraint("site_id IS NOT NULL OR station_id IS NOT NULL", name="has_place"),
+    )
+
+
+class Photo(SQLModel, table=True):
+    id: int | None = Field(default=None, primary_key=True)
+    station_id: int = Field(sa_column=_fk("station.id"))
+    visit_id: int | None = Field(default=None, sa_column=_fk("visit.id", nullable=True))
+    path: str
+    bearing_deg: float | None = None
+    height_m: float | None = None
+    notes: str = ""
+
+    __table_args__ = (
+        CheckConstraint("bearing_deg IS NULL OR (bearing_deg >= 0 AND bearing_deg < 360)", name="bearing_range"),
+    )
+
+
+class ChangeLog(SQLModel, table=True):
+    """Every correction of a stored value: old, new, reason, who, when.  Rows are never updated."""
+
+    __tablename__ = "change_log"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    table_name: str
+    row_id: int
+    field: str
+    old_value: str | None
+    new_value: str | None
+    reason: str
+    changed_by: str
+    changed_at: dt.datetime
+
+    __table_args__ = (CheckConstraint("length(reason) > 0", name="reason_given"),)
+
+
+MEASURE_ROWS = (
+    {"code": C.MEASURE_COUNT, "description": "individuals in the quadrat", "unit": "count", "needs_n": False},
+    {"code": C.MEASURE_COVER, "description": "percent of quadrat area covered", "unit": "%", "needs_n": False},
+    {"code": C.MEASURE_FREQUENCY, "description": "grid cells occupied (k of n)", "unit": "cells", "needs_n": True},
+    {"code": C.MEASURE_PIN_HITS, "description": "point-frame pins touching (k of n)", "unit": "pins", "needs_n": True},
+    {"code": C.MEASURE_PRESENCE, "description": "present (1) or absent (0)", "unit": "0/1", "needs_n": False},
+)
