@@ -188,7 +188,7 @@ def main() -> None:
                ["code", "scientific_name", "common_name", "measure", "n", "sensitive", "window_start", "window_end"],
                [[c, sci, com, m, n, "yes" if sens else "no", w[0], w[1]]
                 for c, sci, com, m, n, sens, w, _t in SPECIES])
-    _write_csv(out / "panels.csv", ["code", "rule", "start_year", "description"], [list(p) for p in PANELS])
+    _write_csv(out / "panels.csv", ["code", "rule", "start_year"], [list(p[:3]) for p in PANELS])
     _write_csv(out / "windows.csv", ["scope", "start", "end"], [["programme", "05-01", "09-15"]])
     _write_csv(out / "observers.csv", ["code", "name", "trained"], [list(o) for o in OBSERVERS])
     _write_csv(out / "management_events.csv", ["site", "station", "kind", "start_date", "end_date", "notes"], [

@@ -233,12 +233,12 @@ def upgrade() -> None:
         sa.Column("id", sa.Integer(), nullable=False),
         sa.Column("programme_id", sa.Integer(), nullable=False),
         sa.Column("species_id", sa.Integer(), nullable=True),
+        sa.Column("year", sa.Integer(), nullable=True),
         sa.Column("start_md", sqlmodel.sql.sqltypes.AutoString(length=5), nullable=False),
         sa.Column("end_md", sqlmodel.sql.sqltypes.AutoString(length=5), nullable=False),
         sa.CheckConstraint(
             "length(start_md) = 5 AND length(end_md) = 5", name=op.f("ck_season_window_month_day_form")
         ),
-        sa.CheckConstraint("start_md <= end_md", name=op.f("ck_season_window_opens_before_close")),
         sa.ForeignKeyConstraint(
             ["programme_id"],
             ["programme.id"],

@@ -1,11 +1,13 @@
-"""Creating a database and setting a programme up from the files a user has."""
+"""Creating a database, setting a programme up from the files a user has, and the programme summary."""
 
 from __future__ import annotations
+
+from pathlib import Path
 
 import click
 
 from monitor.cli.main import Context, cli
-from monitor.cli.output import say
+from monitor.cli.output import chosen_format, emit, format_option, say
 
 
 @cli.command("init")
@@ -21,3 +23,87 @@ def init_command(ctx: Context) -> None:
         say(f"created a monitor database (schema revision {after})")
     else:
         say(f"upgraded the database schema from revision {before} to {after}")
+
+
+@cli.group("setup")
+def setup_group() -> None:
+    """Set a programme up from files: a whole folder, or one kind of file at a time."""
+
+
+def _report_added(report) -> None:
+    say("added: " + ", ".join(f"{n} {kind}" for kind, n in report.added.items()))
+
+
+@setup_group.command("all")
+@click.argument("folder", type=click.Path(exists=True, file_okay=False, path_type=Path))
+@click.pass_obj
+def setup_all(ctx: Context, folder: Path) -> None:
+    """Create a programme from FOLDER: programme.json, sites.geojson, stations.csv, species.csv and,
+    when present, panels.csv, windows.csv, observers.csv and management_events.csv."""
+    from monitor.services import setup
+
+    code, report = setup.setup_folder(ctx.db, folder)
+    say(f"programme {code} set up")
+    _report_added(report)
+
+
+def _one_kind(kind: str, what: str) -> None:
+    @setup_group.command(kind, help=f"Add {what} from FILE to the programme.")
+    @click.argument("file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
+    @click.pass_obj
+    def command(ctx: Context, file: Path) -> None:
+        from monitor.services import setup
+
+        _report_added(setup.load_file(ctx.db, kind, file, ctx.programme))
+
+
+for _kind, _what in (
+    ("sites", "sites with boundaries (GeoJSON in the programme's projected CRS)"),
+    ("stations", "permanent quadrats (CSV or .xlsx)"),
+    ("species", "target species and their measures (CSV or .xlsx)"),
+    ("panels", "revisit panels, rule in [visit-rest] notation (CSV or .xlsx)"),
+    ("windows", "season windows, programme-wide or per species (CSV or .xlsx)"),
+    ("observers", "the register of observers (CSV or .xlsx)"),
+    ("events", "management events per site or station (CSV or .xlsx)"),
+):
+    _one_kind(_kind, _what)
+
+
+@cli.command("summary")
+@format_option
+@click.pass_obj
+def summary_command(ctx: Context, as_json: bool, as_csv: bool) -> None:
+    """The programme at a glance: sites, stations in service and retired, species, visits per year."""
+    from monitor.services import summary
+
+    result = summary.programme_summary(ctx.db, ctx.programme)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt == "json":
+        emit(result, fmt)
+        return
+    if fmt == "csv":
+        emit(result["visits_by_year"], fmt)
+        return
+    p = result["programme"]
+    click.echo(f"{p['name']} ({p['code']}), CRS EPSG:{p['crs_epsg']}")
+    emit(result["sites"], columns=["site", "name", "habitat", "area_m2", "in_service", "retired"], title="\nSites")
+    emit(result["species"], title="\nTarget species")
+    emit(result["visits_by_year"], title="\nVisits per season by outcome")
+
+
+@cli.command("demo")
+@click.option("--dir", "folder", type=click.Path(file_okay=False, path_type=Path), default=Path("demo_out"),
+              show_default=True, help="Folder to build the demo in (new or empty).")
+def demo_command(folder: Path) -> None:
+    """Build the invented demo reserve in a fresh database and run the whole job on it."""
+    from monitor.services import demo
+
+    run = demo.run_demo(folder, echo=say)
+    for name, result in run.steps:
+        if name == "summary":
+            click.echo("\nProgramme summary")
+            emit(result["sites"], columns=["site", "name", "habitat", "area_m2", "in_service", "retired"],
+                 title="Sites")
+            emit(result["species"], title="\nTarget species")
+            emit(result["visits_by_year"], title="\nVisits per season by outcome")
+    click.echo(f"\nThe demo database is {run.database}; try: monitor --db {run.database} summary")

@@ -61,11 +61,15 @@ def to_json(data: Any) -> str:
 
 
 def _cell(value: Any) -> str:
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
     value = _plain(value)
     if value is None:
         return ""
     if isinstance(value, float):
-        return f"{value:.4g}"
+        if value.is_integer() and abs(value) < 1e15:
+            return f"{int(value):,}" if abs(value) >= 10_000 else str(int(value))
+        return f"{value:,.1f}" if abs(value) >= 1000 else f"{value:.4g}"
     if isinstance(value, (list, dict)):
         return json.dumps(value, ensure_ascii=False)
     return str(value)

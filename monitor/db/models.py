@@ -29,6 +29,11 @@ SQLModel.metadata = MetaData(naming_convention=NAMING_CONVENTION)
 metadata = SQLModel.metadata
 
 
+def utcnow() -> dt.datetime:
+    """Now, in UTC, timezone-aware (every stored time is UTC)."""
+    return dt.datetime.now(dt.UTC)
+
+
 def _in(column: str, values: tuple[str, ...]) -> str:
     quoted = ", ".join(f"'{v}'" for v in values)
     return f"{column} IN ({quoted})"
@@ -60,7 +65,7 @@ class Programme(SQLModel, table=True):
     allow_lone_working: bool = False
     change_margin: float = Field(default=0.02, description="margin of change that matters [fraction a year]")
     settings_json: str = Field(default="{}", description="further settings as JSON (effort, units, ...)")
-    created_at: dt.datetime = Field(default_factory=lambda: dt.datetime.now(dt.UTC).replace(tzinfo=None))
+    created_at: dt.datetime = Field(default_factory=lambda: utcnow())
 
     __table_args__ = (
         CheckConstraint("default_quadrat_width_m > 0", name="quadrat_width_positive"),
@@ -193,18 +198,21 @@ class Target(SQLModel, table=True):
 
 
 class SeasonWindow(SQLModel, table=True):
-    """When a plant can be recorded: programme-wide (species_id NULL) or per species (flowering)."""
+    """When a plant can be recorded: programme-wide (species_id NULL) or per species (flowering).
+
+    A window may wrap the new year (start after end, a southern summer); year NULL means every year.
+    """
 
     __tablename__ = "season_window"
 
     id: int | None = Field(default=None, primary_key=True)
     programme_id: int = Field(sa_column=_fk("programme.id"))
     species_id: int | None = Field(default=None, sa_column=_fk("species.id", nullable=True))
+    year: int | None = Field(default=None, description="this season only; NULL = every season")
     start_md: str = Field(max_length=5, description="MM-DD")
     end_md: str = Field(max_length=5, description="MM-DD")
 
     __table_args__ = (
-        CheckConstraint("start_md <= end_md", name="opens_before_close"),
         CheckConstraint("length(start_md) = 5 AND length(end_md) = 5", name="month_day_form"),
     )
 
@@ -394,3 +402,53 @@ MEASURE_ROWS = (
     {"code": C.MEASURE_PIN_HITS, "description": "point-frame pins touching (k of n)", "unit": "pins", "needs_n": True},
     {"code": C.MEASURE_PRESENCE, "description": "present (1) or absent (0)", "unit": "0/1", "needs_n": False},
 )
+
+
+# --- revision 0002: stored season plans and quality flags -------------------------------------------------
+
+PLAN_OUTCOMES = ("planned", "done", "partial", "missed", "inaccessible", "held_back")
+FLAG_STATES = ("open", "resolved", "accepted")
+
+
+class PlannedVisit(SQLModel, table=True):
+    """A station's place in a season's plan: team, day, order on the day's route, and its outcome."""
+
+    __tablename__ = "planned_visit"
+
+    id: int | None = Field(default=None, primary_key=True)
+    round_id: int = Field(sa_column=_fk("round.id"))
+    station_id: int = Field(sa_column=_fk("station.id"))
+    team: str | None = None
+    day: dt.date | None = None
+    route_order: int | None = None
+    arrival: str | None = Field(default=None, max_length=5, description="planned arrival HH:MM")
+    reason: str = Field(default="due", description="due (panel rule) or overdue (missed earlier)")
+    outcome: str = "planned"
+    visit_id: int | None = Field(default=None, sa_column=_fk("visit.id", nullable=True))
+    seed: int | None = Field(default=None, description="seed of a randomised site order")
+
+    __table_args__ = (
+        UniqueConstraint("round_id", "station_id", name="uq_planned_visit_round_station"),
+        CheckConstraint(_in("outcome", PLAN_OUTCOMES), name="outcome_known"),
+        CheckConstraint("route_order IS NULL OR route_order >= 1", name="route_order_positive"),
+    )
+
+
+class QualityFlag(SQLModel, table=True):
+    """A quality-check finding on stored data, open until someone resolves or accepts it."""
+
+    __tablename__ = "quality_flag"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    kind: str
+    station_id: int | None = Field(default=None, sa_column=_fk("station.id", nullable=True))
+    species_id: int | None = Field(default=None, sa_column=_fk("species.id", nullable=True))
+    year: int | None = None
+    detail: str
+    severity: str = "warning"
+    state: str = "open"
+    note: str = ""
+    raised_at: dt.datetime = Field(default_factory=lambda: utcnow())
+
+    __table_args__ = (CheckConstraint(_in("state", FLAG_STATES), name="state_known"),)

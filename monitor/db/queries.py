@@ -45,7 +45,7 @@ def stations(store: Store, programme_id: int) -> pd.DataFrame:
 
 
 def species(store: Store, programme_id: int) -> pd.DataFrame:
-    return store.frame(
+    frame = store.frame(
         f"""
         SELECT sp.code AS {C.SPECIES}, sp.scientific_name, sp.common_name, sp.sensitive,
                g.measure AS {C.MEASURE}, g.n
@@ -54,6 +54,9 @@ def species(store: Store, programme_id: int) -> pd.DataFrame:
         """,
         p=programme_id,
     )
+    frame["sensitive"] = frame["sensitive"].astype(bool)  # SQLite gives 0/1
+    frame["n"] = frame["n"].astype("Int64")
+    return frame
 
 
 def visits_by_year(store: Store, programme_id: int) -> pd.DataFrame:
