@@ -44,6 +44,13 @@ class RawTable:
     headers: list[str]                      # canonical (see headers.HEADER_ALIASES), same order
     rows: list[tuple[int, list[str]]] = field(default_factory=list)  # (row number, cells as strings)
     header_row: int = 1
+    pending: list[InputProblem] = field(default_factory=list)  # shape problems found while reading
+
+    def problems(self) -> "Problems":
+        """A problem collector for this file, already holding the problems found while reading it."""
+        collector = Problems(self.file)
+        collector.extend(self.pending)
+        return collector
 
     def raw_name(self, canonical: str) -> str:
         """The header as the user wrote it, for messages."""
@@ -234,8 +241,8 @@ def table_from_rows(rows: list[tuple[int, list[str]]], file: str) -> RawTable:
             problems.add(number, None, long_cell[:20] + "...", f"cells of at most {MAX_FIELD_CHARS} characters")
             continue
         body.append((number, cells))
-    problems.raise_if_any()
-    return RawTable(file=file, raw_headers=raw, headers=canonical, rows=body, header_row=header_row)
+    return RawTable(file=file, raw_headers=raw, headers=canonical, rows=body, header_row=header_row,
+                    pending=list(problems.items))
 
 
 _WIDE_RE = re.compile(r"^\s*[^:\s]+\s*:\s*(count|cover|presence|frequency\s*/\s*\d+|pin_hits\s*/\s*\d+)\s*$",

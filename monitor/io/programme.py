@@ -237,7 +237,7 @@ def _text_or_none(value: object) -> str | None:
 # --- generic register reading -------------------------------------------------------------------------
 def _open(source: str | os.PathLike[str]) -> tuple[RawTable, Problems]:
     table = read_raw_table(source)
-    return table, Problems(table.file)
+    return table, table.problems()
 
 
 def _unique_codes(table: RawTable, key: str, problems: Problems) -> dict[str, int]:

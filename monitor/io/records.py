@@ -1,0 +1,348 @@
+"""Field-record readers: a season's visits and values from CSV or .xlsx, wide or long layout.
+
+The layouts are the agreed ones (FIELD_LAYOUT.md): the wide "field sheet" (one row per station visit,
+one ``<SPECIES>:<measure>`` column per target species and measure, ``cov:<name>[<unit>]`` covariate
+columns) and the long layout (one row per station, date, species and measure).  The layout is detected
+from the header: ``species``, ``measure`` and ``value`` columns mean long; ``SPECIES:measure`` columns
+mean wide.
+
+The reader checks the file's form (columns, types, dates, one visit per station and date, visit
+fields agreeing across a visit's rows in the long layout).  What the values mean against the programme
+(known stations and species, ranges, windows, targets) is checked by
+:func:`monitor.io.validate.validate_records`.
+
+A blank value cell means "not recorded" and yields no observation; ``0`` is a recorded absence.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+import re
+from dataclasses import dataclass
+
+import pandas as pd
+
+from monitor import columns as C
+from monitor.errors import InputError, InputProblem
+from monitor.io import headers as H
+from monitor.io._tables import (
+    _COV_RE,
+    Problems,
+    RawTable,
+    check_columns,
+    get,
+    parse_bool,
+    parse_date,
+    parse_int,
+    parse_number,
+    read_raw_table,
+)
+
+WIDE = "wide"
+LONG = "long"
+
+VISIT_COLUMNS = [C.STATION, C.DATE, C.YEAR, H.OBSERVERS, C.VISIT_STATUS, H.REPEAT, C.PROTOCOL, H.NOTES,
+                 H.SOURCE_ROW]
+OBSERVATION_COLUMNS = [C.STATION, C.DATE, C.SPECIES, C.MEASURE, H.VALUE, H.N, H.SOURCE_ROW, H.SOURCE_FIELD]
+COVARIATE_COLUMNS = [C.STATION, C.DATE, "name", H.UNIT, H.VALUE, H.SOURCE_ROW]
+
+VISIT_REQUIRED = [C.STATION, C.DATE, C.VISIT_STATUS]
+VISIT_OPTIONAL = [H.OBSERVERS, H.REPEAT, C.PROTOCOL, H.NOTES]
+LONG_REQUIRED = VISIT_REQUIRED + [C.SPECIES, C.MEASURE, H.VALUE]
+LONG_OPTIONAL = VISIT_OPTIONAL + [H.N]
+
+_VALUE_HEADER = re.compile(r"^\s*([^:\s]+)\s*:\s*([A-Za-z_ ]+?)\s*(?:/\s*(\S+))?\s*$")
+
+
+@dataclass(frozen=True)
+class FieldRecords:
+    """A season's field records read from one file, in the canonical frames of FIELD_LAYOUT.md."""
+
+    file: str
+    layout: str               # "wide" or "long"
+    visits: pd.DataFrame      # VISIT_COLUMNS
+    observations: pd.DataFrame  # OBSERVATION_COLUMNS
+    covariates: pd.DataFrame  # COVARIATE_COLUMNS
+
+
+def parse_value_header(raw: str) -> tuple[str, str, int | None] | str:
+    """``"PRIMUL:frequency/25"`` -> ("PRIMUL", "frequency", 25); a string saying what is wrong otherwise."""
+    m = _VALUE_HEADER.match(raw)
+    if not m:
+        return "a value column <SPECIES>:<measure> such as 'ANEMNE:count' or 'PRIMUL:frequency/25'"
+    species, measure, n_text = m[1], m[2].strip().lower().replace(" ", "_"), m[3]
+    if measure not in C.MEASURES:
+        return f"a measure among {', '.join(C.MEASURES)} after the ':'"
+    if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
+        n = parse_int(n_text) if n_text else None
+        if n is None or n <= 0:
+            return f"'{species}:{measure}/<n>' with n the whole number of {'cells' if measure == C.MEASURE_FREQUENCY else 'pins'} > 0"
+        return species, measure, n
+    if n_text is not None:
+        return f"no '/n' after measure '{measure}'"
+    return species, measure, None
+
+
+def parse_covariate_header(raw: str) -> tuple[str, str | None] | None:
+    """``"cov:soil_moisture[%]"`` -> ("soil_moisture", "%"); None if not a covariate header."""
+    m = _COV_RE.match(raw)
+    if not m:
+        return None
+    return m[1].strip(), (m[2].strip() or None) if m[2] is not None else None
+
+
+def detect_layout(table: RawTable) -> str | None:
+    """'long' if species, measure and value columns exist; 'wide' if SPECIES:measure columns do."""
+    long_ = all(name in table.headers for name in (C.SPECIES, C.MEASURE, H.VALUE))
+    wide = any(":" in raw and not parse_covariate_header(raw) for raw in table.raw_headers)
+    if long_ and not wide:
+        return LONG
+    if wide and not long_:
+        return WIDE
+    if not long_ and not wide and C.STATION in table.headers:
+        return WIDE  # visits only (e.g. a sheet of missed visits), possibly with covariates
+    return None
+
+
+def read_field_records(source: str | os.PathLike[str], *, layout: str | None = None,
+                       day_first: bool | None = None) -> FieldRecords:
+    """Read a season's field records from CSV or .xlsx (first sheet) into canonical frames.
+
+    Parameters
+    ----------
+    source : path
+        CSV (encoding rule in :mod:`monitor.io._tables`) or .xlsx file.
+    layout : {"wide", "long"}, optional
+        Force a layout; detected from the header when omitted.
+    day_first : bool, optional
+        How to read slash dates.  Default: only unambiguous DD/MM/YYYY dates are accepted.
+
+    Raises
+    ------
+    InputError
+        With every problem found (file, row, field, value, expected).
+    """
+    table = read_raw_table(source)
+    problems = table.problems()
+    found = detect_layout(table)
+    if layout is None:
+        if found is None:
+            raise InputError(InputProblem(table.file, table.header_row, None, None,
+                                          "either the wide layout (station, date, status and SPECIES:measure "
+                                          "columns) or the long layout (station, date, status, species, "
+                                          "measure, value), not both"))
+        layout = found
+    if layout not in (WIDE, LONG):
+        raise InputError(f"layout must be 'wide' or 'long', got {layout!r}")
+
+    value_columns: dict[int, tuple[str, str, int | None]] = {}
+    cov_columns: dict[int, tuple[str, str | None]] = {}
+    for i, raw in enumerate(table.raw_headers):
+        cov = parse_covariate_header(raw)
+        if cov is not None:
+            cov_columns[i] = cov
+        elif ":" in raw:
+            parsed = parse_value_header(raw)
+            if isinstance(parsed, str):
+                problems.add(table.header_row, raw, raw, parsed)
+            elif layout == LONG:
+                problems.add(table.header_row, raw, raw, "no SPECIES:measure columns in the long layout")
+            else:
+                value_columns[i] = parsed
+    special = {table.headers[i] for i in (*value_columns, *cov_columns)}
+    base = [name for name in table.headers if ":" not in name or name in special]
+    base_table = RawTable(table.file, [table.raw_headers[table.headers.index(n)] for n in base], base,
+                          [], table.header_row)
+    required, optional = (VISIT_REQUIRED, VISIT_OPTIONAL) if layout == WIDE else (LONG_REQUIRED, LONG_OPTIONAL)
+    missing = check_columns(base_table, required, optional + sorted(special), problems)
+    if missing:
+        problems.raise_if_any()
+
+    reader = _Reader(table, problems, day_first, cov_columns)
+    if layout == WIDE:
+        reader.read_wide(value_columns)
+    else:
+        reader.read_long()
+    problems.raise_if_any()
+    visits = pd.DataFrame(reader.visits, columns=VISIT_COLUMNS)
+    observations = pd.DataFrame(reader.observations, columns=OBSERVATION_COLUMNS)
+    observations[H.N] = observations[H.N].astype("Int64")
+    observations[H.VALUE] = observations[H.VALUE].astype(float)
+    covariates = pd.DataFrame(reader.covariates, columns=COVARIATE_COLUMNS)
+    covariates[H.VALUE] = covariates[H.VALUE].astype(float)
+    for frame in (visits, observations, covariates):
+        frame.attrs["file"] = table.file
+    return FieldRecords(table.file, layout, visits, observations, covariates)
+
+
+class _Reader:
+    def __init__(self, table: RawTable, problems: Problems, day_first: bool | None,
+                 cov_columns: dict[int, tuple[str, str | None]]):
+        self.table = table
+        self.problems = problems
+        self.day_first = day_first
+        self.cov_columns = cov_columns
+        self.visits: list[dict] = []
+        self.observations: list[dict] = []
+        self.covariates: list[dict] = []
+        self.visit_rows: dict[tuple[str, dt.date], int] = {}
+
+    def raw(self, name: str) -> str:
+        return self.table.raw_name(name) if name in self.table.headers else name
+
+    # visit-level fields ------------------------------------------------------------------------
+    def visit_fields(self, number: int, cells: list[str]) -> dict | None:
+        t, p = self.table, self.problems
+        ok = True
+        station = get(t, cells, C.STATION)
+        if not station:
+            p.add(number, self.raw(C.STATION), None, "a station code")
+            ok = False
+        date_text = get(t, cells, C.DATE)
+        date, why = parse_date(date_text, day_first=self.day_first) if date_text else (None, "a visit date")
+        if date is None:
+            p.add(number, self.raw(C.DATE), date_text or None, why or "a date")
+            ok = False
+        status_text = get(t, cells, C.VISIT_STATUS)
+        status = status_text.lower()
+        if status not in C.VISIT_STATUSES:
+            p.add(number, self.raw(C.VISIT_STATUS), status_text or None, f"one of {', '.join(C.VISIT_STATUSES)}")
+            ok = False
+        observers_text = get(t, cells, H.OBSERVERS)
+        observers = tuple(o.strip() for o in observers_text.split(";") if o.strip())
+        if status in C.STATUSES_WITH_VALUES and not observers:
+            p.add(number, self.raw(H.OBSERVERS), observers_text or None,
+                  f"observer codes separated by ';' for a {status} visit")
+        repeat_text = get(t, cells, H.REPEAT)
+        repeat = parse_bool(repeat_text)
+        if repeat is None:
+            p.add(number, self.raw(H.REPEAT), repeat_text, "yes or no (blank = no)")
+            repeat = False
+        if not ok:
+            return None
+        return {C.STATION: station, C.DATE: date, C.YEAR: date.year, H.OBSERVERS: observers,
+                C.VISIT_STATUS: status, H.REPEAT: repeat, C.PROTOCOL: get(t, cells, C.PROTOCOL) or None,
+                H.NOTES: get(t, cells, H.NOTES) or None, H.SOURCE_ROW: number}
+
+    def covariate_values(self, number: int, cells: list[str], visit: dict | None) -> list[dict]:
+        out = []
+        for i, (name, unit) in self.cov_columns.items():
+            text = cells[i]
+            if not text:
+                continue
+            value = parse_number(text)
+            if value is None:
+                self.problems.add(number, self.table.raw_headers[i], text,
+                                  "a number with '.' as decimal mark, |x| <= 1e12")
+                continue
+            if visit is not None:
+                out.append({C.STATION: visit[C.STATION], C.DATE: visit[C.DATE], "name": name, H.UNIT: unit,
+                            H.VALUE: value, H.SOURCE_ROW: number})
+        return out
+
+    def value(self, number: int, field: str, measure: str, text: str) -> float | None:
+        if measure == C.MEASURE_PRESENCE:
+            flag = parse_bool(text)
+            if flag is None or not text:
+                self.problems.add(number, field, text, "presence as 0/1 or yes/no")
+                return None
+            return 1.0 if flag else 0.0
+        value = parse_number(text)
+        if value is None:
+            self.problems.add(number, field, text, "a number with '.' as decimal mark, |x| <= 1e12")
+        return value
+
+    def new_visit(self, visit: dict) -> bool:
+        key = (visit[C.STATION], visit[C.DATE])
+        if key in self.visit_rows:
+            self.problems.add(visit[H.SOURCE_ROW], self.raw(C.DATE), visit[C.DATE].isoformat(),
+                              f"one visit per station and date (station {visit[C.STATION]} also on row "
+                              f"{self.visit_rows[key]})")
+            return False
+        self.visit_rows[key] = visit[H.SOURCE_ROW]
+        self.visits.append(visit)
+        return True
+
+    # layouts ------------------------------------------------------------------------------------
+    def read_wide(self, value_columns: dict[int, tuple[str, str, int | None]]) -> None:
+        for number, cells in self.table.rows:
+            visit = self.visit_fields(number, cells)
+            values = []
+            for i, (species, measure, n) in value_columns.items():
+                text = cells[i]
+                if not text:
+                    continue  # blank = not recorded
+                value = self.value(number, self.table.raw_headers[i], measure, text)
+                if value is not None and visit is not None:
+                    values.append({C.STATION: visit[C.STATION], C.DATE: visit[C.DATE], C.SPECIES: species,
+                                   C.MEASURE: measure, H.VALUE: value, H.N: n, H.SOURCE_ROW: number,
+                                   H.SOURCE_FIELD: self.table.raw_headers[i]})
+            covs = self.covariate_values(number, cells, visit)
+            if visit is not None and self.new_visit(visit):
+                self.observations.extend(values)
+                self.covariates.extend(covs)
+
+    def read_long(self) -> None:
+        t, p = self.table, self.problems
+        by_key: dict[tuple[str, dt.date], dict] = {}
+        cov_seen: dict[tuple[str, dt.date, str], tuple[float, int]] = {}
+        obs_seen: dict[tuple[str, dt.date, str, str], int] = {}
+        for number, cells in t.rows:
+            visit = self.visit_fields(number, cells)
+            if visit is not None:
+                key = (visit[C.STATION], visit[C.DATE])
+                first = by_key.get(key)
+                if first is None:
+                    by_key[key] = visit
+                    self.new_visit(visit)
+                else:
+                    for name in (H.OBSERVERS, C.VISIT_STATUS, H.REPEAT, C.PROTOCOL, H.NOTES):
+                        if visit[name] != first[name] and not (name == H.NOTES and visit[name] is None):
+                            shown = ";".join(visit[name]) if name == H.OBSERVERS else visit[name]
+                            p.add(number, self.raw(name), shown,
+                                  f"the same {name} as row {first[H.SOURCE_ROW]} for this visit")
+            for cov in self.covariate_values(number, cells, visit):
+                ckey = (cov[C.STATION], cov[C.DATE], cov["name"])
+                if ckey in cov_seen:
+                    if cov_seen[ckey][0] != cov[H.VALUE]:
+                        p.add(number, f"cov:{cov['name']}", cov[H.VALUE],
+                              f"the same covariate value as row {cov_seen[ckey][1]} for this visit")
+                    continue
+                cov_seen[ckey] = (cov[H.VALUE], number)
+                self.covariates.append(cov)
+            species = get(t, cells, C.SPECIES)
+            measure_text = get(t, cells, C.MEASURE)
+            value_text = get(t, cells, H.VALUE)
+            n_text = get(t, cells, H.N)
+            if not (species or measure_text or value_text or n_text):
+                continue  # a visit-only row (missed / inaccessible visits, or a done visit with covariates)
+            measure = measure_text.lower().replace(" ", "_").replace("-", "_")
+            if not species:
+                p.add(number, self.raw(C.SPECIES), None, "a species code beside a measure or value")
+            if measure not in C.MEASURES:
+                p.add(number, self.raw(C.MEASURE), measure_text or None, f"one of {', '.join(C.MEASURES)}")
+                continue
+            n = None
+            if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
+                n = parse_int(n_text) if n_text else None
+                if n is None or n <= 0:
+                    p.add(number, self.raw(H.N), n_text or None,
+                          f"a whole number of {'cells' if measure == C.MEASURE_FREQUENCY else 'pins'} > 0 "
+                          f"for {measure}")
+            elif n_text:
+                p.add(number, self.raw(H.N), n_text, f"a blank n for measure '{measure}'")
+            if not value_text:
+                continue  # not recorded
+            value = self.value(number, self.raw(H.VALUE), measure, value_text)
+            if value is None or visit is None or not species:
+                continue
+            okey = (visit[C.STATION], visit[C.DATE], species, measure)
+            if okey in obs_seen:
+                p.add(number, self.raw(C.SPECIES), species,
+                      f"one value per visit, species and measure (also row {obs_seen[okey]})")
+                continue
+            obs_seen[okey] = number
+            self.observations.append({C.STATION: visit[C.STATION], C.DATE: visit[C.DATE], C.SPECIES: species,
+                                      C.MEASURE: measure, H.VALUE: value, H.N: n, H.SOURCE_ROW: number,
+                                      H.SOURCE_FIELD: self.raw(H.VALUE)})

@@ -1,0 +1,335 @@
+"""Validation of a season's field records against the programme (pure; no database).
+
+:func:`validate_records` takes the canonical frames produced by :mod:`monitor.io.records` and a
+:class:`Reference` describing what the programme holds, and returns every problem as an
+:class:`monitor.errors.InputProblem` (severity "error", or "warning" for the checks a user may accept
+with a flag: a date in the future, a date outside the round's or the species' season window).
+
+Range rules per measure (design.md, "measure"): count a whole number >= 0; cover a percent 0-100;
+frequency and pin hits a whole k with 0 <= k <= n and n the programme's grid or frame; presence 0 or 1.
+Vectorised over the observations so that a million rows validate in seconds.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import difflib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from monitor import columns as C
+from monitor.errors import InputError, InputProblem
+from monitor.io import headers as H
+
+WARNING = "warning"
+
+
+@dataclass(frozen=True)
+class Reference:
+    """What the programme already holds, as far as checking a season's records needs.
+
+    Attributes
+    ----------
+    stations : DataFrame
+        Columns ``station`` and ``retired`` (date, or None/NaT while in service).
+    species : DataFrame
+        Columns ``species``, ``measure`` and ``n`` (cells or pins; NA for other measures).  A species
+        may appear on several rows if it is measured in several ways.
+    targets : tuple of (species, measure)
+        What every done visit records; a done visit without a value for one of them is an error
+        unless ``blanks_mean_zero``.
+    blanks_mean_zero : bool
+        The programme's rule that a target left blank on a done visit is a recorded zero.
+    windows : mapping year -> (start date, end date)
+        The round's season window in each year.
+    species_windows : mapping species -> ("MM-DD", "MM-DD")
+        Phenology windows per species; may wrap the new year.
+    existing_visits : DataFrame, optional
+        Stored visits: columns ``station``, ``date`` and ``repeat``.
+    observers : frozenset of str, optional
+        The observer register; when given, every observer code must be in it.
+    covariate_units : mapping name -> unit, optional
+        Known covariates and their units; when given, names and units must match.
+    today : date
+        Dates after this are in the future.
+    """
+
+    stations: pd.DataFrame
+    species: pd.DataFrame
+    targets: tuple[tuple[str, str], ...] = ()
+    blanks_mean_zero: bool = False
+    windows: Mapping[int, tuple[dt.date, dt.date]] = field(default_factory=dict)
+    species_windows: Mapping[str, tuple[str, str]] = field(default_factory=dict)
+    existing_visits: pd.DataFrame | None = None
+    observers: frozenset[str] | None = None
+    covariate_units: Mapping[str, str | None] | None = None
+    today: dt.date = field(default_factory=dt.date.today)
+
+
+def _closest(value: str, choices: list[str]) -> str:
+    close = difflib.get_close_matches(value, choices, n=3, cutoff=0.5)
+    if not close:
+        lowered = {c.lower(): c for c in choices}
+        if value.lower() in lowered:
+            close = [lowered[value.lower()]]
+    return f"; closest: {', '.join(close)}" if close else ""
+
+
+def _as_date(value: object) -> dt.date | None:
+    if value is None or (isinstance(value, float) and np.isnan(value)) or value is pd.NaT:
+        return None
+    if isinstance(value, pd.Timestamp):
+        return value.date()
+    if isinstance(value, dt.datetime):
+        return value.date()
+    if isinstance(value, dt.date):
+        return value
+    try:
+        if pd.isna(value):
+            return None
+    except (TypeError, ValueError):
+        pass
+    return pd.Timestamp(value).date()
+
+
+def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
+    md = f"{date.month:02d}-{date.day:02d}"
+    if start <= end:
+        return start <= md <= end
+    return md >= start or md <= end  # wraps the new year
+
+
+def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariates: pd.DataFrame,
+                     reference: Reference, *, file: str | None = None) -> list[InputProblem]:
+    """Check a season's records against the programme; return every problem found.
+
+    Parameters
+    ----------
+    visits, observations, covariates : DataFrame
+        Canonical frames (FIELD_LAYOUT.md), e.g. from :func:`monitor.io.records.read_field_records`.
+    reference : Reference
+        What the programme holds.
+    file : str, optional
+        File name for the messages; defaults to ``visits.attrs["file"]``.
+
+    Returns
+    -------
+    list of InputProblem
+        Errors and warnings, in the order: visits, observations, covariates.
+    """
+    file = file or visits.attrs.get("file") or "<records>"
+    out: list[InputProblem] = []
+
+    def add(row, field_, value, expected, severity="error"):
+        out.append(InputProblem(file, None if row is None else int(row), field_, value, expected, severity))
+
+    station_codes = [str(s) for s in reference.stations[C.STATION]]
+    retired = {}
+    if H.RETIRED in reference.stations.columns:
+        for code, when in zip(reference.stations[C.STATION], reference.stations[H.RETIRED]):
+            when = _as_date(when)
+            if when is not None:
+                retired[code] = when
+    known_stations = set(station_codes)
+
+    # --- visits ------------------------------------------------------------------------------
+    status_of: dict[tuple[str, dt.date], str] = {}
+    row_of: dict[tuple[str, dt.date], int] = {}
+    rounds: dict[tuple[str, int], list[tuple[dt.date, bool, int | None]]] = {}
+    if reference.existing_visits is not None and len(reference.existing_visits):
+        ex = reference.existing_visits
+        reps = ex[H.REPEAT] if H.REPEAT in ex.columns else [False] * len(ex)
+        for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps):
+            date = _as_date(date)
+            rounds.setdefault((station, date.year), []).append((date, bool(rep), None))
+    for rec in visits.itertuples(index=False):
+        v = rec._asdict()
+        station, date, row = v[C.STATION], _as_date(v[C.DATE]), v.get(H.SOURCE_ROW)
+        status_of[(station, date)] = v[C.VISIT_STATUS]
+        row_of[(station, date)] = row
+        if station not in known_stations:
+            add(row, C.STATION, station, "a station of the programme" + _closest(station, station_codes))
+        elif station in retired and date >= retired[station]:
+            add(row, C.STATION, station, f"a station in service on {date.isoformat()} "
+                                         f"(retired on {retired[station].isoformat()})")
+        if date > reference.today:
+            add(row, C.DATE, date.isoformat(), f"a date not after today ({reference.today.isoformat()})", WARNING)
+        window = reference.windows.get(date.year)
+        if window is not None and not window[0] <= date <= window[1]:
+            add(row, C.DATE, date.isoformat(),
+                f"a date inside the {date.year} season window {window[0].isoformat()} to {window[1].isoformat()}",
+                WARNING)
+        if reference.observers is not None:
+            for code in v.get(H.OBSERVERS) or ():
+                if code not in reference.observers:
+                    add(row, H.OBSERVERS, code,
+                        "an observer in the register" + _closest(code, sorted(reference.observers)))
+        rounds.setdefault((station, date.year), []).append((date, bool(v.get(H.REPEAT)), row))
+    for (station, year), entries in rounds.items():
+        # same station and date already stored = the same visit (a correction), not a second one
+        first_plain: dt.date | None = None
+        seen_dates: set[dt.date] = set()
+        for date, repeat, row in sorted(entries, key=lambda e: (e[2] is not None, e[0])):
+            if date in seen_dates:
+                continue
+            seen_dates.add(date)
+            if repeat:
+                continue
+            if first_plain is None:
+                first_plain = date
+            elif row is not None:
+                add(row, H.REPEAT, "no", f"repeat = yes for a second visit to {station} in the {year} round "
+                                         f"(already visited on {first_plain.isoformat()})")
+
+    # --- observations -------------------------------------------------------------------------
+    obs = observations
+    if len(obs):
+        rows = obs[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in obs.columns else np.full(len(obs), None)
+        fields = obs[H.SOURCE_FIELD].to_numpy() if H.SOURCE_FIELD in obs.columns else np.full(len(obs), None)
+        stations = obs[C.STATION].to_numpy()
+        dates = obs[C.DATE].to_numpy()
+        species = obs[C.SPECIES].astype(str).to_numpy()
+        measures = obs[C.MEASURE].astype(str).to_numpy()
+        values = obs[H.VALUE].astype(float).to_numpy()
+        ns = pd.to_numeric(obs[H.N], errors="coerce").to_numpy(dtype=float) if H.N in obs.columns \
+            else np.full(len(obs), np.nan)
+
+        # missed / inaccessible visits carry no values; values must belong to a visit in the file
+        visit_status = np.array([status_of.get((s, _as_date(d))) for s, d in zip(stations, dates)], dtype=object)
+        for i in np.flatnonzero(visit_status == None):  # noqa: E711 - elementwise on an object array
+            add(rows[i], fields[i], values[i], f"a value belonging to a visit of {stations[i]} in this file")
+        no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
+        for i in np.flatnonzero(no_values):
+            add(rows[i], fields[i], values[i],
+                f"a blank cell: a {visit_status[i]} visit carries no values (missing is not zero)")
+
+        # species and their measures
+        registered = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES],
+                                                             reference.species[C.MEASURE],
+                                                             reference.species.get(H.N, [None] * len(reference.species)))}
+        species_codes = sorted({s for s, _ in registered})
+        known_species = set(species_codes)
+        unknown = ~np.isin(species, species_codes)
+        for i in np.flatnonzero(unknown):
+            add(rows[i], fields[i], species[i], "a species of the programme" + _closest(species[i], species_codes))
+        pairs = pd.Series(list(zip(species, measures)))
+        not_registered = ~pairs.isin(list(registered)).to_numpy() & ~unknown
+        for i in np.flatnonzero(not_registered):
+            ways = sorted(m for s, m in registered if s == species[i])
+            add(rows[i], fields[i], measures[i], f"a measure registered for {species[i]}: {', '.join(ways)}")
+
+        # ranges per measure
+        whole = np.isclose(values, np.round(values), rtol=0, atol=1e-9)
+        is_ = {m: measures == m for m in C.MEASURES}
+        bad = is_[C.MEASURE_COUNT] & ((values < 0) | ~whole)
+        for i in np.flatnonzero(bad):
+            add(rows[i], fields[i], values[i], "a count: a whole number >= 0")
+        bad = is_[C.MEASURE_COVER] & ((values < 0) | (values > 100))
+        for i in np.flatnonzero(bad):
+            add(rows[i], fields[i], values[i], "cover in percent, 0 to 100")
+        bad = is_[C.MEASURE_PRESENCE] & ~np.isin(values, [0.0, 1.0])
+        for i in np.flatnonzero(bad):
+            add(rows[i], fields[i], values[i], "presence 0 or 1")
+        kn = is_[C.MEASURE_FREQUENCY] | is_[C.MEASURE_PIN_HITS]
+        with np.errstate(invalid="ignore"):
+            bad = kn & ((values < 0) | ~whole | (np.nan_to_num(ns, nan=np.inf) < values))
+        for i in np.flatnonzero(bad):
+            unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
+            add(rows[i], fields[i], values[i], f"a whole number of {unit} k with 0 <= k <= n = "
+                                               f"{'?' if np.isnan(ns[i]) else int(ns[i])}")
+        programme_n = np.array([registered.get((s, m)) for s, m in zip(species, measures)], dtype=object)
+        programme_n = pd.to_numeric(pd.Series(programme_n), errors="coerce").to_numpy(dtype=float)
+        bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
+        for i in np.flatnonzero(bad):
+            unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
+            shown = None if np.isnan(ns[i]) else int(ns[i])
+            add(rows[i], fields[i], f"n={shown}",
+                f"n = {int(programme_n[i])} {unit}, the programme's {'grid' if unit == 'cells' else 'frame'} "
+                f"for {species[i]}")
+
+        # species windows (phenology): warnings
+        if reference.species_windows:
+            for i in np.flatnonzero(np.isin(species, list(reference.species_windows))):
+                start, end = reference.species_windows[species[i]]
+                date = _as_date(dates[i])
+                if not _in_month_day_window(date, start, end):
+                    add(rows[i], fields[i], date.isoformat(),
+                        f"a visit inside {species[i]}'s season window {start} to {end}", WARNING)
+        del known_species
+
+    # --- targets on done visits ------------------------------------------------------------------
+    if reference.targets and not reference.blanks_mean_zero and len(visits):
+        recorded = set(zip(observations[C.STATION], observations[C.DATE].map(_as_date),
+                           observations[C.SPECIES], observations[C.MEASURE])) if len(observations) else set()
+        for rec in visits.itertuples(index=False):
+            v = rec._asdict()
+            if v[C.VISIT_STATUS] != C.STATUS_DONE:
+                continue
+            date = _as_date(v[C.DATE])
+            for species_code, measure in reference.targets:
+                if (v[C.STATION], date, species_code, measure) not in recorded:
+                    add(v.get(H.SOURCE_ROW), f"{species_code}:{measure}", None,
+                        f"a value for target {species_code} ({measure}) on a done visit; 0 if absent "
+                        "(the programme does not treat blanks as zero)")
+
+    # --- covariates -----------------------------------------------------------------------------
+    if len(covariates):
+        for rec in covariates.itertuples(index=False):
+            c = rec._asdict()
+            key = (c[C.STATION], _as_date(c[C.DATE]))
+            row = c.get(H.SOURCE_ROW)
+            shown_field = f"cov:{c['name']}"
+            if status_of.get(key) in (C.STATUS_MISSED, C.STATUS_INACCESSIBLE):
+                add(row, shown_field, c[H.VALUE], f"a blank cell: a {status_of[key]} visit carries no values")
+            if reference.covariate_units is not None:
+                if c["name"] not in reference.covariate_units:
+                    add(row, shown_field, c["name"], "a covariate of the programme"
+                        + _closest(str(c["name"]), sorted(reference.covariate_units)))
+                elif (reference.covariate_units[c["name"]] or None) != (c.get(H.UNIT) or None):
+                    add(row, shown_field, c.get(H.UNIT),
+                        f"unit [{reference.covariate_units[c['name']]}] as the programme records {c['name']}")
+    out.sort(key=lambda p: (p.row if p.row is not None else -1))
+    return out
+
+
+def raise_for_problems(problems: list[InputProblem], *, accept_warnings: bool = False) -> list[InputProblem]:
+    """Raise InputError if there is any error, or any warning not accepted; return the accepted warnings."""
+    errors = [p for p in problems if p.severity != WARNING]
+    warnings = [p for p in problems if p.severity == WARNING]
+    if errors or (warnings and not accept_warnings):
+        raise InputError(errors + ([] if accept_warnings else warnings))
+    return warnings
+
+
+def fill_blank_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference: Reference) -> pd.DataFrame:
+    """For a programme whose blanks mean zero: add a stored 0 for every target missing on a done visit.
+
+    Only done visits are filled; partial, missed and inaccessible visits never are (missing is not zero).
+    The added rows have ``source_field`` "(blank = 0)".
+    """
+    if not reference.blanks_mean_zero or not reference.targets:
+        return observations
+    n_of = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES], reference.species[C.MEASURE],
+                                                   reference.species.get(H.N, [None] * len(reference.species)))}
+    have = set(zip(observations[C.STATION], observations[C.DATE].map(_as_date), observations[C.SPECIES],
+                   observations[C.MEASURE])) if len(observations) else set()
+    added = []
+    done = visits[visits[C.VISIT_STATUS] == C.STATUS_DONE]
+    for rec in done.itertuples(index=False):
+        v = rec._asdict()
+        date = _as_date(v[C.DATE])
+        for species_code, measure in reference.targets:
+            if (v[C.STATION], date, species_code, measure) not in have:
+                n = n_of.get((species_code, measure))
+                added.append({C.STATION: v[C.STATION], C.DATE: date, C.SPECIES: species_code, C.MEASURE: measure,
+                              H.VALUE: 0.0, H.N: None if n is None or pd.isna(n) else int(n),
+                              H.SOURCE_ROW: v.get(H.SOURCE_ROW), H.SOURCE_FIELD: "(blank = 0)"})
+    if not added:
+        return observations
+    out = pd.concat([observations, pd.DataFrame(added, columns=observations.columns)], ignore_index=True)
+    out[H.N] = out[H.N].astype("Int64")
+    out.attrs = dict(observations.attrs)
+    return out
