@@ -219,7 +219,8 @@ def main() -> None:
             start, every = panel_rule[st["panel"]]
             if (year - start) % every != 0 or year < start:
                 continue
-            day = dt.date(year, 6, 1) + dt.timedelta(days=int(rng.integers(0, 50)))
+            # inside every species window (06-15 to 07-10 is common to all five)
+            day = dt.date(year, 6, 15) + dt.timedelta(days=int(rng.integers(0, 26)))
             pair = rng.choice(active_observers, size=2, replace=False)
             status = "done"
             u = rng.random()

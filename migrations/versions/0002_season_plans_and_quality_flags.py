@@ -11,7 +11,6 @@ import sqlalchemy as sa
 import sqlmodel
 from alembic import op
 
-
 revision = "0002"
 down_revision = "0001"
 branch_labels = None

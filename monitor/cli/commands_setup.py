@@ -100,6 +100,12 @@ def demo_command(folder: Path) -> None:
 
     run = demo.run_demo(folder, echo=say)
     for name, result in run.steps:
+        if name == "imports":
+            from monitor.cli.commands_records import describe_import
+
+            click.echo("\nImported field records")
+            for report in result:
+                click.echo("  " + describe_import(report).splitlines()[0])
         if name == "summary":
             click.echo("\nProgramme summary")
             emit(result["sites"], columns=["site", "name", "habitat", "area_m2", "in_service", "retired"],

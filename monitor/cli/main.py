@@ -40,7 +40,7 @@ def cli(ctx: click.Context, db: str, programme: str | None) -> None:
 
 def _register() -> None:
     # each command group lives in its own module; importing it attaches it to `cli`
-    from monitor.cli import commands_setup  # noqa: F401
+    from monitor.cli import commands_records, commands_setup  # noqa: F401
 
 
 _register()
@@ -60,7 +60,7 @@ def main(argv: list[str] | None = None) -> int:
         return exc.exit_code
     except InputError as exc:
         for problem in exc.problems:
-            click.echo(f"error: {problem.line()}", err=True)
+            click.echo(f"{'error' if problem.severity == 'error' else 'refused'}: {problem.line()}", err=True)
         return exc.exit_code
     except MonitorError as exc:
         click.echo(f"error: {exc}", err=True)

@@ -88,3 +88,108 @@ def table_counts(store: Store) -> dict[str, int]:
         for table in metadata.sorted_tables:
             out[table.name] = connection.execute(select(func.count()).select_from(table)).scalar_one()
     return out
+
+
+def observations_long(store: Store, programme_id: int, *, species: str | None = None, measure: str | None = None,
+                      sites: list[str] | None = None, first_year: int | None = None,
+                      last_year: int | None = None) -> pd.DataFrame:
+    """The long table that feeds the analyses: one row per stored value.
+
+    Only done and partial visits carry values, so a missed or inaccessible visit is simply absent here:
+    missing is never turned into zero.  A zero is a recorded absence.  Columns: station, site, transect,
+    distance_m, x, y, placement, quadrat_area_m2, year, date, visit_id, repeat_no, status, protocol,
+    observer (';'-joined codes), species, measure, value, n.
+    """
+    where = ["t.programme_id = :p"]
+    params: dict[str, object] = {"p": programme_id}
+    if species is not None:
+        where.append("sp.code = :species")
+        params["species"] = species
+    if measure is not None:
+        where.append("o.measure = :measure")
+        params["measure"] = measure
+    if first_year is not None:
+        where.append("r.year >= :y0")
+        params["y0"] = first_year
+    if last_year is not None:
+        where.append("r.year <= :y1")
+        params["y1"] = last_year
+    if sites:
+        names = []
+        for i, code in enumerate(sites):
+            params[f"s{i}"] = code
+            names.append(f":s{i}")
+        where.append(f"s.code IN ({', '.join(names)})")
+    frame = store.frame(
+        f"""
+        SELECT t.code AS {C.STATION}, s.code AS {C.SITE}, t.transect AS {C.TRANSECT}, t.distance_m AS {C.DISTANCE},
+               t.x AS {C.X}, t.y AS {C.Y}, t.placement, t.quadrat_width_m * t.quadrat_length_m AS {C.QUADRAT_AREA},
+               r.year AS {C.YEAR}, v.date AS {C.DATE}, v.id AS visit_id, v.repeat_no, v.status AS {C.VISIT_STATUS},
+               pv.code AS {C.PROTOCOL}, sp.code AS {C.SPECIES}, o.measure AS {C.MEASURE}, o.value, o.n
+        FROM observation o
+        JOIN visit v ON v.id = o.visit_id
+        JOIN round r ON r.id = v.round_id
+        JOIN station t ON t.id = v.station_id
+        JOIN site s ON s.id = t.site_id
+        JOIN species sp ON sp.id = o.species_id
+        LEFT JOIN protocol_version pv ON pv.id = v.protocol_id
+        WHERE {' AND '.join(where)}
+        ORDER BY sp.code, o.measure, r.year, t.code, v.repeat_no
+        """,
+        **params,
+    )
+    observers = store.frame(
+        """
+        SELECT vo.visit_id, ob.code FROM visit_observer vo JOIN observer ob ON ob.id = vo.observer_id
+        WHERE ob.programme_id = :p ORDER BY ob.code
+        """,
+        p=programme_id,
+    )
+    joined = observers.groupby("visit_id")["code"].agg(";".join) if len(observers) else pd.Series(dtype=str)
+    frame[C.OBSERVER] = frame["visit_id"].map(joined)
+    frame[C.YEAR] = frame[C.YEAR].astype(int)
+    frame["n"] = frame["n"].astype("Int64")
+    return frame
+
+
+def to_measure_columns(frame: pd.DataFrame, measure: str) -> pd.DataFrame:
+    """Spread ``value`` and ``n`` into the measure's own columns (count; cover_pct; occupied+cells; ...)."""
+    out = frame.copy()
+    if measure == C.MEASURE_COUNT:
+        out[C.COUNT] = out["value"].astype(int)
+    elif measure == C.MEASURE_COVER:
+        out[C.COVER] = out["value"].astype(float)
+    elif measure == C.MEASURE_FREQUENCY:
+        out[C.OCCUPIED], out[C.CELLS] = out["value"].astype(int), out["n"].astype(int)
+    elif measure == C.MEASURE_PIN_HITS:
+        out[C.HITS], out[C.PINS] = out["value"].astype(int), out["n"].astype(int)
+    elif measure == C.MEASURE_PRESENCE:
+        out[C.PRESENT] = out["value"].astype(int)
+    return out
+
+
+def visit_outcomes(store: Store, programme_id: int) -> pd.DataFrame:
+    """Every visit with its outcome: station, site, year, date, status, repeat_no (for coverage tables)."""
+    return store.frame(
+        f"""
+        SELECT t.code AS {C.STATION}, s.code AS {C.SITE}, r.year AS {C.YEAR}, v.date AS {C.DATE},
+               v.status AS {C.VISIT_STATUS}, v.repeat_no
+        FROM visit v JOIN round r ON r.id = v.round_id JOIN station t ON t.id = v.station_id
+        JOIN site s ON s.id = t.site_id
+        WHERE r.programme_id = :p ORDER BY r.year, t.code
+        """,
+        p=programme_id,
+    )
+
+
+def covariates_long(store: Store, programme_id: int) -> pd.DataFrame:
+    """Covariate values: station, visit_id (None for a station-level value), year, name, unit, value."""
+    return store.frame(
+        f"""
+        SELECT t.code AS {C.STATION}, c.visit_id, r.year AS {C.YEAR}, c.name, c.unit, c.value
+        FROM covariate c JOIN station t ON t.id = c.station_id
+        LEFT JOIN visit v ON v.id = c.visit_id LEFT JOIN round r ON r.id = v.round_id
+        WHERE t.programme_id = :p
+        """,
+        p=programme_id,
+    )

@@ -46,7 +46,7 @@ class RawTable:
     header_row: int = 1
     pending: list[InputProblem] = field(default_factory=list)  # shape problems found while reading
 
-    def problems(self) -> "Problems":
+    def problems(self) -> Problems:
         """A problem collector for this file, already holding the problems found while reading it."""
         collector = Problems(self.file)
         collector.extend(self.pending)

@@ -13,7 +13,7 @@ from typing import Any
 
 from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
-from monitor.services import setup, summary
+from monitor.services import records, setup, summary
 
 
 @dataclass
@@ -42,5 +42,10 @@ def run_demo(folder: Path, *, echo: Callable[[str], None] = lambda _m: None) -> 
     echo("2. setting the programme up from its files (sites, stations, species, panels, windows, observers)")
     code, report = setup.setup_folder(db, source)
     run.steps.append(("setup", {"programme": code, "added": report.added}))
+
+    sheets = sorted((source / "records").glob("season_*.csv"))
+    echo(f"3. importing {len(sheets)} seasons of field sheets through the records importer")
+    imports = [records.import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
+    run.steps.append(("imports", imports))
     run.steps.append(("summary", summary.programme_summary(db, code)))
     return run

@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pandas as pd
 from shapely.geometry import mapping, shape
+
 from monitor import columns as C
 from monitor.db import Session, Store, migrate, select
 from monitor.db import models as M

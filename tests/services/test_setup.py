@@ -43,9 +43,9 @@ def test_quadrat_area_is_width_times_length(db_url, demo_source, tmp_path):
     text = (folder / "stations.csv").read_text()
     lines = text.splitlines()
     header = lines[0].split(",")
-    w, l = header.index("quadrat_width_m"), header.index("quadrat_length_m")
+    w, h = header.index("quadrat_width_m"), header.index("quadrat_length_m")
     cells = lines[1].split(",")
-    cells[w] = cells[l] = "0.33"
+    cells[w] = cells[h] = "0.33"
     lines[1] = ",".join(cells)
     (folder / "stations.csv").write_text("\n".join(lines) + "\n")
     setup.setup_folder(db_url, folder)
