@@ -76,7 +76,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg as la
-import scipy.sparse as sp
 from scipy.optimize import minimize
 
 from monitor.errors import Diagnostic
@@ -146,11 +145,86 @@ class GlmmFit:
     vcov_method: str
 
 
+
+class _DenseDesign:
+    """The columns of the dense block: random terms (one non-zero per row) then, optionally, X.
+
+    All products are per-level sums (np.bincount), so nothing of size n x m is formed
+    except X itself.
+    """
+
+    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st):
+        self.idx = terms_idx
+        self.z = [zs * s for zs, s in zip(terms_z, scales)]
+        self.nl = n_levels
+        self.off = np.r_[0, np.cumsum(n_levels)].astype(int)
+        self.m_re = int(self.off[-1])
+        self.X = X
+        self.p = 0 if X is None else X.shape[1]
+        self.m = self.m_re + self.p
+        self.st, self.n_st = st, n_st
+
+    def matvec(self, v):
+        out = np.zeros(len(self.st))
+        for a in range(len(self.idx)):
+            out += self.z[a] * v[self.off[a]:self.off[a + 1]][self.idx[a]]
+        if self.p:
+            out += self.X @ v[self.m_re:]
+        return out
+
+    def rmatvec(self, r):
+        out = np.empty(self.m)
+        for a in range(len(self.idx)):
+            out[self.off[a]:self.off[a + 1]] = np.bincount(self.idx[a], weights=self.z[a] * r, minlength=self.nl[a])
+        if self.p:
+            out[self.m_re:] = self.X.T @ r
+        return out
+
+    def gram(self, wt):
+        """F' diag(wt) F as a dense m x m array."""
+        M = np.zeros((self.m, self.m))
+        na = len(self.idx)
+        for a in range(na):
+            sa = slice(self.off[a], self.off[a + 1])
+            wa = wt * self.z[a]
+            for b in range(a + 1):
+                sb = slice(self.off[b], self.off[b + 1])
+                blk = np.bincount(self.idx[a] * self.nl[b] + self.idx[b], weights=wa * self.z[b],
+                                  minlength=self.nl[a] * self.nl[b]).reshape(self.nl[a], self.nl[b])
+                M[sa, sb] = blk
+                M[sb, sa] = blk.T
+            if self.p:
+                blk = _bincount2(self.idx[a], self.nl[a], wa[:, None] * self.X)
+                M[sa, self.m_re:] = blk
+                M[self.m_re:, sa] = blk.T
+        if self.p:
+            M[self.m_re:, self.m_re:] = self.X.T @ (wt[:, None] * self.X)
+        return M
+
+    def station_cross(self, wt):
+        """S' diag(wt) F: station-by-column sums, dense n_station x m."""
+        C = np.empty((self.n_st, self.m))
+        for a in range(len(self.idx)):
+            C[:, self.off[a]:self.off[a + 1]] = np.bincount(
+                self.st * self.nl[a] + self.idx[a], weights=wt * self.z[a],
+                minlength=self.n_st * self.nl[a]).reshape(self.n_st, self.nl[a])
+        if self.p:
+            C[:, self.m_re:] = _bincount2(self.st, self.n_st, wt[:, None] * self.X)
+        return C
+
+
+def _bincount2(index, n_levels, values):
+    """Per-level column sums of a 2-d array: out[g, k] = sum_{i: index_i = g} values[i, k]."""
+    k = values.shape[1]
+    flat = (index[:, None] * k + np.arange(k)).ravel()
+    return np.bincount(flat, weights=values.ravel(), minlength=n_levels * k).reshape(n_levels, k)
+
+
 class _Factor:
     """Block-eliminated factorisation of the Newton matrix (see module notes)."""
 
     __slots__ = ("d", "wt", "A", "C", "L", "m", "m_re", "logdet_u", "logdet_beta", "s_o", "s_st", "w",
-                 "Fs", "ok")
+                 "D", "ok")
 
 
 class LaplaceEngine:
@@ -167,29 +241,11 @@ class LaplaceEngine:
         self.n_st = int(spec.n_station)
         self.X = np.asarray(spec.X, dtype=float)
         self.p = self.X.shape[1]
-        # unscaled sparse design of the dense-block random terms
-        cols, vals, self.col_term = [], [], []
-        off = 0
-        for k, t in enumerate(spec.terms):
-            cols.append(off + np.asarray(t.index, dtype=np.int64))
-            vals.append(np.ones(n) if t.z is None else np.asarray(t.z, float))
-            self.col_term.extend([k] * t.n_levels)
-            off += t.n_levels
-        self.m_re = off
-        self.col_term = np.asarray(self.col_term, dtype=np.int64)
-        rows = np.arange(n)
-        if cols:
-            self.F_re = sp.csr_matrix((np.concatenate(vals), (np.tile(rows, len(cols)), np.concatenate(cols))),
-                                      shape=(n, self.m_re))
-        else:
-            self.F_re = sp.csr_matrix((n, 0))
-        Xs = sp.csr_matrix(self.X)
-        self.F_full = sp.hstack([self.F_re, Xs], format="csr")
-        self.F_re.sort_indices()
-        self.F_full.sort_indices()
-        self._rows_re = np.repeat(rows, np.diff(self.F_re.indptr))
-        self._rows_full = np.repeat(rows, np.diff(self.F_full.indptr))
-        self.S = sp.csr_matrix((np.ones(n), (self.st, rows)), shape=(self.n_st, n))
+        # the dense-block random terms: level index and value of each observation
+        self.t_idx = [np.asarray(t.index, dtype=np.int64) for t in spec.terms]
+        self.t_z = [np.ones(n) if t.z is None else np.asarray(t.z, float) for t in spec.terms]
+        self.t_nl = [int(t.n_levels) for t in spec.terms]
+        self.m_re = int(sum(self.t_nl))
         self.n_sd = len(spec.sd_names())
         self.has_disp = self.fam.has_dispersion
         self.n_phi = self.n_sd + (1 if self.has_disp else 0)
@@ -230,29 +286,25 @@ class LaplaceEngine:
         return b
 
     # ------------------------------------------------------------------ linear algebra
-    def _factor(self, w, s_st, s_o, colscale, full: bool) -> _Factor:
+    def _design(self, s_terms, full: bool) -> _DenseDesign:
+        return _DenseDesign(self.t_idx, self.t_z, self.t_nl, s_terms, self.X if full else None,
+                            self.st, self.n_st)
+
+    def _factor(self, w, s_st, s_o, D: _DenseDesign) -> _Factor:
         f = _Factor()
-        F = self.F_full if full else self.F_re
-        rows = self._rows_full if full else self._rows_re
-        m = F.shape[1]
-        f.m, f.m_re, f.s_o, f.s_st, f.w = m, self.m_re, s_o, s_st, w
+        m = D.m
+        f.m, f.m_re, f.s_o, f.s_st, f.w, f.D = m, self.m_re, s_o, s_st, w, D
         f.d = 1.0 + s_o * s_o * w
         f.wt = w / f.d
-        Fs = F.copy()
-        Fs.data = F.data * colscale[F.indices]
-        f.Fs = Fs
         f.A = 1.0 + s_st * s_st * np.bincount(self.st, weights=f.wt, minlength=self.n_st)
         logdet = float(np.sum(np.log(f.d)) + np.sum(np.log(f.A)))
         f.ok = True
         if m:
-            WF = Fs.copy()
-            WF.data = Fs.data * f.wt[rows]
-            M = (Fs.T @ WF).toarray()
-            C = (self.S @ WF) * s_st
+            M = D.gram(f.wt)
+            C = D.station_cross(f.wt) * s_st
             f.C = C
             if s_st > 0:
-                Cd = sp.diags(1.0 / f.A) @ C
-                M -= (C.T @ Cd).toarray()
+                M -= C.T @ (C / f.A[:, None])
             M[np.arange(self.m_re), np.arange(self.m_re)] += 1.0
             try:
                 f.L = la.cholesky(M, lower=True, check_finite=False)
@@ -278,7 +330,7 @@ class LaplaceEngine:
             q = f.s_o * f.w * r_o / f.d
             r_st -= f.s_st * np.bincount(self.st, weights=q, minlength=self.n_st)
             if f.m:
-                r_v -= f.Fs.T @ q
+                r_v -= f.D.rmatvec(q)
         if f.m:
             if f.s_st > 0:
                 r_v -= f.C.T @ (r_st / f.A)
@@ -291,7 +343,7 @@ class LaplaceEngine:
         if f.s_o > 0:
             a = f.s_st * x_st[self.st]
             if f.m:
-                a = a + f.Fs @ y
+                a = a + f.D.matvec(y)
             x_o = (r_o - f.s_o * f.w * a) / f.d
         return x_o, x_st, y
 
@@ -303,11 +355,7 @@ class LaplaceEngine:
         """
         s_st, s_terms, s_o = self.unpack(phi)
         full = beta is None
-        colscale = np.concatenate([s_terms[self.col_term] if self.m_re else np.zeros(0),
-                                   np.ones(self.p) if full else np.zeros(0)])
-        F = self.F_full if full else self.F_re
-        Fs_data = F.data * colscale[F.indices]
-        Fs = sp.csr_matrix((Fs_data, F.indices, F.indptr), shape=F.shape)
+        D = self._design(s_terms, full)
         base = self.offset if full else self.offset + self.X @ beta
         u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
         v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
@@ -316,7 +364,7 @@ class LaplaceEngine:
         def eta_of(u_st, v, u_o):
             e = base + s_st * u_st[self.st]
             if v.size:
-                e = e + Fs @ v
+                e = e + D.matvec(v)
             if u_o is not None:
                 e = e + s_o * u_o
             return e
@@ -341,9 +389,9 @@ class LaplaceEngine:
         converged = False
         for _ in range(max_iter):
             d1, w = self.fam.derivs(eta)
-            f = self._factor(w, s_st, s_o, colscale, full)
+            f = self._factor(w, s_st, s_o, D)
             g_st = s_st * np.bincount(self.st, weights=d1, minlength=self.n_st) - u_st
-            g_v = Fs.T @ d1 if v.size else np.zeros(0)
+            g_v = D.rmatvec(d1) if v.size else np.zeros(0)
             g_v[:self.m_re] -= v[:self.m_re]
             g_o = s_o * d1 - u_o if u_o is not None else None
             x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
@@ -369,7 +417,7 @@ class LaplaceEngine:
                 pass
         else:
             d1, w = self.fam.derivs(eta)
-            f = self._factor(w, s_st, s_o, colscale, full)
+            f = self._factor(w, s_st, s_o, D)
         if not converged:
             self.pirls_failures += 1
         # save warm start
@@ -430,21 +478,28 @@ def _num_grad(fun, x, h):
     return g
 
 
-def num_hessian(fun, x, h):
-    """Central-difference Hessian of a scalar function (4-point formula off the diagonal)."""
+def num_hessian(fun, x, h, f0=None):
+    """Central-difference gradient and Hessian of a scalar function (4-point formula off the diagonal).
+
+    Returns (f(x), gradient, Hessian).
+    """
     k = len(x)
     H = np.zeros((k, k))
-    f0 = fun(x)
+    g = np.zeros(k)
+    if f0 is None:
+        f0 = fun(x)
     for i in range(k):
         ei = np.zeros(k)
         ei[i] = h[i]
-        H[i, i] = (fun(x + ei) - 2 * f0 + fun(x - ei)) / h[i] ** 2
+        fp, fm = fun(x + ei), fun(x - ei)
+        g[i] = (fp - fm) / (2 * h[i])
+        H[i, i] = (fp - 2 * f0 + fm) / h[i] ** 2
         for j in range(i):
             ej = np.zeros(k)
             ej[j] = h[j]
             H[i, j] = H[j, i] = (fun(x + ei + ej) - fun(x + ei - ej) - fun(x - ei + ej) + fun(x - ei - ej)) / (
                 4 * h[i] * h[j])
-    return H
+    return f0, g, H
 
 
 def _bounded_minimize(fun, x0, bounds, h, maxiter=300):
@@ -576,90 +631,139 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     if not ok1:
         diags.append(Diagnostic("not_converged", f"The search over the variance parameters stopped early ({res1.message})."))
     do_stage2 = (not gaussian) and (stage2 or n_agq > 1)
+    names = spec.sd_names()
+    k = eng.n_phi
+    vcov = _conditional_vcov(eng.last_factor, eng)
     vcov_method = "conditional"
     if do_stage2:
-        k = eng.n_phi
-        x0 = np.r_[phi, beta]
-        bnd = bounds + [(-np.inf, np.inf)] * eng.p
-        fcond = eng.last_factor
-        se_cond = _conditional_se(fcond, eng)
-        h2 = np.r_[hphi, np.maximum(1e-6, 1e-4 * se_cond)]
-        obj2 = lambda x: -eng.loglik_beta(x[:k], x[k:])  # noqa: E731
-        res2 = _bounded_minimize(obj2, x0, bnd, h2)
-        ok2 = res2.success or "REL_REDUCTION" in str(res2.message)
+        phi, beta, ll, H_info, ok2, msg = _stage2(eng, phi, beta, vcov, hessian)
         if not ok2:
             converged = False
-            diags.append(Diagnostic("not_converged", f"The joint search over fixed effects and variances stopped early ({res2.message})."))
-        if -res2.fun >= ll - 1e-6 or n_agq > 1:
-            phi, beta = res2.x[:k].copy(), res2.x[k:].copy()
-        ll = eng.loglik_beta(phi, beta)
-    else:
-        pass
-    # final state for reporting
-    if do_stage2:
-        eng.pirls(phi, beta=beta)
-    else:
-        eng.pirls(phi)
-        beta = eng.beta.copy()
-    eta = eng.last_eta.copy()
-    u_station = eng.u_st.copy()
-    reml_ll = None
-    if reml:
-        reml_ll = eng.loglik_profiled(phi)
-        # ML log-likelihood at the REML estimates is not what lmer reports; report the REML criterion
-    # --- standard errors
+            diags.append(Diagnostic("not_converged", "The joint search over fixed effects and variances "
+                                    f"did not converge ({msg})."))
     at_bound = [i for i in range(eng.n_sd) if phi[i] <= LOG_SD_MIN + 0.5]
-    names = spec.sd_names()
     for i in at_bound:
         diags.append(Diagnostic("variance_at_bound",
                                 f"The {names[i]} standard deviation is estimated at (or near) zero; "
                                 "that random effect adds nothing to these data.", "info"))
-    f_final = eng.last_factor if not do_stage2 else None
+    # conditional information at the estimate (joint mode of u given beta)
     if do_stage2:
-        eng.pirls(phi)  # joint factor at the estimate, for conditional SEs and the Hessian steps
-        eng.beta = beta.copy()
-        f_final = eng.last_factor
         eng.pirls(phi, beta=beta)
-    vcov = _conditional_vcov(f_final, eng)
-    if hessian and not gaussian:
-        free = [i for i in range(eng.n_phi) if i not in at_bound]
-        k = eng.n_phi
-        se_c = np.sqrt(np.diag(vcov))
-        x_all = np.r_[phi, beta]
-        idx = free + list(range(k, k + eng.p))
-
-        def fh(xs):
-            x = x_all.copy()
-            x[idx] = xs
-            return -eng.loglik_beta(x[:k], x[k:])
-
-        hh = np.r_[np.full(len(free), 2e-3), 2e-2 * se_c]
-        try:
-            H = num_hessian(fh, x_all[idx], hh)
-            Hinv = np.linalg.inv(H)
-            vb = Hinv[len(free):, len(free):]
-            if np.all(np.isfinite(vb)) and np.all(np.linalg.eigvalsh((vb + vb.T) / 2) > 0):
-                vcov = (vb + vb.T) / 2
-                vcov_method = "hessian"
+        eta = eng.last_eta.copy()
+        u_station = eng.u_st.copy()
+        vcov = _conditional_vcov_at(eng, phi, beta)
+        if hessian:
+            if H_info is not None:
+                vcov, vcov_method = H_info, "hessian"
             else:
-                raise np.linalg.LinAlgError
-        except np.linalg.LinAlgError:
-            diags.append(Diagnostic("hessian_not_positive",
-                                    "The likelihood's curvature matrix is not positive definite; standard "
-                                    "errors use the conditional information instead."))
-        eng.pirls(phi, beta=beta)
+                diags.append(Diagnostic("hessian_not_positive",
+                                        "The likelihood's curvature matrix is not positive definite (or was not "
+                                        "computed); standard errors use the conditional information instead."))
+    else:
+        eng.pirls(phi)
+        beta = eng.beta.copy()
+        eta = eng.last_eta.copy()
+        u_station = eng.u_st.copy()
+        vcov = _conditional_vcov(eng.last_factor, eng)
+    reml_ll = eng.loglik_profiled(phi) if reml else None
     if eng.pirls_failures:
-        diags.append(Diagnostic("pirls_slow", f"The inner Newton iterations for the random effects did not "
+        diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
                                 f"reach full precision {eng.pirls_failures} time(s).", "info"))
     eng.unpack(phi)
-    sd = dict(zip(names, [float(np.exp(v)) if i not in at_bound else float(np.exp(v)) for i, v in enumerate(phi[:eng.n_sd])]))
+    sd = {nm: float(np.exp(v)) for nm, v in zip(names, phi[:eng.n_sd])}
     n_par = eng.p + eng.n_phi
-    _ = glm_fit_start
     return GlmmFit(beta=beta, vcov=vcov, x_names=list(spec.x_names), sd=sd,
                    dispersion=(float(fam.dispersion) if fam.has_dispersion else None),
-                   loglik=float(ll if not reml else _ml_at(eng, phi)), reml_criterion=reml_ll, df=n_par,
+                   loglik=float(ll if not reml else reml_ll), reml_criterion=reml_ll, df=n_par,
                    converged=converged, diagnostics=diags, phi=phi, u_station=u_station, eta=eta,
                    n_evaluations=eng.n_eval, vcov_method=vcov_method)
+
+
+NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 uses L-BFGS-B
+
+
+def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
+    """Maximise the Laplace / AGQ log-likelihood over (log-SDs, log dispersion, beta).
+
+    Newton's method with a central-difference Hessian (whose last value gives the
+    standard errors) when there are few parameters; L-BFGS-B otherwise.  Variance
+    parameters on their lower bound are held there.
+    Returns (phi, beta, loglik, vcov_from_hessian or None, ok, message).
+    """
+    k = eng.n_phi
+    x = np.r_[phi, beta]
+    lo = np.r_[[b[0] for b in eng.bounds()], np.full(eng.p, -np.inf)]
+    hi = np.r_[[b[1] for b in eng.bounds()], np.full(eng.p, np.inf)]
+    free = np.array([i for i in range(k) if phi[i] > LOG_SD_MIN + 0.5 or i >= eng.n_sd] + list(range(k, k + eng.p)))
+    se = np.sqrt(np.maximum(np.diag(vcov_cond), 1e-16))
+    step_h = np.r_[np.full(k, 2e-3), np.maximum(2e-2 * se, 1e-7)][free]
+
+    def fun(xs):
+        xx = x.copy()
+        xx[free] = np.clip(xs, lo[free], hi[free])
+        return -eng.loglik_beta(xx[:k], xx[k:])
+
+    xs = x[free].copy()
+    if len(free) > NEWTON_MAX_DIM:
+        bnd = list(zip(lo[free], hi[free]))
+        res = _bounded_minimize(fun, xs, bnd, step_h / 20)
+        x[free] = res.x
+        ok = bool(res.success or "REL_REDUCTION" in str(res.message))
+        return x[:k], x[k:], -fun(res.x), None, ok, str(res.message)
+    f0 = fun(xs)
+    ok, msg, Hfin = False, "iteration limit", None
+    for _ in range(12):
+        f0, g, H = num_hessian(fun, xs, step_h, f0=f0)
+        try:
+            Lc = np.linalg.cholesky(H)
+        except np.linalg.LinAlgError:
+            Lc = None
+        if Lc is None:
+            # not locally convex: a short gradient step scaled by the conditional curvature
+            step = -g * step_h ** 2 * 10
+        else:
+            step = -la.cho_solve((Lc, True), g)
+        decrement = float(-g @ step)
+        if Lc is not None and decrement < 1e-9:
+            ok, msg, Hfin = True, "converged", H
+            break
+        t = 1.0
+        improved = False
+        for _h in range(30):
+            cand = np.clip(xs + t * step, lo[free], hi[free])
+            fc = fun(cand)
+            if np.isfinite(fc) and fc <= f0 + 1e-12:
+                improved = True
+                break
+            t *= 0.5
+        if not improved:
+            ok = Lc is not None and decrement < 1e-5
+            msg = "no further improvement" if not ok else "converged"
+            Hfin = H if Lc is not None else None
+            break
+        xs, f0 = cand, fc
+    x[free] = xs
+    vb = None
+    if want_hessian and Hfin is not None:
+        try:
+            Hinv = np.linalg.inv(Hfin)
+            nb = eng.p
+            vb = Hinv[-nb:, -nb:]
+            vb = (vb + vb.T) / 2
+            if not (np.all(np.isfinite(vb)) and np.all(np.linalg.eigvalsh(vb) > 0)):
+                vb = None
+        except np.linalg.LinAlgError:
+            vb = None
+    return x[:k], x[k:], -f0, vb, ok, msg
+
+
+def _conditional_vcov_at(eng: LaplaceEngine, phi, beta) -> np.ndarray:
+    """Conditional vcov of beta at (phi, beta): joint Newton matrix at the u-mode for this beta."""
+    eng.pirls(phi, beta=beta)
+    s_st, s_terms, s_o = eng.unpack(phi)
+    d1, w = eng.fam.derivs(eng.last_eta)
+    f = eng._factor(w, s_st, s_o, eng._design(s_terms, True))
+    return _conditional_vcov(f, eng)
 
 
 def _ml_at(eng: LaplaceEngine, phi) -> float:
