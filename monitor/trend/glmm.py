@@ -76,13 +76,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg as la
+from scipy.linalg import lapack
 from scipy.optimize import minimize
 
 from monitor.errors import Diagnostic
 
 from .families import Family, Gaussian
 
-DEBUG = False
 LOG_SD_MIN = np.log(1e-5)   # lower bound of every log-SD (an SD of 1e-5 is "zero" on the link scale)
 LOG_SD_MAX = np.log(50.0)
 LOG_DISP_BOUNDS = {"negbin": (np.log(1e-3), np.log(1e7)), "gaussian": (np.log(1e-8), np.log(1e8))}
@@ -146,6 +146,22 @@ class GlmmFit:
 
 
 
+def _xv(A, v):
+    """A @ v without BLAS threading (which costs more than it saves on these thin arrays)."""
+    return np.einsum("ij,j->i", A, v)
+
+
+def _potrf(M):
+    """Lower Cholesky factor by LAPACK directly (the small dense block; low call overhead)."""
+    L, info = lapack.dpotrf(M, lower=1, clean=1, overwrite_a=0)
+    return L, info
+
+
+def _potrs(L, b):
+    x, info = lapack.dpotrs(L, b, lower=1)
+    return x
+
+
 class _DenseDesign:
     """The columns of the dense block: random terms (one non-zero per row) then, optionally, X.
 
@@ -169,7 +185,7 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out += self.z[a] * v[self.off[a]:self.off[a + 1]][self.idx[a]]
         if self.p:
-            out += self.X @ v[self.m_re:]
+            out += _xv(self.X, v[self.m_re:])
         return out
 
     def rmatvec(self, r):
@@ -177,7 +193,7 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out[self.off[a]:self.off[a + 1]] = np.bincount(self.idx[a], weights=self.z[a] * r, minlength=self.nl[a])
         if self.p:
-            out[self.m_re:] = self.X.T @ r
+            out[self.m_re:] = np.einsum("ij,i->j", self.X, r)
         return out
 
     def gram(self, wt):
@@ -198,7 +214,7 @@ class _DenseDesign:
                 M[sa, self.m_re:] = blk
                 M[self.m_re:, sa] = blk.T
         if self.p:
-            M[self.m_re:, self.m_re:] = self.X.T @ (wt[:, None] * self.X)
+            M[self.m_re:, self.m_re:] = np.einsum("ij,ik->jk", self.X, wt[:, None] * self.X)
         return M
 
     def station_cross(self, wt):
@@ -304,15 +320,16 @@ class LaplaceEngine:
             C = D.station_cross(f.wt) * s_st
             f.C = C
             if s_st > 0:
-                M -= C.T @ (C / f.A[:, None])
+                M -= np.einsum("ij,ik->jk", C, C / f.A[:, None])
             M[np.arange(self.m_re), np.arange(self.m_re)] += 1.0
-            try:
-                f.L = la.cholesky(M, lower=True, check_finite=False)
-            except la.LinAlgError:
+            f.L, info = _potrf(M)
+            if info != 0:
                 # fixed effects not identified at this point: regularise slightly, flag it
                 f.ok = False
                 M[np.diag_indices(m)] += 1e-8 * (1.0 + np.abs(np.diag(M)))
-                f.L = la.cholesky(M, lower=True, check_finite=False)
+                f.L, info = _potrf(M)
+                if info != 0:
+                    raise np.linalg.LinAlgError("Newton matrix not positive definite")
             dg = np.log(np.diag(f.L))
             f.logdet_u = logdet + 2.0 * float(np.sum(dg[:self.m_re]))
             f.logdet_beta = 2.0 * float(np.sum(dg[self.m_re:]))
@@ -333,9 +350,9 @@ class LaplaceEngine:
                 r_v -= f.D.rmatvec(q)
         if f.m:
             if f.s_st > 0:
-                r_v -= f.C.T @ (r_st / f.A)
-            y = la.cho_solve((f.L, True), r_v, check_finite=False)
-            x_st = (r_st - f.C @ y) / f.A
+                r_v -= np.einsum("ij,i->j", f.C, r_st / f.A)
+            y = _potrs(f.L, r_v)
+            x_st = (r_st - _xv(f.C, y)) / f.A
         else:
             y = r_v
             x_st = r_st / f.A
@@ -356,7 +373,7 @@ class LaplaceEngine:
         s_st, s_terms, s_o = self.unpack(phi)
         full = beta is None
         D = self._design(s_terms, full)
-        base = self.offset if full else self.offset + self.X @ beta
+        base = self.offset if full else self.offset + _xv(self.X, beta)
         u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
         v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
         u_o = self.u_o.copy() if s_o > 0 else None
@@ -435,7 +452,6 @@ class LaplaceEngine:
 
     # ------------------------------------------------------------------ objectives
     def loglik_profiled(self, phi) -> float:
-        if DEBUG: print("phi", phi)
         """Stage 1: Laplace log-likelihood with beta at the joint PIRLS mode (REML adds its term)."""
         self.n_eval += 1
         h, f, _, _ = self.pirls(phi)
@@ -502,7 +518,7 @@ def num_hessian(fun, x, h, f0=None):
     return f0, g, H
 
 
-def _bounded_minimize(fun, x0, bounds, h, maxiter=300):
+def _bounded_minimize(fun, x0, bounds, h, maxiter=300, ftol=1e-13, gtol=1e-7):
     """L-BFGS-B on ``fun`` with central-difference gradients (one-sided at a bound)."""
     lo = np.array([b[0] for b in bounds])
     hi = np.array([b[1] for b in bounds])
@@ -526,7 +542,64 @@ def _bounded_minimize(fun, x0, bounds, h, maxiter=300):
 
     x0 = np.clip(np.asarray(x0, float), lo, hi)
     return minimize(fg, x0, jac=True, method="L-BFGS-B", bounds=bounds,
-                    options={"maxiter": maxiter, "ftol": 1e-13, "gtol": 1e-7, "maxls": 40})
+                    options={"maxiter": maxiter, "ftol": ftol, "gtol": gtol, "maxls": 40})
+
+
+class _Result:
+    def __init__(self, x, fun, success, message, nit):
+        self.x, self.fun, self.success, self.message, self.nit = x, fun, success, message, nit
+
+
+def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9):
+    """Projected Newton's method with a central-difference Hessian, for a few bounded parameters.
+
+    Parameters on a bound whose gradient points outwards are held there (active set);
+    an indefinite Hessian is shifted to positive definite (Levenberg); steps are capped
+    at ``max_step`` and halved until the function decreases.
+    """
+    lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+    x = np.clip(np.asarray(x0, float), lo, hi)
+    f0 = fun(x)
+    msg, ok = "iteration limit", False
+    for it in range(max_iter):
+        f0, g, H = num_hessian(fun, x, h, f0=f0)
+        active = ((x <= lo + 1e-9) & (g > 0)) | ((x >= hi - 1e-9) & (g < 0))
+        free = ~active
+        if not np.any(free):
+            ok, msg = True, "all parameters on bounds"
+            break
+        gf, Hf = g[free], H[np.ix_(free, free)]
+        ev = np.linalg.eigvalsh(Hf)
+        if ev.min() <= 1e-8 * max(1.0, abs(ev.max())):
+            Hf = Hf + (abs(ev.min()) + 1e-3 * max(1.0, abs(ev.max()))) * np.eye(len(gf))
+        step_f = -np.linalg.solve(Hf, gf)
+        decrement = float(-gf @ step_f)
+        if decrement < tol:
+            ok, msg = True, "converged"
+            break
+        big = np.max(np.abs(step_f))
+        if big > max_step:
+            step_f *= max_step / big
+        step = np.zeros_like(x)
+        step[free] = step_f
+        t, improved = 1.0, False
+        for _h in range(40):
+            cand = np.clip(x + t * step, lo, hi)
+            fc = fun(cand)
+            if np.isfinite(fc) and fc < f0:
+                improved = True
+                break
+            t *= 0.5
+        if not improved:
+            ok = decrement < 1e-6
+            msg = "converged" if ok else "no further decrease along the Newton direction"
+            break
+        moved = np.max(np.abs(cand - x))
+        x, f_prev, f0 = cand, f0, fc
+        if f_prev - f0 < ftol or (f_prev - f0 < tol * 1e-2 and moved < 1e-7):
+            ok, msg = True, "converged"
+            break
+    return _Result(x, f0, ok, msg, it + 1)
 
 
 def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = 100):
@@ -539,8 +612,8 @@ def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max
     for _ in range(max_iter):
         eta = off + X @ beta
         d, w = family.derivs(eta)
-        g = X.T @ d
-        H = X.T @ (w[:, None] * X) + 1e-10 * np.eye(p)
+        g = np.einsum("ij,i->j", X, d)
+        H = np.einsum("ij,ik->jk", X, w[:, None] * X) + 1e-10 * np.eye(p)
         step = np.linalg.solve(H, g)
         t = 1.0
         for _h in range(40):
@@ -622,7 +695,15 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     bounds = eng.bounds()
     hphi = np.full(eng.n_phi, 1e-4)
     # --- stage 1: variance parameters, beta at the PIRLS mode
-    res1 = _bounded_minimize(lambda x: -eng.loglik_profiled(x), phi0, bounds, hphi)
+    quick = not (stage2 or hessian)
+    obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
+    if eng.n_phi <= 6:
+        res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
+                               np.full(eng.n_phi, 1e-3), tol=1e-8 if quick else 1e-11,
+                               ftol=1e-6 if quick else 1e-9)
+    else:
+        res1 = _bounded_minimize(obj1, phi0, bounds, hphi, ftol=1e-10 if quick else 1e-13,
+                                 gtol=1e-4 if quick else 1e-7)
     phi = np.asarray(res1.x)
     ll = eng.loglik_profiled(phi)
     beta = eng.beta.copy()
@@ -776,8 +857,8 @@ def _ml_at(eng: LaplaceEngine, phi) -> float:
 
 def _conditional_vcov(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
     """(X' V^-1 X)^-1: the inverse of beta's Schur complement in the joint Newton matrix."""
-    L = f.L[eng.m_re:, eng.m_re:]
-    Li = la.solve_triangular(L, np.eye(L.shape[0]), lower=True)
+    L = np.ascontiguousarray(f.L[eng.m_re:, eng.m_re:])
+    Li = np.linalg.inv(L)
     return Li.T @ Li
 
 
