@@ -120,6 +120,24 @@ def say(message: str) -> None:
     click.echo(message, err=True)
 
 
+class _Silent:
+    """Stands in for a progress bar when stderr is not a terminal."""
+
+    length = 0
+    pos = 0
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *_exc) -> None:
+        return None
+
+    def update(self, n: int) -> None:
+        self.pos += n
+
+
 def progress(total: int, label: str):
     """A progress bar on a terminal, silent when stderr is piped."""
+    if not sys.stderr.isatty():
+        return _Silent()
     return click.progressbar(length=total, label=label, file=sys.stderr, show_eta=True)
