@@ -7,8 +7,8 @@ Rules, in the order they are applied:
    ``hours_per_day`` including the walk out from the site's start point and back.
 2. Access: a site whose permission lapses is only visited up to its last valid day; a
    station whose window opens after that is *held back* and listed.
-3. Day by day, each working team takes the site whose earliest-closing station window ends
-   soonest (ties: the site order, randomised with ``rng`` when ``randomise_site_order`` so
+3. Day by day, each working team takes the site holding the most overdue station, then the
+   one whose earliest-closing station window ends soonest (ties: the site order, randomised with ``rng`` when ``randomise_site_order`` so
    that a round cut short is not biased towards the same early sites).  The day's stations
    are chosen by cheapest insertion starting from the most overdue (then most urgent, then
    farthest) station, while walking time plus effort fit the day.
@@ -404,10 +404,12 @@ def plan_season(
                 if not open_.any():
                     break
                 idx = np.flatnonzero(open_)
-                # site whose earliest window end comes first; ties by site order
-                site_keys: dict[str, tuple[int, int]] = {}
+                # site holding the most overdue station, then the earliest-closing window,
+                # then the site order
+                site_keys: dict[str, tuple[int, int, int]] = {}
                 for s in np.unique(pool.site[idx]):
-                    site_keys[str(s)] = (int(pool.we[idx][pool.site[idx] == s].min()), rank[str(s)])
+                    here = idx[pool.site[idx] == s]
+                    site_keys[str(s)] = (-int(pool.overdue[here].max()), int(pool.we[here].min()), rank[str(s)])
                 chosen: list[int] = []
                 for site in sorted(site_keys, key=site_keys.get):
                     cand = idx[pool.site[idx] == site]
