@@ -7,7 +7,6 @@ import pytest
 
 from monitor.schedule.routing import held_karp, order_route, route_length
 
-
 _PERMS: dict[int, np.ndarray] = {}
 
 
