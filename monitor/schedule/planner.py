@@ -371,6 +371,7 @@ def plan_season(
     pool = _Pool(due, start_xy, crews.path_factor)
 
     held, unplanned = [], []
+    cut: dict[int, dt.date] = {}
     access_until = access_until or {}
     for i in range(len(due)):
         last = access_until.get(pool.site[i])
@@ -381,7 +382,9 @@ def plan_season(
                                 f"before the window opens"))
                 pool.pending[i] = False
                 continue
-            pool.we[i] = min(pool.we[i], last_ord)
+            if last_ord < pool.we[i]:
+                pool.we[i] = last_ord
+                cut[i] = last
     max_cap = max(t.day_minutes for t in crews.teams)
     best_speed = max(t.metres_per_minute for t in crews.teams)
     for i in np.flatnonzero(pool.pending):
@@ -449,7 +452,11 @@ def plan_season(
         team0 = max(crews.teams, key=lambda t: t.day_minutes)
         extra = _team_days_needed(pool, left, starts, team0.day_minutes, team0.metres_per_minute, route_method)
         for i in left:
-            unplanned.append((int(i), "did not fit in the season window"))
+            if int(i) in cut:
+                unplanned.append((int(i), f"did not fit before access permission for site {pool.site[i]} "
+                                          f"lapses on {cut[int(i)].isoformat()}"))
+            else:
+                unplanned.append((int(i), "did not fit in the season window"))
         diags.append(Diagnostic(
             "work_does_not_fit",
             f"{left.size} station{'s' if left.size != 1 else ''} did not fit in the season window: "

@@ -1,5 +1,6 @@
 """Placement methods: geometry rules, reproducibility, allocation formulas, spatial balance."""
 
+import json
 import math
 
 import numpy as np
@@ -52,6 +53,7 @@ def test_seed_reproduces_placement():
     b = simple_random(SITE, 25, a.seed, exclusions=[TRACK])
     assert a.seed == b.seed
     assert a.stations.equals(b.stations)
+    assert json.loads(json.dumps(a.to_dict()))["seed"] == a.seed
     c = simple_random(SITE, 25, np.random.default_rng(12), exclusions=[TRACK])
     assert not np.array_equal(a.stations.x, c.stations.x)
 

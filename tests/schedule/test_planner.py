@@ -168,3 +168,11 @@ def test_to_dict_is_plain():
     d = plan.to_dict()
     json.dumps(d)
     assert d["seed"] == plan.seed and len(d["visits"]) == len(plan.visits)
+
+
+def test_access_lapse_mid_window_reason_names_the_date():
+    due = _due(n_per_site=60, effort=45.0)
+    plan = plan_season(due, _crews(1), year=2026, rng=1, access_until={"M": dt.date(2026, 5, 5)})
+    late = plan.unplanned[plan.unplanned.site == "M"]
+    assert len(late) > 0 and late.reason.str.contains("lapses on 2026-05-05").all()
+    assert _accounted(plan, due)
