@@ -1,0 +1,201 @@
+"""Field packs: sheet headers in the agreed wide layout, template context, GPX and iCalendar."""
+
+import datetime as dt
+import re
+from pathlib import Path
+
+import icalendar
+import jinja2
+import pandas as pd
+import pytest
+from jinja2 import meta, nodes
+from lxml import etree
+
+from monitor.errors import DesignError
+from monitor.schedule import (
+    CrewSettings,
+    Team,
+    field_sheet_columns,
+    field_sheet_context,
+    field_sheet_frame,
+    plan_season,
+    render_field_sheet,
+    team_day_calendar,
+    team_day_gpx,
+)
+from monitor.schedule.fieldpack import (
+    FieldSheetContext,
+    PreviousVisit,
+    SheetStation,
+    template_environment,
+)
+
+ROOT = Path(__file__).resolve().parents[2]
+SCHEMA = etree.XMLSchema(etree.parse(str(ROOT / "tests" / "io" / "gpx11_subset.xsd")))
+EPSG = 32633  # UTM 33N; invented reserve near easting 500 km
+X0, Y0 = 500000.0, 5000000.0
+
+# the agreed wide field-sheet layout (FIELD_LAYOUT.md, "Wide field sheet layout"), transcribed
+FIXED = ["station", "date", "observers", "status", "repeat", "protocol", "notes"]
+VALUE_PATTERNS = [
+    r"^[A-Z0-9]+:count$",
+    r"^[A-Z0-9]+:cover$",
+    r"^[A-Z0-9]+:frequency/[1-9][0-9]*$",
+    r"^[A-Z0-9]+:pin_hits/[1-9][0-9]*$",
+    r"^[A-Z0-9]+:presence$",
+    r"^cov:[a-z_]+\[[^\]]+\]$",
+]
+TARGETS = [("ANEMNE", "count"), ("CALLUV", "cover"), ("PRIMUL", "frequency", 25), ("SUCCIS", "pin_hits", 10),
+           ("GENTIA", "presence")]
+COVARIATES = [("soil_moisture", "%")]
+
+
+def _is_layout_header(h):
+    return h in FIXED or any(re.match(p, h) for p in VALUE_PATTERNS)
+
+
+STATIONS = pd.DataFrame({
+    "station": [f"Q{i:03d}" for i in range(1, 7)],
+    "site": ["HEATH"] * 6,
+    "x": X0 + pd.Series([50.0, 120, 300, 410, 220, 80]),
+    "y": Y0 + pd.Series([40.0, 200, 90, 310, 260, 330]),
+    "quadrat_width_m": 1.0,
+    "quadrat_length_m": 1.0,
+    "relocation_notes": ["peg 2 m N of <gate> & stile", "", "", "", "", ""],
+})
+
+
+@pytest.fixture(scope="module")
+def plan():
+    due = STATIONS.assign(window_start=dt.date(2026, 6, 1), window_end=dt.date(2026, 6, 5), effort_min=30.0,
+                          overdue_years=0)
+    crews = CrewSettings((Team("T1", ("OBS1", "OBS2")),), {"HEATH": (X0, Y0)})
+    return plan_season(due, crews, year=2026, rng=7)
+
+
+def _history():
+    visits = pd.DataFrame({
+        "station": ["Q001", "Q001", "Q001", "Q002"],
+        "date": [dt.date(2023, 6, 2), dt.date(2024, 6, 3), dt.date(2025, 6, 4), dt.date(2025, 6, 4)],
+        "observers": [("OBS1",), ("OBS1", "OBS3"), ("OBS2",), ("OBS2",)],
+        "status": ["done", "done", "missed", "done"],
+    })
+    obs = pd.DataFrame({
+        "station": ["Q001", "Q001", "Q001", "Q002"],
+        "date": [dt.date(2023, 6, 2), dt.date(2024, 6, 3), dt.date(2024, 6, 3), dt.date(2025, 6, 4)],
+        "species": ["ANEMNE", "ANEMNE", "PRIMUL", "ANEMNE"],
+        "measure": ["count", "count", "frequency", "count"],
+        "value": [11.0, 14.0, 7.0, 0.0],
+        "n": [None, None, 25, None],
+    })
+    return visits, obs
+
+
+def _context(plan):
+    td = plan.team_days[0]
+    visits, obs = _history()
+    return field_sheet_context(plan, td.team, td.date, STATIONS, crs=EPSG, targets=TARGETS, covariates=COVARIATES,
+                               visits=visits, observations=obs, programme="Heath quadrats", protocol="P2",
+                               generated=dt.datetime(2026, 5, 1, tzinfo=dt.UTC))
+
+
+def test_headers_are_the_agreed_wide_layout():
+    heads = field_sheet_columns(TARGETS, COVARIATES)
+    assert list(heads[:7]) == FIXED
+    assert all(_is_layout_header(h) for h in heads)
+    assert "PRIMUL:frequency/25" in heads and "SUCCIS:pin_hits/10" in heads and "cov:soil_moisture[%]" in heads
+    with pytest.raises(DesignError, match="needs the number"):
+        field_sheet_columns([("PRIMUL", "frequency")])
+
+
+def test_rendered_sheet_table_headers_exactly_layout(plan):
+    html = render_field_sheet(_context(plan))
+    doc = etree.HTML(html)
+    ths = [th.text for th in doc.iter("th")]
+    assert ths == list(field_sheet_columns(TARGETS, COVARIATES))
+    today = doc.xpath('//tr[@class="today"]')
+    assert [tr[0].text for tr in today] == list(plan.team_days[0].stations)
+    assert all(len(tr) == len(ths) for tr in today)
+
+
+def test_previous_two_visits_shown(plan):
+    ctx = _context(plan)
+    q1 = [s for s in ctx.stations if s.station == "Q001"][0]
+    assert [p.date for p in q1.previous] == ["2025-06-04", "2024-06-03"]  # the last two, newest first
+    assert q1.previous[0].status == "missed" and set(q1.previous[0].values) == {""}
+    idx = list(ctx.value_headers).index("ANEMNE:count")
+    assert q1.previous[1].values[idx] == "14"
+    assert q1.previous[1].values[list(ctx.value_headers).index("PRIMUL:frequency/25")] == "7"
+    assert q1.previous[1].observers == "OBS1;OBS3"
+    q2 = [s for s in ctx.stations if s.station == "Q002"][0]
+    assert q2.previous[0].values[idx] == "0"  # a recorded zero stays a zero
+
+
+def test_safety_caution_and_escaping(plan):
+    html = render_field_sheet(_context(plan)).lower()
+    for word in ("alone", "lone-working", "water", "ticks", "weather", "fragile habitat", "permission",
+                 "local rules", "risk assessment"):
+        assert word in html, word
+    assert "&lt;gate&gt; &amp; stile" in html  # autoescape on
+    assert "<gate>" not in html
+
+
+def test_template_uses_only_context_fields():
+    # style rule: templates are dumb; every field the template reads exists on the context
+    env = template_environment()
+    source = env.loader.get_source(env, "field_sheet.html")[0]
+    ast = env.parse(source)
+    assert meta.find_undeclared_variables(ast) == {"sheet"}
+    allowed = {
+        "sheet": {f for f in FieldSheetContext.__dataclass_fields__},
+        "st": {f for f in SheetStation.__dataclass_fields__},
+        "prev": {f for f in PreviousVisit.__dataclass_fields__},
+    }
+    used = {(n.node.name, n.attr) for n in ast.find_all(nodes.Getattr) if isinstance(n.node, nodes.Name)}
+    for var, attr in used:
+        if var in allowed:
+            assert attr in allowed[var], f"{var}.{attr}"
+    assert ("sheet", "headers") in used and ("st", "relocation") in used
+
+
+def test_strict_undefined_catches_missing_fields(plan):
+    env = template_environment()
+    with pytest.raises(jinja2.UndefinedError):
+        env.get_template("field_sheet.html").render(sheet={"title": "x"})
+
+
+def test_blank_entry_frame_round_trips_through_csv(plan, tmp_path):
+    ctx = _context(plan)
+    df = field_sheet_frame(ctx)
+    path = tmp_path / "sheet.csv"
+    df.to_csv(path, index=False)
+    back = pd.read_csv(path, dtype=str, keep_default_na=False)
+    assert list(back.columns) == list(ctx.headers)
+    assert list(back.station) == list(plan.team_days[0].stations)
+    assert (back.protocol == "P2").all()
+
+
+def test_team_day_gpx_valid_with_route(plan):
+    td = plan.team_days[0]
+    text = team_day_gpx(plan, td.team, td.date, STATIONS, crs=EPSG)
+    doc = etree.fromstring(text.encode())
+    SCHEMA.assertValid(doc)
+    ns = {"g": "http://www.topografix.com/GPX/1/1"}
+    names = [e.text for e in doc.findall("g:rte/g:rtept/g:name", ns)]
+    assert names == [f"START {td.site}", *td.stations, f"START {td.site}"]
+    assert len(doc.findall("g:wpt", ns)) == len(td.stations) + 1
+
+
+def test_calendar_one_event_per_team_day(plan):
+    text = team_day_calendar(plan, crs=EPSG, dtstamp=dt.datetime(2026, 5, 1, 8, tzinfo=dt.UTC),
+                             programme="Heath quadrats")
+    cal = icalendar.Calendar.from_ical(text)
+    events = cal.walk("VEVENT")
+    assert len(events) == len(plan.team_days)
+    uids = [str(e["UID"]) for e in events]
+    assert len(set(uids)) == len(uids)
+    td = plan.team_days[0]
+    assert events[0].decoded("DTSTART") == dt.datetime.combine(td.date, td.start_time)
+    assert events[0].decoded("DTEND") == dt.datetime.combine(td.date, td.end_time)
+    for prop in ("UID", "DTSTAMP", "DTSTART"):
+        assert all(e.get(prop) is not None for e in events)
