@@ -46,7 +46,7 @@ class RawTable:
     header_row: int = 1
     pending: list[InputProblem] = field(default_factory=list)  # shape problems found while reading
 
-    def problems(self) -> "Problems":
+    def problems(self) -> Problems:
         """A problem collector for this file, already holding the problems found while reading it."""
         collector = Problems(self.file)
         collector.extend(self.pending)
@@ -270,7 +270,7 @@ def check_columns(table: RawTable, required: Iterable[str], optional: Iterable[s
         if name not in table.headers:
             missing = True
             problems.add(table.header_row, name, None, f"a column '{name}' (required)")
-    for raw, name in zip(table.raw_headers, table.headers):
+    for raw, name in zip(table.raw_headers, table.headers, strict=True):
         if not raw or name in known or (allow_wide and _is_wide_header(raw)):
             continue
         close = difflib.get_close_matches(name, known, n=1, cutoff=0.6)

@@ -129,7 +129,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     station_codes = [str(s) for s in reference.stations[C.STATION]]
     retired = {}
     if H.RETIRED in reference.stations.columns:
-        for code, when in zip(reference.stations[C.STATION], reference.stations[H.RETIRED]):
+        for code, when in zip(reference.stations[C.STATION], reference.stations[H.RETIRED], strict=True):
             when = _as_date(when)
             if when is not None:
                 retired[code] = when
@@ -142,7 +142,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     if reference.existing_visits is not None and len(reference.existing_visits):
         ex = reference.existing_visits
         reps = ex[H.REPEAT] if H.REPEAT in ex.columns else [False] * len(ex)
-        for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps):
+        for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps, strict=True):
             date = _as_date(date)
             rounds.setdefault((station, date.year), []).append((date, bool(rep), None))
     for rec in visits.itertuples(index=False):
@@ -198,7 +198,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             else np.full(len(obs), np.nan)
 
         # missed / inaccessible visits carry no values; values must belong to a visit in the file
-        visit_status = np.array([status_of.get((s, _as_date(d))) for s, d in zip(stations, dates)], dtype=object)
+        visit_status = np.array([status_of.get((s, _as_date(d))) for s, d in zip(stations, dates, strict=True)], dtype=object)
         for i in np.flatnonzero(visit_status == None):  # noqa: E711 - elementwise on an object array
             add(rows[i], fields[i], values[i], f"a value belonging to a visit of {stations[i]} in this file")
         no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
@@ -209,13 +209,13 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         # species and their measures
         registered = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES],
                                                              reference.species[C.MEASURE],
-                                                             reference.species.get(H.N, [None] * len(reference.species)))}
+                                                             reference.species.get(H.N, [None] * len(reference.species)), strict=True)}
         species_codes = sorted({s for s, _ in registered})
         known_species = set(species_codes)
         unknown = ~np.isin(species, species_codes)
         for i in np.flatnonzero(unknown):
             add(rows[i], fields[i], species[i], "a species of the programme" + _closest(species[i], species_codes))
-        pairs = pd.Series(list(zip(species, measures)))
+        pairs = pd.Series(list(zip(species, measures, strict=True)))
         not_registered = ~pairs.isin(list(registered)).to_numpy() & ~unknown
         for i in np.flatnonzero(not_registered):
             ways = sorted(m for s, m in registered if s == species[i])
@@ -240,7 +240,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
             add(rows[i], fields[i], values[i], f"a whole number of {unit} k with 0 <= k <= n = "
                                                f"{'?' if np.isnan(ns[i]) else int(ns[i])}")
-        programme_n = np.array([registered.get((s, m)) for s, m in zip(species, measures)], dtype=object)
+        programme_n = np.array([registered.get((s, m)) for s, m in zip(species, measures, strict=True)], dtype=object)
         programme_n = pd.to_numeric(pd.Series(programme_n), errors="coerce").to_numpy(dtype=float)
         bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
         for i in np.flatnonzero(bad):
@@ -263,7 +263,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     # --- targets on done visits ------------------------------------------------------------------
     if reference.targets and not reference.blanks_mean_zero and len(visits):
         recorded = set(zip(observations[C.STATION], observations[C.DATE].map(_as_date),
-                           observations[C.SPECIES], observations[C.MEASURE])) if len(observations) else set()
+                           observations[C.SPECIES], observations[C.MEASURE], strict=True)) if len(observations) else set()
         for rec in visits.itertuples(index=False):
             v = rec._asdict()
             if v[C.VISIT_STATUS] != C.STATUS_DONE:
@@ -313,9 +313,9 @@ def fill_blank_targets(visits: pd.DataFrame, observations: pd.DataFrame, referen
     if not reference.blanks_mean_zero or not reference.targets:
         return observations
     n_of = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES], reference.species[C.MEASURE],
-                                                   reference.species.get(H.N, [None] * len(reference.species)))}
+                                                   reference.species.get(H.N, [None] * len(reference.species)), strict=True)}
     have = set(zip(observations[C.STATION], observations[C.DATE].map(_as_date), observations[C.SPECIES],
-                   observations[C.MEASURE])) if len(observations) else set()
+                   observations[C.MEASURE], strict=True)) if len(observations) else set()
     added = []
     done = visits[visits[C.VISIT_STATUS] == C.STATUS_DONE]
     for rec in done.itertuples(index=False):

@@ -237,7 +237,7 @@ def observer_differences(table: pd.DataFrame, *, min_pairs: int = 6, alpha: floa
 def missing_covariates(visits: pd.DataFrame, covariates: pd.DataFrame, required: Iterable[str]) -> pd.DataFrame:
     """Flag done or partial visits lacking a required covariate."""
     required = list(required)
-    have = set(zip(covariates[C.STATION], covariates[C.DATE], covariates["name"])) if len(covariates) else set()
+    have = set(zip(covariates[C.STATION], covariates[C.DATE], covariates["name"], strict=True)) if len(covariates) else set()
     rows = []
     for v in visits.to_dict("records"):
         if v[C.VISIT_STATUS] not in C.STATUSES_WITH_VALUES:

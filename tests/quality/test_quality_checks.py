@@ -73,7 +73,7 @@ def test_overdue_against_mcdonald_rules():
                            "year": [2019, 2020, 2015, 2015, 2019, 2010],
                            "status": ["done", "done", "done", "done", "missed", "done"]})
     flags = overdue_stations(visits, stations, panels, current_year=2021)
-    by_station = dict(zip(flags["station"], flags["year"]))
+    by_station = dict(zip(flags["station"], flags["year"], strict=True))
     # Q01 every year, visited 2020: 2021 in progress, not overdue.  Q02 visited 2015, due 2019: overdue.
     # Q03's 2019 visit was missed: overdue from 2019.  Q04 retired: never flagged.  Q05 never visited.
     assert by_station == {"Q02": 2019, "Q03": 2019, "Q05": 2011}
