@@ -291,7 +291,7 @@ _NUMBER_RE = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 def parse_number(text: str) -> float | None:
     """A finite decimal number with '.' as the decimal mark; None if not one.  '1,5' is refused."""
     text = text.strip()
-    if not _NUMBER_RE.match(text):
+    if not (text.isascii() and text.isdigit()) and not _NUMBER_RE.match(text):
         return None
     value = float(text)
     if not math.isfinite(value) or abs(value) > MAX_ABS_NUMBER:

@@ -95,6 +95,35 @@ def _as_date(value: object) -> dt.date | None:
     return pd.Timestamp(value).date()
 
 
+def _dates(series: pd.Series) -> pd.Series:
+    """A date column as datetime.date objects (accepts date objects, Timestamps or ISO strings)."""
+    if pd.api.types.is_datetime64_any_dtype(series):
+        return series.dt.date
+    if len(series) and all(type(d) is dt.date for d in series.iloc[:1000]):
+        return series
+    return series.map(_as_date)
+
+
+def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference: Reference):
+    """(station, date, species, measure, source_row) for each target without a value on a done visit."""
+    done = visits[visits[C.VISIT_STATUS] == C.STATUS_DONE]
+    if done.empty:
+        return []
+    rows = done[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in done.columns else np.full(len(done), None)
+    base = pd.DataFrame({C.STATION: done[C.STATION].to_numpy(), C.DATE: _dates(done[C.DATE]).to_numpy(),
+                         H.SOURCE_ROW: rows})
+    targets = pd.DataFrame(list(reference.targets), columns=[C.SPECIES, C.MEASURE])
+    wanted = base.merge(targets, how="cross")
+    have = pd.DataFrame({C.STATION: observations[C.STATION].to_numpy(),
+                         C.DATE: _dates(observations[C.DATE]).to_numpy(),
+                         C.SPECIES: observations[C.SPECIES].to_numpy(),
+                         C.MEASURE: observations[C.MEASURE].to_numpy()}).drop_duplicates()
+    merged = wanted.merge(have, on=[C.STATION, C.DATE, C.SPECIES, C.MEASURE], how="left", indicator=True)
+    missing = merged[merged["_merge"] == "left_only"]
+    return list(zip(missing[C.STATION], missing[C.DATE], missing[C.SPECIES], missing[C.MEASURE],
+                    missing[H.SOURCE_ROW], strict=True))
+
+
 def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
     md = f"{date.month:02d}-{date.day:02d}"
     if start <= end:
@@ -198,8 +227,12 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             else np.full(len(obs), np.nan)
 
         # missed / inaccessible visits carry no values; values must belong to a visit in the file
-        visit_status = np.array([status_of.get((s, _as_date(d))) for s, d in zip(stations, dates, strict=True)], dtype=object)
-        for i in np.flatnonzero(visit_status == None):  # noqa: E711 - elementwise on an object array
+        keys = pd.DataFrame({C.STATION: stations, C.DATE: _dates(obs[C.DATE]).to_numpy()})
+        status_table = pd.DataFrame({C.STATION: visits[C.STATION].to_numpy(),
+                                     C.DATE: _dates(visits[C.DATE]).to_numpy(),
+                                     "_status": visits[C.VISIT_STATUS].to_numpy()}).drop_duplicates([C.STATION, C.DATE])
+        visit_status = keys.merge(status_table, on=[C.STATION, C.DATE], how="left")["_status"].to_numpy(dtype=object)
+        for i in np.flatnonzero(pd.isna(visit_status)):
             add(rows[i], fields[i], values[i], f"a value belonging to a visit of {stations[i]} in this file")
         no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
         for i in np.flatnonzero(no_values):
@@ -262,18 +295,10 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
 
     # --- targets on done visits ------------------------------------------------------------------
     if reference.targets and not reference.blanks_mean_zero and len(visits):
-        recorded = set(zip(observations[C.STATION], observations[C.DATE].map(_as_date),
-                           observations[C.SPECIES], observations[C.MEASURE], strict=True)) if len(observations) else set()
-        for rec in visits.itertuples(index=False):
-            v = rec._asdict()
-            if v[C.VISIT_STATUS] != C.STATUS_DONE:
-                continue
-            date = _as_date(v[C.DATE])
-            for species_code, measure in reference.targets:
-                if (v[C.STATION], date, species_code, measure) not in recorded:
-                    add(v.get(H.SOURCE_ROW), f"{species_code}:{measure}", None,
-                        f"a value for target {species_code} ({measure}) on a done visit; 0 if absent "
-                        "(the programme does not treat blanks as zero)")
+        for station, date, species_code, measure, row in _missing_targets(visits, observations, reference):
+            add(row, f"{species_code}:{measure}", None,
+                f"a value for target {species_code} ({measure}) on a done visit of {station} on "
+                f"{date.isoformat()}; 0 if absent (the programme does not treat blanks as zero)")
 
     # --- covariates -----------------------------------------------------------------------------
     if len(covariates):
