@@ -270,7 +270,7 @@ def check_columns(table: RawTable, required: Iterable[str], optional: Iterable[s
         if name not in table.headers:
             missing = True
             problems.add(table.header_row, name, None, f"a column '{name}' (required)")
-    for raw, name in zip(table.raw_headers, table.headers):
+    for raw, name in zip(table.raw_headers, table.headers, strict=True):
         if not raw or name in known or (allow_wide and _is_wide_header(raw)):
             continue
         close = difflib.get_close_matches(name, known, n=1, cutoff=0.6)
@@ -291,7 +291,7 @@ _NUMBER_RE = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 def parse_number(text: str) -> float | None:
     """A finite decimal number with '.' as the decimal mark; None if not one.  '1,5' is refused."""
     text = text.strip()
-    if not _NUMBER_RE.match(text):
+    if not (text.isascii() and text.isdigit()) and not _NUMBER_RE.match(text):
         return None
     value = float(text)
     if not math.isfinite(value) or abs(value) > MAX_ABS_NUMBER:

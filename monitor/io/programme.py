@@ -319,7 +319,7 @@ def read_stations_csv(source: str | os.PathLike[str], *, sites: pd.DataFrame | N
         problems.raise_if_any()
     _unique_codes(table, C.STATION, problems)
     site_epsg = sites.attrs.get("epsg") if sites is not None else None
-    site_geoms = dict(zip(sites[C.SITE], sites[H.GEOMETRY])) if sites is not None else {}
+    site_geoms = dict(zip(sites[C.SITE], sites[H.GEOMETRY], strict=True)) if sites is not None else {}
     checked_epsg: dict[int, str | None] = {}
     transformers: dict[int, object] = {}
     records = []

@@ -266,21 +266,27 @@ class _Reader:
 
     # layouts ------------------------------------------------------------------------------------
     def read_wide(self, value_columns: dict[int, tuple[str, str, int | None]]) -> None:
+        headers = self.table.raw_headers
+        columns = list(value_columns.items())
         for number, cells in self.table.rows:
             visit = self.visit_fields(number, cells)
             values = []
-            for i, (species, measure, n) in value_columns.items():
+            for i, (species, measure, n) in columns:
                 text = cells[i]
                 if not text:
                     continue  # blank = not recorded
-                value = self.value(number, self.table.raw_headers[i], measure, text)
-                if value is not None and visit is not None:
-                    values.append({C.STATION: visit[C.STATION], C.DATE: visit[C.DATE], C.SPECIES: species,
-                                   C.MEASURE: measure, H.VALUE: value, H.N: n, H.SOURCE_ROW: number,
-                                   H.SOURCE_FIELD: self.table.raw_headers[i]})
+                if measure != C.MEASURE_PRESENCE and text.isascii() and text.isdigit() and len(text) < 12:
+                    value: float | None = float(text)  # the common case, a plain whole number
+                else:
+                    value = self.value(number, headers[i], measure, text)
+                if value is not None:
+                    values.append((species, measure, value, n, headers[i]))
             covs = self.covariate_values(number, cells, visit)
             if visit is not None and self.new_visit(visit):
-                self.observations.extend(values)
+                station, date = visit[C.STATION], visit[C.DATE]
+                self.observations.extend(
+                    {C.STATION: station, C.DATE: date, C.SPECIES: sp, C.MEASURE: me, H.VALUE: va, H.N: n,
+                     H.SOURCE_ROW: number, H.SOURCE_FIELD: field} for sp, me, va, n, field in values)
                 self.covariates.extend(covs)
 
     def read_long(self) -> None:

@@ -44,9 +44,9 @@ def tidy_frames(visits: pd.DataFrame, observations: pd.DataFrame,
         C.PROTOCOL: visits[C.PROTOCOL].map(lambda p: "" if p is None or p != p else str(p)),
         H.NOTES: visits[H.NOTES].map(lambda p: "" if p is None or p != p else str(p)),
     }, columns=TIDY_VISIT_COLUMNS)
-    with_values = {(s, d) for s, d, st in zip(visits[C.STATION], visits[C.DATE], visits[C.VISIT_STATUS])
+    with_values = {(s, d) for s, d, st in zip(visits[C.STATION], visits[C.DATE], visits[C.VISIT_STATUS], strict=True)
                    if st in C.STATUSES_WITH_VALUES}
-    keep = [(s, d) in with_values for s, d in zip(observations[C.STATION], observations[C.DATE])]
+    keep = [(s, d) in with_values for s, d in zip(observations[C.STATION], observations[C.DATE], strict=True)]
     obs = observations[keep] if len(observations) else observations
     o = pd.DataFrame({
         C.STATION: obs[C.STATION].astype(str), C.DATE: obs[C.DATE].map(_iso),

@@ -95,6 +95,35 @@ def _as_date(value: object) -> dt.date | None:
     return pd.Timestamp(value).date()
 
 
+def _dates(series: pd.Series) -> pd.Series:
+    """A date column as datetime.date objects (accepts date objects, Timestamps or ISO strings)."""
+    if pd.api.types.is_datetime64_any_dtype(series):
+        return series.dt.date
+    if len(series) and all(type(d) is dt.date for d in series.iloc[:1000]):
+        return series
+    return series.map(_as_date)
+
+
+def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference: Reference):
+    """(station, date, species, measure, source_row) for each target without a value on a done visit."""
+    done = visits[visits[C.VISIT_STATUS] == C.STATUS_DONE]
+    if done.empty:
+        return []
+    rows = done[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in done.columns else np.full(len(done), None)
+    base = pd.DataFrame({C.STATION: done[C.STATION].to_numpy(), C.DATE: _dates(done[C.DATE]).to_numpy(),
+                         H.SOURCE_ROW: rows})
+    targets = pd.DataFrame(list(reference.targets), columns=[C.SPECIES, C.MEASURE])
+    wanted = base.merge(targets, how="cross")
+    have = pd.DataFrame({C.STATION: observations[C.STATION].to_numpy(),
+                         C.DATE: _dates(observations[C.DATE]).to_numpy(),
+                         C.SPECIES: observations[C.SPECIES].to_numpy(),
+                         C.MEASURE: observations[C.MEASURE].to_numpy()}).drop_duplicates()
+    merged = wanted.merge(have, on=[C.STATION, C.DATE, C.SPECIES, C.MEASURE], how="left", indicator=True)
+    missing = merged[merged["_merge"] == "left_only"]
+    return list(zip(missing[C.STATION], missing[C.DATE], missing[C.SPECIES], missing[C.MEASURE],
+                    missing[H.SOURCE_ROW], strict=True))
+
+
 def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
     md = f"{date.month:02d}-{date.day:02d}"
     if start <= end:
@@ -129,7 +158,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     station_codes = [str(s) for s in reference.stations[C.STATION]]
     retired = {}
     if H.RETIRED in reference.stations.columns:
-        for code, when in zip(reference.stations[C.STATION], reference.stations[H.RETIRED]):
+        for code, when in zip(reference.stations[C.STATION], reference.stations[H.RETIRED], strict=True):
             when = _as_date(when)
             if when is not None:
                 retired[code] = when
@@ -142,7 +171,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     if reference.existing_visits is not None and len(reference.existing_visits):
         ex = reference.existing_visits
         reps = ex[H.REPEAT] if H.REPEAT in ex.columns else [False] * len(ex)
-        for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps):
+        for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps, strict=True):
             date = _as_date(date)
             rounds.setdefault((station, date.year), []).append((date, bool(rep), None))
     for rec in visits.itertuples(index=False):
@@ -198,8 +227,12 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             else np.full(len(obs), np.nan)
 
         # missed / inaccessible visits carry no values; values must belong to a visit in the file
-        visit_status = np.array([status_of.get((s, _as_date(d))) for s, d in zip(stations, dates)], dtype=object)
-        for i in np.flatnonzero(visit_status == None):  # noqa: E711 - elementwise on an object array
+        keys = pd.DataFrame({C.STATION: stations, C.DATE: _dates(obs[C.DATE]).to_numpy()})
+        status_table = pd.DataFrame({C.STATION: visits[C.STATION].to_numpy(),
+                                     C.DATE: _dates(visits[C.DATE]).to_numpy(),
+                                     "_status": visits[C.VISIT_STATUS].to_numpy()}).drop_duplicates([C.STATION, C.DATE])
+        visit_status = keys.merge(status_table, on=[C.STATION, C.DATE], how="left")["_status"].to_numpy(dtype=object)
+        for i in np.flatnonzero(pd.isna(visit_status)):
             add(rows[i], fields[i], values[i], f"a value belonging to a visit of {stations[i]} in this file")
         no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
         for i in np.flatnonzero(no_values):
@@ -209,13 +242,13 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         # species and their measures
         registered = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES],
                                                              reference.species[C.MEASURE],
-                                                             reference.species.get(H.N, [None] * len(reference.species)))}
+                                                             reference.species.get(H.N, [None] * len(reference.species)), strict=True)}
         species_codes = sorted({s for s, _ in registered})
         known_species = set(species_codes)
         unknown = ~np.isin(species, species_codes)
         for i in np.flatnonzero(unknown):
             add(rows[i], fields[i], species[i], "a species of the programme" + _closest(species[i], species_codes))
-        pairs = pd.Series(list(zip(species, measures)))
+        pairs = pd.Series(list(zip(species, measures, strict=True)))
         not_registered = ~pairs.isin(list(registered)).to_numpy() & ~unknown
         for i in np.flatnonzero(not_registered):
             ways = sorted(m for s, m in registered if s == species[i])
@@ -240,7 +273,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
             add(rows[i], fields[i], values[i], f"a whole number of {unit} k with 0 <= k <= n = "
                                                f"{'?' if np.isnan(ns[i]) else int(ns[i])}")
-        programme_n = np.array([registered.get((s, m)) for s, m in zip(species, measures)], dtype=object)
+        programme_n = np.array([registered.get((s, m)) for s, m in zip(species, measures, strict=True)], dtype=object)
         programme_n = pd.to_numeric(pd.Series(programme_n), errors="coerce").to_numpy(dtype=float)
         bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
         for i in np.flatnonzero(bad):
@@ -262,18 +295,10 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
 
     # --- targets on done visits ------------------------------------------------------------------
     if reference.targets and not reference.blanks_mean_zero and len(visits):
-        recorded = set(zip(observations[C.STATION], observations[C.DATE].map(_as_date),
-                           observations[C.SPECIES], observations[C.MEASURE])) if len(observations) else set()
-        for rec in visits.itertuples(index=False):
-            v = rec._asdict()
-            if v[C.VISIT_STATUS] != C.STATUS_DONE:
-                continue
-            date = _as_date(v[C.DATE])
-            for species_code, measure in reference.targets:
-                if (v[C.STATION], date, species_code, measure) not in recorded:
-                    add(v.get(H.SOURCE_ROW), f"{species_code}:{measure}", None,
-                        f"a value for target {species_code} ({measure}) on a done visit; 0 if absent "
-                        "(the programme does not treat blanks as zero)")
+        for station, date, species_code, measure, row in _missing_targets(visits, observations, reference):
+            add(row, f"{species_code}:{measure}", None,
+                f"a value for target {species_code} ({measure}) on a done visit of {station} on "
+                f"{date.isoformat()}; 0 if absent (the programme does not treat blanks as zero)")
 
     # --- covariates -----------------------------------------------------------------------------
     if len(covariates):
@@ -313,9 +338,9 @@ def fill_blank_targets(visits: pd.DataFrame, observations: pd.DataFrame, referen
     if not reference.blanks_mean_zero or not reference.targets:
         return observations
     n_of = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES], reference.species[C.MEASURE],
-                                                   reference.species.get(H.N, [None] * len(reference.species)))}
+                                                   reference.species.get(H.N, [None] * len(reference.species)), strict=True)}
     have = set(zip(observations[C.STATION], observations[C.DATE].map(_as_date), observations[C.SPECIES],
-                   observations[C.MEASURE])) if len(observations) else set()
+                   observations[C.MEASURE], strict=True)) if len(observations) else set()
     added = []
     done = visits[visits[C.VISIT_STATUS] == C.STATUS_DONE]
     for rec in done.itertuples(index=False):

@@ -31,7 +31,7 @@ def test_every_difference_listed(tmp_path):
           .replace("Q02,2021-05-03,OB1,done,0,3,", "Q02,2021-05-03,OB1,done,,3,")
           .replace("Q03,2021-05-04", "Q03,2021-05-05"))
     diff = compare_entries(_write(tmp_path, "a.csv", A), _write(tmp_path, "b.csv", b))
-    got = set(zip(diff["station"], diff["field"], diff["value_a"], diff["value_b"]))
+    got = set(zip(diff["station"], diff["field"], diff["value_a"], diff["value_b"], strict=True))
     assert got == {
         ("Q01", "observers", "OB1", "OB2"),
         ("Q01", "count", 12.0, 21.0),

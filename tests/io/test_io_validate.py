@@ -123,7 +123,7 @@ def test_done_visit_missing_target(tmp_path):
     filled = fill_blank_targets(rec.visits, rec.observations, _ref(blanks_mean_zero=True))
     added = filled[filled["source_field"] == "(blank = 0)"]
     # only the done visit is filled; the partial visit's blank stays missing (missing is not zero)
-    assert list(zip(added["station"], added["species"], added["value"], added["n"])) == [("Q01", "PRIMUL", 0.0, 25)]
+    assert list(zip(added["station"], added["species"], added["value"], added["n"], strict=True)) == [("Q01", "PRIMUL", 0.0, 25)]
 
 
 def test_missed_visit_carrying_values(tmp_path):

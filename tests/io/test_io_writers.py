@@ -82,7 +82,7 @@ def _table(zf, name):
     text = zf.read(name).decode("utf-8")
     lines = text.rstrip("\n").split("\n")
     header = lines[0].split("\t")
-    return header, [dict(zip(header, line.split("\t"))) for line in lines[1:]]
+    return header, [dict(zip(header, line.split("\t"), strict=True)) for line in lines[1:]]
 
 
 def test_tidy_csv_rfc4180_and_missing_not_zero(tmp_path, programme):

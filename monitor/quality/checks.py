@@ -1,0 +1,269 @@
+"""Quality checks on stored records (pure: plain DataFrames in, a DataFrame of flags out).
+
+Four checks, each returning rows of a flags table with columns ``kind, station, species, year,
+detail, severity``:
+
+``jump``
+    A value far from the station's own history for that species and measure.  On the log scale
+    ``u = log(1 + y)``, for each year the value is compared with the median of the *other* years
+    (leave-one-out, so a jump does not widen its own yardstick), scaled by their median absolute
+    deviation made consistent for the normal, ``s = max(1.4826 * MAD, s_min)``; the modified
+    z-score ``z = (u - median) / s`` is flagged when ``|z| > 3.5`` (Iglewicz & Hoaglin 1993).
+    ``s_min`` (default log(2)/2) keeps all-zero or constant series from flagging a single plant.
+``overdue``
+    A station in service not visited (done or partial) in a year its panel's revisit rule
+    ``[a-b]`` (McDonald 2003) made it due, once that year is over.
+``observer``
+    An observer whose values differ systematically from others' at the same stations.  Each value
+    by observer O is paired with the median (log scale) of values by observers other than O at the
+    same station, species and measure in the same year (repeat or calibration visits); where none
+    exists and ``across_years`` is set, in the station's other years.  The differences are averaged per
+    station (stations are the independent units) and tested with the Wilcoxon signed-rank test
+    (Wilcoxon 1945); flagged when p < alpha.
+``covariate_missing``
+    A done or partial visit without a value for a covariate the programme requires.
+
+References
+----------
+Iglewicz, B. and Hoaglin, D. C. (1993). How to Detect and Handle Outliers. ASQC Quality Press.
+Leys, C., Ley, C., Klein, O., Bernard, P. and Licata, L. (2013). Detecting outliers: do not use
+standard deviation around the mean, use absolute deviation around the median. Journal of
+Experimental Social Psychology 49, 764-766.
+McDonald, T. L. (2003). Review of environmental monitoring methods: survey designs. Environmental
+Monitoring and Assessment 85, 277-292.
+Wilcoxon, F. (1945). Individual comparisons by ranking methods. Biometrics Bulletin 1, 80-83.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+
+import numpy as np
+import pandas as pd
+
+from monitor import columns as C
+
+FLAG_COLUMNS = ["kind", C.STATION, C.SPECIES, C.YEAR, "detail", "severity"]
+MAD_TO_SD = 1.4826  # 1 / Phi^-1(3/4): makes the MAD a consistent estimator of sigma for normal data
+JUMP_THRESHOLD = 3.5  # Iglewicz & Hoaglin (1993), modified z-score
+
+
+def _flags(rows: list[dict]) -> pd.DataFrame:
+    frame = pd.DataFrame(rows, columns=FLAG_COLUMNS)
+    frame[C.YEAR] = frame[C.YEAR].astype("Int64")
+    return frame
+
+
+def analysis_values(table: pd.DataFrame) -> pd.Series:
+    """The value checked for each row: ``value`` if present, else the measure's k column.
+
+    count -> count; cover -> cover_pct; frequency -> occupied; pin_hits -> hits; presence -> present.
+    """
+    if "value" in table.columns:
+        return table["value"].astype(float)
+    out = pd.Series(np.nan, index=table.index, dtype=float)
+    for measure, cols in C.MEASURE_COLUMNS.items():
+        if cols[0] in table.columns:
+            mask = table[C.MEASURE] == measure
+            out[mask] = table.loc[mask, cols[0]].astype(float)
+    return out
+
+
+def station_jumps(table: pd.DataFrame, *, threshold: float = JUMP_THRESHOLD, min_history: int = 4,
+                  min_scale: float = math.log(2) / 2) -> pd.DataFrame:
+    """Flag values far from the station's own history (robust leave-one-out modified z on log(1+y)).
+
+    Parameters
+    ----------
+    table : DataFrame
+        Long analysis table: station, year, species, measure and ``value`` (or the measure columns of
+        monitor.columns.MEASURE_COLUMNS).  Several values in one year are averaged first.
+    threshold : float
+        Flag when |z| exceeds it; 3.5 after Iglewicz & Hoaglin (1993).
+    min_history : int
+        Other years needed before a value can be judged.
+    min_scale : float
+        Floor on the robust scale (log units).
+
+    Returns
+    -------
+    DataFrame of flags (kind "jump").
+
+    Notes
+    -----
+    ``u_t = log(1 + y_t)``; ``m_t = median(u_s, s != t)``; ``s_t = max(1.4826 MAD(u_s, s != t), s_min)``;
+    ``z_t = (u_t - m_t) / s_t``.
+    """
+    data = table.assign(_value=analysis_values(table))
+    data = data[data[C.MEASURE] != C.MEASURE_PRESENCE].dropna(subset=["_value"])
+    yearly = data.groupby([C.STATION, C.SPECIES, C.MEASURE, C.YEAR], sort=True)["_value"].mean().reset_index()
+    rows = []
+    for (station, species, measure), group in yearly.groupby([C.STATION, C.SPECIES, C.MEASURE], sort=True):
+        if len(group) < min_history + 1:
+            continue
+        years = group[C.YEAR].to_numpy()
+        y = group["_value"].to_numpy(dtype=float)
+        u = np.log1p(np.clip(y, 0, None))
+        for t in range(len(u)):
+            others = np.delete(u, t)
+            med = float(np.median(others))
+            scale = max(MAD_TO_SD * float(np.median(np.abs(others - med))), min_scale)
+            z = (u[t] - med) / scale
+            if abs(z) > threshold:
+                typical = math.expm1(med)
+                rows.append({"kind": "jump", C.STATION: station, C.SPECIES: species, C.YEAR: int(years[t]),
+                             "detail": f"{measure} {y[t]:g} against a typical {typical:.3g} in the station's other "
+                                       f"{len(others)} years (robust z = {z:+.1f}, |z| > {threshold:g})",
+                             "severity": "warning"})
+    return _flags(rows)
+
+
+def overdue_stations(visits: pd.DataFrame, stations: pd.DataFrame, panels: pd.DataFrame,
+                     current_year: int) -> pd.DataFrame:
+    """Flag stations in service that missed a year their panel made them due, once that year is over.
+
+    Parameters
+    ----------
+    visits : DataFrame
+        station, year (or date), status.  Done and partial visits count as visited.
+    stations : DataFrame
+        station, panel; optional ``established`` and ``retired`` dates.
+    panels : DataFrame
+        panel, visit_years, rest_years, start_year (blank start = every year from the station's start).
+    current_year : int
+        The season in progress; its due visits are not yet overdue.
+    """
+    from monitor.io.programme import panel_due
+
+    if C.YEAR not in visits.columns and C.DATE in visits.columns:
+        visits = visits.assign(**{C.YEAR: [d.year for d in visits[C.DATE]]})
+    done = visits[visits[C.VISIT_STATUS].isin(C.STATUSES_WITH_VALUES)] if len(visits) else visits
+    last_visit = done.groupby(C.STATION)[C.YEAR].max().to_dict() if len(done) else {}
+    first_year_visits = visits.groupby(C.STATION)[C.YEAR].min().to_dict() if len(visits) else {}
+    rules = {r[C.PANEL]: r for r in panels.to_dict("records")}
+    rows = []
+    for s in stations.to_dict("records"):
+        code, panel = s[C.STATION], s.get(C.PANEL)
+        retired = s.get("retired")
+        if retired is not None and not (isinstance(retired, float) and math.isnan(retired)) and not pd.isna(retired):
+            continue
+        if panel is None or panel not in rules:
+            continue
+        rule = rules[panel]
+        a, b = int(rule["visit_years"]), int(rule["rest_years"])
+        start = rule.get("start_year")
+        established = s.get("established")
+        est_year = established.year if hasattr(established, "year") else None
+        origin = None if start is None or pd.isna(start) else int(start)
+        since = last_visit.get(code)
+        if since is None:
+            since = (est_year or first_year_visits.get(code) or origin or current_year) - 1
+        anchor = origin if origin is not None else (est_year or since + 1)
+        missed = [y for y in range(since + 1, current_year) if panel_due(a, b, anchor, y)]
+        if missed:
+            last_text = f"last visited {last_visit[code]}" if code in last_visit else "never visited"
+            rows.append({"kind": "overdue", C.STATION: code, C.SPECIES: None, C.YEAR: missed[0],
+                         "detail": f"{last_text}; panel {panel} [{a}-{b}] made it due in "
+                                   f"{', '.join(map(str, missed))}",
+                         "severity": "warning"})
+    return _flags(rows)
+
+
+def _observers_of(value: object) -> tuple[str, ...]:
+    if isinstance(value, (tuple, list)):
+        return tuple(str(v) for v in value)
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ()
+    return tuple(o.strip() for o in str(value).split(";") if o.strip())
+
+
+def observer_pairs(table: pd.DataFrame, observer: str, *, across_years: bool = True) -> np.ndarray:
+    """One paired log difference per station (and species, measure) for ``observer``.
+
+    For each value by the observer, ``d = log(1+y_O) - median log(1+y)`` of values by observers other
+    than O at the same station, species and measure in the same year; where there is none and
+    ``across_years`` is set, in the station's other years.  The d of one station are averaged, so the
+    units tested are stations (independent), not visits that share a reference value.
+    """
+    data = table.assign(_value=analysis_values(table), _team=table[C.OBSERVER].map(_observers_of))
+    data = data[data[C.MEASURE] != C.MEASURE_PRESENCE].dropna(subset=["_value"])
+    if data.empty:
+        return np.array([], dtype=float)
+    data = data.assign(_u=np.log1p(np.clip(data["_value"].to_numpy(dtype=float), 0, None)),
+                       _mine=data["_team"].map(lambda team: observer in team).astype(bool))
+    keys = [C.STATION, C.SPECIES, C.MEASURE]
+    mine, others = data[data["_mine"]], data[~data["_mine"]]
+    if mine.empty or others.empty:
+        return np.array([], dtype=float)
+    same_year = others.groupby(keys + [C.YEAR])["_u"].median().rename("_ref_year").reset_index()
+    any_year = others.groupby(keys)["_u"].median().rename("_ref_all").reset_index()
+    paired = mine.merge(same_year, on=keys + [C.YEAR], how="left").merge(any_year, on=keys, how="left")
+    ref = paired["_ref_year"]
+    if across_years:
+        ref = ref.fillna(paired["_ref_all"])
+    paired = paired.assign(_d=paired["_u"] - ref).dropna(subset=["_d"])
+    return paired.groupby(keys)["_d"].mean().to_numpy(dtype=float)
+
+
+def observer_differences(table: pd.DataFrame, *, min_pairs: int = 6, alpha: float = 0.01,
+                         across_years: bool = True) -> pd.DataFrame:
+    """Flag observers whose values differ systematically from others' at the same stations.
+
+    Each observer's per-station paired log differences (:func:`observer_pairs`) are tested against zero
+    with the two-sided Wilcoxon signed-rank test (scipy.stats.wilcoxon); flagged when there are at least
+    ``min_pairs`` pairs and p < ``alpha``.  The detail gives the median ratio exp(median d) - 1.
+    """
+    from scipy.stats import wilcoxon
+
+    observers = sorted({o for team in table[C.OBSERVER].map(_observers_of) for o in team})
+    rows = []
+    for observer in observers:
+        d = observer_pairs(table, observer, across_years=across_years)
+        d = d[d != 0]
+        if len(d) < min_pairs:
+            continue
+        p = float(wilcoxon(d, alternative="two-sided").pvalue)
+        if p < alpha:
+            ratio = math.expm1(float(np.median(d)))
+            rows.append({"kind": "observer", C.STATION: None, C.SPECIES: None, C.YEAR: None,
+                         "detail": f"observer {observer}: values {abs(ratio) * 100:.0f}% "
+                                   f"{'higher' if ratio > 0 else 'lower'} than other observers at the same "
+                                   f"stations (median of {len(d)} pairs; Wilcoxon signed-rank p = {p:.2g})",
+                         "severity": "warning"})
+    return _flags(rows)
+
+
+def missing_covariates(visits: pd.DataFrame, covariates: pd.DataFrame, required: Iterable[str]) -> pd.DataFrame:
+    """Flag done or partial visits lacking a required covariate."""
+    required = list(required)
+    have = set(zip(covariates[C.STATION], covariates[C.DATE], covariates["name"], strict=True)) if len(covariates) else set()
+    rows = []
+    for v in visits.to_dict("records"):
+        if v[C.VISIT_STATUS] not in C.STATUSES_WITH_VALUES:
+            continue
+        for name in required:
+            if (v[C.STATION], v[C.DATE], name) not in have:
+                rows.append({"kind": "covariate_missing", C.STATION: v[C.STATION], C.SPECIES: None,
+                             C.YEAR: v[C.DATE].year, "detail": f"no {name} on the visit of {v[C.DATE].isoformat()}",
+                             "severity": "info"})
+    return _flags(rows)
+
+
+def quality_flags(table: pd.DataFrame, *, visits: pd.DataFrame | None = None,
+                  stations: pd.DataFrame | None = None, panels: pd.DataFrame | None = None,
+                  covariates: pd.DataFrame | None = None, required_covariates: Iterable[str] = (),
+                  current_year: int | None = None) -> pd.DataFrame:
+    """All quality checks whose inputs are given, as one flags table sorted by kind, station and year."""
+    parts = [station_jumps(table)]
+    if C.OBSERVER in table.columns:
+        parts.append(observer_differences(table))
+    if visits is not None and stations is not None and panels is not None and current_year is not None:
+        parts.append(overdue_stations(visits, stations, panels, current_year))
+    if visits is not None and covariates is not None:
+        parts.append(missing_covariates(visits, covariates, required_covariates))
+    parts = [p for p in parts if len(p)]
+    if not parts:
+        return _flags([])
+    out = pd.concat(parts, ignore_index=True)
+    return out.sort_values(["kind", C.STATION, C.YEAR], na_position="first", kind="stable").reset_index(drop=True)
