@@ -18,8 +18,9 @@ from tests.conftest import REPO_ROOT
 @pytest.fixture(scope="module")
 def wheel(tmp_path_factory):
     out = tmp_path_factory.mktemp("wheel")
-    subprocess.run([sys.executable, "-m", "build", "--wheel", "--no-isolation", "--outdir", str(out), str(REPO_ROOT)],
-                   check=True, capture_output=True)
+    built = subprocess.run([sys.executable, "-m", "build", "--wheel", "--no-isolation", "--outdir", str(out),
+                            str(REPO_ROOT)], capture_output=True, text=True)
+    assert built.returncode == 0, built.stdout[-2000:] + built.stderr[-2000:]
     wheels = list(out.glob("monitor-*.whl"))
     assert len(wheels) == 1
     return wheels[0]

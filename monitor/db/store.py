@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import os
 from collections.abc import Iterator
 from dataclasses import dataclass
 
@@ -26,17 +27,19 @@ class Store:
     @classmethod
     def open(cls, path_or_url: str | None = None, *, check: bool = True) -> Store:
         engine = make_engine(path_or_url)
-        if engine.url.get_backend_name() == "sqlite":
-            db_path = engine.url.database
-            import os
-
-            if check and db_path and not os.path.exists(db_path):
-                raise SchemaError(f"{db_path} does not exist; run `monitor init --db {db_path}` first")
         try:
+            if engine.url.get_backend_name() == "sqlite":
+                db_path = engine.url.database
+                if check and db_path and not os.path.exists(db_path):
+                    raise SchemaError(f"{db_path} does not exist; run `monitor init --db {db_path}` first")
             if check:
                 migrate.check_current(engine)
         except OperationalError as exc:
+            engine.dispose()
             raise SchemaError(f"cannot open the database: {str(exc.orig).splitlines()[0]}") from exc
+        except BaseException:
+            engine.dispose()
+            raise
         return cls(engine)
 
     @property
