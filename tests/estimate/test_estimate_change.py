@@ -81,7 +81,7 @@ def test_simulated_power_is_higher_for_permanent_quadrats():
     # seeded simulation: stations persist between seasons (correlation ~0.8), true change +15 %
     rng = np.random.default_rng(31)
     paired_hits = welch_hits = 0
-    reps = 300
+    reps = 150
     for _ in range(reps):
         station = rng.normal(0, 0.8, 20)
         y1 = rng.poisson(np.exp(2.0 + station + rng.normal(0, 0.3, 20)))
