@@ -28,9 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-import statsmodels.api as sm
 from scipy import stats
-from statsmodels.discrete.discrete_model import NegativeBinomial
 
 from monitor import columns as C
 from monitor.errors import Diagnostic, EstimationError
@@ -104,8 +102,13 @@ def _fit_one(
         raise EstimationError(
             f"{label}: abundance is {y[0]:g} in every quadrat; rank correlation and slope are undefined"
         )
+    # statsmodels is imported here so that importing monitor.estimate stays quick
+    from statsmodels.discrete.discrete_model import NegativeBinomial
+    from statsmodels.genmod.families import Poisson
+    from statsmodels.genmod.generalized_linear_model import GLM
+
     rho, p_rho = stats.spearmanr(x, y)
-    design = sm.add_constant(x, has_constant="add")
+    design = np.column_stack([np.ones_like(x), x])
     diagnostics: list[Diagnostic] = []
     if n < 10:
         diagnostics.append(
@@ -113,7 +116,7 @@ def _fit_one(
         )
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        poisson = sm.GLM(y, design, family=sm.families.Poisson(), offset=offset).fit()
+        poisson = GLM(y, design, family=Poisson(), offset=offset).fit()
     dispersion = float(poisson.pearson_chi2 / poisson.df_resid)
     use = family
     if family == "auto":

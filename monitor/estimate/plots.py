@@ -2,16 +2,22 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-from matplotlib.axes import Axes
-from matplotlib.figure import Figure
 
 from .adequacy import RunningMean
 from .cover import ProportionEstimate
 from .gradient import GradientResult
 
+if TYPE_CHECKING:  # matplotlib is imported when a figure is drawn, not when monitor.estimate is
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
 
 def _figure(ax: Axes | None, size=(6.0, 4.0)) -> tuple[Figure, Axes]:
+    from matplotlib.figure import Figure
+
     if ax is not None:
         return ax.figure, ax  # type: ignore[return-value]
     figure = Figure(figsize=size, layout="constrained")
@@ -83,6 +89,7 @@ def plot_proportions(result: ProportionEstimate, ax: Axes | None = None) -> Figu
     ax.axhline(result.share, color="C1")
     ax.set_xticks(position, [q.station for q in result.per_quadrat], rotation=90, fontsize="x-small")
     ax.set_ylim(0, 1)
+    ax.set_xlabel("quadrat")
     ax.set_ylabel("share of cells occupied" if result.measure == "frequency" else "share of pins hit")
     ax.legend(fontsize="small")
     return figure
