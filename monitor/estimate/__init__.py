@@ -26,7 +26,7 @@ What it answers within one season, and how
 Results are frozen dataclasses with ``to_dict()`` and carry ``n``; estimation trouble is a
 :class:`monitor.errors.Diagnostic` on the result, and impossible requests raise
 :class:`monitor.errors.EstimationError`.  Figures: :func:`plot_running_mean`,
-:func:`plot_gradient`, :func:`plot_proportions` (``plot_x(result, ax=None) -> Figure``).
+:func:`plot_gradient`, :func:`plot_proportions`, :func:`plot_season_comparison` (``plot_x(result, ax=None) -> Figure``).
 
 References
 ----------
@@ -66,7 +66,7 @@ from .density import (
     estimate_density_stratified,
 )
 from .gradient import GradientFit, GradientResult, estimate_gradient
-from .plots import plot_gradient, plot_proportions, plot_running_mean
+from .plots import plot_gradient, plot_proportions, plot_running_mean, plot_season_comparison
 from .season import PLACEMENT, season_estimates
 
 __all__ = [
@@ -96,6 +96,7 @@ __all__ = [
     "plot_gradient",
     "plot_proportions",
     "plot_running_mean",
+    "plot_season_comparison",
     "pooled_proportion",
     "quadrats_needed",
     "quadrats_needed_from_moments",

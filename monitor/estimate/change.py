@@ -72,6 +72,7 @@ class SeasonComparison(Result):
     efficiency: float               # (s1^2 + s2^2) / var(d) on the paired stations
     confidence: float
     note: str
+    pairs: tuple[tuple[str, float, float], ...] = ()   # (station, first, second) for the figure
     diagnostics: tuple[Diagnostic, ...] = ()
 
 
@@ -236,5 +237,8 @@ def compare_seasons(
         efficiency=efficiency,
         confidence=float(confidence),
         note=note,
+        pairs=tuple(
+            (str(st), float(a), float(b)) for st, a, b in zip(paired["station"], y1, y2, strict=True)
+        ),
         diagnostics=tuple(diagnostics),
     )

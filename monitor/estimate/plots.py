@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from .adequacy import RunningMean
+from .change import SeasonComparison
 from .cover import ProportionEstimate
 from .gradient import GradientResult
 
@@ -91,5 +92,29 @@ def plot_proportions(result: ProportionEstimate, ax: Axes | None = None) -> Figu
     ax.set_ylim(0, 1)
     ax.set_xlabel("quadrat")
     ax.set_ylabel("share of cells occupied" if result.measure == "frequency" else "share of pins hit")
+    ax.legend(fontsize="small")
+    return figure
+
+
+def plot_season_comparison(result: SeasonComparison, ax: Axes | None = None) -> Figure:
+    """Each permanent quadrat's value in the second season against the first, with the 1:1 line.
+
+    Points hugging a line show the between-season correlation that makes paired comparisons of
+    permanent quadrats more powerful than comparing two independent samples.
+    """
+    figure, ax = _figure(ax, size=(4.5, 4.5))
+    first = np.array([p[1] for p in result.pairs])
+    second = np.array([p[2] for p in result.pairs])
+    top = max(first.max(), second.max())
+    bottom = min(first.min(), second.min(), 0.0)
+    ax.plot([bottom, top], [bottom, top], color="grey", linestyle="--", linewidth=0.8, label="no change")
+    ax.scatter(first, second, s=16, label=f"stations (r = {result.correlation:.2f})")
+    ax.set_xlabel(f"{result.value}, {result.first_season}")
+    ax.set_ylabel(f"{result.value}, {result.second_season}")
+    ax.set_title(
+        f"Change {result.mean_difference:+.3g} (paired p = {result.paired_p:.3g}; "
+        f"unpaired p = {result.welch_p:.3g})",
+        fontsize="small",
+    )
     ax.legend(fontsize="small")
     return figure

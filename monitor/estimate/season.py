@@ -270,6 +270,16 @@ def season_estimates(
             if design == C.PLACEMENT_TARGETED or len(rows) == 0:
                 raise EstimationError(f"site '{site}': every station is targeted; no design-based estimate")
             strata_table = _use_strata(rows, strata, site)
+            if strata_table is not None:
+                strata_area = float(numeric_column(strata_table, C.AREA, "strata table").sum())
+                if abs(strata_area - area) > 0.01 * area:
+                    pre.append(
+                        Diagnostic(
+                            "strata_area_mismatch",
+                            f"The strata cover {strata_area:g} m^2 but the site is {area:g} m^2; "
+                            "the stratified total uses the strata areas.",
+                        )
+                    )
             if measure == C.MEASURE_COUNT:
                 row = _row_count(rows, area, strata_table, design, confidence, precision)
             elif measure == C.MEASURE_COVER:

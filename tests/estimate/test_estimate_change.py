@@ -115,3 +115,9 @@ def test_season_comparison_bad_input():
                         value="value")
     with pytest.raises(EstimationError, match="lacks column"):
         compare_seasons(long([1, 2, 3], [2, 3, 5]))
+
+
+def test_pairs_are_kept_for_the_figure():
+    r = compare_seasons(long(DRUG1, DRUG2), value="value")
+    assert len(r.pairs) == 10
+    assert r.pairs[0] == ("q0", 0.7, 1.9)

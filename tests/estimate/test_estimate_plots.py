@@ -8,11 +8,13 @@ from matplotlib.figure import Figure
 
 from monitor import columns as C
 from monitor.estimate import (
+    compare_seasons,
     estimate_gradient,
     estimate_pin_cover,
     plot_gradient,
     plot_proportions,
     plot_running_mean,
+    plot_season_comparison,
     running_mean,
 )
 
@@ -28,6 +30,10 @@ def results():
         plot_gradient: estimate_gradient(data),
         plot_running_mean: running_mean(rng.poisson(5, 20), precision=0.2),
         plot_proportions: estimate_pin_cover(pins),
+        plot_season_comparison: compare_seasons(
+            pd.DataFrame({C.STATION: [f"q{i}" for i in range(10)] * 2, C.YEAR: np.repeat([2023, 2024], 10),
+                          C.COUNT: np.concatenate([counts := rng.poisson(8, 10), counts + rng.poisson(2, 10)])})
+        ),
     }
 
 
@@ -52,7 +58,7 @@ def test_gradient_figure_draws_one_curve_per_season(results):
 
 def test_figures_draw_into_a_given_axes(results):
     figure = Figure()
-    axes = figure.subplots(1, 3)
+    axes = figure.subplots(1, 4)
     for ax, (plot, result) in zip(axes, results.items(), strict=True):
         assert plot(result, ax=ax) is figure
         assert ax.has_data()

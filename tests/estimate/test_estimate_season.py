@@ -172,3 +172,13 @@ def test_table_input_errors():
         season_estimates(pd.concat([obs, obs.assign(year=2025)]), st, SITES, C.MEASURE_COUNT)
     with pytest.raises(EstimationError, match="two 'SPA'"):
         season_estimates(pd.concat([obs, obs.iloc[:1]]), st, SITES, C.MEASURE_COUNT)
+
+
+def test_strata_that_do_not_add_up_to_the_site_are_flagged():
+    rng = np.random.default_rng(10)
+    st = stations()
+    st[C.STRATUM] = ["wet"] * 5 + ["dry"] * 7 + [None] * 10
+    strata = pd.DataFrame({C.SITE: ["NORTHMEAD"] * 2, C.STRATUM: ["wet", "dry"], C.AREA: [2000.0, 5000.0]})
+    table = season_estimates(observations(st, rng), st, SITES, C.MEASURE_COUNT, strata=strata)
+    assert table.loc[table["site"] == "NORTHMEAD", "diagnostics"].str.contains("strata_area_mismatch").all()
+    assert not table.loc[table["site"] == "FENEND", "diagnostics"].str.contains("strata_area_mismatch").any()
