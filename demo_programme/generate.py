@@ -203,6 +203,10 @@ def main() -> None:
     station_effect = {(sp[0], st["code"]): rng.normal(0, STATION_SD) for sp in SPECIES for st in stations}
     moisture_base = {st["code"]: float(np.clip(rng.normal(45 if st["site"] == "SM" else 25, 8), 5, 90))
                      for st in stations}
+    # along the stream transect the ground dries out away from the water: about 0.3 points per metre
+    for st in stations:
+        if st["transect"] == "SM-T":
+            moisture_base[st["code"]] = float(np.clip(75.0 - 0.3 * st["distance_m"] + rng.normal(0, 3), 5, 90))
     panel_rule = {p[0]: (p[2], 1 if p[1] == "[1-0]" else 3) for p in PANELS}
     observer_years = {o[0]: int(o[2][:4]) + 1 for o in OBSERVERS}
 
@@ -246,7 +250,7 @@ def main() -> None:
                         eta = math.log(truth["mean_2015"]) + trend + eta_re + rng.normal(0, OBS_SD)
                         # wetter quadrats suit the marsh violetwort: +2 % per moisture point
                         if code == "MARVIO":
-                            eta += 0.02 * (moisture - 35.0)
+                            eta += 0.03 * (moisture - 35.0)
                         values[code] = int(rng.poisson(math.exp(eta)))
                     elif measure == "cover":
                         if not present_here:
@@ -298,12 +302,18 @@ def main() -> None:
         lines.append(f"| {code} ({com}) | {measure}{f' of {n}' if n else ''} | "
                      f"{truth['annual_change'] * 100:+.0f} % a year ({scale}) | {', '.join(truth['sites'])} | "
                      f"{truth['mean_2015']} |")
-    lines += ["", "MARVIO counts also rise by about 2 % per point of soil moisture (visit covariate).",
+    lines += ["", "MARVIO counts also rise by about 3 % per point of soil moisture (visit covariate). Along the",
+              "stream transect SM-T soil moisture falls about 0.3 points per metre from the water, so MARVIO",
+              "falls by about 0.9 % per metre along it (exp(-0.03 * 0.3) - 1).",
               "Missed visits about 4 % a year; Stream Meadow inaccessible about 5 % a year and half its",
               "stations in 2019 (flood). Protocol P2 from 2021. Hilltop Heath's access permission ends 2026-09-30.",
               "", "| year | visits on the sheet | visits done |", "|---|---|---|"]
     lines += [f"| {y} | {n} | {d} |" for y, n, d in truth_rows]
     (out / "TRUTH.md").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    truth = {code: {"measure": measure, "annual_change": t["annual_change"], "sites": t["sites"]}
+             for code, _sci, _com, measure, _n, _sens, _w, t in SPECIES}
+    truth["_gradient"] = {"species": "MARVIO", "transect": "SM-T", "change_per_m": math.exp(-0.03 * 0.3) - 1}
+    (out / "truth.json").write_text(json.dumps(truth, indent=2) + "\n", encoding="utf-8")
 
 
 if __name__ == "__main__":

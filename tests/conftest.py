@@ -78,3 +78,12 @@ def store(db_url):
 @pytest.fixture(scope="session")
 def demo_source() -> Path:
     return REPO_ROOT / "demo_programme"
+
+
+@pytest.fixture(scope="session")
+def demo_db(tmp_path_factory) -> str:
+    """The demo programme built once (set up and all seasons imported) in SQLite; tests must not change it."""
+    from monitor.services import demo
+
+    run = demo.build_programme(tmp_path_factory.mktemp("demo") / "demo")
+    return str(run.database)

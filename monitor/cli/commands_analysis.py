@@ -1,4 +1,4 @@
-"""Analyses: trends across years."""
+"""Analyses: trends across years, this season's estimates, sample adequacy, gradients, two-season change."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ from pathlib import Path
 import click
 
 from monitor.cli.main import Context, cli
-from monitor.cli.output import chosen_format, emit, format_option, progress
+from monitor.cli.output import chosen_format, emit, format_option, progress, say
 
 
 def _pct(x: float | None) -> str:
@@ -68,3 +68,126 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
         emit([t.to_dict() for t in trends], fmt)
     else:
         emit(trend_rows(trends), fmt)
+
+
+@cli.command("estimate")
+@click.argument("year", type=int)
+@click.option("--species", "species", multiple=True, help="Species code (repeat; default all targets).")
+@click.option("--site", "sites", multiple=True, help="Only these sites (repeat).")
+@click.option("--precision", type=float, default=0.2, show_default=True,
+              help="Target relative precision for the quadrats-needed column (0.2 = +/-20%).")
+@format_option
+@click.pass_obj
+def estimate_command(ctx: Context, year: int, species, sites, precision: float, as_json: bool, as_csv: bool) -> None:
+    """This season's estimates per site and species: density and total with intervals, cover, frequency."""
+    from monitor.services import estimate
+
+    table = estimate.season_table(ctx.db, year, programme_code=ctx.programme, species=list(species) or None,
+                                  sites=list(sites) or None, precision=precision)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt != "table":
+        emit(table, fmt)
+        return
+    emit(estimate_rows(table))
+    for reason in table.attrs.get("skipped", []):
+        say(f"not estimated: {reason}")
+
+
+def estimate_rows(table) -> list[dict]:
+    rows = []
+    for r in table.to_dict(orient="records"):
+        row = {"site": r["site"], "species": r["species"], "measure": r["measure"], "n": r["n"],
+               "estimate (95% CI)": f"{r['estimate']:.3g} ({r['lower']:.3g} to {r['upper']:.3g}) {r['unit']}"}
+        if r.get("total") is not None and r["total"] == r["total"]:
+            row["site total (95% CI)"] = f"{r['total']:,.0f} ({r['total_lower']:,.0f} to {r['total_upper']:,.0f})"
+            row["quadrats for +/-20%"] = r.get("quadrats_needed")
+        row["caution"] = "fewer than 10 quadrats" if r["n"] < 10 else ""
+        rows.append(row)
+    return rows
+
+
+@cli.command("adequacy")
+@click.argument("species")
+@click.argument("year", type=int)
+@click.option("--site", required=True, help="Site code.")
+@click.option("--precision", type=float, default=0.2, show_default=True, help="Relative half-width wanted.")
+@click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
+              help="Save the running mean with its interval as PNG/SVG/PDF.")
+@format_option
+@click.pass_obj
+def adequacy_command(ctx: Context, species: str, year: int, site: str, precision: float, figure, as_json, as_csv):
+    """Sample adequacy: quadrats needed for the mean within +/-precision, and the running mean."""
+    from monitor.services import estimate
+
+    report = estimate.sample_adequacy(ctx.db, species, year, site, programme_code=ctx.programme,
+                                      precision=precision, figure=figure)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt == "json":
+        emit(report.to_dict(), fmt)
+        return
+    a = report.adequacy
+    emit({"quadrats taken": a.n, "mean per quadrat": a.mean, "sd": a.sd,
+          f"quadrats needed for +/-{100 * precision:.0f}%": a.n_required, "more needed": a.additional_required,
+          "precision now (+/-%)": None if a.achieved_precision is None else 100 * a.achieved_precision,
+          "adequate": a.adequate}, fmt)
+    if figure:
+        say(f"running mean figure: {figure}")
+
+
+@cli.command("gradient")
+@click.argument("species")
+@click.option("--transect", default=None, help="Transect code: abundance against distance along it.")
+@click.option("--covariate", default=None, help="Visit covariate name (e.g. soil_moisture) instead of a transect.")
+@click.option("--year", "years", type=int, multiple=True, help="Seasons to use (repeat; default all).")
+@click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
+              help="Save abundance along the gradient per season.")
+@format_option
+@click.pass_obj
+def gradient_command(ctx: Context, species, transect, covariate, years, figure, as_json, as_csv):
+    """Abundance along a transect or covariate: Spearman's rho and a GLM slope with its interval per season."""
+    from monitor.services import estimate
+
+    result = estimate.gradient(ctx.db, species, programme_code=ctx.programme, transect=transect, covariate=covariate,
+                               years=list(years) or None, figure=figure)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt == "json":
+        emit(result.to_dict(), fmt)
+        return
+    emit(gradient_rows(result), fmt)
+    for d in result.diagnostics:
+        say(f"note: {d.message}")
+    if figure:
+        say(f"gradient figure: {figure}")
+
+
+def gradient_rows(result) -> list[dict]:
+    return [{"season": f.season, "n": f.n, "spearman rho": f.spearman_rho, "p": f.spearman_p, "family": f.family,
+             "change per unit (95% CI)": f"{100 * (f.rate_ratio - 1):+.2f}% ({100 * (f.rate_ratio_lower - 1):+.2f} to "
+                                         f"{100 * (f.rate_ratio_upper - 1):+.2f})"} for f in result.fits]
+
+
+@cli.command("change")
+@click.argument("species")
+@click.argument("first", type=int)
+@click.argument("second", type=int)
+@click.option("--site", default=None, help="Only this site.")
+@click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None, help="Save the paired plot.")
+@format_option
+@click.pass_obj
+def change_command(ctx: Context, species, first, second, site, figure, as_json, as_csv):
+    """Change between two seasons at the permanent quadrats: paired t and Wilcoxon beside the unpaired test."""
+    from monitor.services import estimate
+
+    r = estimate.two_seasons(ctx.db, species, first, second, programme_code=ctx.programme, site=site, figure=figure)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt == "json":
+        emit(r.to_dict(), fmt)
+        return
+    emit([{"analysis": "paired t (same quadrats)", "n": r.n, "change": r.mean_difference, "lower": r.paired_lower,
+           "upper": r.paired_upper, "p": r.paired_p},
+          {"analysis": "Wilcoxon signed-rank", "n": r.wilcoxon_nonzero, "change": None, "lower": None, "upper": None,
+           "p": r.wilcoxon_p},
+          {"analysis": "Welch (as if unpaired)", "n": r.n_first + r.n_second, "change": r.welch_difference,
+           "lower": r.welch_lower, "upper": r.welch_upper, "p": r.welch_p}], fmt)
+    say(f"between-season correlation at the same quadrats r = {r.correlation:.2f}; pairing is {r.efficiency:.1f} times "
+        "as efficient as unpaired sampling")

@@ -112,4 +112,31 @@ def demo_command(folder: Path) -> None:
                  title="Sites")
             emit(result["species"], title="\nTarget species")
             emit(result["visits_by_year"], title="\nVisits per season by outcome")
-    click.echo(f"\nThe demo database is {run.database}; try: monitor --db {run.database} summary")
+        if name == "estimates":
+            from monitor.cli.commands_analysis import estimate_rows
+
+            emit(estimate_rows(result), title=f"\nThis season's estimates ({int(result['year'].iloc[0])})")
+        if name == "adequacy":
+            a = result.adequacy
+            click.echo(f"\nSample adequacy, {result.species} at site {result.site} in {result.year}: "
+                       f"{a.n} quadrats give +/-{100 * a.achieved_precision:.0f}% (95% CI); "
+                       f"{a.n_required} would give +/-{100 * a.precision:.0f}% ({a.additional_required} more)")
+        if name == "gradient":
+            from monitor.cli.commands_analysis import gradient_rows
+
+            gradient, truth = result
+            emit(gradient_rows(gradient)[-3:], title=f"\nAbundance of {truth['species']} along the stream transect "
+                 f"{truth['transect']} (last 3 seasons; built-in truth {100 * truth['change_per_m']:+.2f}% per m)")
+        if name == "trends":
+            click.echo("\nTrends across years: our estimate beside the truth built into the demo data")
+            rows = []
+            for fitted, truth in result:
+                ac = fitted.result.annual_change
+                rows.append({"species": fitted.species, "measure": fitted.measure,
+                             "truth % a year": "" if truth is None else f"{100 * truth['annual_change']:+.1f}",
+                             "estimate % a year (95% CI)": f"{100 * ac.estimate:+.1f} ({100 * ac.lower:+.1f} to "
+                                                           f"{100 * ac.upper:+.1f})",
+                             "call": fitted.result.call})
+            emit(rows)
+    click.echo(f"\nFigures are in {run.folder / 'figures'}")
+    click.echo(f"The demo database is {run.database}; try: monitor --db {run.database} summary")

@@ -148,6 +148,16 @@ def _fit_one(
         nb_alpha = float(nb.params[2])
         if not nb.mle_retvals.get("converged", True):
             diagnostics.append(Diagnostic("not_converged", f"The negative binomial fit for {label} did not converge."))
+        if not (np.isfinite(se) and np.isfinite(b1)) and family == "auto":
+            # few quadrats: the NB2 dispersion is not identified; scale the Poisson standard error by the
+            # Pearson dispersion instead (quasi-Poisson; McCullagh & Nelder 1989, sect. 6.2)
+            use = "quasi_poisson"
+            b0, b1 = (float(v) for v in poisson.params)
+            se = float(poisson.bse[1]) * float(np.sqrt(dispersion))
+            p_slope = float(2 * stats.norm.sf(abs(b1 / se)))
+            nb_alpha = None
+            diagnostics.append(Diagnostic("quasi_poisson", f"The negative binomial could not be fitted for {label}; "
+                                          "the Poisson slope with its standard error scaled by the dispersion is used."))
     for w in caught:
         diagnostics.append(Diagnostic("fit_warning", f"{label}: {str(w.message).splitlines()[0]}"))
     if not (np.isfinite(se) and np.isfinite(b1)):
@@ -182,6 +192,7 @@ def estimate_gradient(
     season: str | None = C.YEAR,
     family: str = "poisson",
     confidence: float = 0.95,
+    on_error: str = "raise",
 ) -> GradientResult:
     """Abundance against a covariate: Spearman's rho and a log-linear GLM slope per season.
 
@@ -201,6 +212,9 @@ def estimate_gradient(
         GLM family; "auto" uses the negative binomial when the Poisson Pearson dispersion > 1.5.
     confidence : float
         Level of the Wald interval for the slope.
+    on_error : {"raise", "skip"}
+        A season that cannot be fitted (separation, too few non-zero counts): raise, or leave it out
+        with a ``season_not_estimated`` diagnostic (an error still if no season can be fitted).
 
     Returns
     -------
@@ -237,20 +251,30 @@ def estimate_gradient(
     else:
         season_values = np.full(len(data), None, dtype=object)
         keys = [None]
+    if on_error not in ("raise", "skip"):
+        raise EstimationError(f"{what}: on_error must be 'raise' or 'skip', got {on_error!r}")
     fits = []
+    skipped: list[Diagnostic] = []
     for key in keys:
         mask = season_values == key if key is not None else np.ones(len(data), dtype=bool)
-        fits.append(
-            _fit_one(
-                x_all[mask],
-                y_all[mask],
-                log_area[mask] if offset_area else None,
-                family,
-                confidence,
-                key,
-                covariate,
+        try:
+            fits.append(
+                _fit_one(
+                    x_all[mask],
+                    y_all[mask],
+                    log_area[mask] if offset_area else None,
+                    family,
+                    confidence,
+                    key,
+                    covariate,
+                )
             )
-        )
+        except EstimationError as exc:
+            if on_error == "raise" or len(keys) == 1:
+                raise
+            skipped.append(Diagnostic("season_not_estimated", str(exc)))
+    if not fits:
+        raise EstimationError(f"{what}: no season could be estimated ({skipped[0].message})")
     note = (
         f"Spearman's rank correlation and a log-linear {family.replace('_', ' ')} GLM of {value} on "
         f"{covariate}, one per season; exp(slope) is the multiplicative change per unit of {covariate}"
@@ -267,5 +291,5 @@ def estimate_gradient(
         y=tuple(float(v) for v in y_all),
         offset_area=offset_area,
         note=note,
-        diagnostics=tuple(d for f in fits for d in f.diagnostics),
+        diagnostics=tuple(d for f in fits for d in f.diagnostics) + tuple(skipped),
     )

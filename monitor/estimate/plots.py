@@ -51,28 +51,42 @@ def plot_running_mean(result: RunningMean, ax: Axes | None = None) -> Figure:
     return figure
 
 
+_AXIS_LABELS = {"distance_m": "distance along the transect [m]", "count": "count per quadrat",
+                "soil_moisture": "soil moisture [%]"}
+
+
 def plot_gradient(result: GradientResult, ax: Axes | None = None) -> Figure:
-    """Abundance along the transect (or covariate), points and fitted GLM curve per season."""
-    figure, ax = _figure(ax)
+    """Abundance along the transect (or covariate): points and fitted GLM curve per season.
+
+    Seasons are coloured along a sequential, colour-blind-safe scale (viridis), early seasons dark,
+    so a shift of the curve over the years reads as a gradient of colour; the legend sits outside
+    the axes so no point is hidden.
+    """
+    from matplotlib import colormaps
+
+    figure, ax = _figure(ax, size=(7.5, 4.2))
     x = np.asarray(result.x)
     y = np.asarray(result.y)
     seasons = np.asarray(result.seasons, dtype=object)
     grid = np.linspace(x.min(), x.max(), 200)
+    scale = colormaps["viridis"]
+    n = max(len(result.fits) - 1, 1)
     for i, fit in enumerate(result.fits):
-        colour = f"C{i % 10}"
+        colour = scale(0.9 * i / n)
         mask = seasons == fit.season if fit.season is not None else np.ones(x.size, dtype=bool)
         label = "all" if fit.season is None else str(fit.season)
-        ax.scatter(x[mask], y[mask], s=14, color=colour, alpha=0.7)
+        text = f"{label}: rho {fit.spearman_rho:+.2f} (p {fit.spearman_p:.2g})"
+        ax.scatter(x[mask], y[mask], s=16, color=colour, alpha=0.8, edgecolors="none")
         if not result.offset_area:
-            ax.plot(grid, np.exp(fit.intercept + fit.slope * grid), color=colour,
-                    label=f"{label}: rho = {fit.spearman_rho:.2f} (p = {fit.spearman_p:.3g})")
-        else:
-            ax.plot([], [], color=colour, marker="o", linestyle="",
-                    label=f"{label}: rho = {fit.spearman_rho:.2f} (p = {fit.spearman_p:.3g})")
-    ax.set_xlabel(result.covariate)
-    ax.set_ylabel(result.value)
-    ax.set_title(f"{result.value} along {result.covariate}")
-    ax.legend(fontsize="small")
+            ax.plot(grid, np.exp(fit.intercept + fit.slope * grid), color=colour, linewidth=1.2, label=text)
+        else:  # intercept is a log density: draw the curve per m^2 of the median quadrat
+            ax.plot(grid, np.exp(fit.intercept + fit.slope * grid), color=colour, linewidth=1.2, label=text)
+    ax.set_xlabel(_AXIS_LABELS.get(result.covariate, result.covariate))
+    ax.set_ylabel(_AXIS_LABELS.get(result.value, result.value))
+    ax.set_title(f"{result.value.replace('_', ' ')} along {result.covariate.replace('_', ' ')}, "
+                 "with the fitted log-linear curve per season", fontsize="medium")
+    ax.set_ylim(bottom=0)
+    ax.legend(fontsize="x-small", loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
     return figure
 
 

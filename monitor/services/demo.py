@@ -5,6 +5,7 @@ Each capability of monitor adds its step here, so that ``monitor demo`` always s
 
 from __future__ import annotations
 
+import json
 import shutil
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -13,7 +14,7 @@ from typing import Any
 
 from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
-from monitor.services import records, setup, summary
+from monitor.services import estimate, records, setup, summary, trend
 
 
 @dataclass
@@ -22,11 +23,18 @@ class DemoRun:
 
     folder: Path
     database: Path
+    programme: str = ""
     steps: list[tuple[str, Any]] = field(default_factory=list)
 
 
 def run_demo(folder: Path, *, echo: Callable[[str], None] = lambda _m: None) -> DemoRun:
     """Build the demo programme in ``folder`` (which must be empty or absent) and run the main job."""
+    run = build_programme(folder, echo=echo)
+    return analyse(run, echo=echo)
+
+
+def build_programme(folder: Path, *, echo: Callable[[str], None] = lambda _m: None) -> DemoRun:
+    """The demo's database: created, set up from its files, and filled through the records importer."""
     folder = Path(folder)
     if folder.exists() and any(folder.iterdir()):
         raise InputError(InputProblem(str(folder), None, None, None, "an empty or new folder for the demo"))
@@ -48,4 +56,27 @@ def run_demo(folder: Path, *, echo: Callable[[str], None] = lambda _m: None) -> 
     imports = [records.import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
     run.steps.append(("imports", imports))
     run.steps.append(("summary", summary.programme_summary(db, code)))
+    run.programme = code
+    return run
+
+
+def analyse(run: DemoRun, *, echo: Callable[[str], None] = lambda _m: None) -> DemoRun:
+    """The analyses on a built demo: estimates, adequacy, gradient, trends (and what later stages add)."""
+    db, code, folder = str(run.database), run.programme, run.folder
+    source = folder / "programme_files"
+    truth = json.loads((source / "truth.json").read_text(encoding="utf-8"))
+    latest = int(run.steps[-1][1]["visits_by_year"]["year"].max())
+    figures = folder / "figures"
+    echo(f"4. this season's estimates ({latest}), sample adequacy and the stream-transect gradient")
+    run.steps.append(("estimates", estimate.season_table(db, latest, programme_code=code)))
+    run.steps.append(("adequacy", estimate.sample_adequacy(db, "MARVIO", latest, "SM", programme_code=code,
+                                                           figure=figures / "running_mean_MARVIO_SM.png")))
+    gradient_truth = truth["_gradient"]
+    run.steps.append(("gradient", (estimate.gradient(db, gradient_truth["species"], programme_code=code,
+                                                     transect=gradient_truth["transect"],
+                                                     figure=figures / "gradient_MARVIO_SM-T.png"),
+                                   gradient_truth)))
+    echo("5. fitting the trend of every target species across the years")
+    trends = trend.fit_programme(db, programme_code=code)
+    run.steps.append(("trends", [(t, truth.get(t.species)) for t in trends]))
     return run
