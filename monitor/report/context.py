@@ -169,6 +169,10 @@ class SummaryRow:
     period_change: Interval
     annual_text: str
     period_text: str
+    annual_estimate_text: str
+    annual_ci_text: str
+    period_estimate_text: str
+    period_ci_text: str
     first_year: int
     last_year: int
     n_stations: int
@@ -736,6 +740,12 @@ def build_report_context(
             annual_change=annual, period_change=period,
             annual_text=annual_text,
             period_text=change_with_interval(period.estimate, period.lower, period.upper),
+            annual_estimate_text=f"{signed_percent(annual.estimate)} a year",
+            annual_ci_text=(f"95% CI {signed_percent(annual.lower).rstrip('%')} to "
+                            f"{signed_percent(annual.upper).rstrip('%')}"),
+            period_estimate_text=signed_percent(period.estimate, 0),
+            period_ci_text=(f"95% CI {signed_percent(period.lower, 0).rstrip('%')} to "
+                            f"{signed_percent(period.upper, 0).rstrip('%')}"),
             first_year=first, last_year=last, n_stations=n_stations, n_years=n_years,
             n_obs=int(_attr(result, "n_obs", 0)), family=family, margin=margin,
             trigger_state=trigger_state, trigger_text=trigger_text,

@@ -168,7 +168,10 @@ def plot_indices(
     ax.set_ylabel(ylabel)
     if title:
         ax.set_title(title, loc="left")
-    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(0, -0.2), ncol=3, frameon=False)
+    if ax is fig.axes[0] and len(fig.axes) == 1:
+        fig.legend(handles=handles, loc="outside lower center", ncol=3, frameon=False, fontsize=8)
+    else:
+        ax.legend(handles=handles, loc="best", frameon=False, fontsize=7)
     return fig
 
 
@@ -228,7 +231,7 @@ def plot_station_map(
         hollow grey circles for stations without their own trend, and a colour bar in percent a year.
     """
     if ax is None:
-        fig, ax = new_figure(5.0, 3.9)
+        fig, ax = new_figure(4.4, 3.9)
     else:
         fig = ax.figure
     ax.set_aspect("equal", adjustable="datalim")
@@ -282,8 +285,8 @@ def plot_station_map(
     bar.set_label("Station's own change (% a year)", fontsize=8)
     bar.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v * 100:+.0f}" if v else "0"))
     bar.ax.tick_params(labelsize=7)
-    ax.legend(handles=legend, loc="upper left", bbox_to_anchor=(0, -0.06), ncol=3, frameon=False,
-              fontsize=7, handletextpad=0.2, columnspacing=0.8)
+    fig.legend(handles=legend, loc="outside lower center", ncol=3, frameon=False,
+               fontsize=7.5, handletextpad=0.2, columnspacing=0.8)
     ax.tick_params(labelsize=7)
     ax.set_xlabel("Easting (m)", fontsize=8)
     ax.set_ylabel("Northing (m)", fontsize=8)
@@ -317,7 +320,7 @@ def plot_gradient(
         Points have gid ``"gradient_points"``; bin means gid ``"gradient_means"``.
     """
     if ax is None:
-        fig, ax = new_figure(6.4, 2.6)
+        fig, ax = new_figure(4.4, 3.3)
     else:
         fig = ax.figure
     _apply_rc(ax)

@@ -197,7 +197,7 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
         if fired:
             years_to = 0.0
             status = (
-                f"Fired: at the current rate of {percent(rate)} a year down, the decline over the last "
+                f"Fired: at the current fall of {percent(rate)} a year, the decline over the last "
                 f"{window} years is about {percent(decline)}, more than the {percent(trigger.threshold)} allowed."
             )
         elif rate < 0:
@@ -205,7 +205,7 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
             if t_star <= n:
                 years_to = max(0.0, t_star - window)
                 status = (
-                    f"Not fired; approaching: at the current rate of {percent(rate)} a year down the decline "
+                    f"Not fired but approaching: at the current fall of {percent(rate)} a year the decline "
                     f"would pass {percent(trigger.threshold)} in about {years_to:.0f} more "
                     f"year{'s' if round(years_to) != 1 else ''}."
                 )
@@ -239,7 +239,7 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
                 break
         if years_to is not None:
             status = (
-                f"Not fired; approaching: if the estimate holds, about {years_to:.0f} more "
+                f"Not fired but approaching: if the estimate holds, about {years_to:.0f} more "
                 f"year{'s' if years_to != 1 else ''} of data would bring the upper bound "
                 f"({_signed(upper)} a year now) below {_signed(trigger.threshold)}."
             )
@@ -248,12 +248,14 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
     else:
         status = (
             f"Not fired: the estimate ({_signed(rate)} a year) is not below the threshold "
-            f"of {_signed(trigger.threshold)}."
+            f"({_signed(trigger.threshold)} a year)."
         )
     return TriggerOutcome(trigger, fired, True, upper, None, years_to, None, status)
 
 
 def _signed(fraction: float) -> str:
+    if fraction == 0:
+        return "0%"
     return ("−" if fraction < 0 else "+") + percent(fraction)
 
 
