@@ -362,6 +362,11 @@ def caveat_sentences(
                 f"The recording method changed in {change.year}{detail}; part of the apparent change "
                 "may come from the change of method."
             )
+    if family == "logit-normal":
+        out.append(
+            "For cover the rates are changes in the odds of cover, cover / (100 − cover); when cover is "
+            "low they are close to changes in cover itself."
+        )
     if not converged:
         out.append("The model fit did not fully converge, so treat these numbers as provisional.")
         covered.add("not_converged")
