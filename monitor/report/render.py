@@ -92,7 +92,10 @@ def draw_figures(context: ReportContext, *, dpi: int = 130, svg: bool = True,
     out = []
     for done, (section, ref) in enumerate(refs, start=1):
         fig = draw_figure(section, ref, context)
-        out.append(DrawnFigure(ref, figure_png(fig, dpi), figure_svg(fig) if svg else None))
+        png = figure_png(fig, dpi)
+        # the layout is settled by the first save; keep it rather than solving it again for the SVG
+        fig.set_layout_engine("none")
+        out.append(DrawnFigure(ref, png, figure_svg(fig) if svg else None))
         del fig
         if progress is not None:
             progress(done, len(refs))

@@ -24,3 +24,12 @@ def full_context(full_inputs):
 def hostile_context():
     """Species, names and sites carrying markup that must come out as text."""
     return build_report_context(**demo_inputs(np.random.default_rng(7), n_species=2, hostile=True))
+
+
+@pytest.fixture(scope="session")
+def rendered(tmp_path_factory, full_context):
+    """The full report written once: (folder, context)."""
+    from monitor.report import render_report
+
+    out = tmp_path_factory.mktemp("reports") / "report-2025"
+    return render_report(full_context, out, dpi=60), full_context
