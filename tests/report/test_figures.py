@@ -12,8 +12,8 @@ import pytest
 from lxml import etree
 from matplotlib import colormaps
 from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
 from matplotlib.colors import to_hex
+from matplotlib.figure import Figure
 from PIL import Image
 from report_testdata import fit_trend, simulate_programme, station_changes
 
