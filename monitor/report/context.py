@@ -703,7 +703,7 @@ def build_report_context(
             design = ""
             if ns is not None and ny is not None:
                 design = f" with {ns} stations over {ny} years"
-            text = (f"A fall of {percent(float(row['detectable_change']))} a year would be detected "
+            text = (f"A fall of {float(row['detectable_change']) * 100:.1f}% a year would be detected "
                     f"{pw * 100:.0f} times in 100{design}.")
             power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms),
                                             float(row["detectable_change"]), pw, ns, ny, text)
@@ -712,6 +712,7 @@ def build_report_context(
     sections: list[SpeciesSection] = []
     margins = set()
     families = set()
+    random_effects: set[str] = set()
     for i, ((sp, ms), result) in enumerate(trend_results.items()):
         name = names.get(sp, sp)
         annual = Interval.from_any(_attr(result, "annual_change"))
@@ -756,6 +757,7 @@ def build_report_context(
                                call, margin)
         paragraph = trend_sentence(name, ms, numbers)
         random_sd = dict(_attr(result, "random_sd", {}) or {})
+        random_effects.update(random_sd)
         diagnostics = tuple(
             (str(getattr(d, "code", "")), str(getattr(d, "message", "")), str(getattr(d, "severity", "warning")))
             for d in (_attr(result, "diagnostics", ()) or ())
@@ -912,7 +914,7 @@ def build_report_context(
         headline.append(f"{len(approaching)} trigger{'s are' if len(approaching) != 1 else ' is'} being approached "
                         "at the current rate.")
 
-    methods = _methods(families, margins, software)
+    methods = _methods(families, margins, software, random_effects)
     cautions = _cautions(programme, stations, margins)
     return ReportContext(
         title=f"{programme.name}: monitoring report {season}",
@@ -930,13 +932,18 @@ def _margin_text(margins: set[float]) -> str:
     return "between " + " and ".join(f"±{percent(m)}" for m in (min(margins), max(margins))) + " a year"
 
 
-def _methods(families: set[str], margins: set[float], software: Mapping[str, str] | None) -> Methods:
+def _methods(families: set[str], margins: set[float], software: Mapping[str, str] | None,
+             random_effects: set[str]) -> Methods:
     family_list = "; ".join(FAMILY_WORDS.get(f, f) for f in sorted(families) if f)
+    grouping = ("a random intercept for each station nested in its site" if "site" in random_effects
+                else "a random intercept for each station")
+    if "observer" in random_effects:
+        grouping += ", and one for each observer"
     margin_text = _margin_text(margins)
     first = (
         "Each species and measure was analysed with a generalised linear mixed model fitted by maximum "
-        "likelihood (Laplace approximation; Breslow & Clayton 1993), with a random intercept for each "
-        "station nested in its site, so that the trend is the typical change within stations rather than "
+        f"likelihood (Laplace approximation; Breslow & Clayton 1993), with {grouping}, "
+        "so that the trend is the typical change within stations rather than "
         f"a change in which stations were visited. Models used: {family_list}. Year as a continuous "
         "covariate gives the annual change, exp(slope) − 1, with its 95% interval; year as a factor gives "
         "the yearly indices relative to the first year. The change over the period is the annual change "

@@ -77,6 +77,11 @@ def test_accepts_any_object_with_the_trend_api_attributes():
     assert "fell by about 3% a year since 2018" in section.paragraph
     assert any("more than chance alone" in c for c in section.caveats)  # negbin size 1.5 < 2
     json.dumps(context.to_dict(), allow_nan=False)
+    # the methods text names the random effects the fit actually had
+    assert "random intercept for each station," in context.methods.paragraphs[0]
+    with_site = SimpleNamespace(**dict(vars(result), random_sd={"station": 0.4, "site": 0.2}))
+    context = build_report_context({"name": "P"}, 2025, {("X1", "count"): with_site})
+    assert "station nested in its site" in context.methods.paragraphs[0]
 
 
 def test_missing_columns_and_empty_results_are_input_errors(full_inputs):
