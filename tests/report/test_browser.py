@@ -83,8 +83,3 @@ def test_print_gives_one_page_per_species(full_inputs, tmp_path):
     assert four - two == 2
     assert two == 2 + 2   # front page (summary), one page per species, one closing page (methods, cautions)
 
-
-def test_page_counter_counts_pages_not_page_trees():
-    # ISO 32000-1 7.7.3: /Type /Pages is the page tree node, /Type /Page a page.
-    fake = b"<< /Type /Pages /Kids [1 0 R 2 0 R] >> << /Type /Page >> << /Type/Page /Parent 3 0 R >>"
-    assert pdf_page_count(fake) == 2

@@ -6,6 +6,7 @@ import json
 import re
 
 import pytest
+from browser import pdf_page_count
 from lxml import html as lxml_html
 from report_testdata import HOSTILE_IMG, HOSTILE_SCRIPT
 
@@ -88,3 +89,9 @@ def test_rerender_replaces_folder_and_failure_keeps_the_old_one(tmp_path, full_i
         render_report(small, out, dpi=40, svg=False)
     assert (out / "index.html").read_bytes() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["report"]  # no partial folder left
+
+
+def test_page_counter_counts_pages_not_page_trees():
+    # ISO 32000-1 7.7.3: /Type /Pages is the page tree node, /Type /Page a page.
+    fake = b"<< /Type /Pages /Kids [1 0 R 2 0 R] >> << /Type /Page >> << /Type/Page /Parent 3 0 R >>"
+    assert pdf_page_count(fake) == 2
