@@ -1,0 +1,997 @@
+"""The report's content as documented dataclasses, and the builder that makes it.
+
+``build_report_context`` turns what the service layer gathered (trend results,
+this season's estimates, coverage, triggers, events, ...) into a
+``ReportContext``: every number already formatted, every sentence already
+written, every figure described.  Templates only lay it out; ``to_dict`` gives
+the numbers as JSON (schema ``monitor.report/1``) for the next year's
+comparison and for anyone who wants the figures without the page.
+
+Nothing here fits a model or touches a database: trend results come in
+already fitted (``monitor.trend.TrendResult`` or any object with the same
+attributes, see TREND_API), station changes come in already computed.
+"""
+
+from __future__ import annotations
+
+import math
+import platform
+import re
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from importlib import metadata
+
+import pandas as pd
+
+from monitor import columns as C
+from monitor.errors import InputError
+from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
+from monitor.report.figures import EventMark
+from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
+from monitor.report.wording import (
+    CALL_LABEL,
+    CALL_MARKER,
+    MEASURE_LABEL,
+    MethodChange,
+    TrendNumbers,
+    caveat_sentences,
+    change_with_interval,
+    percent,
+    rate_with_interval,
+    signed_percent,
+    trend_sentence,
+)
+
+PROBABILITY_PLACEMENTS = (C.PLACEMENT_RANDOM, C.PLACEMENT_STRATIFIED, C.PLACEMENT_BALANCED,
+                          C.PLACEMENT_SYSTEMATIC)
+
+FAMILY_WORDS = {
+    "poisson": "Poisson counts (log link)",
+    "poisson-lognormal": "Poisson counts with an observation-level random effect for extra variation (log link)",
+    "negbin": "negative binomial counts (log link)",
+    "binomial": "binomial k-of-n (logit link)",
+    "logit-normal": "a linear mixed model on the logit of percent cover",
+}
+
+REFERENCES = (
+    "Bates, D., Mächler, M., Bolker, B. and Walker, S. (2015). Fitting linear mixed-effects models "
+    "using lme4. Journal of Statistical Software 67(1), 1–48.",
+    "Breslow, N. E. and Clayton, D. G. (1993). Approximate inference in generalized linear mixed "
+    "models. Journal of the American Statistical Association 88(421), 9–25.",
+    "Dixon, P. M. and Pechmann, J. H. K. (2005). A statistical test to show negligible trend. "
+    "Ecology 86(7), 1751–1756.",
+    "Harrison, X. A. (2014). Using observation-level random effects to model overdispersion in count "
+    "data in ecology and evolution. PeerJ 2, e616.",
+    "Warton, D. I. and Hui, F. K. C. (2011). The arcsine is asinine: the analysis of proportions in "
+    "ecology. Ecology 92(1), 3–10.",
+    "Harrower, M. and Brewer, C. A. (2003). ColorBrewer.org: an online tool for selecting colour "
+    "schemes for maps. The Cartographic Journal 40(1), 27–37.",
+)
+
+SOFTWARE = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "Jinja2", "shapely")
+
+
+# --------------------------------------------------------------------------- small value types
+@dataclass(frozen=True)
+class Interval:
+    """An estimate with its 95 % interval (fractions unless stated)."""
+
+    estimate: float
+    lower: float
+    upper: float
+
+    @classmethod
+    def from_any(cls, obj) -> Interval | None:
+        """From an object with estimate/lower/upper, a mapping with those keys, or a 3-tuple."""
+        if obj is None:
+            return None
+        if isinstance(obj, Interval):
+            return obj
+        if isinstance(obj, Mapping):
+            return cls(float(obj["estimate"]), float(obj["lower"]), float(obj["upper"]))
+        if isinstance(obj, tuple | list):
+            return cls(float(obj[0]), float(obj[1]), float(obj[2]))
+        return cls(float(obj.estimate), float(obj.lower), float(obj.upper))
+
+    def to_dict(self) -> dict:
+        return {"estimate": _num(self.estimate), "lower": _num(self.lower), "upper": _num(self.upper)}
+
+
+def _num(value) -> float | None:
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+@dataclass(frozen=True)
+class ProgrammeInfo:
+    """What the report says about the programme.
+
+    Attributes
+    ----------
+    name : str
+        Programme name (title of the report).
+    reserve : str
+        The place monitored.
+    description : str
+        One or two sentences for the front page.
+    placement : str
+        How stations were chosen (``monitor.columns.PLACEMENTS``); decides the
+        caution about what the trends describe.  Overridden per station by a
+        ``placement`` column in ``stations``.
+    crs : str
+        Projected CRS of station coordinates, e.g. "EPSG:32633".
+    prepared_by : str
+    margin : float | None
+        Margin of change that matters [fraction per year]; default: the results' own.
+    """
+
+    name: str
+    reserve: str = ""
+    description: str = ""
+    placement: str = C.PLACEMENT_RANDOM
+    crs: str = ""
+    prepared_by: str = ""
+    margin: float | None = None
+
+    @classmethod
+    def from_any(cls, obj) -> ProgrammeInfo:
+        if isinstance(obj, ProgrammeInfo):
+            return obj
+        if isinstance(obj, Mapping):
+            known = {k: obj[k] for k in cls.__dataclass_fields__ if k in obj}
+            if "name" not in known:
+                raise InputError("programme_meta needs a 'name'")
+            return cls(**known)
+        raise InputError("programme_meta must be a ProgrammeInfo or a mapping with at least 'name'")
+
+
+# --------------------------------------------------------------------------- report parts
+@dataclass(frozen=True)
+class SummaryRow:
+    """One line of the summary table: a species and measure.
+
+    ``annual_text`` and ``period_text`` are printed as they stand; ``marker`` is
+    a shape (▲ ▼ ● ?) that carries the call without colour.  ``trigger_state``
+    is "fired", "not fired" or "none" (no trigger set).
+    """
+
+    species: str
+    species_name: str
+    measure: str
+    measure_label: str
+    anchor: str
+    call: str
+    call_label: str
+    marker: str
+    annual_change: Interval
+    period_change: Interval
+    annual_text: str
+    period_text: str
+    annual_estimate_text: str
+    annual_ci_text: str
+    period_estimate_text: str
+    period_ci_text: str
+    first_year: int
+    last_year: int
+    n_stations: int
+    n_years: int
+    n_obs: int
+    family: str
+    margin: float
+    trigger_state: str
+    trigger_text: str
+
+    def to_dict(self) -> dict:
+        return {
+            "species": self.species,
+            "species_name": self.species_name,
+            "measure": self.measure,
+            "call": self.call,
+            "annual_change": self.annual_change.to_dict(),
+            "period_change": self.period_change.to_dict(),
+            "years": [self.first_year, self.last_year],
+            "n_stations": self.n_stations,
+            "n_years": self.n_years,
+            "n_obs": self.n_obs,
+            "family": self.family,
+            "margin": self.margin,
+            "trigger": self.trigger_state,
+        }
+
+
+@dataclass(frozen=True)
+class FigureRef:
+    """A figure of the report: what to draw (``kind``), its file stem and its words.
+
+    ``kind`` is "indices", "map" or "gradient"; ``alt`` is the text alternative
+    for the image, ``caption`` the visible caption.
+    """
+
+    key: str
+    kind: str
+    alt: str
+    caption: str
+
+
+@dataclass(frozen=True)
+class GradientData:
+    """Abundance against a gradient this season: frame with columns ``gradient`` and ``value``."""
+
+    frame: pd.DataFrame
+    gradient_label: str
+    value_label: str
+
+
+@dataclass(frozen=True)
+class PowerRow:
+    """Detectable change at 80 % power for one species and measure."""
+
+    species: str
+    species_name: str
+    measure_label: str
+    detectable_change: float   # magnitude of annual change detected with the stated power [fraction/yr]
+    power: float
+    n_stations: int | None
+    n_years: int | None
+    text: str
+
+    def to_dict(self) -> dict:
+        return {"species": self.species, "detectable_change": _num(self.detectable_change),
+                "power": self.power, "n_stations": self.n_stations, "n_years": self.n_years}
+
+
+@dataclass(frozen=True, eq=False)
+class SpeciesSection:
+    """Everything on one species-and-measure page.
+
+    Attributes
+    ----------
+    summary : SummaryRow
+    paragraph : str
+        The plain-language trend sentence(s).
+    caveats : tuple[str, ...]
+    call_reason : str
+        The trend engine's reason for the call.
+    model_text : str
+        Which model, on how many visits, stations, sites and years.
+    indices : DataFrame | None
+        year, index, lower, upper.
+    fitted_trend : DataFrame | None
+        year, fit, lower, upper.
+    marks : tuple[EventMark, ...]
+        Management events and method changes within the series.
+    stations : DataFrame | None
+        station, x, y (and site) for the map.
+    station_changes : DataFrame | None
+        station, annual_change.
+    gradient : GradientData | None
+    figures : tuple[FigureRef, ...]
+    triggers : tuple[TriggerOutcome, ...]
+    power : PowerRow | None
+    """
+
+    summary: SummaryRow
+    paragraph: str
+    caveats: tuple[str, ...]
+    call_reason: str
+    model_text: str
+    indices: pd.DataFrame | None
+    fitted_trend: pd.DataFrame | None
+    marks: tuple[EventMark, ...]
+    stations: pd.DataFrame | None
+    station_changes: pd.DataFrame | None
+    gradient: GradientData | None
+    figures: tuple[FigureRef, ...]
+    triggers: tuple[TriggerOutcome, ...]
+    power: PowerRow | None
+
+    def to_dict(self) -> dict:
+        def rows(frame):
+            if frame is None:
+                return None
+            return [{k: (_num(v) if k != C.YEAR else int(v)) for k, v in r.items()}
+                    for r in frame.to_dict("records")]
+
+        return {
+            "species": self.summary.species,
+            "measure": self.summary.measure,
+            "paragraph": self.paragraph,
+            "caveats": list(self.caveats),
+            "call_reason": self.call_reason,
+            "indices": rows(self.indices),
+            "fitted_trend": rows(self.fitted_trend),
+            "marks": [{"year": m.year, "label": m.label, "kind": m.kind} for m in self.marks],
+        }
+
+
+@dataclass(frozen=True)
+class EstimateRow:
+    """One line of this season's estimates table, formatted."""
+
+    species: str
+    species_name: str
+    measure_label: str
+    site: str
+    quantity: str
+    quantity_label: str
+    estimate: float
+    lower: float | None
+    upper: float | None
+    estimate_text: str
+    interval_text: str
+    n_stations: int | None
+
+    def to_dict(self) -> dict:
+        return {"species": self.species, "site": self.site, "quantity": self.quantity,
+                "estimate": _num(self.estimate), "lower": _num(self.lower), "upper": _num(self.upper),
+                "n_stations": self.n_stations}
+
+
+@dataclass(frozen=True)
+class CoverageRow:
+    """Stations due, visited, missed and inaccessible at one site this season."""
+
+    site: str
+    due: int
+    visited: int
+    missed: int
+    inaccessible: int
+    visited_text: str   # "45 of 48 (94%)"
+
+
+@dataclass(frozen=True)
+class SeasonsRow:
+    """How many seasons of data a species and measure has."""
+
+    species: str
+    species_name: str
+    measure_label: str
+    n_years: int
+    first_year: int
+    last_year: int
+
+
+@dataclass(frozen=True)
+class QualityFlag:
+    """An open quality flag on a record."""
+
+    station: str
+    year: str
+    species: str
+    message: str
+
+
+@dataclass(frozen=True)
+class Coverage:
+    """Data coverage this season: visits by site (with a total row), seasons per species, open flags."""
+
+    sites: tuple[CoverageRow, ...]
+    total: CoverageRow | None
+    seasons: tuple[SeasonsRow, ...]
+    flags: tuple[QualityFlag, ...]
+
+
+@dataclass(frozen=True)
+class Methods:
+    """Methods section: two paragraphs, the margin, references and software versions."""
+
+    paragraphs: tuple[str, ...]
+    margin_text: str
+    references: tuple[str, ...]
+    software: tuple[tuple[str, str], ...]
+
+
+@dataclass(frozen=True, eq=False)
+class ReportContext:
+    """The whole content of an annual report, in reading order.
+
+    Attributes
+    ----------
+    title : str
+    programme : ProgrammeInfo
+    season : int
+    generated : str
+        Date the report was made (given by the caller, so output is reproducible).
+    headline : tuple[str, ...]
+        What needs attention, in a few short sentences.
+    summary : tuple[SummaryRow, ...]
+        One row per species and measure.
+    triggers : tuple[TriggerOutcome, ...]
+        Fired first, with their agreed responses.
+    comparison : tuple[CallChange, ...] | None
+        Against last year's report, when given.
+    comparison_note : str
+    species : tuple[SpeciesSection, ...]
+    estimates : tuple[EstimateRow, ...]
+    coverage : Coverage | None
+    power : tuple[PowerRow, ...]
+    methods : Methods
+    cautions : tuple[str, ...]
+    sites : Mapping[str, object]
+        Site outlines for the maps (not printed as text).
+    names : Mapping[str, str]
+        Species code -> display name.
+    """
+
+    title: str
+    programme: ProgrammeInfo
+    season: int
+    generated: str
+    headline: tuple[str, ...]
+    summary: tuple[SummaryRow, ...]
+    triggers: tuple[TriggerOutcome, ...]
+    comparison: tuple[CallChange, ...] | None
+    comparison_note: str
+    species: tuple[SpeciesSection, ...]
+    estimates: tuple[EstimateRow, ...]
+    coverage: Coverage | None
+    power: tuple[PowerRow, ...]
+    methods: Methods
+    cautions: tuple[str, ...]
+    sites: Mapping[str, object] = field(default_factory=dict)
+    names: Mapping[str, str] = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        """The report's numbers as JSON-ready data (schema ``monitor.report/1``)."""
+        coverage = None
+        if self.coverage is not None:
+            coverage = {
+                "sites": [{"site": r.site, "due": r.due, "visited": r.visited, "missed": r.missed,
+                           "inaccessible": r.inaccessible} for r in self.coverage.sites],
+                "seasons": [{"species": r.species, "n_years": r.n_years, "years": [r.first_year, r.last_year]}
+                            for r in self.coverage.seasons],
+                "open_flags": len(self.coverage.flags),
+            }
+        return {
+            "schema": SCHEMA,
+            "programme": self.programme.name,
+            "season": self.season,
+            "generated": self.generated,
+            "summary": [r.to_dict() for r in self.summary],
+            "triggers": [t.to_dict() for t in self.triggers],
+            "species": [s.to_dict() for s in self.species],
+            "estimates": [e.to_dict() for e in self.estimates],
+            "coverage": coverage,
+            "power": [p.to_dict() for p in self.power],
+            "comparison": None if self.comparison is None else [c.to_dict() for c in self.comparison],
+            "software": dict(self.methods.software),
+        }
+
+
+# --------------------------------------------------------------------------- helpers
+def _attr(result, name, default=None):
+    value = getattr(result, name, default)
+    return default if value is None else value
+
+
+def _frame(obj, what: str) -> pd.DataFrame | None:
+    if obj is None:
+        return None
+    if isinstance(obj, pd.DataFrame):
+        return obj.copy()
+    try:
+        return pd.DataFrame(list(obj))
+    except Exception as exc:  # pragma: no cover - defensive
+        raise InputError(f"{what} must be a table (DataFrame or list of records)") from exc
+
+
+def _require(frame: pd.DataFrame, columns: Iterable[str], what: str) -> None:
+    missing = [c for c in columns if c not in frame.columns]
+    if missing:
+        raise InputError(f"{what} needs column(s) {', '.join(missing)}")
+
+
+def slug(text: str) -> str:
+    """A file-name-safe slug of any text: lower-case letters, digits and single hyphens."""
+    out = re.sub(r"[^a-z0-9]+", "-", str(text).lower()).strip("-")
+    return out[:40] or "x"
+
+
+def _sig(value: float, digits: int = 3) -> str:
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if value == 0:
+        return "0"
+    magnitude = int(math.floor(math.log10(abs(value))))
+    decimals = digits - 1 - magnitude
+    rounded = round(value, decimals)  # negative decimals round to tens, hundreds, ...
+    if decimals <= 0:
+        return f"{rounded:,.0f}"
+    return f"{rounded:,.{decimals}f}"
+
+
+QUANTITY_LABEL = {
+    "density": ("Density", "per m²"),
+    "total": ("Estimated total", ""),
+    "cover": ("Mean cover", "%"),
+    "frequency": ("Frequency", "of cells"),
+    "presence": ("Stations occupied", "share"),
+}
+
+
+def _format_quantity(quantity: str, value: float) -> str:
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if quantity == "cover":
+        return f"{value:.1f}%"
+    if quantity in ("frequency", "presence"):
+        return f"{value * 100:.1f}%"
+    if quantity == "density":
+        return f"{_sig(value)} per m²"
+    return _sig(value)
+
+
+def software_versions(extra: Mapping[str, str] | None = None) -> tuple[tuple[str, str], ...]:
+    """Versions of Python, monitor and the scientific libraries, as (name, version) pairs."""
+    from monitor import __version__
+
+    pairs = [("Python", platform.python_version()), ("monitor", __version__)]
+    for name in SOFTWARE:
+        try:
+            pairs.append((name, metadata.version(name)))
+        except metadata.PackageNotFoundError:
+            continue
+    if extra:
+        pairs.extend((str(k), str(v)) for k, v in extra.items())
+    return tuple(pairs)
+
+
+def _marks_for(species: str, events: pd.DataFrame | None, changes: Sequence[MethodChange],
+               change_species: Sequence[str | None], first: int, last: int) -> tuple[EventMark, ...]:
+    marks: list[EventMark] = []
+    if events is not None and len(events):
+        for row in events.to_dict("records"):
+            sp = row.get(C.SPECIES)
+            if sp is not None and not (isinstance(sp, float) and math.isnan(sp)) and str(sp) != species:
+                continue
+            year = int(row[C.YEAR])
+            if first <= year <= last:
+                marks.append(EventMark(year, str(row.get("kind", "event")), "event"))
+    for change, sp in zip(changes, change_species, strict=True):
+        if sp is not None and sp != species:
+            continue
+        if first < change.year <= last:
+            marks.append(EventMark(change.year, change.kind, "method"))
+    return tuple(marks)
+
+
+def _method_changes(frame: pd.DataFrame | None) -> tuple[list[MethodChange], list[str | None]]:
+    if frame is None or not len(frame):
+        return [], []
+    _require(frame, [C.YEAR], "method_changes")
+    changes, species = [], []
+    for row in frame.to_dict("records"):
+        changes.append(MethodChange(int(row[C.YEAR]), str(row.get("kind", "protocol")),
+                                    str(row.get("description", "") or "")))
+        sp = row.get(C.SPECIES)
+        species.append(None if sp is None or (isinstance(sp, float) and math.isnan(sp)) else str(sp))
+    return changes, species
+
+
+def _figure_alt_indices(name: str, measure_label: str, first: int, last: int, annual_text: str,
+                        marks: Sequence[EventMark]) -> str:
+    text = (f"Yearly index of {name} ({measure_label}) from {first} to {last}, relative to {first}, with "
+            f"95% intervals and the fitted trend line, {annual_text}.")
+    events = sorted({f"{m.label} {m.year}" for m in marks if m.kind == "event"})
+    methods = sorted({str(m.year) for m in marks if m.kind == "method"})
+    if events:
+        text += " Management events marked: " + ", ".join(events) + "."
+    if methods:
+        text += " Method changed in " + ", ".join(methods) + "."
+    return text
+
+
+# --------------------------------------------------------------------------- the builder
+def build_report_context(
+    programme_meta: ProgrammeInfo | Mapping,
+    season: int,
+    trend_results: Mapping[tuple[str, str], object],
+    estimates: pd.DataFrame | Sequence[Mapping] | None = None,
+    coverage: pd.DataFrame | Sequence[Mapping] | None = None,
+    quality_flags: pd.DataFrame | Sequence[Mapping] | None = None,
+    triggers: Sequence[Trigger] = (),
+    events: pd.DataFrame | Sequence[Mapping] | None = None,
+    previous: Mapping | None = None,
+    power: pd.DataFrame | Sequence[Mapping] | None = None,
+    *,
+    stations: pd.DataFrame | None = None,
+    sites: Mapping[str, object] | None = None,
+    station_changes: Mapping[tuple[str, str], pd.DataFrame] | None = None,
+    gradients: Mapping[tuple[str, str], GradientData] | None = None,
+    method_changes: pd.DataFrame | Sequence[Mapping] | None = None,
+    species_names: Mapping[str, str] | None = None,
+    corrections: Mapping[str, int] | None = None,
+    generated: str = "",
+    software: Mapping[str, str] | None = None,
+) -> ReportContext:
+    """Build the whole content of an annual report from results already computed.
+
+    Parameters
+    ----------
+    programme_meta : ProgrammeInfo or mapping
+        At least ``name``; see ``ProgrammeInfo``.
+    season : int
+        The season (year) reported.
+    trend_results : mapping (species, measure) -> TrendResult-like
+        Fitted trends, in the order the report shows them.  Each needs the
+        TREND_API attributes ``measure, family, n_obs, n_stations, n_sites,
+        years, n_years, annual_change, period_change, random_sd, dispersion,
+        indices, fitted_trend, diagnostics, call, call_reason, margin,
+        converged`` (and ``slope``, ``slope_se`` for upper-bound triggers).
+    estimates : table, optional
+        This season's estimates, one row per species, measure, site and
+        quantity: columns ``species``, ``measure``, ``site`` ("all" for the
+        reserve), ``quantity`` ("density" [per m²], "total" [individuals],
+        "cover" [%], "frequency" [share of cells], "presence" [share]),
+        ``estimate``, ``lower``, ``upper`` (95 %), optional ``n_stations``.
+    coverage : table, optional
+        This season's visits by site: ``site``, ``due``, ``visited``,
+        ``missed``, ``inaccessible`` (stations).
+    quality_flags : table, optional
+        Open quality flags: ``message`` and optional ``station``, ``year``,
+        ``species``, ``status`` (rows whose status is not "open" are dropped).
+    triggers : sequence of Trigger
+        Management triggers set in advance; evaluated here.
+    events : table, optional
+        Management events: ``year``, ``kind`` (grazing, cutting, burning, ...),
+        optional ``species`` (only that species' plots), ``site``, ``description``.
+    previous : mapping, optional
+        Last year's ``report.json``; adds the comparison of calls.
+    power : table, optional
+        ``species``, ``measure``, ``detectable_change`` (smallest annual fall
+        detected [fraction per year]), optional ``power`` (default 0.8),
+        ``n_stations``, ``n_years``.
+    stations : DataFrame, optional
+        ``station``, ``x``, ``y`` [m], optional ``site``, ``placement``; enables maps.
+    sites : mapping site -> polygon, optional
+        Outlines for the maps (shapely or GeoJSON-like, projected metres).
+    station_changes : mapping (species, measure) -> DataFrame, optional
+        Each station's own annual change (``monitor.trend.station_changes``).
+    gradients : mapping (species, measure) -> GradientData, optional
+    method_changes : table, optional
+        ``year``, ``kind`` ("protocol" or "observer"), ``description``,
+        optional ``species``; marked on index plots and in caveats.
+    species_names : mapping code -> display name, optional
+    corrections : mapping species -> int, optional
+        Corrected records since the previous report (for the comparison).
+    generated : str
+        Date to print as "made on" (the caller's clock, for reproducible output).
+    software : mapping, optional
+        Extra software versions to list (e.g. R packages used as test references).
+
+    Returns
+    -------
+    ReportContext
+
+    Raises
+    ------
+    monitor.errors.InputError
+        A table lacks a required column, or there is no trend result.
+    """
+    programme = ProgrammeInfo.from_any(programme_meta)
+    if not trend_results:
+        raise InputError("no trend results to report")
+    names = dict(species_names or {})
+    estimates_df = _frame(estimates, "estimates")
+    coverage_df = _frame(coverage, "coverage")
+    flags_df = _frame(quality_flags, "quality_flags")
+    events_df = _frame(events, "events")
+    power_df = _frame(power, "power")
+    changes, change_species = _method_changes(_frame(method_changes, "method_changes"))
+    if events_df is not None and len(events_df):
+        _require(events_df, [C.YEAR], "events")
+    station_changes = station_changes or {}
+    gradients = gradients or {}
+
+    outcomes = evaluate_triggers(triggers, trend_results)
+    by_key: dict[tuple[str, str], list[TriggerOutcome]] = {}
+    for outcome in outcomes:
+        by_key.setdefault((outcome.trigger.species, outcome.trigger.measure), []).append(outcome)
+
+    power_rows: dict[tuple[str, str], PowerRow] = {}
+    if power_df is not None and len(power_df):
+        _require(power_df, [C.SPECIES, C.MEASURE, "detectable_change"], "power")
+        for row in power_df.to_dict("records"):
+            sp, ms = str(row[C.SPECIES]), str(row[C.MEASURE])
+            pw = float(row.get("power", 0.8) or 0.8)
+            ns = row.get("n_stations")
+            ny = row.get("n_years")
+            ns = None if ns is None or (isinstance(ns, float) and math.isnan(ns)) else int(ns)
+            ny = None if ny is None or (isinstance(ny, float) and math.isnan(ny)) else int(ny)
+            design = ""
+            if ns is not None and ny is not None:
+                design = f" with {ns} stations over {ny} years"
+            text = (f"A fall of {float(row['detectable_change']) * 100:.1f}% a year would be detected "
+                    f"{pw * 100:.0f} times in 100{design}.")
+            power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms),
+                                            float(row["detectable_change"]), pw, ns, ny, text)
+
+    summary: list[SummaryRow] = []
+    sections: list[SpeciesSection] = []
+    margins = set()
+    families = set()
+    random_effects: set[str] = set()
+    for i, ((sp, ms), result) in enumerate(trend_results.items()):
+        name = names.get(sp, sp)
+        annual = Interval.from_any(_attr(result, "annual_change"))
+        period = Interval.from_any(_attr(result, "period_change"))
+        first, last = (int(y) for y in _attr(result, "years"))
+        call = str(_attr(result, "call", C.CALL_UNCLEAR))
+        margin = float(programme.margin if programme.margin is not None else _attr(result, "margin", 0.01))
+        margins.add(margin)
+        family = str(_attr(result, "family", ""))
+        families.add(family)
+        n_stations = int(_attr(result, "n_stations", 0))
+        n_years = int(_attr(result, "n_years", last - first + 1))
+        measure_label = MEASURE_LABEL.get(ms, ms)
+        outs = by_key.get((sp, ms), [])
+        if not outs:
+            trigger_state, trigger_text = "none", "none set"
+        elif any(o.fired for o in outs):
+            trigger_state, trigger_text = "fired", "\u26a0 Fired"
+        else:
+            trigger_state, trigger_text = "not fired", "Not fired"
+        anchor = f"sp-{i + 1}"
+        annual_text = rate_with_interval(annual.estimate, annual.lower, annual.upper)
+        row = SummaryRow(
+            species=sp, species_name=name, measure=ms, measure_label=measure_label, anchor=anchor,
+            call=call, call_label=CALL_LABEL.get(call, call), marker=CALL_MARKER.get(call, "?"),
+            annual_change=annual, period_change=period,
+            annual_text=annual_text,
+            period_text=change_with_interval(period.estimate, period.lower, period.upper),
+            annual_estimate_text=f"{signed_percent(annual.estimate)} a year",
+            annual_ci_text=(f"95% CI {signed_percent(annual.lower).rstrip('%')} to "
+                            f"{signed_percent(annual.upper).rstrip('%')}"),
+            period_estimate_text=signed_percent(period.estimate, 0),
+            period_ci_text=(f"95% CI {signed_percent(period.lower, 0).rstrip('%')} to "
+                            f"{signed_percent(period.upper, 0).rstrip('%')}"),
+            first_year=first, last_year=last, n_stations=n_stations, n_years=n_years,
+            n_obs=int(_attr(result, "n_obs", 0)), family=family, margin=margin,
+            trigger_state=trigger_state, trigger_text=trigger_text,
+        )
+        summary.append(row)
+
+        numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last,
+                               call, margin)
+        paragraph = trend_sentence(name, ms, numbers)
+        random_sd = dict(_attr(result, "random_sd", {}) or {})
+        random_effects.update(random_sd)
+        diagnostics = tuple(
+            (str(getattr(d, "code", "")), str(getattr(d, "message", "")), str(getattr(d, "severity", "warning")))
+            for d in (_attr(result, "diagnostics", ()) or ())
+        )
+        sp_changes = [(c, s) for c, s in zip(changes, change_species, strict=True) if s is None or s == sp]
+        caveats = caveat_sentences(
+            n_stations, n_years, first, last,
+            observation_sd=random_sd.get("observation"),
+            family=family, dispersion=_attr(result, "dispersion"),
+            method_changes=[c for c, _ in sp_changes], diagnostics=diagnostics,
+            converged=bool(_attr(result, "converged", True)),
+        )
+        marks = _marks_for(sp, events_df, changes, change_species, first, last)
+        indices = _attr(result, "indices")
+        fitted = _attr(result, "fitted_trend")
+        stem = f"{i + 1:02d}-{slug(sp)}-{slug(ms)}"
+        figures = []
+        if indices is not None and len(indices):
+            figures.append(FigureRef(
+                key=f"{stem}-indices", kind="indices",
+                alt=_figure_alt_indices(name, measure_label, first, last, annual_text, marks),
+                caption=(f"Yearly index (points, 95% intervals) and fitted trend (line, 95% band), "
+                         f"relative to {first}."),
+            ))
+        changes_df = station_changes.get((sp, ms))
+        station_frame = None
+        if stations is not None and len(stations):
+            _require(stations, [C.STATION, C.X, C.Y], "stations")
+            station_frame = stations
+            if changes_df is not None and len(changes_df):
+                _require(changes_df, [C.STATION, "annual_change"], "station_changes")
+                values = pd.to_numeric(changes_df["annual_change"], errors="coerce")
+                n_fall = int((values < 0).sum())
+                n_rise = int((values >= 0).sum())
+                n_none = int(len(stations) - n_fall - n_rise)
+            else:
+                n_fall = n_rise = 0
+                n_none = len(stations)
+            figures.append(FigureRef(
+                key=f"{stem}-map", kind="map",
+                alt=(f"Map of {len(stations)} stations"
+                     + (f" in {len(sites)} sites" if sites else "")
+                     + f" coloured by each station's own annual change in {name}: {n_fall} falling "
+                       f"(down triangles), {n_rise} rising (up triangles), {n_none} with too few years "
+                       "(open circles)."),
+                caption="Stations coloured by their own change (orange falling, purple rising).",
+            ))
+        gradient = gradients.get((sp, ms))
+        if gradient is not None:
+            _require(gradient.frame, ["gradient", "value"], "gradient")
+            g = gradient.frame[["gradient", "value"]].dropna()
+            figures.append(FigureRef(
+                key=f"{stem}-gradient", kind="gradient",
+                alt=(f"{gradient.value_label} of {name} against {gradient.gradient_label} in {season} at "
+                     f"{len(g)} stations, from {_sig(g['gradient'].min())} to {_sig(g['gradient'].max())}."),
+                caption=f"{season}: {gradient.value_label.lower()} against {gradient.gradient_label.lower()}.",
+            ))
+        n_sites = int(_attr(result, "n_sites", 0) or 0)
+        model_text = (
+            f"Model: {FAMILY_WORDS.get(family, family)}; {row.n_obs:,} values from {n_stations} stations"
+            + (f" in {n_sites} sites" if n_sites else "")
+            + f", {n_years} seasons {first}–{last}."
+        )
+        sections.append(SpeciesSection(
+            summary=row, paragraph=paragraph, caveats=tuple(caveats),
+            call_reason=str(_attr(result, "call_reason", "")), model_text=model_text,
+            indices=None if indices is None else pd.DataFrame(indices)[[C.YEAR, "index", "lower", "upper"]],
+            fitted_trend=None if fitted is None else pd.DataFrame(fitted)[[C.YEAR, "fit", "lower", "upper"]],
+            marks=marks, stations=station_frame, station_changes=changes_df, gradient=gradient,
+            figures=tuple(figures), triggers=tuple(by_key.get((sp, ms), ())),
+            power=power_rows.get((sp, ms)),
+        ))
+
+    # this season's estimates
+    estimate_rows: list[EstimateRow] = []
+    if estimates_df is not None and len(estimates_df):
+        _require(estimates_df, [C.SPECIES, C.MEASURE, C.SITE, "quantity", "estimate"], "estimates")
+        for row in estimates_df.to_dict("records"):
+            q = str(row["quantity"])
+            label, _unit = QUANTITY_LABEL.get(q, (q, ""))
+            lo, hi = row.get("lower"), row.get("upper")
+            lo = None if lo is None or pd.isna(lo) else float(lo)
+            hi = None if hi is None or pd.isna(hi) else float(hi)
+            ns = row.get("n_stations")
+            estimate_rows.append(EstimateRow(
+                species=str(row[C.SPECIES]), species_name=names.get(str(row[C.SPECIES]), str(row[C.SPECIES])),
+                measure_label=MEASURE_LABEL.get(str(row[C.MEASURE]), str(row[C.MEASURE])),
+                site=str(row[C.SITE]), quantity=q, quantity_label=label,
+                estimate=float(row["estimate"]), lower=lo, upper=hi,
+                estimate_text=_format_quantity(q, float(row["estimate"])),
+                interval_text=("—" if lo is None or hi is None
+                               else f"{_format_quantity(q, lo)} to {_format_quantity(q, hi)}"),
+                n_stations=None if ns is None or pd.isna(ns) else int(ns),
+            ))
+
+    # coverage
+    coverage_obj = None
+    if coverage_df is not None or flags_df is not None:
+        site_rows: list[CoverageRow] = []
+        total = None
+        if coverage_df is not None and len(coverage_df):
+            _require(coverage_df, [C.SITE, "due", "visited", "missed", "inaccessible"], "coverage")
+
+            def cov_row(site, due, visited, missed, inaccessible):
+                share = f" ({visited / due * 100:.0f}%)" if due else ""
+                return CoverageRow(str(site), int(due), int(visited), int(missed), int(inaccessible),
+                                   f"{int(visited)} of {int(due)}{share}")
+
+            for r in coverage_df.to_dict("records"):
+                site_rows.append(cov_row(r[C.SITE], r["due"], r["visited"], r["missed"], r["inaccessible"]))
+            total = cov_row("All sites", *(int(coverage_df[c].sum())
+                                           for c in ("due", "visited", "missed", "inaccessible")))
+        seasons = tuple(SeasonsRow(r.species, r.species_name, r.measure_label, r.n_years, r.first_year,
+                                   r.last_year) for r in summary)
+        flags: list[QualityFlag] = []
+        if flags_df is not None and len(flags_df):
+            _require(flags_df, ["message"], "quality_flags")
+            for r in flags_df.to_dict("records"):
+                if "status" in r and str(r["status"]).lower() != "open":
+                    continue
+
+                def text(v):
+                    return "" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v)
+
+                flags.append(QualityFlag(text(r.get(C.STATION)), text(r.get(C.YEAR)), text(r.get(C.SPECIES)),
+                                         text(r["message"])))
+        coverage_obj = Coverage(tuple(site_rows), total, seasons, tuple(flags))
+
+    # comparison with last year
+    comparison = None
+    comparison_note = ""
+    if previous is not None:
+        comparison = tuple(compare_with_previous([r.to_dict() for r in summary], previous,
+                                                 corrections=corrections, names=names))
+        n_changed = sum(c.changed for c in comparison)
+        prev_season = previous.get("season", "last year")
+        comparison_note = (f"Compared with the report for {prev_season}: "
+                           f"{n_changed} call{'s' if n_changed != 1 else ''} changed.")
+
+    # headline
+    headline: list[str] = []
+    fired = [o for o in outcomes if o.fired]
+    if fired:
+        headline.append(f"{len(fired)} management trigger{'s have' if len(fired) != 1 else ' has'} fired: "
+                        + "; ".join(f"{names.get(o.trigger.species, o.trigger.species)} "
+                                    f"({MEASURE_LABEL.get(o.trigger.measure, o.trigger.measure)})"
+                                    for o in fired) + ". Agreed responses are listed below.")
+    counts = {c: sum(r.call == c for r in summary) for c in (C.CALL_DECLINING, C.CALL_RISING, C.CALL_STABLE,
+                                                              C.CALL_UNCLEAR)}
+    parts = [f"{n} {CALL_LABEL[c].lower()}" for c, n in counts.items() if n]
+    headline.append(f"Of {len(summary)} species and measures: " + ", ".join(parts) + ".")
+    approaching = [o for o in outcomes if not o.fired and o.years_to_threshold is not None]
+    if approaching:
+        headline.append(f"{len(approaching)} trigger{'s are' if len(approaching) != 1 else ' is'} being approached "
+                        "at the current rate.")
+
+    methods = _methods(families, margins, software, random_effects)
+    cautions = _cautions(programme, stations, margins)
+    return ReportContext(
+        title=f"{programme.name}: monitoring report {season}",
+        programme=programme, season=int(season), generated=generated, headline=tuple(headline),
+        summary=tuple(summary), triggers=tuple(outcomes), comparison=comparison,
+        comparison_note=comparison_note, species=tuple(sections), estimates=tuple(estimate_rows),
+        coverage=coverage_obj, power=tuple(power_rows.values()), methods=methods, cautions=cautions,
+        sites=dict(sites or {}), names=names,
+    )
+
+
+def _margin_text(margins: set[float]) -> str:
+    if len(margins) == 1:
+        return f"±{percent(next(iter(margins)))} a year"
+    return "between " + " and ".join(f"±{percent(m)}" for m in (min(margins), max(margins))) + " a year"
+
+
+def _methods(families: set[str], margins: set[float], software: Mapping[str, str] | None,
+             random_effects: set[str]) -> Methods:
+    family_list = "; ".join(FAMILY_WORDS.get(f, f) for f in sorted(families) if f)
+    grouping = ("a random intercept for each station nested in its site" if "site" in random_effects
+                else "a random intercept for each station")
+    if "observer" in random_effects:
+        grouping += ", and one for each observer"
+    margin_text = _margin_text(margins)
+    first = (
+        "Each species and measure was analysed with a generalised linear mixed model fitted by maximum "
+        f"likelihood (Laplace approximation; Breslow & Clayton 1993), with {grouping}, "
+        "so that the trend is the typical change within stations rather than "
+        f"a change in which stations were visited. Models used: {family_list}. Year as a continuous "
+        "covariate gives the annual change, exp(slope) − 1, with its 95% interval; year as a factor gives "
+        "the yearly indices relative to the first year. The change over the period is the annual change "
+        "compounded over the years between the first and last season."
+    )
+    second = (
+        "The models assume that change is steady on the log (or logit) scale over the period, that stations "
+        "differ only through their random effects, and that the method of recording stayed the same (changes "
+        "are marked on the plots). Missed and inaccessible visits are treated as missing, never as zero. Each "
+        "call compares the 95% interval of the annual change with zero and with a margin of "
+        f"{margin_text}, the smallest change this programme treats as mattering: declining or rising "
+        "when the interval lies clearly on one side, stable when it lies within the margin, unclear "
+        "otherwise, including whenever fewer than 10 stations or 5 seasons are available (after Dixon & "
+        "Pechmann 2005)."
+    )
+    return Methods((first, second), margin_text, REFERENCES, software_versions(software))
+
+
+def _cautions(programme: ProgrammeInfo, stations: pd.DataFrame | None, margins: set[float]) -> tuple[str, ...]:
+    placements = []
+    if stations is not None and "placement" in stations.columns:
+        placements = [str(p) for p in stations["placement"].dropna()]
+    if not placements:
+        placements = [programme.placement]
+    non_prob = [p for p in placements if p not in PROBABILITY_PLACEMENTS]
+    if non_prob:
+        design = (f"Trends describe the monitored stations only: {len(non_prob)} of {len(placements)} "
+                  f"station{'s were' if len(placements) != 1 else ' was'} not placed at random "
+                  f"({', '.join(sorted(set(non_prob)))}), so they do not speak for the whole reserve.")
+        if len(placements) == 1:
+            design = ("Trends describe the monitored stations only: the stations were not placed at random "
+                      f"({non_prob[0]}), so they do not speak for the whole reserve.")
+    else:
+        design = ("Stations were placed by a random (probability) design, so the trends speak for the "
+                  "sampled area, within the intervals shown; they do not speak for places outside it.")
+    return (
+        design,
+        "Management decisions rest with the land manager and local rules; this report informs them and does "
+        "not make them.",
+        f"A stable call means any change is smaller than the margin ({_margin_text(margins)}), not that "
+        "there is none; an unclear call means the data cannot tell yet, not that nothing is happening.",
+        "Indices are relative to the first season of each series; they are not population sizes.",
+        "Missed and inaccessible visits are treated as missing, never as absences.",
+    )
+
+
+__all__ = [
+    "Coverage", "CoverageRow", "EstimateRow", "FigureRef", "GradientData", "Interval", "Methods", "PowerRow",
+    "ProgrammeInfo", "QualityFlag", "ReportContext", "SeasonsRow", "SpeciesSection", "SummaryRow",
+    "build_report_context", "signed_percent", "slug", "software_versions", "CallChange",
+]

@@ -1,0 +1,178 @@
+"""Render a ``ReportContext`` into a folder: index.html, figures (PNG, SVG) and report.json.
+
+The HTML page is self-contained: styles inline, figures embedded as base64
+``data:`` URIs, and a Content-Security-Policy that forbids every load except
+``data:`` images, so the file can be e-mailed and opened offline and makes no
+network request.  Templates live in ``templates/report/`` (Jinja2, autoescape,
+StrictUndefined): a base page plus one partial per section.
+
+The folder is written into a temporary sibling and moved into place at the end,
+so a reader never sees a half-written report.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+
+import jinja2
+
+from monitor.errors import MonitorError
+from monitor.report.context import FigureRef, ReportContext, SpeciesSection
+from monitor.report.figures import (
+    data_uri,
+    figure_png,
+    figure_svg,
+    plot_gradient,
+    plot_indices,
+    plot_station_map,
+)
+from monitor.report.wording import MEASURE_LABEL
+
+INDEX = "index.html"
+NUMBERS = "report.json"
+FIGURES = "figures"
+CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'"
+
+
+def template_dir() -> Path:
+    """The templates folder: bundled in an installed wheel, or ``templates/`` of a checkout."""
+    package = Path(__file__).resolve().parent.parent
+    for candidate in (package / "_bundled" / "templates", package.parent / "templates"):
+        if (candidate / "report" / "index.html").is_file():
+            return candidate
+    raise MonitorError("report templates not found (expected templates/report/index.html)")
+
+
+def environment(directory: Path | None = None) -> jinja2.Environment:
+    """Jinja2 environment for report pages: autoescape on, undefined names are errors."""
+    return jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(directory or template_dir())),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+
+
+@dataclass(frozen=True)
+class DrawnFigure:
+    """A drawn figure: its reference, PNG bytes and SVG bytes (None when SVG is not wanted)."""
+
+    ref: FigureRef
+    png: bytes
+    svg: bytes | None
+
+
+def draw_figure(section: SpeciesSection, ref: FigureRef, context: ReportContext):
+    """Draw one figure of a species section and return the matplotlib Figure."""
+    s = section.summary
+    if ref.kind == "indices":
+        label = MEASURE_LABEL.get(s.measure, s.measure)
+        return plot_indices(section.indices, section.fitted_trend, marks=section.marks,
+                            ylabel=f"Index of {label} ({s.first_year} = 1)")
+    if ref.kind == "map":
+        return plot_station_map(section.stations, section.station_changes, context.sites)
+    if ref.kind == "gradient":
+        g = section.gradient
+        return plot_gradient(g.frame, gradient_label=g.gradient_label, value_label=g.value_label)
+    raise ValueError(f"unknown figure kind {ref.kind!r}")
+
+
+def draw_figures(context: ReportContext, *, dpi: int = 130, svg: bool = True,
+                 progress: Callable[[int, int], None] | None = None) -> list[DrawnFigure]:
+    """Draw every figure in the context (PNG, and SVG unless ``svg=False``)."""
+    refs = [(section, ref) for section in context.species for ref in section.figures]
+    out = []
+    for done, (section, ref) in enumerate(refs, start=1):
+        fig = draw_figure(section, ref, context)
+        png = figure_png(fig, dpi)
+        # the layout is settled by the first save; keep it rather than solving it again for the SVG
+        fig.set_layout_engine("none")
+        out.append(DrawnFigure(ref, png, figure_svg(fig) if svg else None))
+        del fig
+        if progress is not None:
+            progress(done, len(refs))
+    return out
+
+
+def render_html(context: ReportContext, images: dict[str, str], directory: Path | None = None) -> str:
+    """The report page as a string; ``images`` maps figure keys to data URIs."""
+    env = environment(directory)
+    return env.get_template("report/index.html").render(report=context, images=images, csp=CSP)
+
+
+def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: int = 130, svg: bool = True,
+                  templates: Path | None = None,
+                  progress: Callable[[int, int], None] | None = None) -> Path:
+    """Write the report folder and return its path.
+
+    Parameters
+    ----------
+    context : ReportContext
+        From ``build_report_context``.
+    out_dir : path
+        The folder to write; replaced as a whole if it exists.
+    dpi : int
+        Resolution of the PNG figures (embedded and written).
+    svg : bool
+        Also write each figure as SVG.
+    templates : Path, optional
+        A templates folder holding ``report/``; default: the project's.
+    progress : callable(done, total), optional
+        Called after each figure.
+
+    Returns
+    -------
+    Path
+        ``out_dir``, holding ``index.html``, ``report.json`` and ``figures/``
+        (``<key>.png`` and ``<key>.svg``).
+    """
+    out_dir = Path(out_dir).resolve()
+    out_dir.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.", suffix=".partial", dir=out_dir.parent))
+    try:
+        figures_dir = tmp / FIGURES
+        figures_dir.mkdir()
+        images: dict[str, str] = {}
+        for drawn in draw_figures(context, dpi=dpi, svg=svg, progress=progress):
+            (figures_dir / f"{drawn.ref.key}.png").write_bytes(drawn.png)
+            if drawn.svg is not None:
+                (figures_dir / f"{drawn.ref.key}.svg").write_bytes(drawn.svg)
+            images[drawn.ref.key] = data_uri(drawn.png)
+        html = render_html(context, images, templates)
+        (tmp / INDEX).write_text(html, encoding="utf-8")
+        numbers = json.dumps(context.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
+        (tmp / NUMBERS).write_text(numbers + "\n", encoding="utf-8")
+        os.chmod(tmp, 0o755)
+        _swap_into_place(tmp, out_dir)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return out_dir
+
+
+def _swap_into_place(tmp: Path, target: Path) -> None:
+    """Move ``tmp`` to ``target``; an existing ``target`` is moved aside first, then removed.
+
+    Each step is one ``rename`` on the same file system, so ``target`` is always either the
+    old complete report or the new one (absent only between the two renames).
+    """
+    if not target.exists():
+        os.replace(tmp, target)
+        return
+    old = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".old", dir=target.parent))
+    os.rmdir(old)
+    os.replace(target, old)
+    try:
+        os.replace(tmp, target)
+    except BaseException:
+        os.replace(old, target)
+        raise
+    shutil.rmtree(old, ignore_errors=True)

@@ -1,0 +1,377 @@
+"""Plain-language wording generated from trend numbers.
+
+Every sentence a land manager reads in the report is produced here, from the
+numbers alone, by pure functions: the same numbers always give the same words,
+and a change in the fit (direction, interval, period) changes the words.
+
+Conventions
+-----------
+Rates arrive as fractions per year (``-0.04`` is a fall of 4 % a year), as the
+trend engine reports them: ``annual_change = exp(slope) - 1`` and
+``period_change = exp(slope * (last - first)) - 1``.  People read percent.
+In prose, rates are rounded to whole percent (one decimal below 1 %); in
+tables, to one decimal with the interval, e.g. ``-4.1 % a year (95 % CI -6.8
+to -1.3)``.
+
+Changes over a period are also put in everyday fractions ("a fall of about a
+third") when one is close (within 3 percentage points), else in percent.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+
+from monitor import columns as C
+
+MINUS = "\u2212"  # typographic minus for tables
+
+# Words for each measure, used as the subject of a sentence ("Numbers of X fell ...").
+MEASURE_SUBJECT = {
+    C.MEASURE_COUNT: "Numbers of {name}",
+    C.MEASURE_COVER: "Cover of {name}",
+    C.MEASURE_FREQUENCY: "Frequency of {name} (share of grid cells occupied)",
+    C.MEASURE_PIN_HITS: "Pin-frame hits on {name}",
+    C.MEASURE_PRESENCE: "The share of stations holding {name}",
+}
+
+MEASURE_LABEL = {
+    C.MEASURE_COUNT: "count",
+    C.MEASURE_COVER: "cover",
+    C.MEASURE_FREQUENCY: "frequency",
+    C.MEASURE_PIN_HITS: "pin hits",
+    C.MEASURE_PRESENCE: "presence",
+}
+
+CALL_LABEL = {
+    C.CALL_RISING: "Rising",
+    C.CALL_DECLINING: "Declining",
+    C.CALL_STABLE: "Stable",
+    C.CALL_UNCLEAR: "Unclear",
+}
+
+# Markers that carry the call without colour (shape and a word sit together in the table).
+CALL_MARKER = {
+    C.CALL_RISING: "\u25b2",     # ▲
+    C.CALL_DECLINING: "\u25bc",  # ▼
+    C.CALL_STABLE: "\u25cf",     # ●
+    C.CALL_UNCLEAR: "?",
+}
+
+# Below these the trend engine calls a series "unclear" (TREND_API classify_call); the report says why.
+FEW_STATIONS = 10
+SHORT_SERIES = 5
+# An observation-level SD above this on the log scale (a typical visit-to-visit factor of
+# exp(0.5) ~ 1.65 beyond Poisson noise) is worth telling a reader about.  Project convention.
+OVERDISPERSION_SD = 0.5
+
+_FRACTIONS: tuple[tuple[float, str], ...] = (
+    (1 / 10, "a tenth"),
+    (1 / 5, "a fifth"),
+    (1 / 4, "a quarter"),
+    (1 / 3, "a third"),
+    (2 / 5, "two fifths"),
+    (1 / 2, "half"),
+    (3 / 5, "three fifths"),
+    (2 / 3, "two thirds"),
+    (3 / 4, "three quarters"),
+    (4 / 5, "four fifths"),
+    (9 / 10, "nine tenths"),
+)
+_FRACTION_TOLERANCE = 0.03
+
+
+def measure_subject(measure: str, name: str) -> str:
+    """Sentence subject for a measure, e.g. ``"Numbers of Carex exempla"``."""
+    template = MEASURE_SUBJECT.get(measure, "{name} (" + str(measure) + ")")
+    return template.format(name=name)
+
+
+def percent(fraction: float) -> str:
+    """Magnitude of a rate in prose: ``0.041 -> "4%"``, ``0.004 -> "0.4%"``.
+
+    Whole percent from 1 % up, one decimal below, "less than 0.1%" when it rounds to zero.
+    The sign is dropped: the sentence carries the direction.
+    """
+    value = abs(fraction) * 100.0
+    if not math.isfinite(value):
+        return "an unknown amount"
+    if value >= 0.95:
+        return f"{value:.0f}%"
+    if value >= 0.05:
+        return f"{value:.1f}%"
+    return "less than 0.1%"
+
+
+def signed_percent(fraction: float, decimals: int = 1) -> str:
+    """Signed percent for tables with a typographic minus: ``-0.041 -> "−4.1%"``."""
+    if fraction is None or not math.isfinite(fraction):
+        return "n/a"
+    value = fraction * 100.0
+    text = f"{abs(value):.{decimals}f}"
+    if float(text) == 0.0:
+        return f"{text}%"
+    return f"{MINUS if value < 0 else '+'}{text}%"
+
+
+def rate_with_interval(estimate: float, lower: float, upper: float) -> str:
+    """Table form of an annual rate: ``"−4.1% a year (95% CI −6.8 to −1.3)"``."""
+    lo = signed_percent(lower).rstrip("%")
+    hi = signed_percent(upper).rstrip("%")
+    return f"{signed_percent(estimate)} a year (95% CI {lo} to {hi})"
+
+
+def change_with_interval(estimate: float, lower: float, upper: float) -> str:
+    """Table form of a change over a period: ``"−34% (95% CI −52 to −10)"``."""
+    lo = signed_percent(lower, 0).rstrip("%")
+    hi = signed_percent(upper, 0).rstrip("%")
+    return f"{signed_percent(estimate, 0)} (95% CI {lo} to {hi})"
+
+
+def share_words(share: float) -> str:
+    """An everyday word for a share between 0 and 1 where one is close, else percent.
+
+    ``0.335 -> "a third"``, ``0.47 -> "47%"``, ``0.05 -> "5%"``.
+    """
+    share = abs(share)
+    if share < 0.08:
+        return percent(share)
+    if share > 0.95:
+        return "almost all"
+    best_value, best_word = min(_FRACTIONS, key=lambda item: abs(item[0] - share))
+    if abs(best_value - share) <= _FRACTION_TOLERANCE:
+        return best_word
+    return f"{share * 100:.0f}%"
+
+
+def period_phrase(change: float, first_year: int) -> str:
+    """Noun phrase for a change over a period (fraction, ``-0.335`` = a fall of a third).
+
+    Examples: ``"a fall of about a third"``, ``"a rise of about half"``,
+    ``"roughly a doubling"``, ``"a rise to about 5.2 times the 2015 level"``.
+    """
+    if not math.isfinite(change):
+        return "a change that cannot be estimated"
+    if change < 0:
+        return f"a fall of about {share_words(change)}"
+    multiple = 1 + change
+    for target, word in ((2, "doubling"), (3, "tripling"), (4, "quadrupling")):
+        if abs(multiple - target) <= 0.15:
+            return f"roughly a {word}"
+    if change < 1:
+        if change < 0.005:
+            return "almost no change"
+        return f"a rise of about {share_words(change)}"
+    return f"a rise to about {multiple:.1f} times the {first_year} level"
+
+
+def interval_phrase(lower: float, upper: float, per_year: bool = True) -> str:
+    """The 95 % interval in words.
+
+    Both below zero: ``"1% to 7% a year"`` (magnitudes, smaller first, read as falls);
+    both above: ``"1% to 7% a year"``; spanning zero: ``"a fall of 8% to a rise of 4% a year"``.
+    """
+    unit = " a year" if per_year else ""
+    if upper < 0:
+        return f"{percent(upper)} to {percent(lower)}{unit}"
+    if lower > 0:
+        return f"{percent(lower)} to {percent(upper)}{unit}"
+    return f"a fall of {percent(lower)} to a rise of {percent(upper)}{unit}"
+
+
+def directed_interval_phrase(lower: float, upper: float) -> str:
+    """The 95 % interval of an annual rate with its direction always stated.
+
+    ``"a fall of 1% to 7% a year"``, ``"a rise of 1% to 7% a year"``,
+    ``"a fall of 8% to a rise of 4% a year"``.
+    """
+    if upper < 0:
+        return f"a fall of {percent(upper)} to {percent(lower)} a year"
+    if lower > 0:
+        return f"a rise of {percent(lower)} to {percent(upper)} a year"
+    return f"a fall of {percent(lower)} to a rise of {percent(upper)} a year"
+
+
+def _point_phrase(estimate: float) -> str:
+    if estimate < 0:
+        return f"a fall of about {percent(estimate)} a year"
+    if estimate > 0:
+        return f"a rise of about {percent(estimate)} a year"
+    return "no change"
+
+
+@dataclass(frozen=True)
+class TrendNumbers:
+    """The numbers a trend sentence is made from (fractions; years as calendar years)."""
+
+    annual_estimate: float
+    annual_lower: float
+    annual_upper: float
+    period_estimate: float
+    first_year: int
+    last_year: int
+    call: str
+    margin: float
+
+
+def trend_sentence(name: str, measure: str, numbers: TrendNumbers) -> str:
+    """One or two sentences saying which way a species is going and how sure we are.
+
+    Parameters
+    ----------
+    name : str
+        Species name as the reader knows it.
+    measure : str
+        One of ``monitor.columns.MEASURES``.
+    numbers : TrendNumbers
+        Annual change (fraction per year, with 95 % interval), the change over
+        the whole period (fraction), first and last year, the call
+        (rising/declining/stable/unclear) and the margin of change that matters
+        (fraction per year).
+
+    Returns
+    -------
+    str
+        E.g. "Numbers of X fell by about 4% a year since 2015 (95% CI 1% to 7% a
+        year); over the 10 years to 2025 that is a fall of about a third."
+
+    Notes
+    -----
+    The direction word follows the call made by the trend engine from the
+    interval against zero and against the margin (Dixon & Pechmann 2005); the
+    figures follow the numbers.  The period is ``last - first`` years, the span
+    over which ``period_change = exp(slope * (last - first)) - 1`` is computed.
+
+    References
+    ----------
+    Dixon, P. M. and Pechmann, J. H. K. (2005). A statistical test to show
+    negligible trend. Ecology 86(7), 1751-1756.
+    """
+    subject = measure_subject(measure, name)
+    n = numbers
+    span = n.last_year - n.first_year
+    years_word = "year" if span == 1 else "years"
+    over = f"over the {span} {years_word} to {n.last_year}"
+    ci = interval_phrase(n.annual_lower, n.annual_upper)
+    period = period_phrase(n.period_estimate, n.first_year)
+    if n.call == C.CALL_DECLINING and n.annual_estimate < 0:
+        return (
+            f"{subject} fell by about {percent(n.annual_estimate)} a year since {n.first_year} "
+            f"(95% CI {ci}); {over} that is {period}."
+        )
+    if n.call == C.CALL_RISING and n.annual_estimate > 0:
+        return (
+            f"{subject} rose by about {percent(n.annual_estimate)} a year since {n.first_year} "
+            f"(95% CI {ci}); {over} that is {period}."
+        )
+    if n.call == C.CALL_STABLE:
+        return (
+            f"{subject} changed little since {n.first_year}: the estimate is "
+            f"{_point_phrase(n.annual_estimate)} (95% CI "
+            f"{directed_interval_phrase(n.annual_lower, n.annual_upper)}), within the "
+            f"\u00b1{percent(n.margin)} a year that this programme treats as the smallest change that matters; "
+            f"{over} that is {period}."
+        )
+    return (
+        f"For {subject[0].lower() + subject[1:]} we cannot yet say which way the trend is going: since {n.first_year} "
+        f"the estimate is {_point_phrase(n.annual_estimate)}, but the 95% CI runs from "
+        f"{directed_interval_phrase(n.annual_lower, n.annual_upper)}; "
+        f"{over} the estimate is {period}."
+    )
+
+
+@dataclass(frozen=True)
+class MethodChange:
+    """A change of method inside a series: ``kind`` is "protocol" or "observer"."""
+
+    year: int
+    kind: str
+    description: str = ""
+
+
+def caveat_sentences(
+    n_stations: int,
+    n_years: int,
+    first_year: int,
+    last_year: int,
+    *,
+    observation_sd: float | None = None,
+    family: str | None = None,
+    dispersion: float | None = None,
+    method_changes: Iterable[MethodChange] = (),
+    diagnostics: Sequence[tuple[str, str, str]] = (),
+    converged: bool = True,
+) -> list[str]:
+    """Caveats that apply to one trend, each a plain sentence.
+
+    Parameters
+    ----------
+    n_stations, n_years : int
+        Stations and seasons behind the fit.
+    first_year, last_year : int
+        The series' span; method changes outside it are ignored.
+    observation_sd : float, optional
+        Observation-level random-effect SD [log scale]; above ``OVERDISPERSION_SD``
+        the reader is told that counts vary more than chance alone gives.
+    family, dispersion : optional
+        For a negative binomial fit, a size ``theta`` below 2 also counts as
+        strong overdispersion (variance more than ``mu + mu^2/2``).
+    method_changes : iterable of MethodChange
+        Protocol or observer changes logged with the records.
+    diagnostics : sequence of (code, message, severity)
+        The fit's diagnostics; warnings are passed through in their own words,
+        except the ones these caveats already cover.
+    converged : bool
+        False adds a sentence that the numbers are provisional.
+    """
+    out: list[str] = []
+    covered: set[str] = set()
+    if n_stations < FEW_STATIONS:
+        out.append(
+            f"The estimate rests on only {n_stations} station{'s' if n_stations != 1 else ''}, "
+            f"fewer than the {FEW_STATIONS} needed to call a trend with confidence."
+        )
+        covered.update({"few_stations"})
+    if n_years < SHORT_SERIES:
+        out.append(
+            f"With only {n_years} season{'s' if n_years != 1 else ''} of data the trend is still uncertain "
+            "and may change as years are added."
+        )
+        covered.update({"few_years", "short_series"})
+    overdispersed = (observation_sd is not None and observation_sd > OVERDISPERSION_SD) or (
+        family == "negbin" and dispersion is not None and dispersion < 2
+    )
+    if overdispersed:
+        out.append(
+            "Values vary from visit to visit much more than chance alone would give; the model allows "
+            "for this, which widens the interval."
+        )
+        covered.add("overdispersion")
+    for change in sorted(method_changes, key=lambda c: c.year):
+        if not (first_year < change.year <= last_year):
+            continue
+        detail = f" ({change.description})" if change.description else ""
+        if change.kind == "observer":
+            out.append(
+                f"The observers changed in {change.year}{detail}; part of the apparent change may come "
+                "from differences between observers."
+            )
+        else:
+            out.append(
+                f"The recording method changed in {change.year}{detail}; part of the apparent change "
+                "may come from the change of method."
+            )
+    if family == "logit-normal":
+        out.append(
+            "For cover the rates are changes in the odds of cover, cover / (100 − cover); when cover is "
+            "low they are close to changes in cover itself."
+        )
+    if not converged:
+        out.append("The model fit did not fully converge, so treat these numbers as provisional.")
+        covered.add("not_converged")
+    for code, message, severity in diagnostics:
+        if severity == "warning" and code not in covered and message:
+            out.append(message if message.endswith(".") else message + ".")
+            covered.add(code)
+    return out
