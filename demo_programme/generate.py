@@ -108,7 +108,19 @@ def main() -> None:
         "allow_lone_working": False,
         "change_margin": 0.02,
         "settings": {"minutes_per_quadrat": {"count": 6, "cover": 4, "frequency": 8, "pin_hits": 6},
-                     "setup_minutes": 5, "covariate_units": {"soil_moisture": "%"}},
+                     "setup_minutes": 5, "covariate_units": {"soil_moisture": "%"},
+                     # management triggers agreed with the reserve manager before the data came in
+                     "triggers": [
+                         {"species": "CHAORC", "measure": "count", "kind": "decline", "threshold": 0.4, "years": 10,
+                          "objective": "Keep the chalk orchidlet population on Chalk Bank and Hilltop Heath",
+                          "response": "Review the autumn grazing on Chalk Bank with the grazier within the year"},
+                         {"species": "MARVIO", "measure": "count", "kind": "upper_bound_below", "threshold": 0.0,
+                          "objective": "Keep the marsh violetwort in Stream Meadow",
+                          "response": "Check the stream-side water levels and the sluice settings"},
+                         {"species": "HEABEL", "measure": "frequency", "kind": "decline", "threshold": 0.5,
+                          "years": 10, "objective": "Hold heath bellwort frequency on Hilltop Heath",
+                          "response": "Bring forward the heath mowing rotation review"},
+                     ]},
         "protocols": [
             {"code": "P1", "description": "2015 protocol: 10-pin frame, pins 10 cm apart", "effective_from": "2015-01-01"},
             {"code": "P2", "description": "2021 protocol: as P1, with frequency grid re-strung to 25 cells of 20 cm",

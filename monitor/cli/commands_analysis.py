@@ -191,3 +191,18 @@ def change_command(ctx: Context, species, first, second, site, figure, as_json, 
            "lower": r.welch_lower, "upper": r.welch_upper, "p": r.welch_p}], fmt)
     say(f"between-season correlation at the same quadrats r = {r.correlation:.2f}; pairing is {r.efficiency:.1f} times "
         "as efficient as unpaired sampling")
+
+
+@cli.command("report")
+@click.argument("year", type=int)
+@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path), default=None,
+              help="Folder to write (default reports/YEAR); replaced as a whole, atomically.")
+@click.option("--previous", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
+              help="Last year's report.json (default: reports/YEAR-1/report.json next to --out, if present).")
+@click.pass_obj
+def report_command(ctx: Context, year: int, out_dir, previous) -> None:
+    """Write the annual trend summary for land managers: one self-contained HTML page, figures and numbers."""
+    from monitor.services import report
+
+    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous)
+    say(f"report written: {folder / 'index.html'}")

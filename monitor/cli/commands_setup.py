@@ -138,5 +138,7 @@ def demo_command(folder: Path) -> None:
                                                            f"{100 * ac.upper:+.1f})",
                              "call": fitted.result.call})
             emit(rows)
+        if name == "report":
+            click.echo(f"\nThe annual report for land managers: {result / 'index.html'}")
     click.echo(f"\nFigures are in {run.folder / 'figures'}")
     click.echo(f"The demo database is {run.database}; try: monitor --db {run.database} summary")

@@ -14,7 +14,7 @@ from typing import Any
 
 from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
-from monitor.services import estimate, records, setup, summary, trend
+from monitor.services import estimate, records, report, setup, summary, trend
 
 
 @dataclass
@@ -79,4 +79,6 @@ def analyse(run: DemoRun, *, echo: Callable[[str], None] = lambda _m: None) -> D
     echo("5. fitting the trend of every target species across the years")
     trends = trend.fit_programme(db, programme_code=code)
     run.steps.append(("trends", [(t, truth.get(t.species)) for t in trends]))
+    echo(f"6. writing the annual report for {latest}")
+    run.steps.append(("report", report.write_report(db, latest, folder / "reports" / str(latest), programme_code=code)))
     return run

@@ -1,0 +1,223 @@
+"""The annual report: gather everything a land manager reads from the store, fit, and render.
+
+The report folder is written to a temporary sibling and moved into place at the end
+(``monitor.report.render_report``), so an interrupted run leaves the previous report as it was.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+from pathlib import Path
+
+import pandas as pd
+
+from monitor import __version__
+from monitor import columns as C
+from monitor.db import Store, queries
+from monitor.errors import DataError, InputError, InputProblem
+from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
+from monitor.services import estimate, trend
+from monitor.trend import station_changes
+
+REPORT_JSON = "report.json"
+
+
+def default_folder(year: int) -> Path:
+    return Path("reports") / str(year)
+
+
+def _settings(programme) -> dict:
+    try:
+        return json.loads(programme.settings_json or "{}")
+    except json.JSONDecodeError:
+        return {}
+
+
+def triggers_of(programme, file: str = "programme settings") -> list[Trigger]:
+    """Management triggers set in advance, from the programme's settings ("triggers": [...])."""
+    out = []
+    for i, item in enumerate(_settings(programme).get("triggers", []) or []):
+        try:
+            out.append(Trigger(species=item["species"], measure=item["measure"], objective=item["objective"],
+                               kind=item["kind"], threshold=float(item["threshold"]), response=item["response"],
+                               years=item.get("years")))
+        except (KeyError, TypeError, ValueError) as exc:
+            raise InputError(InputProblem(file, None, f"triggers[{i}]", item,
+                                          f"species, measure, objective, kind, threshold, response ({exc})")) from None
+    return out
+
+
+def _estimate_rows(table: pd.DataFrame) -> pd.DataFrame:
+    """The season table in the report's shape: one row per species, measure, site and quantity."""
+    quantity_of = {C.MEASURE_COVER: "cover", C.MEASURE_FREQUENCY: "frequency", C.MEASURE_PIN_HITS: "frequency",
+                   C.MEASURE_PRESENCE: "presence"}
+    rows = []
+    for r in table.to_dict(orient="records"):
+        base = {"species": r["species"], "measure": r["measure"], "site": r["site"], "n_stations": r["n"]}
+        if r["measure"] == C.MEASURE_COUNT:
+            rows.append({**base, "quantity": "density", "estimate": r["estimate"], "lower": r["lower"],
+                         "upper": r["upper"]})
+            if pd.notna(r.get("total")):
+                rows.append({**base, "quantity": "total", "estimate": r["total"], "lower": r["total_lower"],
+                             "upper": r["total_upper"]})
+        else:
+            scale = 1.0 if r["measure"] == C.MEASURE_COVER else 1.0
+            rows.append({**base, "quantity": quantity_of[r["measure"]], "estimate": r["estimate"] * scale,
+                         "lower": r["lower"] * scale, "upper": r["upper"] * scale})
+    return pd.DataFrame(rows)
+
+
+def _coverage(store: Store, programme_id: int, year: int) -> pd.DataFrame:
+    visits = queries.visit_outcomes(store, programme_id)
+    visits = visits[(visits[C.YEAR] == year) & (visits["repeat_no"] == 0)]
+    if visits.empty:
+        return pd.DataFrame(columns=["site", "due", "visited", "missed", "inaccessible"])
+    status = visits[C.VISIT_STATUS]
+    frame = pd.DataFrame({
+        "site": visits[C.SITE],
+        "due": 1,
+        "visited": status.isin(C.STATUSES_WITH_VALUES).astype(int),
+        "missed": (status == C.STATUS_MISSED).astype(int),
+        "inaccessible": (status == C.STATUS_INACCESSIBLE).astype(int),
+    })
+    return frame.groupby("site", as_index=False).sum()
+
+
+def _events(store: Store, programme_id: int) -> pd.DataFrame:
+    frame = store.frame(
+        """
+        SELECT e.start_date, e.kind, s.code AS site, t.code AS station, e.notes
+        FROM management_event e LEFT JOIN site s ON s.id = e.site_id LEFT JOIN station t ON t.id = e.station_id
+        WHERE e.programme_id = :p ORDER BY e.start_date
+        """,
+        p=programme_id,
+    )
+    if frame.empty:
+        return pd.DataFrame(columns=["year", "kind", "site", "description"])
+    frame["year"] = pd.to_datetime(frame["start_date"]).dt.year
+    # a yearly routine (grazing every autumn) is context, not an event to mark on every plot
+    counts = frame.groupby(["kind", "site"])["year"].transform("nunique")
+    frame = frame[counts < 3]
+    return pd.DataFrame({"year": frame["year"], "kind": frame["kind"], "site": frame["site"].fillna(""),
+                         "description": frame["notes"].fillna("")})
+
+
+def _method_changes(store: Store, programme_id: int, first: int, last: int) -> pd.DataFrame:
+    frame = store.frame("SELECT code, description, effective_from FROM protocol_version WHERE programme_id = :p "
+                        "ORDER BY effective_from", p=programme_id)
+    rows = []
+    for r in frame.to_dict(orient="records"):
+        year = pd.Timestamp(r["effective_from"]).year
+        if first < year <= last:
+            rows.append({"year": year, "kind": "protocol", "description": f"protocol {r['code']}: {r['description']}"})
+    return pd.DataFrame(rows, columns=["year", "kind", "description"])
+
+
+def _quality_flags(store: Store, programme_id: int) -> pd.DataFrame:
+    return store.frame(
+        """
+        SELECT f.detail AS message, t.code AS station, f.year, sp.code AS species, f.state AS status
+        FROM quality_flag f LEFT JOIN station t ON t.id = f.station_id LEFT JOIN species sp ON sp.id = f.species_id
+        WHERE f.programme_id = :p AND f.state = 'open'
+        """,
+        p=programme_id,
+    )
+
+
+def _corrections_since(store: Store, programme_id: int, since: str | None) -> dict[str, int]:
+    frame = store.frame(
+        """
+        SELECT sp.code AS species, c.changed_at FROM change_log c
+        JOIN observation o ON o.id = c.row_id AND c.table_name = 'observation'
+        JOIN species sp ON sp.id = o.species_id WHERE c.programme_id = :p
+        """,
+        p=programme_id,
+    )
+    if since:
+        stamp = pd.Timestamp(since)
+        changed = pd.to_datetime(frame["changed_at"], utc=True)
+        frame = frame[changed > (stamp.tz_localize("UTC") if stamp.tzinfo is None else stamp)]
+    return frame.groupby("species").size().astype(int).to_dict()
+
+
+def _sites_geometry(store: Store, programme_id: int) -> dict[str, dict]:
+    sites = queries.sites(store, programme_id)
+    return {r["site"]: json.loads(r["boundary_geojson"]) for r in sites.to_dict(orient="records")
+            if r["boundary_geojson"]}
+
+
+def write_report(db: str | None, year: int, out_dir: Path | None = None, *, programme_code: str | None = None,
+                 previous: Path | None = None, power: pd.DataFrame | None = None,
+                 progress=None) -> Path:
+    """Fit every target species up to ``year`` and write the report folder; returns its path."""
+    out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
+    if previous is None:
+        guess = out_dir.parent / str(year - 1) / REPORT_JSON
+        previous = guess if guess.is_file() else None
+    previous_doc = None
+    if previous is not None:
+        try:
+            previous_doc = json.loads(Path(previous).read_text(encoding="utf-8"))
+        except (OSError, json.JSONDecodeError) as exc:
+            raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
+
+    trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True)
+    if not trends:
+        raise DataError("no target species to report")
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        stations = queries.stations(store, programme.id)
+        placements = stations.loc[stations["state"] == "in_service", "placement"]
+        meta = ProgrammeInfo(
+            name=programme.name,
+            reserve=programme.organisation or programme.name,
+            description=programme.description,
+            placement=placements.mode().iloc[0] if len(placements) else C.PLACEMENT_RANDOM,
+            crs=f"EPSG:{programme.crs_epsg}",
+            prepared_by=programme.contact,
+            margin=programme.change_margin,
+        )
+        first = min(t.result.years[0] for t in trends)
+        gradients = {}
+        for t in trends:
+            if t.measure != C.MEASURE_COUNT or t.data is None:
+                continue
+            season = t.data[(t.data[C.YEAR] == year) & t.data[C.TRANSECT].notna()]
+            for transect, rows in season.groupby(C.TRANSECT):
+                if rows[C.DISTANCE].notna().sum() >= 3:
+                    gradients[(t.species, t.measure)] = GradientData(
+                        frame=pd.DataFrame({"gradient": rows[C.DISTANCE].to_numpy(), "value": rows[C.COUNT].to_numpy()}),
+                        gradient_label=f"distance along transect {transect} [m]", value_label="count per quadrat")
+                    break
+        try:
+            season_table = estimate.season_table(db, year, programme_code=programme.code)
+            estimates = _estimate_rows(season_table)
+        except DataError:
+            estimates = None
+        context = build_report_context(
+            meta,
+            year,
+            {(t.species, t.measure): t.result for t in trends},
+            estimates=estimates,
+            coverage=_coverage(store, programme.id, year),
+            quality_flags=_quality_flags(store, programme.id),
+            triggers=triggers_of(programme),
+            events=_events(store, programme.id),
+            previous=previous_doc,
+            power=power,
+            stations=stations[stations["state"] == "in_service"][[C.STATION, C.X, C.Y, C.SITE, "placement"]],
+            sites=_sites_geometry(store, programme.id),
+            station_changes={(t.species, t.measure): station_changes(t.data, t.measure)
+                             for t in trends if t.data is not None},
+            gradients=gradients,
+            method_changes=_method_changes(store, programme.id, first, year),
+            species_names={t.species: t.common_name for t in trends if t.common_name},
+            corrections=_corrections_since(store, programme.id, (previous_doc or {}).get("generated")),
+            generated=dt.date.today().isoformat(),
+            software={"monitor": __version__},
+        )
+    finally:
+        store.dispose()
+    return render_report(context, out_dir, progress=progress)
