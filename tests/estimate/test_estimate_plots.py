@@ -53,7 +53,8 @@ def test_figures_are_returned_without_pyplot_state(results, tmp_path):
 def test_gradient_figure_draws_one_curve_per_season(results):
     figure = plot_gradient(results[plot_gradient])
     labels = [t.get_text() for t in figure.axes[0].get_legend().get_texts()]
-    assert len(labels) == 2 and labels[0].startswith("2023: rho =")
+    assert len(labels) == 2 and labels[0].startswith("2023: rho ") and labels[1].startswith("2024: rho ")
+    assert len(figure.axes[0].get_lines()) == 2  # one fitted curve per season
 
 
 def test_figures_draw_into_a_given_axes(results):

@@ -1,0 +1,30 @@
+"""Backup and restore of a whole programme database (and so moving it between SQLite and PostgreSQL)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from monitor.db import Store, backup, migrate
+
+
+def backup_database(db: str | None, folder: Path) -> dict:
+    store = Store.open(db)
+    try:
+        return backup.dump(store, Path(folder))
+    finally:
+        store.dispose()
+
+
+def restore_database(db: str | None, folder: Path) -> tuple[dict[str, int], str]:
+    """Restore into an empty database: created at the backup's revision if it has no schema yet, then
+    upgraded to this monitor's schema after the load.  Returns rows per table and the final revision."""
+    manifest = backup.read_manifest(Path(folder))
+    store = Store.open(db, check=False)
+    try:
+        if migrate.current_revision(store.engine) is None:
+            migrate.upgrade(store.engine, manifest["schema_revision"])
+        loaded = backup.restore(store, Path(folder))
+        _before, after = migrate.upgrade(store.engine)
+        return loaded, after
+    finally:
+        store.dispose()
