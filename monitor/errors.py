@@ -68,6 +68,10 @@ class SchemaError(MonitorError):
     """The database is missing, behind the code's schema, or not a monitor database."""
 
 
+class AccessError(MonitorError):
+    """The database role in use may not do this (a reader writing, a recorder changing the schema)."""
+
+
 class LockedError(MonitorError):
     """The season is certified (locked); unlock it with a reason first."""
 

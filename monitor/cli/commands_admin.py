@@ -32,3 +32,29 @@ def restore_command(ctx: Context, folder: Path) -> None:
 
     loaded, revision = backup.restore_database(ctx.db, folder)
     say(f"restored {sum(loaded.values())} rows in {len(loaded)} tables; schema now at revision {revision}")
+
+
+@cli.group("access")
+def access_group() -> None:
+    """Roles for a shared PostgreSQL programme: reader, recorder, owner."""
+
+
+@access_group.command("setup")
+@click.pass_obj
+def access_setup(ctx: Context) -> None:
+    """Create the reader, recorder and owner group roles of this database and grant what each may do."""
+    from monitor.services import backup
+
+    for line in backup.setup_access(ctx.db):
+        say(line)
+
+
+@access_group.command("grant")
+@click.argument("login")
+@click.argument("group", type=click.Choice(["reader", "recorder", "owner"]))
+@click.pass_obj
+def access_grant(ctx: Context, login: str, group: str) -> None:
+    """Make the PostgreSQL login role LOGIN a reader, recorder or owner of this programme database."""
+    from monitor.services import backup
+
+    say(f"{login} is now a member of {backup.grant_access(ctx.db, login, group)}")

@@ -8,10 +8,10 @@ from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
 from sqlalchemy import inspect
 from sqlalchemy.engine import Engine
-from sqlalchemy.exc import DatabaseError, OperationalError
+from sqlalchemy.exc import DatabaseError, DBAPIError, OperationalError
 
 from monitor.config import migrations_dir
-from monitor.errors import SchemaError
+from monitor.errors import AccessError, SchemaError
 
 
 def alembic_config(engine: Engine) -> Config:
@@ -62,6 +62,10 @@ def upgrade(engine: Engine, revision: str = "head") -> tuple[str | None, str]:
         command.upgrade(alembic_config(engine), revision)
     except OperationalError as exc:
         raise SchemaError(f"cannot write the schema to {_where(engine)}: {_short(exc)}") from exc
+    except DBAPIError as exc:
+        if getattr(exc.orig, "sqlstate", None) == "42501":
+            raise AccessError(f"your database role may not change the schema (owner only): {_short(exc)}") from exc
+        raise
     return before, current_revision(engine) or ""
 
 

@@ -15,7 +15,7 @@ from sqlmodel import Session
 
 from monitor.db import migrate, models
 from monitor.db.engine import make_engine
-from monitor.errors import DataError, MonitorError, SchemaError
+from monitor.errors import AccessError, DataError, MonitorError, SchemaError
 
 
 @dataclass
@@ -59,15 +59,25 @@ class Store:
             except OperationalError as exc:
                 session.rollback()
                 raise MonitorError(f"database error, nothing was written: {_first_line(exc)}") from exc
+            except DBAPIError as exc:
+                session.rollback()
+                if _denied(exc):
+                    raise AccessError(f"your database role may not do this, nothing was written: {_first_line(exc)}") from exc
+                raise
             except BaseException:
                 session.rollback()
                 raise
 
     def frame(self, sql: str, **params: object) -> pd.DataFrame:
         """Run a read-only query and return a DataFrame."""
-        with self.engine.connect() as connection:
-            result = connection.execute(text(sql), params)
-            return pd.DataFrame(result.fetchall(), columns=list(result.keys()))
+        try:
+            with self.engine.connect() as connection:
+                result = connection.execute(text(sql), params)
+                return pd.DataFrame(result.fetchall(), columns=list(result.keys()))
+        except DBAPIError as exc:
+            if _denied(exc):
+                raise AccessError(f"your database role may not read this: {_first_line(exc)}") from exc
+            raise
 
     def programme(self, code: str | None = None) -> models.Programme:
         """The programme by code, or the only one in the database."""
@@ -86,6 +96,11 @@ class Store:
 
     def dispose(self) -> None:
         self.engine.dispose()
+
+
+def _denied(exc: DBAPIError) -> bool:
+    """PostgreSQL's insufficient_privilege (SQLSTATE 42501)."""
+    return getattr(exc.orig, "sqlstate", None) == "42501" or getattr(exc.orig, "pgcode", None) == "42501"
 
 
 def _first_line(exc: DBAPIError) -> str:

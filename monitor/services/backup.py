@@ -1,4 +1,5 @@
-"""Backup and restore of a whole programme database (and so moving it between SQLite and PostgreSQL)."""
+"""Looking after a programme database: backup and restore (also between SQLite and PostgreSQL), and the
+roles of a shared PostgreSQL programme."""
 
 from __future__ import annotations
 
@@ -26,5 +27,28 @@ def restore_database(db: str | None, folder: Path) -> tuple[dict[str, int], str]
         loaded = backup.restore(store, Path(folder))
         _before, after = migrate.upgrade(store.engine)
         return loaded, after
+    finally:
+        store.dispose()
+
+
+def setup_access(db: str | None) -> list[str]:
+    """Create the group roles of a shared PostgreSQL programme (see ``monitor.db.roles``)."""
+    from monitor.db import roles
+
+    store = Store.open(db)
+    try:
+        roles.setup_roles(store.engine)
+        database = store.engine.url.database or ""
+        return [f"role {roles.role_name(database, g)} ready" for g in roles.GROUPS]
+    finally:
+        store.dispose()
+
+
+def grant_access(db: str | None, login: str, group: str) -> str:
+    from monitor.db import roles
+
+    store = Store.open(db)
+    try:
+        return roles.grant(store.engine, login, group)
     finally:
         store.dispose()
