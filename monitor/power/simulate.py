@@ -58,8 +58,8 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
 
     family = components.family
     frame: dict[str, object] = {
-        col.STATION: np.char.add("Q", np.char.zfill(station_idx.astype(str), 4)),
-        col.SITE: np.char.add("S", np.char.zfill(site_of[station_idx].astype(str), 3)),
+        col.STATION: np.array([f"Q{i:04d}" for i in range(n_st)], dtype=object)[station_idx],
+        col.SITE: np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_of[station_idx]],
         col.YEAR: design.first_year + year_idx,
     }
     if family in ("poisson", "poisson-lognormal"):
