@@ -1,0 +1,785 @@
+r"""Maximum-likelihood fitting of generalized linear mixed models (the trend engine's core).
+
+Model
+-----
+For observation i (a visit of station j(i) in site s(i), recorded by observer o(i))
+
+    eta_i = offset_i + x_i' beta + sd_station * u_station[j(i)]
+            + sum_terms sd_term * z_term,i * u_term[level_term(i)]
+            + sd_obs * u_obs[i]
+    y_i | eta_i ~ family(eta_i),        all u ~ N(0, 1) independently.
+
+"Terms" are the random effects other than the station intercept and the
+observation-level effect: a site intercept (z = 1), a site slope (z = centred year)
+and an observer intercept (z = 1, crossed with station).  The random effects are
+"spherical" (u ~ N(0, I)) and their standard deviations enter as scale factors,
+as in lme4 (Bates et al. 2015).
+
+Laplace approximation
+---------------------
+With h(u) = sum_i log f(y_i | eta_i) - |u|^2 / 2 and H = -d2h/du2 at the mode u^,
+
+    log L(beta, sd) ~= h(u^) - log det(H) / 2.
+
+It is exact for the Gaussian family (the cover model), where the same code therefore
+gives the exact ML and, with + p/2 log(2 pi) - log det(X' V^-1 X)/2, the REML
+log-likelihood.  Adaptive Gauss-Hermite quadrature (AGQ) with K nodes replaces the
+Laplace integral per station when the station intercept is the only random effect:
+
+    log L_j = -log(A_j)/2 + log sum_k w_k exp(g_j(u^_j + x_k / sqrt(A_j)) + x_k^2/2),
+
+with (x_k, w_k) the probabilists' Gauss-Hermite rule, g_j the station's log joint
+density (standard-normal prior included) and A_j its curvature at the mode
+(Pinheiro & Bates 1995; Liu & Pierce 1994).
+
+Fitting
+-------
+Stage 1: for each value of the log-SD vector, penalised iteratively reweighted
+least squares (PIRLS: Newton's method with step halving) finds the joint mode of
+(beta, u); an outer bounded quasi-Newton search (L-BFGS-B) maximises the Laplace
+approximation over the log-SDs (and the log dispersion of NB2 / Gaussian).
+Stage 2 (non-Gaussian families, or AGQ): beta joins the outer search and PIRLS finds
+u alone, which gives the Laplace (or AGQ) maximum likelihood estimate proper, as
+lme4's glmer (nAGQ >= 1) and glmmTMB do.  Standard errors come from the numerical
+Hessian of the Laplace log-likelihood over (beta, log-SDs, log dispersion), as in
+glmer (use.hessian = TRUE) and glmmTMB; for the Gaussian family from
+(X' V^-1 X)^-1 as lmer does.
+
+Structure
+---------
+Newton's system  H [u_obs, u_station, v] = g  is solved by block elimination: the
+observation-level effects (diagonal) are eliminated first, which only rescales the
+weights, w~_i = w_i / (1 + sd_obs^2 w_i); then the station intercepts (diagonal, since
+a station touches only its own rows), which leaves a small dense Schur complement over
+v = (site, site-slope and observer effects, and beta).  All sums over a station's rows
+are np.bincount / sparse products, so one Newton step costs O(n) and no n x n matrix
+is formed; crossed observer effects live in the dense block, which is formed from
+sparse products (scipy.sparse).  log det(H) = sum log(1 + sd_obs^2 w_i) +
+sum log A_j + log det(dense Schur block).
+
+References
+----------
+Bates, D., Maechler, M., Bolker, B. & Walker, S. (2015) Fitting linear mixed-effects
+  models using lme4. Journal of Statistical Software 67(1), 1-48.
+Brooks, M. E. et al. (2017) glmmTMB balances speed and flexibility among packages for
+  zero-inflated generalized linear mixed modeling. The R Journal 9(2), 378-400.
+Pinheiro, J. C. & Bates, D. M. (1995) Approximations to the log-likelihood function in
+  the nonlinear mixed-effects model. J. Comput. Graph. Statist. 4(1), 12-35.
+Liu, Q. & Pierce, D. A. (1994) A note on Gauss-Hermite quadrature. Biometrika 81, 624-629.
+Tierney, L. & Kadane, J. B. (1986) Accurate approximations for posterior moments and
+  marginal densities. JASA 81, 82-86.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.linalg as la
+from scipy.optimize import minimize
+
+from monitor.errors import Diagnostic
+
+from .families import Family, Gaussian
+
+DEBUG = False
+LOG_SD_MIN = np.log(1e-5)   # lower bound of every log-SD (an SD of 1e-5 is "zero" on the link scale)
+LOG_SD_MAX = np.log(50.0)
+LOG_DISP_BOUNDS = {"negbin": (np.log(1e-3), np.log(1e7)), "gaussian": (np.log(1e-8), np.log(1e8))}
+
+
+@dataclass
+class Term:
+    """A random effect other than the station intercept: one column per level, value z."""
+
+    name: str
+    index: np.ndarray          # level of each observation, 0..n_levels-1
+    n_levels: int
+    z: np.ndarray | None = None  # None means 1 (an intercept)
+
+
+@dataclass
+class GlmmSpec:
+    """Everything the engine needs, as arrays (built by monitor.trend.model)."""
+
+    family: Family
+    X: np.ndarray
+    x_names: list[str]
+    station: np.ndarray          # station code of each observation, 0..n_station-1
+    n_station: int
+    terms: list[Term] = field(default_factory=list)
+    olre: bool = False           # observation-level random effect
+    offset: np.ndarray | None = None
+    station_effect: bool = True
+
+    @property
+    def n(self) -> int:
+        return len(self.station)
+
+    def sd_names(self) -> list[str]:
+        names = ["station"] if self.station_effect else []
+        names += [t.name for t in self.terms]
+        if self.olre:
+            names.append("observation")
+        return names
+
+
+@dataclass
+class GlmmFit:
+    """What the engine returns (turned into a TrendResult by the model layer)."""
+
+    beta: np.ndarray
+    vcov: np.ndarray
+    x_names: list[str]
+    sd: dict[str, float]
+    dispersion: float | None
+    loglik: float                 # ML (Laplace / AGQ / exact) log-likelihood, constants included
+    reml_criterion: float | None  # REML log-likelihood when fitted by REML
+    df: int
+    converged: bool
+    diagnostics: list[Diagnostic]
+    phi: np.ndarray               # internal log-SD (and log dispersion) vector at the optimum
+    u_station: np.ndarray
+    eta: np.ndarray
+    n_evaluations: int
+    vcov_method: str
+
+
+
+class _DenseDesign:
+    """The columns of the dense block: random terms (one non-zero per row) then, optionally, X.
+
+    All products are per-level sums (np.bincount), so nothing of size n x m is formed
+    except X itself.
+    """
+
+    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st):
+        self.idx = terms_idx
+        self.z = [zs * s for zs, s in zip(terms_z, scales)]
+        self.nl = n_levels
+        self.off = np.r_[0, np.cumsum(n_levels)].astype(int)
+        self.m_re = int(self.off[-1])
+        self.X = X
+        self.p = 0 if X is None else X.shape[1]
+        self.m = self.m_re + self.p
+        self.st, self.n_st = st, n_st
+
+    def matvec(self, v):
+        out = np.zeros(len(self.st))
+        for a in range(len(self.idx)):
+            out += self.z[a] * v[self.off[a]:self.off[a + 1]][self.idx[a]]
+        if self.p:
+            out += self.X @ v[self.m_re:]
+        return out
+
+    def rmatvec(self, r):
+        out = np.empty(self.m)
+        for a in range(len(self.idx)):
+            out[self.off[a]:self.off[a + 1]] = np.bincount(self.idx[a], weights=self.z[a] * r, minlength=self.nl[a])
+        if self.p:
+            out[self.m_re:] = self.X.T @ r
+        return out
+
+    def gram(self, wt):
+        """F' diag(wt) F as a dense m x m array."""
+        M = np.zeros((self.m, self.m))
+        na = len(self.idx)
+        for a in range(na):
+            sa = slice(self.off[a], self.off[a + 1])
+            wa = wt * self.z[a]
+            for b in range(a + 1):
+                sb = slice(self.off[b], self.off[b + 1])
+                blk = np.bincount(self.idx[a] * self.nl[b] + self.idx[b], weights=wa * self.z[b],
+                                  minlength=self.nl[a] * self.nl[b]).reshape(self.nl[a], self.nl[b])
+                M[sa, sb] = blk
+                M[sb, sa] = blk.T
+            if self.p:
+                blk = _bincount2(self.idx[a], self.nl[a], wa[:, None] * self.X)
+                M[sa, self.m_re:] = blk
+                M[self.m_re:, sa] = blk.T
+        if self.p:
+            M[self.m_re:, self.m_re:] = self.X.T @ (wt[:, None] * self.X)
+        return M
+
+    def station_cross(self, wt):
+        """S' diag(wt) F: station-by-column sums, dense n_station x m."""
+        C = np.empty((self.n_st, self.m))
+        for a in range(len(self.idx)):
+            C[:, self.off[a]:self.off[a + 1]] = np.bincount(
+                self.st * self.nl[a] + self.idx[a], weights=wt * self.z[a],
+                minlength=self.n_st * self.nl[a]).reshape(self.n_st, self.nl[a])
+        if self.p:
+            C[:, self.m_re:] = _bincount2(self.st, self.n_st, wt[:, None] * self.X)
+        return C
+
+
+def _bincount2(index, n_levels, values):
+    """Per-level column sums of a 2-d array: out[g, k] = sum_{i: index_i = g} values[i, k]."""
+    k = values.shape[1]
+    flat = (index[:, None] * k + np.arange(k)).ravel()
+    return np.bincount(flat, weights=values.ravel(), minlength=n_levels * k).reshape(n_levels, k)
+
+
+class _Factor:
+    """Block-eliminated factorisation of the Newton matrix (see module notes)."""
+
+    __slots__ = ("d", "wt", "A", "C", "L", "m", "m_re", "logdet_u", "logdet_beta", "s_o", "s_st", "w",
+                 "D", "ok")
+
+
+class LaplaceEngine:
+    """Evaluates Laplace / AGQ / REML log-likelihoods for a GlmmSpec, keeping warm starts."""
+
+    def __init__(self, spec: GlmmSpec, reml: bool = False, n_agq: int = 1):
+        self.spec = spec
+        self.fam = spec.family
+        self.reml = reml
+        self.n_agq = n_agq
+        n = spec.n
+        self.offset = np.zeros(n) if spec.offset is None else np.asarray(spec.offset, float)
+        self.st = np.asarray(spec.station, dtype=np.int64)
+        self.n_st = int(spec.n_station)
+        self.X = np.asarray(spec.X, dtype=float)
+        self.p = self.X.shape[1]
+        # the dense-block random terms: level index and value of each observation
+        self.t_idx = [np.asarray(t.index, dtype=np.int64) for t in spec.terms]
+        self.t_z = [np.ones(n) if t.z is None else np.asarray(t.z, float) for t in spec.terms]
+        self.t_nl = [int(t.n_levels) for t in spec.terms]
+        self.m_re = int(sum(self.t_nl))
+        self.n_sd = len(spec.sd_names())
+        self.has_disp = self.fam.has_dispersion
+        self.n_phi = self.n_sd + (1 if self.has_disp else 0)
+        # warm-start state
+        self.u_st = np.zeros(self.n_st)
+        self.u_re = np.zeros(self.m_re)
+        self.u_o = np.zeros(n) if spec.olre else None
+        self.beta = np.zeros(self.p)
+        self.n_eval = 0
+        self.pirls_failures = 0
+        self.last_factor: _Factor | None = None
+        self.last_eta: np.ndarray | None = None
+
+    # ------------------------------------------------------------------ parameters
+    def unpack(self, phi: np.ndarray) -> tuple[float, np.ndarray, float]:
+        """phi -> (sd_station, sd per term, sd_obs); also sets the family dispersion."""
+        phi = np.asarray(phi, float)
+        k = 0
+        s_st = 0.0
+        if self.spec.station_effect:
+            s_st = float(np.exp(phi[0]))
+            k = 1
+        nt = len(self.spec.terms)
+        s_terms = np.exp(phi[k:k + nt])
+        k += nt
+        s_o = 0.0
+        if self.spec.olre:
+            s_o = float(np.exp(phi[k]))
+            k += 1
+        if self.has_disp:
+            self.fam.dispersion = float(np.exp(phi[k]))
+        return s_st, s_terms, s_o
+
+    def bounds(self) -> list[tuple[float, float]]:
+        b = [(LOG_SD_MIN, LOG_SD_MAX)] * self.n_sd
+        if self.has_disp:
+            b.append(LOG_DISP_BOUNDS[self.fam.name])
+        return b
+
+    # ------------------------------------------------------------------ linear algebra
+    def _design(self, s_terms, full: bool) -> _DenseDesign:
+        return _DenseDesign(self.t_idx, self.t_z, self.t_nl, s_terms, self.X if full else None,
+                            self.st, self.n_st)
+
+    def _factor(self, w, s_st, s_o, D: _DenseDesign) -> _Factor:
+        f = _Factor()
+        m = D.m
+        f.m, f.m_re, f.s_o, f.s_st, f.w, f.D = m, self.m_re, s_o, s_st, w, D
+        f.d = 1.0 + s_o * s_o * w
+        f.wt = w / f.d
+        f.A = 1.0 + s_st * s_st * np.bincount(self.st, weights=f.wt, minlength=self.n_st)
+        logdet = float(np.sum(np.log(f.d)) + np.sum(np.log(f.A)))
+        f.ok = True
+        if m:
+            M = D.gram(f.wt)
+            C = D.station_cross(f.wt) * s_st
+            f.C = C
+            if s_st > 0:
+                M -= C.T @ (C / f.A[:, None])
+            M[np.arange(self.m_re), np.arange(self.m_re)] += 1.0
+            try:
+                f.L = la.cholesky(M, lower=True, check_finite=False)
+            except la.LinAlgError:
+                # fixed effects not identified at this point: regularise slightly, flag it
+                f.ok = False
+                M[np.diag_indices(m)] += 1e-8 * (1.0 + np.abs(np.diag(M)))
+                f.L = la.cholesky(M, lower=True, check_finite=False)
+            dg = np.log(np.diag(f.L))
+            f.logdet_u = logdet + 2.0 * float(np.sum(dg[:self.m_re]))
+            f.logdet_beta = 2.0 * float(np.sum(dg[self.m_re:]))
+        else:
+            f.C = None
+            f.L = None
+            f.logdet_u = logdet
+            f.logdet_beta = 0.0
+        return f
+
+    def _solve(self, f: _Factor, r_o, r_st, r_v):
+        r_st = r_st.copy()
+        r_v = r_v.copy()
+        if f.s_o > 0:
+            q = f.s_o * f.w * r_o / f.d
+            r_st -= f.s_st * np.bincount(self.st, weights=q, minlength=self.n_st)
+            if f.m:
+                r_v -= f.D.rmatvec(q)
+        if f.m:
+            if f.s_st > 0:
+                r_v -= f.C.T @ (r_st / f.A)
+            y = la.cho_solve((f.L, True), r_v, check_finite=False)
+            x_st = (r_st - f.C @ y) / f.A
+        else:
+            y = r_v
+            x_st = r_st / f.A
+        x_o = None
+        if f.s_o > 0:
+            a = f.s_st * x_st[self.st]
+            if f.m:
+                a = a + f.D.matvec(y)
+            x_o = (r_o - f.s_o * f.w * a) / f.d
+        return x_o, x_st, y
+
+    # ------------------------------------------------------------------ PIRLS
+    def pirls(self, phi, beta=None, tol=1e-11, max_iter=60):
+        """Newton iterations for the conditional modes (and beta when ``beta`` is None).
+
+        Returns (h, factor, eta, converged).  Updates the warm-start state.
+        """
+        s_st, s_terms, s_o = self.unpack(phi)
+        full = beta is None
+        D = self._design(s_terms, full)
+        base = self.offset if full else self.offset + self.X @ beta
+        u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
+        v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
+        u_o = self.u_o.copy() if s_o > 0 else None
+
+        def eta_of(u_st, v, u_o):
+            e = base + s_st * u_st[self.st]
+            if v.size:
+                e = e + D.matvec(v)
+            if u_o is not None:
+                e = e + s_o * u_o
+            return e
+
+        def h_of(eta, u_st, v, u_o):
+            pen = u_st @ u_st + v[:self.m_re] @ v[:self.m_re]
+            if u_o is not None:
+                pen += u_o @ u_o
+            return float(np.sum(self.fam.loglik(eta)) - 0.5 * pen)
+
+        eta = eta_of(u_st, v, u_o)
+        h = h_of(eta, u_st, v, u_o)
+        # a warm start made for other variance values can be far off: compare with u = 0
+        z_st = np.zeros_like(u_st)
+        z_v = v.copy()
+        z_v[:self.m_re] = 0
+        z_o = None if u_o is None else np.zeros_like(u_o)
+        z_eta = eta_of(z_st, z_v, z_o)
+        z_h = h_of(z_eta, z_st, z_v, z_o)
+        if not np.isfinite(h) or z_h > h:
+            u_st, v, u_o, eta, h = z_st, z_v, z_o, z_eta, z_h
+        converged = False
+        for _ in range(max_iter):
+            d1, w = self.fam.derivs(eta)
+            f = self._factor(w, s_st, s_o, D)
+            g_st = s_st * np.bincount(self.st, weights=d1, minlength=self.n_st) - u_st
+            g_v = D.rmatvec(d1) if v.size else np.zeros(0)
+            g_v[:self.m_re] -= v[:self.m_re]
+            g_o = s_o * d1 - u_o if u_o is not None else None
+            x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
+            decrement = float(g_st @ x_st + g_v @ x_v + (g_o @ x_o if u_o is not None else 0.0))
+            if decrement < tol * max(1.0, abs(h)) * 1e-2 or decrement < 1e-13:
+                converged = True
+                break
+            step = 1.0
+            for _half in range(30):
+                n_st_ = u_st + step * x_st
+                n_v = v + step * x_v
+                n_o = u_o + step * x_o if u_o is not None else None
+                n_eta = eta_of(n_st_, n_v, n_o)
+                n_h = h_of(n_eta, n_st_, n_v, n_o)
+                if np.isfinite(n_h) and n_h >= h - 1e-12 * max(1.0, abs(h)):
+                    break
+                step *= 0.5
+            else:
+                break
+            u_st, v, u_o, eta, h = n_st_, n_v, n_o, n_eta, n_h
+            if decrement < 1e-9 and step == 1.0:
+                # quadratic convergence: one more step with a fresh factor is below noise
+                pass
+        else:
+            d1, w = self.fam.derivs(eta)
+            f = self._factor(w, s_st, s_o, D)
+        if not converged:
+            self.pirls_failures += 1
+        # save warm start
+        if s_st > 0:
+            self.u_st = u_st
+        if full:
+            self.u_re, self.beta = v[:self.m_re].copy(), v[self.m_re:].copy()
+        else:
+            self.u_re = v.copy()
+        if u_o is not None:
+            self.u_o = u_o
+        self.last_factor = f
+        self.last_eta = eta
+        return h, f, eta, converged
+
+    # ------------------------------------------------------------------ objectives
+    def loglik_profiled(self, phi) -> float:
+        if DEBUG: print("phi", phi)
+        """Stage 1: Laplace log-likelihood with beta at the joint PIRLS mode (REML adds its term)."""
+        self.n_eval += 1
+        h, f, _, _ = self.pirls(phi)
+        ll = h - 0.5 * f.logdet_u
+        if self.reml:
+            ll += 0.5 * self.p * np.log(2 * np.pi) - 0.5 * f.logdet_beta
+        return ll
+
+    def loglik_beta(self, phi, beta) -> float:
+        """Stage 2: Laplace (or AGQ) log-likelihood at given beta and variance parameters."""
+        self.n_eval += 1
+        h, f, eta, _ = self.pirls(phi, beta=np.asarray(beta, float))
+        if self.n_agq <= 1:
+            return h - 0.5 * f.logdet_u
+        return self._agq(phi, f, eta)
+
+    def _agq(self, phi, f: _Factor, eta) -> float:
+        s_st, _, _ = self.unpack(phi)
+        x, wq = np.polynomial.hermite_e.hermegauss(self.n_agq)
+        scale = 1.0 / np.sqrt(f.A)
+        u_hat = self.u_st
+        eta0 = eta - s_st * u_hat[self.st]
+        terms = np.empty((self.n_st, self.n_agq))
+        for k in range(self.n_agq):
+            u_k = u_hat + x[k] * scale
+            ll = np.bincount(self.st, weights=self.fam.loglik(eta0 + s_st * u_k[self.st]), minlength=self.n_st)
+            terms[:, k] = ll - 0.5 * u_k * u_k - 0.5 * np.log(2 * np.pi) + 0.5 * x[k] ** 2 + np.log(wq[k])
+        mx = terms.max(axis=1)
+        per = mx + np.log(np.exp(terms - mx[:, None]).sum(axis=1)) + np.log(scale)
+        return float(per.sum())
+
+
+# ---------------------------------------------------------------------- helpers
+def _num_grad(fun, x, h):
+    g = np.zeros_like(x)
+    for i in range(len(x)):
+        e = np.zeros_like(x)
+        e[i] = h[i]
+        g[i] = (fun(x + e) - fun(x - e)) / (2 * h[i])
+    return g
+
+
+def num_hessian(fun, x, h, f0=None):
+    """Central-difference gradient and Hessian of a scalar function (4-point formula off the diagonal).
+
+    Returns (f(x), gradient, Hessian).
+    """
+    k = len(x)
+    H = np.zeros((k, k))
+    g = np.zeros(k)
+    if f0 is None:
+        f0 = fun(x)
+    for i in range(k):
+        ei = np.zeros(k)
+        ei[i] = h[i]
+        fp, fm = fun(x + ei), fun(x - ei)
+        g[i] = (fp - fm) / (2 * h[i])
+        H[i, i] = (fp - 2 * f0 + fm) / h[i] ** 2
+        for j in range(i):
+            ej = np.zeros(k)
+            ej[j] = h[j]
+            H[i, j] = H[j, i] = (fun(x + ei + ej) - fun(x + ei - ej) - fun(x - ei + ej) + fun(x - ei - ej)) / (
+                4 * h[i] * h[j])
+    return f0, g, H
+
+
+def _bounded_minimize(fun, x0, bounds, h, maxiter=300):
+    """L-BFGS-B on ``fun`` with central-difference gradients (one-sided at a bound)."""
+    lo = np.array([b[0] for b in bounds])
+    hi = np.array([b[1] for b in bounds])
+
+    def fg(x):
+        x = np.clip(x, lo, hi)
+        f0 = fun(x)
+        g = np.zeros_like(x)
+        for i in range(len(x)):
+            xp, xm = x.copy(), x.copy()
+            up = min(h[i], hi[i] - x[i])
+            dn = min(h[i], x[i] - lo[i])
+            if up <= 0 and dn <= 0:
+                continue
+            xp[i] += up
+            xm[i] -= dn
+            fp = fun(xp) if up > 0 else f0
+            fm = fun(xm) if dn > 0 else f0
+            g[i] = (fp - fm) / (up + dn)
+        return f0, g
+
+    x0 = np.clip(np.asarray(x0, float), lo, hi)
+    return minimize(fg, x0, jac=True, method="L-BFGS-B", bounds=bounds,
+                    options={"maxiter": maxiter, "ftol": 1e-13, "gtol": 1e-7, "maxls": 40})
+
+
+def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = 100):
+    """Plain GLM by Newton's method (observed information): the starting values.  Returns beta."""
+    n, p = X.shape
+    off = np.zeros(n) if offset is None else offset
+    eta0 = family.glm_start()
+    beta = np.linalg.lstsq(X, eta0 - off, rcond=None)[0]
+    ll = np.sum(family.loglik(off + X @ beta))
+    for _ in range(max_iter):
+        eta = off + X @ beta
+        d, w = family.derivs(eta)
+        g = X.T @ d
+        H = X.T @ (w[:, None] * X) + 1e-10 * np.eye(p)
+        step = np.linalg.solve(H, g)
+        t = 1.0
+        for _h in range(40):
+            nb = beta + t * step
+            nll = np.sum(family.loglik(off + X @ nb))
+            if np.isfinite(nll) and nll >= ll - 1e-12 * abs(ll):
+                break
+            t *= 0.5
+        beta, ll_old, ll = nb, ll, nll
+        if abs(ll - ll_old) < 1e-12 * max(1, abs(ll)) and np.max(np.abs(t * step)) < 1e-9:
+            break
+    return beta
+
+
+# ---------------------------------------------------------------------- fitting
+def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool = True,
+             stage2: bool = True, start: np.ndarray | None = None,
+             start_beta: np.ndarray | None = None) -> GlmmFit:
+    """Fit a GLMM by maximum likelihood (Laplace / AGQ) or, for the Gaussian family, ML / REML.
+
+    Parameters
+    ----------
+    spec : GlmmSpec
+        The model as arrays.
+    reml : bool
+        Restricted ML (Gaussian family only).
+    n_agq : int
+        Quadrature nodes per station (1 = Laplace).  More than 1 needs the station
+        intercept to be the only random effect.
+    hessian : bool
+        Standard errors from the numerical Hessian over (beta, log-SDs) (True), or from
+        the conditional information at the variance estimates (False: the fast path).
+    stage2 : bool
+        Maximise over beta in the outer search (exact Laplace / AGQ MLE).  When False
+        beta is the joint PIRLS mode at the variance estimates (faster, slightly different).
+    start, start_beta : arrays, optional
+        Warm starts for the internal log-SD vector and beta.
+
+    Returns
+    -------
+    GlmmFit
+
+    Notes
+    -----
+    See the module docstring for the model, the approximation and the algorithm.
+    """
+    fam = spec.family
+    gaussian = isinstance(fam, Gaussian)
+    if reml and not gaussian:
+        raise ValueError("REML applies to the Gaussian (logit-normal) family only")
+    if n_agq > 1 and (spec.terms or spec.olre or not spec.station_effect):
+        raise ValueError("adaptive Gauss-Hermite quadrature needs a single grouping factor (station)")
+    eng = LaplaceEngine(spec, reml=reml, n_agq=n_agq)
+    diags: list[Diagnostic] = []
+    # --- starting values from a GLM
+    beta0 = glm_fit_start = None
+    if start_beta is not None:
+        beta0 = np.asarray(start_beta, float)
+    else:
+        if fam.has_dispersion and fam.dispersion is None:
+            fam.dispersion = 1.0
+        beta0 = glm_fit(fam, spec.X, eng.offset)
+        glm_fit_start = beta0
+    eng.beta = beta0.copy()
+    if start is not None:
+        phi0 = np.asarray(start, float).copy()
+    else:
+        eta_glm = eng.offset + spec.X @ beta0
+        if gaussian:
+            sig = float(np.std(fam.y - eta_glm)) or 1.0
+            phi0 = np.r_[np.full(eng.n_sd, np.log(0.5 * sig)), np.log(0.7 * sig)]
+        else:
+            phi0 = np.full(eng.n_sd, np.log(0.5))
+            if fam.has_dispersion:  # NB2: moment estimate of the size from the GLM
+                mu = np.exp(eta_glm)
+                excess = np.mean((fam.y - mu) ** 2 - mu)
+                th = np.mean(mu ** 2) / excess if excess > 0 else 100.0
+                phi0 = np.r_[phi0, np.log(np.clip(th, 0.05, 1e5))]
+    bounds = eng.bounds()
+    hphi = np.full(eng.n_phi, 1e-4)
+    # --- stage 1: variance parameters, beta at the PIRLS mode
+    res1 = _bounded_minimize(lambda x: -eng.loglik_profiled(x), phi0, bounds, hphi)
+    phi = np.asarray(res1.x)
+    ll = eng.loglik_profiled(phi)
+    beta = eng.beta.copy()
+    ok1 = res1.success or "REL_REDUCTION" in str(res1.message)
+    converged = bool(ok1)
+    if not ok1:
+        diags.append(Diagnostic("not_converged", f"The search over the variance parameters stopped early ({res1.message})."))
+    do_stage2 = (not gaussian) and (stage2 or n_agq > 1)
+    names = spec.sd_names()
+    k = eng.n_phi
+    vcov = _conditional_vcov(eng.last_factor, eng)
+    vcov_method = "conditional"
+    if do_stage2:
+        phi, beta, ll, H_info, ok2, msg = _stage2(eng, phi, beta, vcov, hessian)
+        if not ok2:
+            converged = False
+            diags.append(Diagnostic("not_converged", "The joint search over fixed effects and variances "
+                                    f"did not converge ({msg})."))
+    at_bound = [i for i in range(eng.n_sd) if phi[i] <= LOG_SD_MIN + 0.5]
+    for i in at_bound:
+        diags.append(Diagnostic("variance_at_bound",
+                                f"The {names[i]} standard deviation is estimated at (or near) zero; "
+                                "that random effect adds nothing to these data.", "info"))
+    # conditional information at the estimate (joint mode of u given beta)
+    if do_stage2:
+        eng.pirls(phi, beta=beta)
+        eta = eng.last_eta.copy()
+        u_station = eng.u_st.copy()
+        vcov = _conditional_vcov_at(eng, phi, beta)
+        if hessian:
+            if H_info is not None:
+                vcov, vcov_method = H_info, "hessian"
+            else:
+                diags.append(Diagnostic("hessian_not_positive",
+                                        "The likelihood's curvature matrix is not positive definite (or was not "
+                                        "computed); standard errors use the conditional information instead."))
+    else:
+        eng.pirls(phi)
+        beta = eng.beta.copy()
+        eta = eng.last_eta.copy()
+        u_station = eng.u_st.copy()
+        vcov = _conditional_vcov(eng.last_factor, eng)
+    reml_ll = eng.loglik_profiled(phi) if reml else None
+    if eng.pirls_failures:
+        diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
+                                f"reach full precision {eng.pirls_failures} time(s).", "info"))
+    eng.unpack(phi)
+    sd = {nm: float(np.exp(v)) for nm, v in zip(names, phi[:eng.n_sd])}
+    n_par = eng.p + eng.n_phi
+    return GlmmFit(beta=beta, vcov=vcov, x_names=list(spec.x_names), sd=sd,
+                   dispersion=(float(fam.dispersion) if fam.has_dispersion else None),
+                   loglik=float(ll if not reml else reml_ll), reml_criterion=reml_ll, df=n_par,
+                   converged=converged, diagnostics=diags, phi=phi, u_station=u_station, eta=eta,
+                   n_evaluations=eng.n_eval, vcov_method=vcov_method)
+
+
+NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 uses L-BFGS-B
+
+
+def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
+    """Maximise the Laplace / AGQ log-likelihood over (log-SDs, log dispersion, beta).
+
+    Newton's method with a central-difference Hessian (whose last value gives the
+    standard errors) when there are few parameters; L-BFGS-B otherwise.  Variance
+    parameters on their lower bound are held there.
+    Returns (phi, beta, loglik, vcov_from_hessian or None, ok, message).
+    """
+    k = eng.n_phi
+    x = np.r_[phi, beta]
+    lo = np.r_[[b[0] for b in eng.bounds()], np.full(eng.p, -np.inf)]
+    hi = np.r_[[b[1] for b in eng.bounds()], np.full(eng.p, np.inf)]
+    free = np.array([i for i in range(k) if phi[i] > LOG_SD_MIN + 0.5 or i >= eng.n_sd] + list(range(k, k + eng.p)))
+    se = np.sqrt(np.maximum(np.diag(vcov_cond), 1e-16))
+    step_h = np.r_[np.full(k, 2e-3), np.maximum(2e-2 * se, 1e-7)][free]
+
+    def fun(xs):
+        xx = x.copy()
+        xx[free] = np.clip(xs, lo[free], hi[free])
+        return -eng.loglik_beta(xx[:k], xx[k:])
+
+    xs = x[free].copy()
+    if len(free) > NEWTON_MAX_DIM:
+        bnd = list(zip(lo[free], hi[free]))
+        res = _bounded_minimize(fun, xs, bnd, step_h / 20)
+        x[free] = res.x
+        ok = bool(res.success or "REL_REDUCTION" in str(res.message))
+        return x[:k], x[k:], -fun(res.x), None, ok, str(res.message)
+    f0 = fun(xs)
+    ok, msg, Hfin = False, "iteration limit", None
+    for _ in range(12):
+        f0, g, H = num_hessian(fun, xs, step_h, f0=f0)
+        try:
+            Lc = np.linalg.cholesky(H)
+        except np.linalg.LinAlgError:
+            Lc = None
+        if Lc is None:
+            # not locally convex: a short gradient step scaled by the conditional curvature
+            step = -g * step_h ** 2 * 10
+        else:
+            step = -la.cho_solve((Lc, True), g)
+        decrement = float(-g @ step)
+        if Lc is not None and decrement < 1e-9:
+            ok, msg, Hfin = True, "converged", H
+            break
+        t = 1.0
+        improved = False
+        for _h in range(30):
+            cand = np.clip(xs + t * step, lo[free], hi[free])
+            fc = fun(cand)
+            if np.isfinite(fc) and fc <= f0 + 1e-12:
+                improved = True
+                break
+            t *= 0.5
+        if not improved:
+            ok = Lc is not None and decrement < 1e-5
+            msg = "no further improvement" if not ok else "converged"
+            Hfin = H if Lc is not None else None
+            break
+        xs, f0 = cand, fc
+    x[free] = xs
+    vb = None
+    if want_hessian and Hfin is not None:
+        try:
+            Hinv = np.linalg.inv(Hfin)
+            nb = eng.p
+            vb = Hinv[-nb:, -nb:]
+            vb = (vb + vb.T) / 2
+            if not (np.all(np.isfinite(vb)) and np.all(np.linalg.eigvalsh(vb) > 0)):
+                vb = None
+        except np.linalg.LinAlgError:
+            vb = None
+    return x[:k], x[k:], -f0, vb, ok, msg
+
+
+def _conditional_vcov_at(eng: LaplaceEngine, phi, beta) -> np.ndarray:
+    """Conditional vcov of beta at (phi, beta): joint Newton matrix at the u-mode for this beta."""
+    eng.pirls(phi, beta=beta)
+    s_st, s_terms, s_o = eng.unpack(phi)
+    d1, w = eng.fam.derivs(eng.last_eta)
+    f = eng._factor(w, s_st, s_o, eng._design(s_terms, True))
+    return _conditional_vcov(f, eng)
+
+
+def _ml_at(eng: LaplaceEngine, phi) -> float:
+    eng.reml = False
+    try:
+        return eng.loglik_profiled(phi)
+    finally:
+        eng.reml = True
+
+
+def _conditional_vcov(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
+    """(X' V^-1 X)^-1: the inverse of beta's Schur complement in the joint Newton matrix."""
+    L = f.L[eng.m_re:, eng.m_re:]
+    Li = la.solve_triangular(L, np.eye(L.shape[0]), lower=True)
+    return Li.T @ Li
+
+
+def _conditional_se(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
+    return np.sqrt(np.diag(_conditional_vcov(f, eng)))
