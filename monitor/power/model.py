@@ -208,8 +208,8 @@ class Scenario:
             raise DesignError("alpha must lie strictly between 0 and 1")
         if self.side not in SIDES:
             raise DesignError(f"test side {self.side!r}: expected one of {', '.join(SIDES)}")
-        if self.margin < 0:
-            raise DesignError("margin must be >= 0")
+        if not self.margin > 0:
+            raise DesignError("margin of change must be a positive fraction per year")
 
     @classmethod
     def from_change(cls, change: float, over_years: float, **kwargs: object) -> Scenario:
