@@ -57,11 +57,10 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
            + station_effect[station_idx] + site_effect[site_of[station_idx]])
 
     family = components.family
-    frame: dict[str, object] = {
-        col.STATION: np.array([f"Q{i:04d}" for i in range(n_st)], dtype=object)[station_idx],
-        col.SITE: np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_of[station_idx]],
-        col.YEAR: design.first_year + year_idx,
-    }
+    frame: dict[str, object] = {col.STATION: np.array([f"Q{i:04d}" for i in range(n_st)], dtype=object)[station_idx]}
+    if s["site_sd"] > 0 or n_sites > 1:
+        frame[col.SITE] = np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_of[station_idx]]
+    frame[col.YEAR] = design.first_year + year_idx
     if family in ("poisson", "poisson-lognormal"):
         if family == "poisson-lognormal":
             eta = eta + rng.normal(0.0, 1.0, n) * s["observation_sd"]
@@ -89,7 +88,4 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
         frame[col.COVER] = 100.0 / (1.0 + np.exp(-z))
     else:  # pragma: no cover - VarianceComponents validates the family
         raise AssertionError(family)
-    data = pd.DataFrame(frame)
-    if s["site_sd"] == 0 and n_sites == 1:
-        data = data.drop(columns=col.SITE)
-    return data.reset_index(drop=True)
+    return pd.DataFrame(frame)
