@@ -143,6 +143,11 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
     """Run every job's replicates, in this process or across a process pool."""
     if fitter not in FITTERS:
         raise DesignError(f"fitter {fitter!r}: expected one of {', '.join(FITTERS)}")
+    if fitter == "trend" and components.family == "lognormal":
+        raise DesignError("the trend engine has no lognormal family; use fitter 'ols-log' for it")
+    if fitter == "ols-log" and components.family not in ("lognormal", "logit-normal"):
+        raise DesignError("fitter 'ols-log' regresses log or logit values: use it with the lognormal or "
+                          "logit-normal family only")
     if n_replicates < 1:
         raise DesignError("at least one replicate is needed")
     workers = (os.cpu_count() or 1) if n_workers is None else int(n_workers)

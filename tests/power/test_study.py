@@ -96,6 +96,19 @@ def test_progress_reports_every_replicate():
     assert all(b[0] >= a[0] for a, b in zip(calls, calls[1:]))
 
 
+def test_fitter_must_suit_the_family():
+    with pytest.raises(DesignError):
+        simulate_power(COMPONENTS, Design(5, 5), Scenario(-0.05), rng=np.random.default_rng(1), n_replicates=2,
+                       fitter="trend")
+    counts = VarianceComponents(family="poisson", intercept=1.0)
+    with pytest.raises(DesignError):
+        simulate_power(counts, Design(5, 5), Scenario(-0.05), rng=np.random.default_rng(1), n_replicates=2,
+                       fitter="ols-log")
+    with pytest.raises(DesignError):
+        simulate_power(counts, Design(5, 5), Scenario(-0.05), rng=np.random.default_rng(1), n_replicates=2,
+                       fitter="bayes")
+
+
 def test_reject_null_uses_t_and_normal_quantiles():
     # scipy.stats.t: two-sided p of T = 2.0 on 10 df is 2 * t.sf(2, 10) = 0.0734
     p = 2 * stats.t.sf(2.0, 10)
