@@ -23,6 +23,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field, replace
 
+import pandas as pd
+
 from monitor import columns as col
 from monitor.errors import DesignError, EstimationError
 from monitor.power.panels import RevisitDesign, parse_revisit
@@ -294,6 +296,30 @@ class Design:
         if self.quadrat_area is not None and self.quadrat_area <= 0:
             raise DesignError("quadrat area must be positive")
         object.__setattr__(self, "_panels", parse_revisit(self.revisit, self.revisit_shares))
+
+    @classmethod
+    def from_data(cls, data: pd.DataFrame, revisit: str = "[1-0]", **fields: object) -> Design:
+        """The design a programme's long table shows: stations, years, sites and missed share.
+
+        ``n_years`` is the span from the first to the last year; the missed share is the share
+        of visits due under ``revisit`` that carry no value (at least 0).
+        """
+        for name in (col.STATION, col.YEAR):
+            if name not in data.columns:
+                raise DesignError(f"the table needs a '{name}' column to describe its design")
+        if data.empty:
+            raise DesignError("the table holds no visits")
+        n_stations = int(data[col.STATION].nunique())
+        first, last = int(data[col.YEAR].min()), int(data[col.YEAR].max())
+        n_years = last - first + 1
+        n_sites = int(data[col.SITE].nunique()) if col.SITE in data.columns else None
+        due = parse_revisit(revisit).visited_share(n_years) * n_stations * n_years
+        visits = len(data.drop_duplicates([col.STATION, col.YEAR]))
+        missed = min(0.95, max(0.0, 1.0 - visits / due))
+        values: dict = dict(n_stations=n_stations, n_years=n_years, revisit=revisit, n_sites=n_sites,
+                            missed_share=round(missed, 4), first_year=first)
+        values.update(fields)
+        return cls(**values)
 
     @property
     def panels(self) -> RevisitDesign:

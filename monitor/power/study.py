@@ -332,6 +332,13 @@ class DesignSearch:
     evaluated: tuple[PowerResult, ...]  # every simulated grid value, in grid order
     note: str = ""
 
+    def to_dict(self) -> dict:
+        return {
+            "vary": self.vary, "target": self.target, "value": self.value,
+            "approximate_value": self.approximate_value, "note": self.note,
+            "evaluated": [r.to_dict() for r in self.evaluated],
+        }
+
 
 def smallest_design(components: VarianceComponents, scenario: Scenario, design: Design, *,
                     vary: str = "n_stations", grid: Sequence[int], target: float = 0.8,
@@ -415,6 +422,14 @@ class DetectableChange:
     approximate_annual_change: float
     curve: pd.DataFrame | None    # simulated power at each evaluated change (simulation only)
     label: str = ""
+
+    def to_dict(self) -> dict:
+        return {
+            "annual_change": self.annual_change, "period_change": self.period_change,
+            "over_years": self.over_years, "power": self.power, "method": self.method, "label": self.label,
+            "approximate_annual_change": self.approximate_annual_change,
+            "curve": None if self.curve is None else self.curve.to_dict(orient="records"),
+        }
 
 
 def detectable_change(components: VarianceComponents, design: Design, *, alpha: float = 0.05,

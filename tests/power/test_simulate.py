@@ -109,3 +109,13 @@ def test_same_generator_state_gives_same_table_and_global_state_is_unused():
     assert a.equals(b)
     assert set(a.columns) == {col.STATION, col.SITE, col.YEAR, col.COUNT}
     assert a[col.SITE].nunique() == 3
+
+
+def test_design_read_back_from_a_table():
+    components = VarianceComponents(family="poisson", intercept=math.log(50.0), site_sd=0.2)
+    made = Design(40, 9, missed_share=0.25, n_sites=4, first_year=2010)
+    data = simulate_dataset(components, made, Scenario(0.0), np.random.default_rng(9))
+    read = Design.from_data(data)
+    assert (read.n_stations, read.n_years, read.n_sites, read.first_year) == (40, 9, 4, 2010)
+    # missed share: 360 due visits, each missed with probability 0.25 (4 binomial SE)
+    assert abs(read.missed_share - 0.25) < 4 * math.sqrt(0.25 * 0.75 / 360)
