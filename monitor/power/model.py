@@ -136,8 +136,8 @@ def components_from_trend(result: object, *, trials: int | None = None,
     fitted level in the first year from ``result.fitted_trend`` when present, else from the
     intercept and slope in ``result.params``.
     """
-    family = getattr(result, "family")
-    measure = getattr(result, "measure")
+    family = result.family
+    measure = result.measure
     random_sd = dict(getattr(result, "random_sd", {}) or {})
     dispersion = getattr(result, "dispersion", None)
     intercept = _first_year_level(result)
@@ -166,7 +166,7 @@ def components_from_trend(result: object, *, trials: int | None = None,
 
 def _first_year_level(result: object) -> float:
     """Link-scale level of a typical station in the first fitted year."""
-    params = getattr(result, "params")
+    params = result.params
     names = [str(n) for n in params.index]
     lower = [n.lower() for n in names]
     for key in ("intercept", "(intercept)", "const"):
@@ -176,10 +176,10 @@ def _first_year_level(result: object) -> float:
     else:
         raise EstimationError("the trend result carries no intercept; give the mean level instead")
     centre = getattr(result, "year_centre", None)
-    first = getattr(result, "years")[0]
+    first = result.years[0]
     if centre is None:
         return b0
-    return b0 + float(getattr(result, "slope")) * (first - centre)
+    return b0 + float(result.slope) * (first - centre)
 
 
 @dataclass(frozen=True)

@@ -40,7 +40,7 @@ from monitor.power.approximation import (
     approximate_detectable_change,
     approximate_power,
 )
-from monitor.power.fitting import FITTERS, FitOutcome, fit_one
+from monitor.power.fitting import FITTERS, fit_one
 from monitor.power.model import Design, Scenario, VarianceComponents
 from monitor.power.simulate import simulate_dataset
 

@@ -55,9 +55,9 @@ def test_simulated_power_matches_exact_noncentral_t(side, alpha):
     exact = exact_power(stations, years, scenario.slope, alpha, side)
     assert 0.3 < exact < 0.8  # the informative range for this check
     result = simulate_power(COMPONENTS, Design(stations, years), scenario, rng=np.random.default_rng(31),
-                            n_replicates=2000, fitter="ols-log")
-    assert result.n_fitted == 2000
-    assert result.power_se == pytest.approx(math.sqrt(result.power * (1 - result.power) / 2000))
+                            n_replicates=1200, fitter="ols-log")
+    assert result.n_fitted == 1200
+    assert result.power_se == pytest.approx(math.sqrt(result.power * (1 - result.power) / 1200))
     assert abs(result.power - exact) < 3.5 * result.power_se
 
 
@@ -93,7 +93,7 @@ def test_progress_reports_every_replicate():
     simulate_power(COMPONENTS, Design(5, 5), Scenario(-0.05), rng=np.random.default_rng(1), n_replicates=37,
                    fitter="ols-log", progress=lambda done, total: calls.append((done, total)))
     assert calls[0] == (0, 37) and calls[-1] == (37, 37)
-    assert all(b[0] >= a[0] for a, b in zip(calls, calls[1:]))
+    assert all(b[0] >= a[0] for a, b in zip(calls, calls[1:], strict=False))
 
 
 def test_fitter_must_suit_the_family():
@@ -156,7 +156,7 @@ def test_simulated_detectable_change_matches_exact_noncentral_t():
 
     exact_slope = brentq(gap, 1e-6, 2.0)
     found = detectable_change(COMPONENTS, design, side="decline", method="simulation",
-                              rng=np.random.default_rng(17), n_replicates=400, fitter="ols-log")
+                              rng=np.random.default_rng(17), n_replicates=250, fitter="ols-log")
     assert found.annual_change < 0
     assert abs(math.log1p(found.annual_change)) == pytest.approx(exact_slope, rel=0.08)
     assert found.over_years == 7
