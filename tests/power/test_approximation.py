@@ -132,3 +132,18 @@ def test_approximation_refuses_too_few_surveys():
         gerrodette_linear_power(-0.1, 2, 0.2)
     with pytest.raises(DesignError):
         gerrodette_exponential_power(-0.1, 5, 0.0)
+
+
+def test_larger_quadrats_help_only_when_variance_falls_with_area():
+    # SD proportional to area^-b (user-supplied b): with b = 0 and a Poisson-lognormal whose
+    # Poisson part is negligible, quadrat size cannot change the yearly index variance
+    components = VarianceComponents(family="poisson-lognormal", intercept=math.log(500.0), station_sd=0.6,
+                                    observation_sd=0.4, quadrat_area=1.0)
+    scenario = Scenario.from_change(-0.3, 10)
+    small = approximate_power(components, Design(15, 6, quadrat_area=1.0), scenario)
+    flat = approximate_power(components, Design(15, 6, quadrat_area=4.0, area_exponent=0.0), scenario)
+    scaled = approximate_power(components, Design(15, 6, quadrat_area=4.0, area_exponent=0.5), scenario)
+    assert flat.power == pytest.approx(small.power, abs=0.01)
+    # b = 0.5, area x4: observation SD halves, 0.4 -> 0.2 (Poisson part ~ 1/500 and 1/2000 added)
+    assert scaled.sd_per_visit == pytest.approx(math.sqrt(0.2**2 + 1 / 2000), rel=0.02)
+    assert scaled.power > small.power
