@@ -50,5 +50,5 @@ def plot_power(results: Sequence[PowerResult], ax: Axes | None = None, target: f
     if results:
         s = results[0].scenario
         ax.set_title(f"Power to detect {s.annual_change:+.1%} a year ({s.side}, alpha {s.alpha:g})", fontsize=10)
-    ax.legend(loc="lower right", fontsize=8)
+    ax.legend(loc="best", fontsize=8)
     return figure
