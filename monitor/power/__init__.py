@@ -5,6 +5,23 @@ with the trend engine's fast path, Gerrodette's (1987) approximation beside it, 
 side by side, and the inverse questions (smallest number of stations or years, smallest
 detectable change).  See ``monitor.power.model`` for the population model and
 ``monitor.power.study`` for the test and the seeding.
+
+Example: "with 40 quadrats surveyed every year, can we detect a 50 % fall in 10 years?"::
+
+    import numpy as np
+    from monitor.power import (Design, Scenario, components_from_trend, simulate_power,
+                               smallest_design)
+
+    components = components_from_trend(trend_result)          # or VarianceComponents.from_mean(...)
+    scenario = Scenario.from_change(-0.5, over_years=10, alpha=0.05, side="decline")
+    result = simulate_power(components, Design(40, 11), scenario,
+                            rng=np.random.default_rng(2024), n_replicates=500, n_workers=2)
+    result.power, result.power_se, result.approximation.power
+    smallest_design(components, scenario, Design(40, 11), vary="n_stations",
+                    grid=range(10, 201, 10), rng=np.random.default_rng(2024)).value
+
+``Design(40, 11)`` is eleven seasons, year 0 to year 10, so that the 50 % fall happens
+within the surveys.
 """
 
 from monitor.power.approximation import (
