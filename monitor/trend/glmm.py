@@ -169,13 +169,14 @@ class _DenseDesign:
     except X itself.
     """
 
-    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st):
+    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st, XT=None):
         self.idx = terms_idx
         self.z = [zs * s for zs, s in zip(terms_z, scales)]
         self.nl = n_levels
         self.off = np.r_[0, np.cumsum(n_levels)].astype(int)
         self.m_re = int(self.off[-1])
         self.X = X
+        self.XT = None if X is None else (np.ascontiguousarray(X.T) if XT is None else XT)
         self.p = 0 if X is None else X.shape[1]
         self.m = self.m_re + self.p
         self.st, self.n_st = st, n_st
@@ -185,7 +186,8 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out += self.z[a] * v[self.off[a]:self.off[a + 1]][self.idx[a]]
         if self.p:
-            out += _xv(self.X, v[self.m_re:])
+            for k in range(self.p):
+                out += v[self.m_re + k] * self.XT[k]
         return out
 
     def rmatvec(self, r):
@@ -193,7 +195,7 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out[self.off[a]:self.off[a + 1]] = np.bincount(self.idx[a], weights=self.z[a] * r, minlength=self.nl[a])
         if self.p:
-            out[self.m_re:] = np.einsum("ij,i->j", self.X, r)
+            out[self.m_re:] = np.array([_dot(xk, r) for xk in self.XT])
         return out
 
     def gram(self, wt):
@@ -210,11 +212,11 @@ class _DenseDesign:
                 M[sa, sb] = blk
                 M[sb, sa] = blk.T
             if self.p:
-                blk = _bincount2(self.idx[a], self.nl[a], wa[:, None] * self.X)
+                blk = _bincount_cols(self.idx[a], self.nl[a], wa, self.XT)
                 M[sa, self.m_re:] = blk
                 M[self.m_re:, sa] = blk.T
         if self.p:
-            M[self.m_re:, self.m_re:] = np.einsum("ij,ik->jk", self.X, wt[:, None] * self.X)
+            M[self.m_re:, self.m_re:] = _gram_rows(self.XT, wt)
         return M
 
     def station_cross(self, wt):
@@ -225,8 +227,29 @@ class _DenseDesign:
                 self.st * self.nl[a] + self.idx[a], weights=wt * self.z[a],
                 minlength=self.n_st * self.nl[a]).reshape(self.n_st, self.nl[a])
         if self.p:
-            C[:, self.m_re:] = _bincount2(self.st, self.n_st, wt[:, None] * self.X)
+            C[:, self.m_re:] = _bincount_cols(self.st, self.n_st, wt, self.XT)
         return C
+
+
+def _dot(a, b) -> float:
+    """Inner product without BLAS (its threads cost more than they save on one vector)."""
+    return float(np.einsum("i,i->", a, b))
+
+
+def _bincount_cols(index, n_levels, w, XT):
+    """out[g, k] = sum_{i: index_i = g} w_i X[i, k], one bincount per column of X."""
+    return np.column_stack([np.bincount(index, weights=w * xk, minlength=n_levels) for xk in XT])
+
+
+def _gram_rows(XT, w):
+    """X' diag(w) X from the rows of X' (p small), without BLAS."""
+    p = XT.shape[0]
+    M = np.empty((p, p))
+    for j in range(p):
+        wx = w * XT[j]
+        for k in range(j + 1):
+            M[j, k] = M[k, j] = _dot(wx, XT[k])
+    return M
 
 
 def _bincount2(index, n_levels, values):
@@ -256,6 +279,7 @@ class LaplaceEngine:
         self.st = np.asarray(spec.station, dtype=np.int64)
         self.n_st = int(spec.n_station)
         self.X = np.asarray(spec.X, dtype=float)
+        self.XT = np.ascontiguousarray(self.X.T)
         self.p = self.X.shape[1]
         # the dense-block random terms: level index and value of each observation
         self.t_idx = [np.asarray(t.index, dtype=np.int64) for t in spec.terms]
@@ -304,7 +328,7 @@ class LaplaceEngine:
     # ------------------------------------------------------------------ linear algebra
     def _design(self, s_terms, full: bool) -> _DenseDesign:
         return _DenseDesign(self.t_idx, self.t_z, self.t_nl, s_terms, self.X if full else None,
-                            self.st, self.n_st)
+                            self.st, self.n_st, self.XT)
 
     def _factor(self, w, s_st, s_o, D: _DenseDesign) -> _Factor:
         f = _Factor()
@@ -373,7 +397,10 @@ class LaplaceEngine:
         s_st, s_terms, s_o = self.unpack(phi)
         full = beta is None
         D = self._design(s_terms, full)
-        base = self.offset if full else self.offset + _xv(self.X, beta)
+        base = self.offset.copy()
+        if not full:
+            for k in range(self.p):
+                base += beta[k] * self.XT[k]
         u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
         v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
         u_o = self.u_o.copy() if s_o > 0 else None
@@ -387,9 +414,9 @@ class LaplaceEngine:
             return e
 
         def h_of(eta, u_st, v, u_o):
-            pen = u_st @ u_st + v[:self.m_re] @ v[:self.m_re]
+            pen = _dot(u_st, u_st) + _dot(v[:self.m_re], v[:self.m_re])
             if u_o is not None:
-                pen += u_o @ u_o
+                pen += _dot(u_o, u_o)
             return float(np.sum(self.fam.loglik(eta)) - 0.5 * pen)
 
         eta = eta_of(u_st, v, u_o)
@@ -412,7 +439,7 @@ class LaplaceEngine:
             g_v[:self.m_re] -= v[:self.m_re]
             g_o = s_o * d1 - u_o if u_o is not None else None
             x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
-            decrement = float(g_st @ x_st + g_v @ x_v + (g_o @ x_o if u_o is not None else 0.0))
+            decrement = _dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
             if decrement < tol * max(1.0, abs(h)) * 1e-2 or decrement < 1e-13:
                 converged = True
                 break
