@@ -577,19 +577,32 @@ class _Result:
         self.x, self.fun, self.success, self.message, self.nit = x, fun, success, message, nit
 
 
-def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9):
+def _num_gradient(fun, x, h, f0):
+    g = np.zeros(len(x))
+    for i in range(len(x)):
+        e = np.zeros(len(x))
+        e[i] = h[i]
+        g[i] = (fun(x + e) - fun(x - e)) / (2 * h[i])
+    return g
+
+
+def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9, quasi=False):
     """Projected Newton's method with a central-difference Hessian, for a few bounded parameters.
 
     Parameters on a bound whose gradient points outwards are held there (active set);
     an indefinite Hessian is shifted to positive definite (Levenberg); steps are capped
-    at ``max_step`` and halved until the function decreases.
+    at ``max_step`` and halved until the function decreases.  With ``quasi`` the
+    finite-difference Hessian is computed once and then updated by BFGS from central
+    difference gradients (fewer evaluations; used by the fast path).
     """
     lo, hi = np.asarray(lo, float), np.asarray(hi, float)
     x = np.clip(np.asarray(x0, float), lo, hi)
     f0 = fun(x)
     msg, ok = "iteration limit", False
+    H = g = None
     for it in range(max_iter):
-        f0, g, H = num_hessian(fun, x, h, f0=f0)
+        if H is None or not quasi:
+            f0, g, H = num_hessian(fun, x, h, f0=f0)
         active = ((x <= lo + 1e-9) & (g > 0)) | ((x >= hi - 1e-9) & (g < 0))
         free = ~active
         if not np.any(free):
@@ -618,14 +631,27 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 break
             t *= 0.5
         if not improved:
+            if quasi and it > 0:
+                H = None  # refresh the Hessian by differences and try again
+                continue
             ok = decrement < 1e-6
             msg = "converged" if ok else "no further decrease along the Newton direction"
             break
         moved = np.max(np.abs(cand - x))
+        x_old, g_old = x, g
         x, f_prev, f0 = cand, f0, fc
         if f_prev - f0 < ftol or (f_prev - f0 < tol * 1e-2 and moved < 1e-7):
             ok, msg = True, "converged"
             break
+        if quasi:
+            g = _num_gradient(fun, x, h, f0)
+            s_, y_ = x - x_old, g - g_old
+            sy = float(s_ @ y_)
+            if sy > 1e-12:
+                Bs = H @ s_
+                H = H - np.outer(Bs, Bs) / float(s_ @ Bs) + np.outer(y_, y_) / sy
+            else:
+                H = None
     return _Result(x, f0, ok, msg, it + 1)
 
 
@@ -727,7 +753,7 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     if eng.n_phi <= 6:
         res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
                                np.full(eng.n_phi, 1e-3), tol=1e-8 if quick else 1e-11,
-                               ftol=1e-6 if quick else 1e-9)
+                               ftol=1e-6 if quick else 1e-9, quasi=quick)
     else:
         res1 = _bounded_minimize(obj1, phi0, bounds, hphi, ftol=1e-10 if quick else 1e-13,
                                  gtol=1e-4 if quick else 1e-7)
