@@ -76,13 +76,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg as la
+from scipy.linalg import lapack
 from scipy.optimize import minimize
 
 from monitor.errors import Diagnostic
 
 from .families import Family, Gaussian
 
-DEBUG = False
 LOG_SD_MIN = np.log(1e-5)   # lower bound of every log-SD (an SD of 1e-5 is "zero" on the link scale)
 LOG_SD_MAX = np.log(50.0)
 LOG_DISP_BOUNDS = {"negbin": (np.log(1e-3), np.log(1e7)), "gaussian": (np.log(1e-8), np.log(1e8))}
@@ -146,6 +146,22 @@ class GlmmFit:
 
 
 
+def _xv(A, v):
+    """A @ v without BLAS threading (which costs more than it saves on these thin arrays)."""
+    return np.einsum("ij,j->i", A, v)
+
+
+def _potrf(M):
+    """Lower Cholesky factor by LAPACK directly (the small dense block; low call overhead)."""
+    L, info = lapack.dpotrf(M, lower=1, clean=1, overwrite_a=0)
+    return L, info
+
+
+def _potrs(L, b):
+    x, info = lapack.dpotrs(L, b, lower=1)
+    return x
+
+
 class _DenseDesign:
     """The columns of the dense block: random terms (one non-zero per row) then, optionally, X.
 
@@ -153,13 +169,14 @@ class _DenseDesign:
     except X itself.
     """
 
-    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st):
+    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st, XT=None):
         self.idx = terms_idx
         self.z = [zs * s for zs, s in zip(terms_z, scales)]
         self.nl = n_levels
         self.off = np.r_[0, np.cumsum(n_levels)].astype(int)
         self.m_re = int(self.off[-1])
         self.X = X
+        self.XT = None if X is None else (np.ascontiguousarray(X.T) if XT is None else XT)
         self.p = 0 if X is None else X.shape[1]
         self.m = self.m_re + self.p
         self.st, self.n_st = st, n_st
@@ -169,7 +186,8 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out += self.z[a] * v[self.off[a]:self.off[a + 1]][self.idx[a]]
         if self.p:
-            out += self.X @ v[self.m_re:]
+            for k in range(self.p):
+                out += v[self.m_re + k] * self.XT[k]
         return out
 
     def rmatvec(self, r):
@@ -177,7 +195,7 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out[self.off[a]:self.off[a + 1]] = np.bincount(self.idx[a], weights=self.z[a] * r, minlength=self.nl[a])
         if self.p:
-            out[self.m_re:] = self.X.T @ r
+            out[self.m_re:] = np.array([_dot(xk, r) for xk in self.XT])
         return out
 
     def gram(self, wt):
@@ -194,11 +212,11 @@ class _DenseDesign:
                 M[sa, sb] = blk
                 M[sb, sa] = blk.T
             if self.p:
-                blk = _bincount2(self.idx[a], self.nl[a], wa[:, None] * self.X)
+                blk = _bincount_cols(self.idx[a], self.nl[a], wa, self.XT)
                 M[sa, self.m_re:] = blk
                 M[self.m_re:, sa] = blk.T
         if self.p:
-            M[self.m_re:, self.m_re:] = self.X.T @ (wt[:, None] * self.X)
+            M[self.m_re:, self.m_re:] = _gram_rows(self.XT, wt)
         return M
 
     def station_cross(self, wt):
@@ -209,8 +227,29 @@ class _DenseDesign:
                 self.st * self.nl[a] + self.idx[a], weights=wt * self.z[a],
                 minlength=self.n_st * self.nl[a]).reshape(self.n_st, self.nl[a])
         if self.p:
-            C[:, self.m_re:] = _bincount2(self.st, self.n_st, wt[:, None] * self.X)
+            C[:, self.m_re:] = _bincount_cols(self.st, self.n_st, wt, self.XT)
         return C
+
+
+def _dot(a, b) -> float:
+    """Inner product without BLAS (its threads cost more than they save on one vector)."""
+    return float(np.einsum("i,i->", a, b))
+
+
+def _bincount_cols(index, n_levels, w, XT):
+    """out[g, k] = sum_{i: index_i = g} w_i X[i, k], one bincount per column of X."""
+    return np.column_stack([np.bincount(index, weights=w * xk, minlength=n_levels) for xk in XT])
+
+
+def _gram_rows(XT, w):
+    """X' diag(w) X from the rows of X' (p small), without BLAS."""
+    p = XT.shape[0]
+    M = np.empty((p, p))
+    for j in range(p):
+        wx = w * XT[j]
+        for k in range(j + 1):
+            M[j, k] = M[k, j] = _dot(wx, XT[k])
+    return M
 
 
 def _bincount2(index, n_levels, values):
@@ -240,6 +279,7 @@ class LaplaceEngine:
         self.st = np.asarray(spec.station, dtype=np.int64)
         self.n_st = int(spec.n_station)
         self.X = np.asarray(spec.X, dtype=float)
+        self.XT = np.ascontiguousarray(self.X.T)
         self.p = self.X.shape[1]
         # the dense-block random terms: level index and value of each observation
         self.t_idx = [np.asarray(t.index, dtype=np.int64) for t in spec.terms]
@@ -288,7 +328,7 @@ class LaplaceEngine:
     # ------------------------------------------------------------------ linear algebra
     def _design(self, s_terms, full: bool) -> _DenseDesign:
         return _DenseDesign(self.t_idx, self.t_z, self.t_nl, s_terms, self.X if full else None,
-                            self.st, self.n_st)
+                            self.st, self.n_st, self.XT)
 
     def _factor(self, w, s_st, s_o, D: _DenseDesign) -> _Factor:
         f = _Factor()
@@ -304,15 +344,16 @@ class LaplaceEngine:
             C = D.station_cross(f.wt) * s_st
             f.C = C
             if s_st > 0:
-                M -= C.T @ (C / f.A[:, None])
+                M -= np.einsum("ij,ik->jk", C, C / f.A[:, None])
             M[np.arange(self.m_re), np.arange(self.m_re)] += 1.0
-            try:
-                f.L = la.cholesky(M, lower=True, check_finite=False)
-            except la.LinAlgError:
+            f.L, info = _potrf(M)
+            if info != 0:
                 # fixed effects not identified at this point: regularise slightly, flag it
                 f.ok = False
                 M[np.diag_indices(m)] += 1e-8 * (1.0 + np.abs(np.diag(M)))
-                f.L = la.cholesky(M, lower=True, check_finite=False)
+                f.L, info = _potrf(M)
+                if info != 0:
+                    raise np.linalg.LinAlgError("Newton matrix not positive definite")
             dg = np.log(np.diag(f.L))
             f.logdet_u = logdet + 2.0 * float(np.sum(dg[:self.m_re]))
             f.logdet_beta = 2.0 * float(np.sum(dg[self.m_re:]))
@@ -333,9 +374,9 @@ class LaplaceEngine:
                 r_v -= f.D.rmatvec(q)
         if f.m:
             if f.s_st > 0:
-                r_v -= f.C.T @ (r_st / f.A)
-            y = la.cho_solve((f.L, True), r_v, check_finite=False)
-            x_st = (r_st - f.C @ y) / f.A
+                r_v -= np.einsum("ij,i->j", f.C, r_st / f.A)
+            y = _potrs(f.L, r_v)
+            x_st = (r_st - _xv(f.C, y)) / f.A
         else:
             y = r_v
             x_st = r_st / f.A
@@ -356,7 +397,10 @@ class LaplaceEngine:
         s_st, s_terms, s_o = self.unpack(phi)
         full = beta is None
         D = self._design(s_terms, full)
-        base = self.offset if full else self.offset + self.X @ beta
+        base = self.offset.copy()
+        if not full:
+            for k in range(self.p):
+                base += beta[k] * self.XT[k]
         u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
         v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
         u_o = self.u_o.copy() if s_o > 0 else None
@@ -370,9 +414,9 @@ class LaplaceEngine:
             return e
 
         def h_of(eta, u_st, v, u_o):
-            pen = u_st @ u_st + v[:self.m_re] @ v[:self.m_re]
+            pen = _dot(u_st, u_st) + _dot(v[:self.m_re], v[:self.m_re])
             if u_o is not None:
-                pen += u_o @ u_o
+                pen += _dot(u_o, u_o)
             return float(np.sum(self.fam.loglik(eta)) - 0.5 * pen)
 
         eta = eta_of(u_st, v, u_o)
@@ -395,7 +439,7 @@ class LaplaceEngine:
             g_v[:self.m_re] -= v[:self.m_re]
             g_o = s_o * d1 - u_o if u_o is not None else None
             x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
-            decrement = float(g_st @ x_st + g_v @ x_v + (g_o @ x_o if u_o is not None else 0.0))
+            decrement = _dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
             if decrement < tol * max(1.0, abs(h)) * 1e-2 or decrement < 1e-13:
                 converged = True
                 break
@@ -435,7 +479,6 @@ class LaplaceEngine:
 
     # ------------------------------------------------------------------ objectives
     def loglik_profiled(self, phi) -> float:
-        if DEBUG: print("phi", phi)
         """Stage 1: Laplace log-likelihood with beta at the joint PIRLS mode (REML adds its term)."""
         self.n_eval += 1
         h, f, _, _ = self.pirls(phi)
@@ -502,7 +545,7 @@ def num_hessian(fun, x, h, f0=None):
     return f0, g, H
 
 
-def _bounded_minimize(fun, x0, bounds, h, maxiter=300):
+def _bounded_minimize(fun, x0, bounds, h, maxiter=300, ftol=1e-13, gtol=1e-7):
     """L-BFGS-B on ``fun`` with central-difference gradients (one-sided at a bound)."""
     lo = np.array([b[0] for b in bounds])
     hi = np.array([b[1] for b in bounds])
@@ -526,7 +569,90 @@ def _bounded_minimize(fun, x0, bounds, h, maxiter=300):
 
     x0 = np.clip(np.asarray(x0, float), lo, hi)
     return minimize(fg, x0, jac=True, method="L-BFGS-B", bounds=bounds,
-                    options={"maxiter": maxiter, "ftol": 1e-13, "gtol": 1e-7, "maxls": 40})
+                    options={"maxiter": maxiter, "ftol": ftol, "gtol": gtol, "maxls": 40})
+
+
+class _Result:
+    def __init__(self, x, fun, success, message, nit):
+        self.x, self.fun, self.success, self.message, self.nit = x, fun, success, message, nit
+
+
+def _num_gradient(fun, x, h, f0):
+    g = np.zeros(len(x))
+    for i in range(len(x)):
+        e = np.zeros(len(x))
+        e[i] = h[i]
+        g[i] = (fun(x + e) - fun(x - e)) / (2 * h[i])
+    return g
+
+
+def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9, quasi=False):
+    """Projected Newton's method with a central-difference Hessian, for a few bounded parameters.
+
+    Parameters on a bound whose gradient points outwards are held there (active set);
+    an indefinite Hessian is shifted to positive definite (Levenberg); steps are capped
+    at ``max_step`` and halved until the function decreases.  With ``quasi`` the
+    finite-difference Hessian is computed once and then updated by BFGS from central
+    difference gradients (fewer evaluations; used by the fast path).
+    """
+    lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+    x = np.clip(np.asarray(x0, float), lo, hi)
+    f0 = fun(x)
+    msg, ok = "iteration limit", False
+    H = g = None
+    for it in range(max_iter):
+        if H is None or not quasi:
+            f0, g, H = num_hessian(fun, x, h, f0=f0)
+        active = ((x <= lo + 1e-9) & (g > 0)) | ((x >= hi - 1e-9) & (g < 0))
+        free = ~active
+        if not np.any(free):
+            ok, msg = True, "all parameters on bounds"
+            break
+        gf, Hf = g[free], H[np.ix_(free, free)]
+        ev = np.linalg.eigvalsh(Hf)
+        if ev.min() <= 1e-8 * max(1.0, abs(ev.max())):
+            Hf = Hf + (abs(ev.min()) + 1e-3 * max(1.0, abs(ev.max()))) * np.eye(len(gf))
+        step_f = -np.linalg.solve(Hf, gf)
+        decrement = float(-gf @ step_f)
+        if decrement < tol:
+            ok, msg = True, "converged"
+            break
+        big = np.max(np.abs(step_f))
+        if big > max_step:
+            step_f *= max_step / big
+        step = np.zeros_like(x)
+        step[free] = step_f
+        t, improved = 1.0, False
+        for _h in range(40):
+            cand = np.clip(x + t * step, lo, hi)
+            fc = fun(cand)
+            if np.isfinite(fc) and fc < f0:
+                improved = True
+                break
+            t *= 0.5
+        if not improved:
+            if quasi and it > 0:
+                H = None  # refresh the Hessian by differences and try again
+                continue
+            ok = decrement < 1e-6
+            msg = "converged" if ok else "no further decrease along the Newton direction"
+            break
+        moved = np.max(np.abs(cand - x))
+        x_old, g_old = x, g
+        x, f_prev, f0 = cand, f0, fc
+        if f_prev - f0 < ftol or (f_prev - f0 < tol * 1e-2 and moved < 1e-7):
+            ok, msg = True, "converged"
+            break
+        if quasi:
+            g = _num_gradient(fun, x, h, f0)
+            s_, y_ = x - x_old, g - g_old
+            sy = float(s_ @ y_)
+            if sy > 1e-12:
+                Bs = H @ s_
+                H = H - np.outer(Bs, Bs) / float(s_ @ Bs) + np.outer(y_, y_) / sy
+            else:
+                H = None
+    return _Result(x, f0, ok, msg, it + 1)
 
 
 def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = 100):
@@ -539,8 +665,8 @@ def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max
     for _ in range(max_iter):
         eta = off + X @ beta
         d, w = family.derivs(eta)
-        g = X.T @ d
-        H = X.T @ (w[:, None] * X) + 1e-10 * np.eye(p)
+        g = np.einsum("ij,i->j", X, d)
+        H = np.einsum("ij,ik->jk", X, w[:, None] * X) + 1e-10 * np.eye(p)
         step = np.linalg.solve(H, g)
         t = 1.0
         for _h in range(40):
@@ -622,7 +748,15 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     bounds = eng.bounds()
     hphi = np.full(eng.n_phi, 1e-4)
     # --- stage 1: variance parameters, beta at the PIRLS mode
-    res1 = _bounded_minimize(lambda x: -eng.loglik_profiled(x), phi0, bounds, hphi)
+    quick = not (stage2 or hessian)
+    obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
+    if eng.n_phi <= 6:
+        res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
+                               np.full(eng.n_phi, 1e-3), tol=1e-8 if quick else 1e-11,
+                               ftol=1e-6 if quick else 1e-9, quasi=quick)
+    else:
+        res1 = _bounded_minimize(obj1, phi0, bounds, hphi, ftol=1e-10 if quick else 1e-13,
+                                 gtol=1e-4 if quick else 1e-7)
     phi = np.asarray(res1.x)
     ll = eng.loglik_profiled(phi)
     beta = eng.beta.copy()
@@ -776,8 +910,8 @@ def _ml_at(eng: LaplaceEngine, phi) -> float:
 
 def _conditional_vcov(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
     """(X' V^-1 X)^-1: the inverse of beta's Schur complement in the joint Newton matrix."""
-    L = f.L[eng.m_re:, eng.m_re:]
-    Li = la.solve_triangular(L, np.eye(L.shape[0]), lower=True)
+    L = np.ascontiguousarray(f.L[eng.m_re:, eng.m_re:])
+    Li = np.linalg.inv(L)
     return Li.T @ Li
 
 

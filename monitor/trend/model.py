@@ -426,7 +426,7 @@ class TrendModel:
         return fit_glmm(spec, reml=self.reml, n_agq=n_agq, hessian=full, stage2=full or n_agq > 1, **kw)
 
     # ------------------------------------------------------------------ fit
-    def fit(self, profile: bool = True, indices: bool = True) -> TrendResult:
+    def fit(self, profile: bool = True, indices: bool = True, fast: bool | None = None) -> TrendResult:
         """Fit the model.
 
         Parameters
@@ -435,9 +435,13 @@ class TrendModel:
             Also compute the profile-likelihood interval of the slope.
         indices : bool
             Also fit the year-as-factor model and report yearly indices.
-            ``profile=False, indices=False`` is the fast path (for power analysis): the
-            fixed effects are the joint penalised mode at the ML variance estimates
-            (lme4's nAGQ = 0 estimator) with conditional standard errors.
+        fast : bool, optional
+            The fast path (for power analysis), by default taken when ``profile`` and
+            ``indices`` are both False: the fixed effects are the joint penalised mode at
+            the Laplace ML variance estimates (lme4's nAGQ = 0 estimator) with conditional
+            standard errors (X' V^-1 X)^-1.  ``fast=False`` gives the full Laplace / AGQ
+            maximum likelihood estimate with Hessian standard errors (the default whenever
+            a profile or indices are asked for).  The Gaussian (cover) model is exact either way.
 
         Returns
         -------
@@ -453,7 +457,7 @@ class TrendModel:
         fam_check, _ = self._response()
         if np.all(fam_check.y == fam_check.y[0]) and self.family != "logit-normal":
             raise EstimationError(f"every value of {self.measure} is the same ({fam_check.y[0]:g}); there is no trend to fit")
-        full = profile or indices
+        full = (profile or indices) if fast is None else not fast
         spec_lin, t, eps = self._spec("linear")
         fit_lin = self._fit_spec(spec_lin, full)
         j = spec_lin.x_names.index(SLOPE)

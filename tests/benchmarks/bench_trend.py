@@ -1,0 +1,95 @@
+"""Benchmark of the trend engine (not part of the test run).
+
+1. An invented programme of 2,000 stations in 20 sites over 25 years (about 50,000
+   visits), Poisson-lognormal counts with site and station intercepts.  Our maximum
+   likelihood fit (Laplace) is timed beside statsmodels' PoissonBayesMixedGLM
+   (variational Bayes, fit_vb) on the same data and the same random-effect structure
+   (site, station and observation-level variance components), in the same run; the
+   ratio is printed.
+2. 50 species of a demo-sized programme (60 stations x 12 years): the whole-run time of
+   the full fit (profile interval and yearly indices) and of the fast path.
+
+    PYTHONPATH=. python tests/benchmarks/bench_trend.py [--quick]
+
+--quick uses 500 stations (about 12,500 visits) for a faster look.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from monitor.trend import TrendModel
+
+
+def big_programme(rng: np.random.Generator, n_station=2000, n_site=20, n_year=25, visit_rate=1.0):
+    st = np.repeat(np.arange(n_station), n_year)
+    yr = np.tile(np.arange(2000, 2000 + n_year), n_station)
+    site = st % n_site
+    keep = rng.random(len(st)) < visit_rate
+    st, yr, site = st[keep], yr[keep], site[keep]
+    eta = (1.0 - 0.02 * (yr - 2012) + rng.normal(0, 0.6, n_station)[st] + rng.normal(0, 0.4, n_site)[site]
+           + rng.normal(0, 0.3, len(st)))
+    return pd.DataFrame({"station": st, "site": site, "year": yr, "count": rng.poisson(np.exp(eta))})
+
+
+def time_ours(d: pd.DataFrame, **fit_kw):
+    t0 = time.perf_counter()
+    r = TrendModel(d, "count", family="poisson-lognormal").fit(**fit_kw)
+    return time.perf_counter() - t0, r
+
+
+def time_statsmodels(d: pd.DataFrame):
+    from statsmodels.genmod.bayes_mixed_glm import PoissonBayesMixedGLM
+
+    d = d.assign(t=d["year"] - 2012.0, obs=np.arange(len(d)))
+    t0 = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        m = PoissonBayesMixedGLM.from_formula(
+            "count ~ t", {"site": "0 + C(site)", "station": "0 + C(station)", "obs": "0 + C(obs)"}, d)
+        f = m.fit_vb()
+    return time.perf_counter() - t0, f
+
+
+def main(quick: bool = False) -> None:
+    rng = np.random.default_rng(20240601)
+    n_station = 500 if quick else 2000
+    d = big_programme(rng, n_station=n_station)
+    print(f"programme: {len(d)} visits, {d.station.nunique()} stations, {d.site.nunique()} sites, "
+          f"{d.year.nunique()} years")
+    t_fast, r_fast = time_ours(d, profile=False, indices=False)
+    t_full, r_full = time_ours(d, profile=False, indices=False, fast=True)
+    t_ml, r_ml = time_ours(d, profile=False, indices=False, fast=False)
+    print(f"ours, fast path          : {t_fast:8.2f} s  slope {r_fast.slope:+.5f} (se {r_fast.slope_se:.5f}) "
+          f"SDs {', '.join(f'{k} {v:.3f}' for k, v in r_fast.random_sd.items())}")
+    print(f"ours, Laplace ML + Hessian: {t_ml:8.2f} s  slope {r_ml.slope:+.5f} (se {r_ml.slope_se:.5f}) "
+          f"loglik {r_ml.loglik:.2f}")
+    t_sm, f_sm = time_statsmodels(d)
+    k = list(f_sm.model.exog_names).index("t")
+    sds = np.exp(f_sm.vcp_mean)
+    print(f"statsmodels PoissonBayesMixedGLM.fit_vb: {t_sm:8.2f} s  slope {f_sm.fe_mean[k]:+.5f} "
+          f"(sd {f_sm.fe_sd[k]:.5f}) SDs {', '.join(f'{n} {v:.3f}' for n, v in zip(f_sm.model.vcp_names, sds))}")
+    print(f"ratio statsmodels / ours: fast path {t_sm / t_fast:.1f}x, Laplace ML + Hessian {t_sm / t_ml:.1f}x")
+
+    # 50 species of a demo-sized programme
+    t_all_full = t_all_fast = 0.0
+    for sp in range(50):
+        rs = np.random.default_rng(1000 + sp)
+        ds = big_programme(rs, n_station=60, n_site=6, n_year=12, visit_rate=0.9)
+        t0 = time.perf_counter()
+        TrendModel(ds, "count").fit(profile=True, indices=True)
+        t_all_full += time.perf_counter() - t0
+        t0 = time.perf_counter()
+        TrendModel(ds, "count").fit(profile=False, indices=False)
+        t_all_fast += time.perf_counter() - t0
+    print(f"50 species, 60 stations x 12 years: full fits (profile + indices) {t_all_full:.1f} s, "
+          f"fast path {t_all_fast:.1f} s")
+
+
+if __name__ == "__main__":
+    main(quick="--quick" in sys.argv)
