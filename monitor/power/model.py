@@ -175,6 +175,8 @@ def _first_year_level(result: object) -> float:
             break
     else:
         raise EstimationError("the trend result carries no intercept; give the mean level instead")
+    if getattr(result, "year_effect", "linear") == "factor":
+        return b0  # level of the base year (the first year unless the analyst chose another)
     centre = getattr(result, "year_centre", None)
     first = result.years[0]
     if centre is None:
