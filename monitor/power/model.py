@@ -69,6 +69,10 @@ class VarianceComponents:
         Reference quadrat area [m^2] at which these components hold.
     stations_per_site : float
         Used to set the number of sites when a design does not give it.
+    cover_resolution : float or None
+        Logit-normal only: cover is recorded to this step [percent] (e.g. 1), so small covers
+        round to 0 as in the field; None keeps it continuous.  The trend engine adjusts the
+        logit by the smallest non-zero cover, so the recording step changes the analysis.
     """
 
     family: str
@@ -82,6 +86,7 @@ class VarianceComponents:
     measure: str | None = None
     quadrat_area: float | None = None
     stations_per_site: float = 10.0
+    cover_resolution: float | None = None
 
     def __post_init__(self) -> None:
         if self.family not in FAMILIES:
@@ -96,6 +101,8 @@ class VarianceComponents:
             raise DesignError(f"{self.family} needs residual_sd > 0")
         if self.trials < 1:
             raise DesignError("trials must be at least 1")
+        if self.cover_resolution is not None and not 0 < self.cover_resolution <= 50:
+            raise DesignError("cover_resolution must lie in (0, 50] percent")
         if self.stations_per_site <= 0:
             raise DesignError("stations_per_site must be positive")
         if self.measure is None:

@@ -85,7 +85,11 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
             frame[col.CELLS] = np.full(n, components.trials)
     elif family == "logit-normal":
         z = eta + rng.normal(0.0, 1.0, n) * s["residual_sd"]
-        frame[col.COVER] = 100.0 / (1.0 + np.exp(-z))
+        cover = 100.0 / (1.0 + np.exp(-z))
+        if components.cover_resolution is not None:
+            step = components.cover_resolution
+            cover = np.clip(np.round(cover / step) * step, 0.0, 100.0)
+        frame[col.COVER] = cover
     else:  # pragma: no cover - VarianceComponents validates the family
         raise AssertionError(family)
     return pd.DataFrame(frame)

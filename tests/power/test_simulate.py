@@ -65,6 +65,16 @@ def test_logit_normal_cover_on_the_logit_scale():
     assert ((data[col.COVER] > 0) & (data[col.COVER] < 100)).all()
 
 
+def test_cover_recorded_to_a_step():
+    components = VarianceComponents(family="logit-normal", intercept=-4.0, residual_sd=1.0, cover_resolution=1.0)
+    data = simulate_dataset(components, Design(2000, 2), Scenario(0.0), np.random.default_rng(5))
+    cover = data[col.COVER].to_numpy()
+    assert np.allclose(cover, np.round(cover))
+    # P(cover < 0.5 %) = Phi((logit(0.005) + 4) / 1) = Phi(-1.29) = 0.0980 (scipy.stats.norm 1.17)
+    share_zero = np.mean(cover == 0)
+    assert abs(share_zero - 0.0980) < 4 * math.sqrt(0.0980 * 0.9020 / len(cover))
+
+
 def test_missed_visits_are_dropped_never_zeroed():
     components = VarianceComponents(family="poisson", intercept=math.log(50.0))
     data = simulate_dataset(components, Design(1000, 10, missed_share=0.2), Scenario(0.0),
