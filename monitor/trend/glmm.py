@@ -440,7 +440,17 @@ class LaplaceEngine:
             g_o = s_o * d1 - u_o if u_o is not None else None
             x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
             decrement = _dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
-            if decrement < tol * max(1.0, abs(h)) * 1e-2 or decrement < 1e-13:
+            if decrement < 1e-7:
+                # close enough for Newton's quadratic convergence: take this last full step
+                # and factor at the new point, so that the log-determinant (which is first
+                # order in any error of u) is evaluated at the mode to machine precision
+                u_st = u_st + x_st
+                v = v + x_v
+                u_o = u_o + x_o if u_o is not None else None
+                eta = eta_of(u_st, v, u_o)
+                h = h_of(eta, u_st, v, u_o)
+                d1, w = self.fam.derivs(eta)
+                f = self._factor(w, s_st, s_o, D)
                 converged = True
                 break
             step = 1.0
@@ -456,9 +466,6 @@ class LaplaceEngine:
             else:
                 break
             u_st, v, u_o, eta, h = n_st_, n_v, n_o, n_eta, n_h
-            if decrement < 1e-9 and step == 1.0:
-                # quadratic convergence: one more step with a fresh factor is below noise
-                pass
         else:
             d1, w = self.fam.derivs(eta)
             f = self._factor(w, s_st, s_o, D)
@@ -600,8 +607,11 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
     f0 = fun(x)
     msg, ok = "iteration limit", False
     H = g = None
+    fresh = False
     for it in range(max_iter):
-        if H is None or not quasi:
+        scale = max(1.0, abs(f0))
+        fresh = H is None or not quasi
+        if fresh:
             f0, g, H = num_hessian(fun, x, h, f0=f0)
         active = ((x <= lo + 1e-9) & (g > 0)) | ((x >= hi - 1e-9) & (g < 0))
         free = ~active
@@ -609,12 +619,13 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
             ok, msg = True, "all parameters on bounds"
             break
         gf, Hf = g[free], H[np.ix_(free, free)]
-        ev = np.linalg.eigvalsh(Hf)
-        if ev.min() <= 1e-8 * max(1.0, abs(ev.max())):
-            Hf = Hf + (abs(ev.min()) + 1e-3 * max(1.0, abs(ev.max()))) * np.eye(len(gf))
-        step_f = -np.linalg.solve(Hf, gf)
+        # Newton step with the absolute eigenvalues (a saddle-free step where the
+        # likelihood is not concave), floored to keep the step finite
+        ev, vec = np.linalg.eigh((Hf + Hf.T) / 2)
+        lam = np.maximum(np.abs(ev), 1e-6 * max(1e-8, np.abs(ev).max()))
+        step_f = -vec @ ((vec.T @ gf) / lam)
         decrement = float(-gf @ step_f)
-        if decrement < tol:
+        if decrement < tol * scale:
             ok, msg = True, "converged"
             break
         big = np.max(np.abs(step_f))
@@ -631,16 +642,17 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 break
             t *= 0.5
         if not improved:
-            if quasi and it > 0:
+            if quasi and not fresh:
                 H = None  # refresh the Hessian by differences and try again
                 continue
-            ok = decrement < 1e-6
+            # no decrease at all: at the optimum to within the noise of the evaluations
+            ok = decrement < 1e-6 * scale
             msg = "converged" if ok else "no further decrease along the Newton direction"
             break
         moved = np.max(np.abs(cand - x))
         x_old, g_old = x, g
         x, f_prev, f0 = cand, f0, fc
-        if f_prev - f0 < ftol or (f_prev - f0 < tol * 1e-2 and moved < 1e-7):
+        if f_prev - f0 < ftol * scale or (f_prev - f0 < tol * 1e-2 * scale and moved < 1e-7):
             ok, msg = True, "converged"
             break
         if quasi:
@@ -752,8 +764,8 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
     if eng.n_phi <= 6:
         res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
-                               np.full(eng.n_phi, 1e-3), tol=1e-8 if quick else 1e-11,
-                               ftol=1e-6 if quick else 1e-9, quasi=quick)
+                               np.full(eng.n_phi, 1e-3), tol=1e-10 if quick else 1e-13,
+                               ftol=1e-9 if quick else 1e-12, quasi=quick)
     else:
         res1 = _bounded_minimize(obj1, phi0, bounds, hphi, ftol=1e-10 if quick else 1e-13,
                                  gtol=1e-4 if quick else 1e-7)
@@ -858,7 +870,8 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
         else:
             step = -la.cho_solve((Lc, True), g)
         decrement = float(-g @ step)
-        if Lc is not None and decrement < 1e-9:
+        scale = max(1e3, abs(f0))
+        if Lc is not None and decrement < 1e-12 * scale:
             ok, msg, Hfin = True, "converged", H
             break
         t = 1.0
@@ -871,7 +884,7 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
                 break
             t *= 0.5
         if not improved:
-            ok = Lc is not None and decrement < 1e-5
+            ok = Lc is not None and decrement < 1e-8 * scale
             msg = "no further improvement" if not ok else "converged"
             Hfin = H if Lc is not None else None
             break
