@@ -171,7 +171,7 @@ class _DenseDesign:
 
     def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st, XT=None):
         self.idx = terms_idx
-        self.z = [zs * s for zs, s in zip(terms_z, scales)]
+        self.z = [zs * s for zs, s in zip(terms_z, scales, strict=False)]
         self.nl = n_levels
         self.off = np.r_[0, np.cumsum(n_levels)].astype(int)
         self.m_re = int(self.off[-1])
@@ -519,15 +519,6 @@ class LaplaceEngine:
 
 
 # ---------------------------------------------------------------------- helpers
-def _num_grad(fun, x, h):
-    g = np.zeros_like(x)
-    for i in range(len(x)):
-        e = np.zeros_like(x)
-        e[i] = h[i]
-        g[i] = (fun(x + e) - fun(x - e)) / (2 * h[i])
-    return g
-
-
 def num_hessian(fun, x, h, f0=None):
     """Central-difference gradient and Hessian of a scalar function (4-point formula off the diagonal).
 
@@ -608,7 +599,7 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
     msg, ok = "iteration limit", False
     H = g = None
     fresh = False
-    for it in range(max_iter):
+    for _it in range(max_iter):
         scale = max(1.0, abs(f0))
         fresh = H is None or not quasi
         if fresh:
@@ -664,7 +655,7 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 H = H - np.outer(Bs, Bs) / float(s_ @ Bs) + np.outer(y_, y_) / sy
             else:
                 H = None
-    return _Result(x, f0, ok, msg, it + 1)
+    return _Result(x, f0, ok, msg, _it + 1)
 
 
 def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = 100):
@@ -734,14 +725,12 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     eng = LaplaceEngine(spec, reml=reml, n_agq=n_agq)
     diags: list[Diagnostic] = []
     # --- starting values from a GLM
-    beta0 = glm_fit_start = None
     if start_beta is not None:
         beta0 = np.asarray(start_beta, float)
     else:
         if fam.has_dispersion and fam.dispersion is None:
             fam.dispersion = 1.0
         beta0 = glm_fit(fam, spec.X, eng.offset)
-        glm_fit_start = beta0
     eng.beta = beta0.copy()
     if start is not None:
         phi0 = np.asarray(start, float).copy()
@@ -778,7 +767,6 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         diags.append(Diagnostic("not_converged", f"The search over the variance parameters stopped early ({res1.message})."))
     do_stage2 = (not gaussian) and (stage2 or n_agq > 1)
     names = spec.sd_names()
-    k = eng.n_phi
     vcov = _conditional_vcov(eng.last_factor, eng)
     vcov_method = "conditional"
     if do_stage2:
@@ -816,7 +804,7 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
                                 f"reach full precision {eng.pirls_failures} time(s).", "info"))
     eng.unpack(phi)
-    sd = {nm: float(np.exp(v)) for nm, v in zip(names, phi[:eng.n_sd])}
+    sd = {nm: float(np.exp(v)) for nm, v in zip(names, phi[:eng.n_sd], strict=False)}
     n_par = eng.p + eng.n_phi
     return GlmmFit(beta=beta, vcov=vcov, x_names=list(spec.x_names), sd=sd,
                    dispersion=(float(fam.dispersion) if fam.has_dispersion else None),
@@ -851,7 +839,7 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
 
     xs = x[free].copy()
     if len(free) > NEWTON_MAX_DIM:
-        bnd = list(zip(lo[free], hi[free]))
+        bnd = list(zip(lo[free], hi[free], strict=False))
         res = _bounded_minimize(fun, xs, bnd, step_h / 20)
         x[free] = res.x
         ok = bool(res.success or "REL_REDUCTION" in str(res.message))
@@ -926,7 +914,3 @@ def _conditional_vcov(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
     L = np.ascontiguousarray(f.L[eng.m_re:, eng.m_re:])
     Li = np.linalg.inv(L)
     return Li.T @ Li
-
-
-def _conditional_se(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
-    return np.sqrt(np.diag(_conditional_vcov(f, eng)))
