@@ -789,6 +789,11 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         if hessian:
             if H_info is not None:
                 vcov, vcov_method = H_info, "hessian"
+            elif len(beta) + eng.n_phi > NEWTON_MAX_DIM:
+                diags.append(Diagnostic("conditional_se",
+                                        f"With {len(beta)} fixed effects the standard errors use the conditional "
+                                        "information at the estimates (X' V^-1 X)^-1 rather than the full Hessian.",
+                                        "info"))
             else:
                 diags.append(Diagnostic("hessian_not_positive",
                                         "The likelihood's curvature matrix is not positive definite (or was not "
