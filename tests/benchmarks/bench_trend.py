@@ -6,9 +6,10 @@
    (variational Bayes, fit_vb) on the same data, in the same run; the ratios are
    printed.  fit_vb runs with fit_method="L-BFGS-B": with its default (BFGS) it stops at
    once on these data with a meaningless answer (slope about 0, SDs 1).  statsmodels gets site and station variance components only:
-   with the observation-level component as well (one random effect per visit) its
-   fit_vb holds a dense BFGS matrix over every random effect's mean and SD and needed
-   16 GB of memory at 12,500 visits, so that comparison cannot be run.  Our
+   with the observation-level component as well (one random effect per visit) fit_vb
+   with its default BFGS held a dense matrix over every random effect's mean and SD and
+   needed 16 GB of memory at 12,500 visits, and with L-BFGS-B it is slower still, so that
+   comparison is not run.  Our
    Poisson-lognormal fit (with the observation-level effect) and our Poisson fit with
    exactly statsmodels' structure are both timed.
 2. 50 species of a demo-sized programme (60 stations x 12 years): the whole-run time of
