@@ -51,11 +51,15 @@ Newton's system  H [u_obs, u_station, v] = g  is solved by block elimination: th
 observation-level effects (diagonal) are eliminated first, which only rescales the
 weights, w~_i = w_i / (1 + sd_obs^2 w_i); then the station intercepts (diagonal, since
 a station touches only its own rows), which leaves a small dense Schur complement over
-v = (site, site-slope and observer effects, and beta).  All sums over a station's rows
-are np.bincount / sparse products, so one Newton step costs O(n) and no n x n matrix
-is formed; crossed observer effects live in the dense block, which is formed from
-sparse products (scipy.sparse).  log det(H) = sum log(1 + sd_obs^2 w_i) +
-sum log A_j + log det(dense Schur block).
+v = (site, site-slope and observer effects, and beta).  This is a sparse Cholesky
+factorisation in which the fill-in is confined to v: all sums over a station's or a
+level's rows are np.bincount calls, so one Newton step costs O(n + n_station * m + m^3)
+with m = len(v), and no n x n (or n_station x n_station) matrix is ever formed.
+Crossed observer effects live in the dense block, which is exact for any crossing
+pattern and cheap while there are up to a few hundred observers and sites (the usual
+case in a monitoring programme); a general sparse factorisation would be needed
+only for crossed factors with thousands of levels.
+log det(H) = sum log(1 + sd_obs^2 w_i) + sum log A_j + log det(dense Schur block).
 
 References
 ----------
