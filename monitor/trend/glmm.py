@@ -753,7 +753,10 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     bounds = eng.bounds()
     hphi = np.full(eng.n_phi, 1e-4)
     # --- stage 1: variance parameters, beta at the PIRLS mode
-    quick = not (stage2 or hessian)
+    # stage 1 only has to be precise when it is the answer (fast path: enough for the
+    # power analysis; Gaussian family: exact ML / REML); otherwise stage 2 refines it
+    will_refine = (not gaussian) and (stage2 or n_agq > 1)
+    quick = not (stage2 or hessian) or will_refine
     obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
     if eng.n_phi <= 6:
         res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
@@ -853,16 +856,15 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
         x[free] = res.x
         ok = bool(res.success or "REL_REDUCTION" in str(res.message))
         return x[:k], x[k:], -fun(res.x), None, ok, str(res.message)
-    f0 = fun(xs)
+    f0, g, H = num_hessian(fun, xs, step_h)
     ok, msg, Hfin = False, "iteration limit", None
-    for _ in range(12):
-        f0, g, H = num_hessian(fun, xs, step_h, f0=f0)
+    for _ in range(20):
         try:
             Lc = np.linalg.cholesky(H)
         except np.linalg.LinAlgError:
             Lc = None
         if Lc is None:
-            # not locally convex: a short gradient step scaled by the conditional curvature
+            # not locally convex: a short gradient step scaled by the step sizes
             step = -g * step_h ** 2 * 10
         else:
             step = -la.cho_solve((Lc, True), g)
@@ -886,6 +888,12 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
             Hfin = H if Lc is not None else None
             break
         xs, f0 = cand, fc
+        if Lc is not None and decrement < 1e-2:
+            # close: keep this Hessian (it changes by O(step)) and refresh only the gradient;
+            # it is then also accurate enough for the standard errors
+            g = _num_gradient(fun, xs, step_h, f0)
+        else:
+            f0, g, H = num_hessian(fun, xs, step_h, f0=f0)
     x[free] = xs
     vb = None
     if want_hessian and Hfin is not None:
