@@ -146,3 +146,14 @@ def test_no_database_or_cli_imports():
     code = "import sys, monitor.trend; print(any(m.split('.')[0] in ('sqlalchemy','sqlmodel','alembic','click') for m in sys.modules))"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
+
+
+def test_station_codes_reused_across_sites_are_distinct(glmm_data):
+    # the same fit whether station codes are unique or only unique within their site
+    d = glmm_data.copy()
+    d2 = d.assign(station=d["station"].str.split("-").str[1])  # "01".."05" in every site
+    a = TrendModel(d, "count", family="poisson").fit(profile=False, indices=False)
+    b = TrendModel(d2, "count", family="poisson").fit(profile=False, indices=False)
+    assert b.n_stations == a.n_stations == 40
+    assert b.slope == pytest.approx(a.slope, rel=1e-8)
+    assert b.loglik == pytest.approx(a.loglik, abs=1e-8)
