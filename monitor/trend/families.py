@@ -102,7 +102,7 @@ class NegativeBinomial(Family):
     def loglik(self, eta):
         th = self.dispersion
         eta = np.minimum(eta, _ETA_MAX)
-        mu = np.exp(eta)
+        np.exp(eta)
         log_tm = np.logaddexp(np.log(th), eta)  # log(theta + mu)
         return (gammaln(self.y + th) - gammaln(th) + self._const
                 + th * (np.log(th) - log_tm) + self.y * (eta - log_tm))

@@ -51,11 +51,15 @@ Newton's system  H [u_obs, u_station, v] = g  is solved by block elimination: th
 observation-level effects (diagonal) are eliminated first, which only rescales the
 weights, w~_i = w_i / (1 + sd_obs^2 w_i); then the station intercepts (diagonal, since
 a station touches only its own rows), which leaves a small dense Schur complement over
-v = (site, site-slope and observer effects, and beta).  All sums over a station's rows
-are np.bincount / sparse products, so one Newton step costs O(n) and no n x n matrix
-is formed; crossed observer effects live in the dense block, which is formed from
-sparse products (scipy.sparse).  log det(H) = sum log(1 + sd_obs^2 w_i) +
-sum log A_j + log det(dense Schur block).
+v = (site, site-slope and observer effects, and beta).  This is a sparse Cholesky
+factorisation in which the fill-in is confined to v: all sums over a station's or a
+level's rows are np.bincount calls, so one Newton step costs O(n + n_station * m + m^3)
+with m = len(v), and no n x n (or n_station x n_station) matrix is ever formed.
+Crossed observer effects live in the dense block, which is exact for any crossing
+pattern and cheap while there are up to a few hundred observers and sites (the usual
+case in a monitoring programme); a general sparse factorisation would be needed
+only for crossed factors with thousands of levels.
+log det(H) = sum log(1 + sd_obs^2 w_i) + sum log A_j + log det(dense Schur block).
 
 References
 ----------
@@ -169,13 +173,14 @@ class _DenseDesign:
     except X itself.
     """
 
-    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st):
+    def __init__(self, terms_idx, terms_z, n_levels, scales, X, st, n_st, XT=None):
         self.idx = terms_idx
-        self.z = [zs * s for zs, s in zip(terms_z, scales)]
+        self.z = [zs * s for zs, s in zip(terms_z, scales, strict=False)]
         self.nl = n_levels
         self.off = np.r_[0, np.cumsum(n_levels)].astype(int)
         self.m_re = int(self.off[-1])
         self.X = X
+        self.XT = None if X is None else (np.ascontiguousarray(X.T) if XT is None else XT)
         self.p = 0 if X is None else X.shape[1]
         self.m = self.m_re + self.p
         self.st, self.n_st = st, n_st
@@ -185,7 +190,8 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out += self.z[a] * v[self.off[a]:self.off[a + 1]][self.idx[a]]
         if self.p:
-            out += _xv(self.X, v[self.m_re:])
+            for k in range(self.p):
+                out += v[self.m_re + k] * self.XT[k]
         return out
 
     def rmatvec(self, r):
@@ -193,7 +199,7 @@ class _DenseDesign:
         for a in range(len(self.idx)):
             out[self.off[a]:self.off[a + 1]] = np.bincount(self.idx[a], weights=self.z[a] * r, minlength=self.nl[a])
         if self.p:
-            out[self.m_re:] = np.einsum("ij,i->j", self.X, r)
+            out[self.m_re:] = np.array([_dot(xk, r) for xk in self.XT])
         return out
 
     def gram(self, wt):
@@ -210,11 +216,11 @@ class _DenseDesign:
                 M[sa, sb] = blk
                 M[sb, sa] = blk.T
             if self.p:
-                blk = _bincount2(self.idx[a], self.nl[a], wa[:, None] * self.X)
+                blk = _bincount_cols(self.idx[a], self.nl[a], wa, self.XT)
                 M[sa, self.m_re:] = blk
                 M[self.m_re:, sa] = blk.T
         if self.p:
-            M[self.m_re:, self.m_re:] = np.einsum("ij,ik->jk", self.X, wt[:, None] * self.X)
+            M[self.m_re:, self.m_re:] = _gram_rows(self.XT, wt)
         return M
 
     def station_cross(self, wt):
@@ -225,8 +231,29 @@ class _DenseDesign:
                 self.st * self.nl[a] + self.idx[a], weights=wt * self.z[a],
                 minlength=self.n_st * self.nl[a]).reshape(self.n_st, self.nl[a])
         if self.p:
-            C[:, self.m_re:] = _bincount2(self.st, self.n_st, wt[:, None] * self.X)
+            C[:, self.m_re:] = _bincount_cols(self.st, self.n_st, wt, self.XT)
         return C
+
+
+def _dot(a, b) -> float:
+    """Inner product without BLAS (its threads cost more than they save on one vector)."""
+    return float(np.einsum("i,i->", a, b))
+
+
+def _bincount_cols(index, n_levels, w, XT):
+    """out[g, k] = sum_{i: index_i = g} w_i X[i, k], one bincount per column of X."""
+    return np.column_stack([np.bincount(index, weights=w * xk, minlength=n_levels) for xk in XT])
+
+
+def _gram_rows(XT, w):
+    """X' diag(w) X from the rows of X' (p small), without BLAS."""
+    p = XT.shape[0]
+    M = np.empty((p, p))
+    for j in range(p):
+        wx = w * XT[j]
+        for k in range(j + 1):
+            M[j, k] = M[k, j] = _dot(wx, XT[k])
+    return M
 
 
 def _bincount2(index, n_levels, values):
@@ -256,6 +283,7 @@ class LaplaceEngine:
         self.st = np.asarray(spec.station, dtype=np.int64)
         self.n_st = int(spec.n_station)
         self.X = np.asarray(spec.X, dtype=float)
+        self.XT = np.ascontiguousarray(self.X.T)
         self.p = self.X.shape[1]
         # the dense-block random terms: level index and value of each observation
         self.t_idx = [np.asarray(t.index, dtype=np.int64) for t in spec.terms]
@@ -304,7 +332,7 @@ class LaplaceEngine:
     # ------------------------------------------------------------------ linear algebra
     def _design(self, s_terms, full: bool) -> _DenseDesign:
         return _DenseDesign(self.t_idx, self.t_z, self.t_nl, s_terms, self.X if full else None,
-                            self.st, self.n_st)
+                            self.st, self.n_st, self.XT)
 
     def _factor(self, w, s_st, s_o, D: _DenseDesign) -> _Factor:
         f = _Factor()
@@ -373,7 +401,10 @@ class LaplaceEngine:
         s_st, s_terms, s_o = self.unpack(phi)
         full = beta is None
         D = self._design(s_terms, full)
-        base = self.offset if full else self.offset + _xv(self.X, beta)
+        base = self.offset.copy()
+        if not full:
+            for k in range(self.p):
+                base += beta[k] * self.XT[k]
         u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
         v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
         u_o = self.u_o.copy() if s_o > 0 else None
@@ -387,9 +418,9 @@ class LaplaceEngine:
             return e
 
         def h_of(eta, u_st, v, u_o):
-            pen = u_st @ u_st + v[:self.m_re] @ v[:self.m_re]
+            pen = _dot(u_st, u_st) + _dot(v[:self.m_re], v[:self.m_re])
             if u_o is not None:
-                pen += u_o @ u_o
+                pen += _dot(u_o, u_o)
             return float(np.sum(self.fam.loglik(eta)) - 0.5 * pen)
 
         eta = eta_of(u_st, v, u_o)
@@ -412,8 +443,18 @@ class LaplaceEngine:
             g_v[:self.m_re] -= v[:self.m_re]
             g_o = s_o * d1 - u_o if u_o is not None else None
             x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
-            decrement = float(g_st @ x_st + g_v @ x_v + (g_o @ x_o if u_o is not None else 0.0))
-            if decrement < tol * max(1.0, abs(h)) * 1e-2 or decrement < 1e-13:
+            decrement = _dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
+            if decrement < 1e-7:
+                # close enough for Newton's quadratic convergence: take this last full step
+                # and factor at the new point, so that the log-determinant (which is first
+                # order in any error of u) is evaluated at the mode to machine precision
+                u_st = u_st + x_st
+                v = v + x_v
+                u_o = u_o + x_o if u_o is not None else None
+                eta = eta_of(u_st, v, u_o)
+                h = h_of(eta, u_st, v, u_o)
+                d1, w = self.fam.derivs(eta)
+                f = self._factor(w, s_st, s_o, D)
                 converged = True
                 break
             step = 1.0
@@ -429,9 +470,6 @@ class LaplaceEngine:
             else:
                 break
             u_st, v, u_o, eta, h = n_st_, n_v, n_o, n_eta, n_h
-            if decrement < 1e-9 and step == 1.0:
-                # quadratic convergence: one more step with a fresh factor is below noise
-                pass
         else:
             d1, w = self.fam.derivs(eta)
             f = self._factor(w, s_st, s_o, D)
@@ -485,15 +523,6 @@ class LaplaceEngine:
 
 
 # ---------------------------------------------------------------------- helpers
-def _num_grad(fun, x, h):
-    g = np.zeros_like(x)
-    for i in range(len(x)):
-        e = np.zeros_like(x)
-        e[i] = h[i]
-        g[i] = (fun(x + e) - fun(x - e)) / (2 * h[i])
-    return g
-
-
 def num_hessian(fun, x, h, f0=None):
     """Central-difference gradient and Hessian of a scalar function (4-point formula off the diagonal).
 
@@ -550,31 +579,48 @@ class _Result:
         self.x, self.fun, self.success, self.message, self.nit = x, fun, success, message, nit
 
 
-def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9):
+def _num_gradient(fun, x, h, f0):
+    g = np.zeros(len(x))
+    for i in range(len(x)):
+        e = np.zeros(len(x))
+        e[i] = h[i]
+        g[i] = (fun(x + e) - fun(x - e)) / (2 * h[i])
+    return g
+
+
+def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9, quasi=False):
     """Projected Newton's method with a central-difference Hessian, for a few bounded parameters.
 
     Parameters on a bound whose gradient points outwards are held there (active set);
     an indefinite Hessian is shifted to positive definite (Levenberg); steps are capped
-    at ``max_step`` and halved until the function decreases.
+    at ``max_step`` and halved until the function decreases.  With ``quasi`` the
+    finite-difference Hessian is computed once and then updated by BFGS from central
+    difference gradients (fewer evaluations; used by the fast path).
     """
     lo, hi = np.asarray(lo, float), np.asarray(hi, float)
     x = np.clip(np.asarray(x0, float), lo, hi)
     f0 = fun(x)
     msg, ok = "iteration limit", False
-    for it in range(max_iter):
-        f0, g, H = num_hessian(fun, x, h, f0=f0)
+    H = g = None
+    fresh = False
+    for _it in range(max_iter):
+        scale = max(1.0, abs(f0))
+        fresh = H is None or not quasi
+        if fresh:
+            f0, g, H = num_hessian(fun, x, h, f0=f0)
         active = ((x <= lo + 1e-9) & (g > 0)) | ((x >= hi - 1e-9) & (g < 0))
         free = ~active
         if not np.any(free):
             ok, msg = True, "all parameters on bounds"
             break
         gf, Hf = g[free], H[np.ix_(free, free)]
-        ev = np.linalg.eigvalsh(Hf)
-        if ev.min() <= 1e-8 * max(1.0, abs(ev.max())):
-            Hf = Hf + (abs(ev.min()) + 1e-3 * max(1.0, abs(ev.max()))) * np.eye(len(gf))
-        step_f = -np.linalg.solve(Hf, gf)
+        # Newton step with the absolute eigenvalues (a saddle-free step where the
+        # likelihood is not concave), floored to keep the step finite
+        ev, vec = np.linalg.eigh((Hf + Hf.T) / 2)
+        lam = np.maximum(np.abs(ev), 1e-6 * max(1e-8, np.abs(ev).max()))
+        step_f = -vec @ ((vec.T @ gf) / lam)
         decrement = float(-gf @ step_f)
-        if decrement < tol:
+        if decrement < tol * scale:
             ok, msg = True, "converged"
             break
         big = np.max(np.abs(step_f))
@@ -591,15 +637,29 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 break
             t *= 0.5
         if not improved:
-            ok = decrement < 1e-6
+            if quasi and not fresh:
+                H = None  # refresh the Hessian by differences and try again
+                continue
+            # no decrease at all: at the optimum to within the noise of the evaluations
+            ok = decrement < 1e-6 * scale
             msg = "converged" if ok else "no further decrease along the Newton direction"
             break
         moved = np.max(np.abs(cand - x))
+        x_old, g_old = x, g
         x, f_prev, f0 = cand, f0, fc
-        if f_prev - f0 < ftol or (f_prev - f0 < tol * 1e-2 and moved < 1e-7):
+        if f_prev - f0 < ftol * scale or (f_prev - f0 < tol * 1e-2 * scale and moved < 1e-7):
             ok, msg = True, "converged"
             break
-    return _Result(x, f0, ok, msg, it + 1)
+        if quasi:
+            g = _num_gradient(fun, x, h, f0)
+            s_, y_ = x - x_old, g - g_old
+            sy = float(s_ @ y_)
+            if sy > 1e-12:
+                Bs = H @ s_
+                H = H - np.outer(Bs, Bs) / float(s_ @ Bs) + np.outer(y_, y_) / sy
+            else:
+                H = None
+    return _Result(x, f0, ok, msg, _it + 1)
 
 
 def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = 100):
@@ -669,14 +729,12 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     eng = LaplaceEngine(spec, reml=reml, n_agq=n_agq)
     diags: list[Diagnostic] = []
     # --- starting values from a GLM
-    beta0 = glm_fit_start = None
     if start_beta is not None:
         beta0 = np.asarray(start_beta, float)
     else:
         if fam.has_dispersion and fam.dispersion is None:
             fam.dispersion = 1.0
         beta0 = glm_fit(fam, spec.X, eng.offset)
-        glm_fit_start = beta0
     eng.beta = beta0.copy()
     if start is not None:
         phi0 = np.asarray(start, float).copy()
@@ -695,12 +753,15 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     bounds = eng.bounds()
     hphi = np.full(eng.n_phi, 1e-4)
     # --- stage 1: variance parameters, beta at the PIRLS mode
-    quick = not (stage2 or hessian)
+    # stage 1 only has to be precise when it is the answer (fast path: enough for the
+    # power analysis; Gaussian family: exact ML / REML); otherwise stage 2 refines it
+    will_refine = (not gaussian) and (stage2 or n_agq > 1)
+    quick = not (stage2 or hessian) or will_refine
     obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
     if eng.n_phi <= 6:
         res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
-                               np.full(eng.n_phi, 1e-3), tol=1e-8 if quick else 1e-11,
-                               ftol=1e-6 if quick else 1e-9)
+                               np.full(eng.n_phi, 1e-3), tol=1e-10 if quick else 1e-13,
+                               ftol=1e-9 if quick else 1e-12, quasi=quick)
     else:
         res1 = _bounded_minimize(obj1, phi0, bounds, hphi, ftol=1e-10 if quick else 1e-13,
                                  gtol=1e-4 if quick else 1e-7)
@@ -713,7 +774,6 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         diags.append(Diagnostic("not_converged", f"The search over the variance parameters stopped early ({res1.message})."))
     do_stage2 = (not gaussian) and (stage2 or n_agq > 1)
     names = spec.sd_names()
-    k = eng.n_phi
     vcov = _conditional_vcov(eng.last_factor, eng)
     vcov_method = "conditional"
     if do_stage2:
@@ -736,6 +796,11 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         if hessian:
             if H_info is not None:
                 vcov, vcov_method = H_info, "hessian"
+            elif len(beta) + eng.n_phi > NEWTON_MAX_DIM:
+                diags.append(Diagnostic("conditional_se",
+                                        f"With {len(beta)} fixed effects the standard errors use the conditional "
+                                        "information at the estimates (X' V^-1 X)^-1 rather than the full Hessian.",
+                                        "info"))
             else:
                 diags.append(Diagnostic("hessian_not_positive",
                                         "The likelihood's curvature matrix is not positive definite (or was not "
@@ -751,7 +816,7 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
                                 f"reach full precision {eng.pirls_failures} time(s).", "info"))
     eng.unpack(phi)
-    sd = {nm: float(np.exp(v)) for nm, v in zip(names, phi[:eng.n_sd])}
+    sd = {nm: float(np.exp(v)) for nm, v in zip(names, phi[:eng.n_sd], strict=False)}
     n_par = eng.p + eng.n_phi
     return GlmmFit(beta=beta, vcov=vcov, x_names=list(spec.x_names), sd=sd,
                    dispersion=(float(fam.dispersion) if fam.has_dispersion else None),
@@ -786,26 +851,26 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
 
     xs = x[free].copy()
     if len(free) > NEWTON_MAX_DIM:
-        bnd = list(zip(lo[free], hi[free]))
+        bnd = list(zip(lo[free], hi[free], strict=False))
         res = _bounded_minimize(fun, xs, bnd, step_h / 20)
         x[free] = res.x
         ok = bool(res.success or "REL_REDUCTION" in str(res.message))
         return x[:k], x[k:], -fun(res.x), None, ok, str(res.message)
-    f0 = fun(xs)
+    f0, g, H = num_hessian(fun, xs, step_h)
     ok, msg, Hfin = False, "iteration limit", None
-    for _ in range(12):
-        f0, g, H = num_hessian(fun, xs, step_h, f0=f0)
+    for _ in range(20):
         try:
             Lc = np.linalg.cholesky(H)
         except np.linalg.LinAlgError:
             Lc = None
         if Lc is None:
-            # not locally convex: a short gradient step scaled by the conditional curvature
+            # not locally convex: a short gradient step scaled by the step sizes
             step = -g * step_h ** 2 * 10
         else:
             step = -la.cho_solve((Lc, True), g)
         decrement = float(-g @ step)
-        if Lc is not None and decrement < 1e-9:
+        scale = max(1e3, abs(f0))
+        if Lc is not None and decrement < 1e-12 * scale:
             ok, msg, Hfin = True, "converged", H
             break
         t = 1.0
@@ -818,11 +883,17 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
                 break
             t *= 0.5
         if not improved:
-            ok = Lc is not None and decrement < 1e-5
+            ok = Lc is not None and decrement < 1e-8 * scale
             msg = "no further improvement" if not ok else "converged"
             Hfin = H if Lc is not None else None
             break
         xs, f0 = cand, fc
+        if Lc is not None and decrement < 1e-2:
+            # close: keep this Hessian (it changes by O(step)) and refresh only the gradient;
+            # it is then also accurate enough for the standard errors
+            g = _num_gradient(fun, xs, step_h, f0)
+        else:
+            f0, g, H = num_hessian(fun, xs, step_h, f0=f0)
     x[free] = xs
     vb = None
     if want_hessian and Hfin is not None:
@@ -860,7 +931,3 @@ def _conditional_vcov(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
     L = np.ascontiguousarray(f.L[eng.m_re:, eng.m_re:])
     Li = np.linalg.inv(L)
     return Li.T @ Li
-
-
-def _conditional_se(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
-    return np.sqrt(np.diag(_conditional_vcov(f, eng)))

@@ -360,6 +360,12 @@ class TrendModel:
         d[C.YEAR] = d[C.YEAR].astype(int)
         for c in value_cols:
             d[c] = v[c]
+        # a station is identified within its site (codes are unique in a programme, but a
+        # table brought from elsewhere may reuse a code in two sites)
+        if C.SITE in d.columns:
+            d["_station_key"] = d[C.SITE].astype(str) + "\x1f" + d[C.STATION].astype(str)
+        else:
+            d["_station_key"] = d[C.STATION].astype(str)
         return d.reset_index(drop=True)
 
     # ------------------------------------------------------------------ design
@@ -407,7 +413,7 @@ class TrendModel:
         d = self.data
         fam, eps = self._response()
         X, names, t = self._design(year_effect)
-        st = pd.factorize(d[C.STATION])[0]
+        st = pd.factorize(d["_station_key"])[0]
         terms = []
         if self.has_site:
             si = pd.factorize(d[C.SITE])[0]
@@ -448,7 +454,7 @@ class TrendModel:
         TrendResult
         """
         d = self.data
-        n_st = int(d[C.STATION].nunique())
+        n_st = int(d["_station_key"].nunique())
         n_years = len(self.years)
         if n_years < 2:
             raise EstimationError("a trend needs data from at least 2 years")
@@ -577,13 +583,13 @@ class TrendModel:
     def _data_diagnostics(self, spec: GlmmSpec, fit: GlmmFit, eps) -> list[Diagnostic]:
         d = self.data
         out = []
-        visits = d.groupby(C.STATION).size()
+        visits = d.groupby("_station_key").size()
         one = int((visits == 1).sum())
         if one:
             out.append(Diagnostic("one_visit_stations",
                                   f"{one} station(s) have a single visit; they tell about level but not about change.",
                                   "info"))
-        per_year = d.groupby(C.YEAR)[C.STATION].nunique()
+        per_year = d.groupby(C.YEAR)["_station_key"].nunique()
         low = per_year[per_year < LOW_COVERAGE_FRACTION * per_year.median()]
         if len(low):
             yrs = ", ".join(str(int(y)) for y in low.index)

@@ -1,0 +1,95 @@
+"""Simulate one programme's data under a design and a scenario (the model in ``monitor.power.model``)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from monitor import columns as col
+from monitor.power.model import Design, Scenario, VarianceComponents, scaled_components
+
+
+def simulate_dataset(components: VarianceComponents, design: Design, scenario: Scenario,
+                     rng: np.random.Generator) -> pd.DataFrame:
+    """Simulate the long analysis table a programme would hold after ``design.n_years`` seasons.
+
+    Parameters
+    ----------
+    components : VarianceComponents
+        Family, mean level and variance components.
+    design : Design
+        Stations, years, revisit design, quadrat area and missed-visit share.
+    scenario : Scenario
+        Steady annual change; beta = log(1 + r) per year.
+    rng : numpy.random.Generator
+        Source of all random draws.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per visit made: ``station``, ``site``, ``year`` and the measure's value columns
+        (``count``; ``occupied``/``cells``; ``hits``/``pins``; ``present``; ``cover_pct``).
+        Visits not due under the revisit design, and missed visits, are absent (never zero).
+
+    Notes
+    -----
+    ``eta_ijt = b0 + log(a) + beta*t + u_i + v_j + e_ijt`` with the family's response; see
+    ``monitor.power.model``.  Stations are listed site by site (station k in site
+    ``floor(k * n_sites / n_stations)``), and panels are dealt along that list so every site
+    holds every panel.  Each due visit is missed independently with probability
+    ``design.missed_share``.
+    """
+    s = scaled_components(components, design)
+    n_st, n_yr = design.n_stations, design.n_years
+    n_sites = design.sites_for(components)
+    due = design.panels.visit_matrix(n_st, n_yr)
+
+    station_effect = rng.normal(0.0, 1.0, n_st) * s["station_sd"]
+    site_effect = rng.normal(0.0, 1.0, n_sites) * s["site_sd"]
+    site_of = (np.arange(n_st) * n_sites) // n_st
+
+    station_idx, year_idx = np.nonzero(due)
+    if design.missed_share > 0:
+        keep = rng.random(station_idx.size) >= design.missed_share
+        station_idx, year_idx = station_idx[keep], year_idx[keep]
+    n = station_idx.size
+    eta = (s["intercept"] + scenario.slope * year_idx
+           + station_effect[station_idx] + site_effect[site_of[station_idx]])
+
+    family = components.family
+    frame: dict[str, object] = {col.STATION: np.array([f"Q{i:04d}" for i in range(n_st)], dtype=object)[station_idx]}
+    if s["site_sd"] > 0 or n_sites > 1:
+        frame[col.SITE] = np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_of[station_idx]]
+    frame[col.YEAR] = design.first_year + year_idx
+    if family in ("poisson", "poisson-lognormal"):
+        if family == "poisson-lognormal":
+            eta = eta + rng.normal(0.0, 1.0, n) * s["observation_sd"]
+        frame[col.COUNT] = rng.poisson(np.exp(eta))
+    elif family == "negbin":
+        theta = s["theta"]
+        mu = np.exp(eta)
+        # NB2 as a gamma-Poisson mixture: lambda ~ Gamma(shape theta, scale mu/theta)
+        frame[col.COUNT] = rng.poisson(rng.gamma(theta, mu / theta))
+    elif family == "lognormal":
+        frame[col.COUNT] = np.exp(eta + rng.normal(0.0, 1.0, n) * s["residual_sd"])
+    elif family == "binomial":
+        eta = eta + rng.normal(0.0, 1.0, n) * s["observation_sd"]
+        k = rng.binomial(components.trials, 1.0 / (1.0 + np.exp(-eta)))
+        if components.measure == col.MEASURE_PRESENCE:
+            frame[col.PRESENT] = k
+        elif components.measure == col.MEASURE_PIN_HITS:
+            frame[col.HITS] = k
+            frame[col.PINS] = np.full(n, components.trials)
+        else:
+            frame[col.OCCUPIED] = k
+            frame[col.CELLS] = np.full(n, components.trials)
+    elif family == "logit-normal":
+        z = eta + rng.normal(0.0, 1.0, n) * s["residual_sd"]
+        cover = 100.0 / (1.0 + np.exp(-z))
+        if components.cover_resolution is not None:
+            step = components.cover_resolution
+            cover = np.clip(np.round(cover / step) * step, 0.0, 100.0)
+        frame[col.COVER] = cover
+    else:  # pragma: no cover - VarianceComponents validates the family
+        raise AssertionError(family)
+    return pd.DataFrame(frame)

@@ -1,0 +1,62 @@
+"""lme4's worked example: the cbpp data (contagious bovine pleuropneumonia, Lesnoff et al.
+2004), binomial GLMM with herd random intercepts and period as a factor.
+
+We map herd -> station, period -> year (a factor, base period 1), incidence -> occupied,
+size -> cells; the model is then exactly glmer(cbind(incidence, size - incidence) ~ period
++ (1 | herd), family = binomial).
+"""
+
+import numpy as np
+import pytest
+from scipy.special import gammaln, xlogy
+
+from monitor.trend import TrendModel
+
+
+def cbpp_frame(cbpp):
+    return cbpp.rename(columns={"herd": "station", "period": "year", "incidence": "occupied", "size": "cells"})
+
+
+NAMES = {"(Intercept)": "(Intercept)", "year[2]": "period2", "year[3]": "period3", "year[4]": "period4"}
+
+
+def test_cbpp_laplace_matches_glmer(cbpp, reference):
+    r = TrendModel(cbpp_frame(cbpp), "frequency", year_effect="factor", site_effect=False).fit(
+        profile=False, indices=True)
+    ref = reference["cbpp"]
+    # lme4 1.1-31, glmer(cbind(incidence, size - incidence) ~ period + (1 | herd), binomial), Laplace
+    for ours, theirs in NAMES.items():
+        assert r.params[ours] == pytest.approx(ref["fixef"][theirs], abs=1e-3)
+        assert r.bse[ours] == pytest.approx(ref["se"][theirs], rel=0.02)
+    assert r.random_sd["station"] == pytest.approx(ref["sd"]["herd"], rel=0.02)
+    assert r.loglik == pytest.approx(ref["loglik"], abs=0.01)
+    # our maximum is at least as high as glmer's (a maximiser must not stop short of it)
+    assert r.loglik >= ref["loglik"] - 1e-6
+    # published output of that example (lme4 reference manual, ?cbpp / ?glmer; from memory):
+    # (Intercept) -1.3983, period2 -0.9919, period3 -1.1282, period4 -1.5797,
+    # herd variance 0.4123 (SD 0.6421), logLik -92.0, AIC 194.1
+    published = {"(Intercept)": -1.3983, "year[2]": -0.9919, "year[3]": -1.1282, "year[4]": -1.5797}
+    for k, v in published.items():
+        assert r.params[k] == pytest.approx(v, abs=1e-3)
+    assert r.random_sd["station"] ** 2 == pytest.approx(0.4123, abs=1e-3)
+    assert r.aic == pytest.approx(194.1, abs=0.05)
+    # the yearly indices are exp(period effects) relative to period 1
+    idx = r.indices.set_index("year")["index"]
+    assert idx[4] == pytest.approx(np.exp(ref["fixef"]["period4"]), rel=2e-3)
+
+
+def test_cbpp_agq_matches_glmer_nagq7(cbpp, reference):
+    d = cbpp_frame(cbpp)
+    r = TrendModel(d, "frequency", year_effect="factor", site_effect=False, method="agq", n_agq=7).fit(
+        profile=False, indices=True)
+    ref = reference["cbpp_agq7"]
+    # lme4 1.1-31, same model with nAGQ = 7
+    for ours, theirs in NAMES.items():
+        assert r.params[ours] == pytest.approx(ref["fixef"][theirs], abs=1e-3)
+        assert r.bse[ours] == pytest.approx(ref["se"][theirs], rel=0.02)
+    assert r.random_sd["station"] == pytest.approx(ref["sd"]["herd"], rel=0.02)
+    # glmer's nAGQ > 1 log-likelihood is relative to the saturated binomial model
+    k, n = d["occupied"].to_numpy(float), d["cells"].to_numpy(float)
+    sat = float(np.sum(gammaln(n + 1) - gammaln(k + 1) - gammaln(n - k + 1) + xlogy(k, k / n)
+                       + xlogy(n - k, (n - k) / n)))
+    assert r.loglik - sat == pytest.approx(ref["loglik"], abs=0.01)
