@@ -206,3 +206,92 @@ def report_command(ctx: Context, year: int, out_dir, previous) -> None:
 
     folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous)
     say(f"report written: {folder / 'index.html'}")
+
+
+def _int_list(text: str) -> list[int]:
+    try:
+        return [int(v) for v in text.split(",") if v.strip()]
+    except ValueError:
+        raise click.BadParameter(f"expected whole numbers separated by commas, got {text!r}") from None
+
+
+@cli.command("power")
+@click.option("--species", default=None, help="Use the variance and level fitted to this stored species.")
+@click.option("--family", type=click.Choice(["poisson-lognormal", "negbin", "binomial", "logit-normal"]),
+              default="poisson-lognormal", show_default=True, help="Without --species: the model family.")
+@click.option("--mean", type=float, default=None, help="Without --species: mean count per quadrat (or proportion).")
+@click.option("--station-sd", type=float, default=0.5, show_default=True, help="Without --species: station SD.")
+@click.option("--site-sd", type=float, default=0.0, show_default=True, help="Without --species: site SD.")
+@click.option("--obs-sd", type=float, default=0.3, show_default=True,
+              help="Without --species: observation-level SD (overdispersion), or residual SD for cover.")
+@click.option("--change", type=float, required=True, help="Total change over --over years, e.g. -0.5 for a 50% fall.")
+@click.option("--over", "over_years", type=int, default=10, show_default=True, help="Years the change happens over.")
+@click.option("--stations", default="20,40,60", show_default=True, help="Numbers of stations to compare.")
+@click.option("--years", default="6,11", show_default=True, help="Numbers of seasons to compare.")
+@click.option("--revisit", default="[1-0]", show_default=True, help="Revisit design, e.g. [1-0] or [1-0,1-3].")
+@click.option("--missed", type=float, default=0.0, show_default=True, help="Expected share of missed visits.")
+@click.option("--alpha", type=float, default=0.05, show_default=True, help="Significance level.")
+@click.option("--side", type=click.Choice(["decline", "rise", "two-sided"]), default="decline", show_default=True)
+@click.option("--target", type=float, default=0.8, show_default=True, help="Target power for the smallest design.")
+@click.option("--replicates", type=int, default=200, show_default=True, help="Simulated data sets per design.")
+@click.option("--seed", type=int, default=1, show_default=True, help="Seed: the same seed gives the same answer.")
+@click.option("--workers", type=int, default=1, show_default=True, help="Processes to run in parallel.")
+@click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
+              help="Save power against stations, one line per number of years.")
+@format_option
+@click.pass_obj
+def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, change, over_years, stations,
+                  years, revisit, missed, alpha, side, target, replicates, seed, workers, figure, as_json, as_csv):
+    """Can the design detect the change that matters? Simulated power per design, with the approximation beside it."""
+    from monitor.power import VarianceComponents
+    from monitor.services import power
+
+    if species:
+        components, source = power.components_for(ctx.db, species, programme_code=ctx.programme)
+    else:
+        if mean is None:
+            raise click.UsageError("give --species (fitted to the programme) or --mean with the SDs")
+        sds = {"station_sd": station_sd, "site_sd": site_sd}
+        sds["residual_sd" if family == "logit-normal" else "observation_sd"] = obs_sd
+        components, source = VarianceComponents.from_mean(family, mean, **sds), "values given"
+    station_list, year_list = _int_list(stations), _int_list(years)
+    total = len(station_list) * len(year_list) * replicates
+    with progress(total, "simulating") as bar:
+        study = power.power_study(components, source, change=change, over_years=over_years, stations=station_list,
+                                  years=year_list, revisit=revisit, missed_share=missed, alpha=alpha, side=side,
+                                  target=target, replicates=replicates, seed=seed, workers=workers, figure=figure,
+                                  progress=lambda done, _n: bar.update(done - bar.pos))
+    fmt = chosen_format(as_json, as_csv)
+    if fmt == "json":
+        emit(study.to_dict(), fmt)
+        return
+    emit(power_rows(study), fmt)
+    if fmt == "table":
+        say(power_sentence(study))
+        if figure:
+            say(f"figure: {figure}")
+
+
+def power_rows(study) -> list[dict]:
+    rows = []
+    for r in study.results:
+        approx = r.approximation.power if r.approximation is not None else None
+        rows.append({"stations": r.design.n_stations, "seasons": r.design.n_years,
+                     "power (simulated)": f"{r.power:.2f} +/- {r.power_se:.2f}",
+                     "approximation (Gerrodette)": "" if approx is None else f"{approx:.2f}",
+                     "median CI width % a year": f"{100 * r.median_interval_width:.1f}",
+                     "right call": f"{r.share_right_call:.2f}" if r.share_right_call == r.share_right_call else ""})
+    return rows
+
+
+def power_sentence(study) -> str:
+    s = study.smallest
+    if s is None:
+        return ""
+    if s.value is None:
+        return (f"No design on the grid up to 200 stations reaches {100 * study.target:.0f}% power "
+                f"over {s.result.design.n_years if s.result else 'the'} seasons.")
+    r = s.result
+    return (f"Smallest number of stations reaching {100 * study.target:.0f}% power over {r.design.n_years} seasons: "
+            f"{s.value} (simulated power {r.power:.2f} +/- {r.power_se:.2f}; the approximation suggested "
+            f"{s.approximate_value}).")
