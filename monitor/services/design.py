@@ -196,9 +196,17 @@ def _next_number(codes: list[str], prefix: str) -> int:
     return max(numbers) + 1 if numbers else 1
 
 
-def _fresh_seed(seed: int | None) -> int | np.random.Generator:
-    # no seed given: a generator seeded from the operating system; its drawn seed is stored
-    return np.random.default_rng() if seed is None else int(seed)
+#: seeds are stored in 32-bit integer columns (PostgreSQL ``integer``)
+SEED_MAX = 2**31 - 1
+
+
+def fresh_seed(seed: int | None) -> int:
+    """The seed to use: the one given, or one drawn from the operating system's entropy (then stored)."""
+    if seed is None:
+        return int(np.random.default_rng().integers(0, SEED_MAX))
+    if not 0 <= int(seed) <= SEED_MAX:
+        raise InputError(InputProblem("--seed", None, None, seed, f"a whole number from 0 to {SEED_MAX}"))
+    return int(seed)
 
 
 def place_stations(
@@ -283,7 +291,7 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
         exclusions.append(shapely.union_all([Point(s.x, s.y).buffer(min_separation) for s in here]))
     # checked once here so the refusal names the site
     D.usable_area(geometry, exclusions, f"site {site_code}")
-    rng = _fresh_seed(seed)
+    rng = fresh_seed(seed)
     strata_added = 0
     stratum_ids: dict[str, int] = {}
     if method == C.PLACEMENT_TRANSECT:
@@ -384,7 +392,9 @@ def _strata(session: Session, programme: M.Programme, site: M.Site, geometry: Ba
 def default_first_year(store: Store, programme_id: int, today: dt.date | None = None) -> int:
     """The next season: the year after the last round held, or this year if that is later."""
     today = today or dt.date.today()
-    last = store.frame("SELECT max(year) AS y FROM round WHERE programme_id = :p", p=programme_id)["y"].iloc[0]
+    # a round only planned so far (no visit stored) is still to come
+    last = store.frame("SELECT max(r.year) AS y FROM round r WHERE r.programme_id = :p "
+                       "AND EXISTS (SELECT 1 FROM visit v WHERE v.round_id = r.id)", p=programme_id)["y"].iloc[0]
     return max(today.year, int(last) + 1) if last is not None and not pd.isna(last) else today.year
 
 

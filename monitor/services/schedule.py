@@ -46,7 +46,7 @@ from monitor.schedule.season import (
     WINDOW_END,
     WINDOW_START,
 )
-from monitor.services.design import StoredPanels, default_first_year
+from monitor.services.design import StoredPanels, default_first_year, fresh_seed
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
 #: reserve [m] (common practice: parking at the reserve's edge)
@@ -406,7 +406,7 @@ def plan_season(
         if due.empty:
             raise DataError(f"no station is due or overdue in {year}")
         access = {r[C.SITE]: _date(r["access_until"]) for r in sites.to_dict(orient="records")}
-        rng = np.random.default_rng() if seed is None else int(seed)
+        rng = fresh_seed(seed)
         plan = S.plan_season(due, crews, year=int(year), rng=rng, access_until=access, reserve=reserve,
                              randomise_site_order=randomise_sites)
         result = PlanResult(year=int(year), plan=plan, stored=False, due=due)
