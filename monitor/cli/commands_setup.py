@@ -112,4 +112,21 @@ def demo_command(folder: Path) -> None:
                  title="Sites")
             emit(result["species"], title="\nTarget species")
             emit(result["visits_by_year"], title="\nVisits per season by outcome")
+        if name == "panels":
+            shown = result.panels.copy()
+            for y in result.years:
+                shown[y] = ["X" if v else "" for v in shown[y]]
+            shown.columns = [str(c) for c in shown.columns]
+            click.echo(f"\nRevisit design {result.notation} (McDonald 2003 notation); X = due")
+            emit(shown)
+        if name == "plan":
+            click.echo(f"\nSeason {result.year} plan: {result.summary()}")
+            emit(result.team_day_table())
+            if not result.plan.held_back.empty:
+                emit(result.plan.held_back, title="Held back")
+        if name == "field_pack":
+            for day in result.team_days:
+                click.echo(f"\nField pack for team {day['team']} on {day['date']} ({day['site']}, "
+                           f"{day['stations']} stations): {day['folder']}")
+            click.echo(f"Calendar: {result.calendar}")
     click.echo(f"\nThe demo database is {run.database}; try: monitor --db {run.database} summary")

@@ -13,7 +13,11 @@ from typing import Any
 
 from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
-from monitor.services import records, setup, summary
+from monitor.services import design, records, schedule, setup, summary
+
+
+#: the season the demo plans: the one after its last season of records
+DEMO_SEASON = 2027
 
 
 @dataclass
@@ -48,4 +52,15 @@ def run_demo(folder: Path, *, echo: Callable[[str], None] = lambda _m: None) -> 
     imports = [records.import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
     run.steps.append(("imports", imports))
     run.steps.append(("summary", summary.programme_summary(db, code)))
+
+    echo(f"4. the revisit panels: which stations are due in {DEMO_SEASON}-{DEMO_SEASON + 2}")
+    run.steps.append(("panels", design.panel_due_table(db, 3, first_year=DEMO_SEASON, programme_code=code)))
+    echo(f"5. planning season {DEMO_SEASON} with 2 teams (due and overdue stations, routes, held-back sites)")
+    plan = schedule.plan_season(db, DEMO_SEASON, teams=2, seed=DEMO_SEASON, programme_code=code)
+    run.steps.append(("plan", plan))
+    first = plan.plan.team_days[0]
+    echo(f"6. writing the field pack for team {first.team} on {first.date.isoformat()}")
+    pack = schedule.write_field_packs(db, DEMO_SEASON, folder / "field_packs", team=first.team, day=first.date,
+                                      programme_code=code)
+    run.steps.append(("field_pack", pack))
     return run
