@@ -131,6 +131,14 @@ def _parse_window(start: str, end: str, what: str) -> S.SeasonWindow:
         raise DesignError(f"{what}: {exc}") from None
 
 
+def _first_season(established: dt.date | None, window: S.SeasonWindow) -> int | None:
+    """The first season a station could be visited: the year it was set out, or the next one when it was
+    set out after that year's season window closed."""
+    if established is None:
+        return None
+    return established.year + (1 if established > window.dates(established.year)[1] else 0)
+
+
 def season_inputs(store: Store, programme: M.Programme, year: int,
                   window: tuple[str, str] | None = None) -> SeasonInputs:
     pid = programme.id
@@ -153,7 +161,7 @@ def season_inputs(store: Store, programme: M.Programme, year: int,
             species_windows[code] = _parse_window(w[0], w[1], f"species {code} season window")
     stations = queries.stations(store, pid)
     stations = stations[stations["state"] == "in_service"].reset_index(drop=True)
-    stations[FIRST_SEASON] = pd.array([None if _date(v) is None else _date(v).year for v in stations["established"]],
+    stations[FIRST_SEASON] = pd.array([_first_season(_date(v), season_window) for v in stations["established"]],
                                       dtype="Int64")
     history = queries.visit_outcomes(store, pid)
     history[C.YEAR] = history[C.YEAR].astype(int)
