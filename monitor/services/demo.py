@@ -15,7 +15,6 @@ from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
 from monitor.services import design, records, schedule, setup, summary
 
-
 #: the season the demo plans: the one after its last season of records
 DEMO_SEASON = 2027
 

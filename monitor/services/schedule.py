@@ -34,7 +34,7 @@ from monitor import columns as C
 from monitor import schedule as S
 from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
-from monitor.errors import DataError, DesignError, Diagnostic, InputError, InputProblem, LockedError
+from monitor.errors import DataError, DesignError, InputError, InputProblem, LockedError
 from monitor.schedule import fieldpack
 from monitor.schedule.planner import ARRIVAL, ORDER, TEAM
 from monitor.schedule.season import (
@@ -334,6 +334,7 @@ class PlanResult:
     stored: bool
     replaced: int = 0
     due: pd.DataFrame = field(default_factory=pd.DataFrame)
+    already_recorded: list[str] = field(default_factory=list)
 
     @property
     def fits(self) -> bool:
@@ -346,11 +347,15 @@ class PlanResult:
         return pd.DataFrame(rows, columns=["team", "date", "site", "stations", "route_km", "start", "end", "members"])
 
     def summary(self) -> str:
-        return self.plan.summary()
+        text = self.plan.summary()
+        if self.already_recorded:
+            text += f"; {len(self.already_recorded)} already recorded this season, not planned again"
+        return text
 
     def to_dict(self) -> dict[str, Any]:
         out = self.plan.to_dict()
-        out.update({"stored": self.stored, "replaced": self.replaced, "fits": self.fits})
+        out.update({"stored": self.stored, "replaced": self.replaced, "fits": self.fits,
+                    "already_recorded": self.already_recorded, "summary": self.summary()})
         return out
 
 
@@ -411,17 +416,23 @@ def plan_season(
                                day_start=crew["day_start"], path_factor=crew["path_factor"])
         crews.check(reserve)
         due = _due(inputs)
+        # replanning part-way through a season: stations already recorded this season are not sent again
+        h = inputs.history
+        recorded = set(h.loc[(h[C.YEAR] == int(year)) & h[C.VISIT_STATUS].isin(C.STATUSES_WITH_VALUES), C.STATION])
+        already = sorted(set(due[C.STATION]) & recorded)
+        due = due[~due[C.STATION].isin(recorded)].reset_index(drop=True)
         if due.empty:
-            raise DataError(f"no station is due or overdue in {year}")
+            raise DataError(f"no station is due or overdue in {year}"
+                            + (f" that has not been recorded already ({len(already)} recorded)" if already else ""))
         access = {r[C.SITE]: _date(r["access_until"]) for r in sites.to_dict(orient="records")}
         rng = fresh_seed(seed)
         plan = S.plan_season(due, crews, year=int(year), rng=rng, access_until=access, reserve=reserve,
                              randomise_site_order=randomise_sites)
-        result = PlanResult(year=int(year), plan=plan, stored=False, due=due)
+        result = PlanResult(year=int(year), plan=plan, stored=False, due=due, already_recorded=already)
         if dry_run:
             return result
         with store.session() as session:
-            result.replaced = _store_plan(session, programme, inputs, plan, due, replace)
+            result.replaced = _store_plan(session, programme, inputs, plan, due, replace, keep=set(already))
             refresh_outcomes(session, programme.id, [int(year)])
         result.stored = True
         return result
@@ -440,19 +451,23 @@ def _round(session: Session, programme_id: int, year: int, window: S.SeasonWindo
 
 
 def _store_plan(session: Session, programme: M.Programme, inputs: SeasonInputs, plan: S.SeasonPlan,
-                due: pd.DataFrame, replace: bool) -> int:
+                due: pd.DataFrame, replace: bool, keep: set[str] = frozenset()) -> int:
+    """Store the plan; with ``replace`` the earlier plan's rows go, except those of stations in ``keep``
+    (already recorded this season, so their planned visit and outcome stay)."""
     pid = programme.id
     rnd = _round(session, pid, plan.year, inputs.window)
     if rnd.status == "certified":
         raise LockedError(f"season {plan.year} is certified (locked); its plan cannot change")
-    old = session.exec(select(M.PlannedVisit).where(M.PlannedVisit.round_id == rnd.id)).all()
+    ids = dict(session.exec(select(M.Station.code, M.Station.id).where(M.Station.programme_id == pid)).all())
+    kept_ids = {ids[c] for c in keep if c in ids}
+    old = [r for r in session.exec(select(M.PlannedVisit).where(M.PlannedVisit.round_id == rnd.id)).all()
+           if r.station_id not in kept_ids]
     if old and not replace:
         raise DesignError(f"a plan for {plan.year} is already stored ({len(old)} stations); "
                           "use --replace to replace it")
     for row in old:
         session.delete(row)
     session.flush()
-    ids = dict(session.exec(select(M.Station.code, M.Station.id).where(M.Station.programme_id == pid)).all())
     overdue = dict(zip(due[C.STATION], due[OVERDUE_YEARS], strict=True))
 
     def reason(code: str) -> str:
@@ -646,7 +661,6 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
 __all__ = [
     "PackResult",
     "PlanResult",
-    "Diagnostic",
     "default_first_year",
     "default_teams",
     "due_for_season",

@@ -235,6 +235,21 @@ def test_field_pack_is_read_back_by_the_records_importer(season_db, demo_source,
     due = schedule.due_for_season(season_db, 2027).set_index(C.STATION)
     assert due.loc[first.stations[0], "outcome"] == "done"
 
+    # replanning part-way through the season: recorded stations keep their planned visit and outcome and
+    # are not sent out again; the station missed today is planned again
+    again = schedule.plan_season(season_db, 2027, teams=2, seed=9, replace=True)
+    recorded = set(first.stations[:-1])
+    assert set(again.already_recorded) == recorded
+    assert not recorded & set(again.plan.visits[C.STATION])
+    assert first.stations[-1] in set(again.plan.visits[C.STATION])
+    store = Store.open(season_db)
+    try:
+        rows = queries.planned_visits(store, store.programme().id, 2027).set_index(C.STATION)
+    finally:
+        store.dispose()
+    assert rows.loc[sorted(recorded), "stored_outcome"].eq("done").all()
+    assert len(rows) == len(schedule.due_for_season(season_db, 2027))
+
 
 def test_field_pack_gpx_and_calendar_follow_their_standards(season_db, tmp_path):
     plan = schedule.plan_season(season_db, 2027, teams=2, seed=5)
