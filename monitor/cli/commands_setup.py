@@ -112,6 +112,23 @@ def demo_command(folder: Path) -> None:
                  title="Sites")
             emit(result["species"], title="\nTarget species")
             emit(result["visits_by_year"], title="\nVisits per season by outcome")
+        if name == "panels":
+            shown = result.panels.copy()
+            for y in result.years:
+                shown[y] = ["X" if v else "" for v in shown[y]]
+            shown.columns = [str(c) for c in shown.columns]
+            click.echo(f"\nRevisit design {result.notation} (McDonald 2003 notation); X = due")
+            emit(shown)
+        if name == "plan":
+            click.echo(f"\nSeason {result.year} plan: {result.summary()}")
+            emit(result.team_day_table())
+            if not result.plan.held_back.empty:
+                emit(result.plan.held_back, title="Held back")
+        if name == "field_pack":
+            for day in result.team_days:
+                click.echo(f"\nField pack for team {day['team']} on {day['date']} ({day['site']}, "
+                           f"{day['stations']} stations): {day['folder']}")
+            click.echo(f"Calendar: {result.calendar}")
         if name == "estimates":
             from monitor.cli.commands_analysis import estimate_rows
 
@@ -138,6 +155,11 @@ def demo_command(folder: Path) -> None:
                                                            f"{100 * ac.upper:+.1f})",
                              "call": fitted.result.call})
             emit(rows)
+        if name == "power":
+            from monitor.cli.commands_analysis import power_rows
+
+            emit(power_rows(result), title=f"\nPower to detect a 50% fall over 10 years ({result.source}; "
+                 f"{result.results[0].n_replicates} simulated data sets per design, one-sided 5% test)")
         if name == "report":
             click.echo(f"\nThe annual report for land managers: {result / 'index.html'}")
     click.echo(f"\nFigures are in {run.folder / 'figures'}")

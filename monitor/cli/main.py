@@ -40,7 +40,13 @@ def cli(ctx: click.Context, db: str, programme: str | None) -> None:
 
 def _register() -> None:
     # each command group lives in its own module; importing it attaches it to `cli`
-    from monitor.cli import commands_admin, commands_analysis, commands_records, commands_setup  # noqa: F401
+    from monitor.cli import (  # noqa: F401
+        commands_admin,
+        commands_analysis,
+        commands_plan,
+        commands_records,
+        commands_setup,
+    )
 
 
 _register()

@@ -193,3 +193,83 @@ def covariates_long(store: Store, programme_id: int) -> pd.DataFrame:
         """,
         p=programme_id,
     )
+
+
+# --- design and season plans ------------------------------------------------------------------------------
+
+
+def panels(store: Store, programme_id: int) -> pd.DataFrame:
+    """Revisit panels: panel, rule (McDonald 2003 notation), start_year, description, stations in service."""
+    return store.frame(
+        f"""
+        SELECT p.code AS {C.PANEL}, p.rule, p.start_year, p.description,
+               (SELECT count(*) FROM station t WHERE t.panel_id = p.id AND t.state = 'in_service') AS stations
+        FROM panel p WHERE p.programme_id = :p ORDER BY p.start_year, p.code
+        """,
+        p=programme_id,
+    )
+
+
+def season_windows(store: Store, programme_id: int) -> pd.DataFrame:
+    """Season windows: species (None = programme-wide), year (None = every year), start_md, end_md."""
+    return store.frame(
+        f"""
+        SELECT sp.code AS {C.SPECIES}, w.year AS {C.YEAR}, w.start_md, w.end_md
+        FROM season_window w LEFT JOIN species sp ON sp.id = w.species_id
+        WHERE w.programme_id = :p ORDER BY sp.code, w.year
+        """,
+        p=programme_id,
+    )
+
+
+def visits_with_observers(store: Store, programme_id: int, *, before_year: int | None = None) -> pd.DataFrame:
+    """First visits (repeat 0 and repeats) with their observers: station, year, date, status, repeat_no,
+    observers (';'-joined codes, '' when none)."""
+    where = "r.programme_id = :p" + ("" if before_year is None else " AND r.year < :y")
+    params: dict[str, object] = {"p": programme_id}
+    if before_year is not None:
+        params["y"] = before_year
+    frame = store.frame(
+        f"""
+        SELECT v.id AS visit_id, t.code AS {C.STATION}, r.year AS {C.YEAR}, v.date AS {C.DATE},
+               v.status AS {C.VISIT_STATUS}, v.repeat_no
+        FROM visit v JOIN round r ON r.id = v.round_id JOIN station t ON t.id = v.station_id
+        WHERE {where} ORDER BY t.code, v.date
+        """,
+        **params,
+    )
+    observers = store.frame(
+        """
+        SELECT vo.visit_id, ob.code FROM visit_observer vo JOIN observer ob ON ob.id = vo.observer_id
+        WHERE ob.programme_id = :p ORDER BY ob.code
+        """,
+        p=programme_id,
+    )
+    joined = observers.groupby("visit_id")["code"].agg(";".join) if len(observers) else pd.Series(dtype=str)
+    frame["observers"] = frame["visit_id"].map(joined).fillna("")
+    return frame
+
+
+def planned_visits(store: Store, programme_id: int, year: int) -> pd.DataFrame:
+    """A season's stored plan with each station's outcome read from the stored visits at read time.
+
+    Columns: station, site, x, y, team, day, route_order, arrival (HH:MM), reason, stored_outcome (as
+    stored in planned_visit), outcome (the round's first visit's status when one is stored, else the
+    stored outcome), visit_date, seed.  Rows in team, day, route order; unscheduled stations last.
+    """
+    return store.frame(
+        f"""
+        SELECT t.code AS {C.STATION}, s.code AS {C.SITE}, t.x AS {C.X}, t.y AS {C.Y}, pv.team, pv.day,
+               pv.route_order, pv.arrival, pv.reason, pv.outcome AS stored_outcome,
+               COALESCE(v.status, pv.outcome) AS outcome, v.date AS visit_date, pv.seed
+        FROM planned_visit pv
+        JOIN round r ON r.id = pv.round_id
+        JOIN station t ON t.id = pv.station_id
+        JOIN site s ON s.id = t.site_id
+        LEFT JOIN visit v ON v.station_id = pv.station_id AND v.round_id = pv.round_id AND v.repeat_no = 0
+        WHERE r.programme_id = :p AND r.year = :y
+        ORDER BY CASE WHEN pv.day IS NULL THEN 1 ELSE 0 END, pv.day, pv.team, pv.route_order, t.code
+        """,
+        p=programme_id,
+        y=year,
+    )

@@ -35,6 +35,7 @@ OVERDUE_YEARS = "overdue_years"    # years since the missed round (0 = not overd
 MISSED_YEAR = "missed_year"        # earliest missed round not since made good [year] or NA
 DUE = "due"                        # due this year by the panel rule [bool]
 TARGETS = "targets"                # ';'-joined species:measure recorded at the station
+FIRST_SEASON = "first_season"      # first season a station could be visited (set out then) [year] or NA
 
 
 @dataclass(frozen=True)
@@ -142,7 +143,9 @@ def overdue_table(stations: pd.DataFrame, history: pd.DataFrame | None, year: in
 
     ``history`` has columns station, year, status (one row per visit; rounds held are the
     years present).  A station counts as missed in a round year when it has a missed or
-    inaccessible visit then, or when ``design`` says it was due and it has no visit at all.
+    inaccessible visit then, or when ``design`` says it was due and it has no visit at all, in a
+    round held in or after its first season (``first_season`` column, else the year it was
+    ``established``; a round before a station was set out cannot have missed it).
     """
     codes = stations[C.STATION].astype(str)
     out = pd.DataFrame({C.STATION: codes, MISSED_YEAR: pd.array([pd.NA] * len(codes), dtype="Int64")})
@@ -160,10 +163,14 @@ def overdue_table(stations: pd.DataFrame, history: pd.DataFrame | None, year: in
         missed_years.setdefault(st, []).append(int(y))
     if design is not None and C.PANEL in stations.columns:
         seen = set(zip(h[C.STATION], h[C.YEAR].astype(int), strict=True))
-        for st, panel in zip(codes, stations[C.PANEL], strict=True):
+        first_seasons = _first_seasons(stations)
+        for st, panel, first_season in zip(codes, stations[C.PANEL], first_seasons, strict=True):
             if pd.isna(panel):
                 continue
             for y in rounds:
+                # a round held before the station was set out cannot have missed it
+                if y < first_season:
+                    continue
                 if design.is_due(str(panel), y) and (st, y) not in seen:
                     missed_years.setdefault(st, []).append(y)
     first = []
@@ -174,6 +181,23 @@ def overdue_table(stations: pd.DataFrame, history: pd.DataFrame | None, year: in
     out[MISSED_YEAR] = pd.array(first, dtype="Int64")
     out[OVERDUE_YEARS] = (year - out[MISSED_YEAR]).fillna(0).astype(int)
     return out
+
+
+def _first_seasons(stations: pd.DataFrame) -> list[int]:
+    """First season each station could be visited: ``first_season``, else the year of ``established``."""
+    n = len(stations)
+    if FIRST_SEASON in stations.columns:
+        raw = list(stations[FIRST_SEASON])
+        return [-10**9 if pd.isna(v) else int(v) for v in raw]
+    if "established" in stations.columns:
+        out = []
+        for v in stations["established"]:
+            if v is None or (not isinstance(v, dt.date) and pd.isna(v)):
+                out.append(-10**9)
+            else:
+                out.append(pd.Timestamp(v).year)
+        return out
+    return [-10**9] * n
 
 
 def due_stations(

@@ -165,6 +165,10 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
     trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True)
     if not trends:
         raise DataError("no target species to report")
+    if power is None:
+        from monitor.services.power import detectable_changes
+
+        power = detectable_changes(trends)
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
