@@ -17,7 +17,7 @@ import io
 import json
 from pathlib import Path
 
-from sqlalchemy import Boolean, Date, DateTime, Float, Integer, TypeDecorator, func, select, text, update
+from sqlalchemy import Boolean, Date, DateTime, Float, Integer, TypeDecorator, func, inspect, select, text, update
 
 from monitor import __version__
 from monitor.db import migrate
@@ -81,7 +81,10 @@ def dump(store: Store, folder: Path) -> dict:
     with store.engine.connect() as connection:
         if store.dialect == "postgresql":
             connection.execute(text("SET TRANSACTION ISOLATION LEVEL REPEATABLE READ"))
+        present_tables = set(inspect(connection).get_table_names())
         for table in metadata.sorted_tables:
+            if table.name not in present_tables:
+                continue
             buffer = io.StringIO()
             writer = csv.writer(buffer, lineterminator="\r\n")
             names = [c.name for c in table.columns]
@@ -139,10 +142,15 @@ def restore(store: Store, folder: Path) -> dict[str, int]:
         raise DataError(f"the backup has schema revision {manifest['schema_revision']} but the database has "
                         f"{revision}; run `monitor init` on an empty database of this monitor version, or restore "
                         "with the monitor version that made the backup")
-    known = {t.name: t for t in metadata.sorted_tables}
+    # the tables of this revision, in dependency order: those the code knows at head that exist in the database
+    with store.engine.connect() as connection:
+        present_tables = set(inspect(connection).get_table_names())
+    known = {t.name: t for t in metadata.sorted_tables if t.name in present_tables}
     missing = sorted(set(known) - set(manifest["tables"]))
-    if missing:
-        raise InputError(InputProblem(str(folder / MANIFEST), None, "tables", ", ".join(missing), "every table"))
+    extra = sorted(set(manifest["tables"]) - set(known))
+    if missing or extra:
+        raise InputError(InputProblem(str(folder / MANIFEST), None, "tables", ", ".join(missing + extra),
+                                      f"exactly the tables of schema revision {revision}"))
     loaded: dict[str, int] = {}
     with store.engine.begin() as connection:
         for name, table in known.items():
@@ -152,7 +160,7 @@ def restore(store: Store, folder: Path) -> dict[str, int]:
             if present:
                 raise DataError(f"the database is not empty (table {name} holds {present} rows); "
                                 "restore only into a freshly initialised database")
-        for table in metadata.sorted_tables:
+        for table in known.values():
             entry = manifest["tables"][table.name]
             with (folder / entry["file"]).open(newline="", encoding="utf-8") as handle:
                 reader = csv.reader(handle)

@@ -16,7 +16,7 @@ def backup_database(db: str | None, folder: Path) -> dict:
         store.dispose()
 
 
-def restore_database(db: str | None, folder: Path) -> tuple[dict[str, int], str]:
+def restore_database(db: str | None, folder: Path, *, upgrade: bool = True) -> tuple[dict[str, int], str]:
     """Restore into an empty database: created at the backup's revision if it has no schema yet, then
     upgraded to this monitor's schema after the load.  Returns rows per table and the final revision."""
     manifest = backup.read_manifest(Path(folder))
@@ -25,6 +25,8 @@ def restore_database(db: str | None, folder: Path) -> tuple[dict[str, int], str]
         if migrate.current_revision(store.engine) is None:
             migrate.upgrade(store.engine, manifest["schema_revision"])
         loaded = backup.restore(store, Path(folder))
+        if not upgrade:
+            return loaded, migrate.current_revision(store.engine) or ""
         _before, after = migrate.upgrade(store.engine)
         return loaded, after
     finally:
