@@ -95,6 +95,13 @@ def _as_date(value: object) -> dt.date | None:
     return pd.Timestamp(value).date()
 
 
+def _team_key(team: object) -> tuple:
+    """A visit's observers as a hashable tuple (None or NaN = no observers)."""
+    if team is None or (isinstance(team, float) and np.isnan(team)):
+        return ()
+    return tuple(team)
+
+
 def _dates(series: pd.Series) -> pd.Series:
     """A date column as datetime.date objects (accepts date objects, Timestamps or ISO strings)."""
     if pd.api.types.is_datetime64_any_dtype(series):
@@ -174,11 +181,31 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps, strict=True):
             date = _as_date(date)
             rounds.setdefault((station, date.year), []).append((date, bool(rep), None))
-    for rec in visits.itertuples(index=False):
-        v = rec._asdict()
-        station, date, row = v[C.STATION], _as_date(v[C.DATE]), v.get(H.SOURCE_ROW)
-        status_of[(station, date)] = v[C.VISIT_STATUS]
-        row_of[(station, date)] = row
+    n_visits = len(visits)
+    v_stations = visits[C.STATION].tolist()
+    v_dates = [d if type(d) is dt.date else _as_date(d) for d in visits[C.DATE]]
+    v_rows = visits[H.SOURCE_ROW].tolist() if H.SOURCE_ROW in visits.columns else [None] * n_visits
+    v_statuses = visits[C.VISIT_STATUS].tolist()
+    v_teams = visits[H.OBSERVERS].tolist() if H.OBSERVERS in visits.columns else [()] * n_visits
+    v_repeats = visits[H.REPEAT].tolist() if H.REPEAT in visits.columns else [None] * n_visits
+    keys = list(zip(v_stations, v_dates, strict=True))
+    status_of.update(zip(keys, v_statuses, strict=True))
+    row_of.update(zip(keys, v_rows, strict=True))
+    # cheap screens first (per distinct date and team); the full checks run only on visits they pick out
+    date_suspect: dict[dt.date, bool] = {}
+    for date in set(v_dates):
+        window = reference.windows.get(date.year)
+        date_suspect[date] = date > reference.today or (window is not None and not window[0] <= date <= window[1])
+    team_suspect: dict[object, bool] = {}
+    if reference.observers is not None:
+        for team in set(map(_team_key, v_teams)):
+            team_suspect[team] = any(code not in reference.observers for code in team)
+    for i in range(n_visits):
+        station, date = v_stations[i], v_dates[i]
+        if (station in known_stations and station not in retired and not date_suspect[date]
+                and not (team_suspect and team_suspect[_team_key(v_teams[i])])):
+            continue
+        row = v_rows[i]
         if station not in known_stations:
             add(row, C.STATION, station, "a station of the programme" + _closest(station, station_codes))
         elif station in retired and date >= retired[station]:
@@ -192,12 +219,15 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                 f"a date inside the {date.year} season window {window[0].isoformat()} to {window[1].isoformat()}",
                 WARNING)
         if reference.observers is not None:
-            for code in v.get(H.OBSERVERS) or ():
+            for code in v_teams[i] or ():
                 if code not in reference.observers:
                     add(row, H.OBSERVERS, code,
                         "an observer in the register" + _closest(code, sorted(reference.observers)))
-        rounds.setdefault((station, date.year), []).append((date, bool(v.get(H.REPEAT)), row))
+    for station, date, repeat, row in zip(v_stations, v_dates, v_repeats, v_rows, strict=True):
+        rounds.setdefault((station, date.year), []).append((date, bool(repeat), row))
     for (station, year), entries in rounds.items():
+        if len(entries) < 2:
+            continue  # one visit in the round: nothing to compare
         # same station and date already stored = the same visit (a correction), not a second one
         first_plain: dt.date | None = None
         seen_dates: set[dt.date] = set()
@@ -283,13 +313,23 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                 f"n = {int(programme_n[i])} {unit}, the programme's {'grid' if unit == 'cells' else 'frame'} "
                 f"for {species[i]}")
 
-        # species windows (phenology): warnings
+        # species windows (phenology): warnings; month-day worked out once per distinct date
         if reference.species_windows:
-            for i in np.flatnonzero(np.isin(species, list(reference.species_windows))):
-                start, end = reference.species_windows[species[i]]
-                date = _as_date(dates[i])
-                if not _in_month_day_window(date, start, end):
-                    add(rows[i], fields[i], date.isoformat(),
+            in_scope = np.isin(species, list(reference.species_windows))
+            if in_scope.any():
+                codes, distinct = pd.factorize(pd.Series(dates, dtype=object))
+                month_days = np.array([f"{d.month:02d}-{d.day:02d}" for d in map(_as_date, distinct)] or [""])
+                md = month_days[codes]
+                outside = np.zeros(len(species), dtype=bool)
+                for code, (start, end) in reference.species_windows.items():
+                    mask = in_scope & (species == code)
+                    if not mask.any():
+                        continue
+                    inside = (start <= md) & (md <= end) if start <= end else (md >= start) | (md <= end)
+                    outside |= mask & ~inside
+                for i in np.flatnonzero(outside):
+                    start, end = reference.species_windows[species[i]]
+                    add(rows[i], fields[i], _as_date(dates[i]).isoformat(),
                         f"a visit inside {species[i]}'s season window {start} to {end}", WARNING)
         del known_species
 
