@@ -18,22 +18,28 @@ import datetime as dt
 import getpass
 import json
 import os
+import sys
+import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TypeVar
 
+import numpy as np
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Session, Store, insert, select
+from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.db.models import utcnow
-from monitor.errors import DataError, InputError, InputProblem, LockedError
+from monitor.errors import DataError, InputError, InputProblem, LockedError, MonitorError
 from monitor.io import headers as H
 from monitor.io.hashing import content_hash
-from monitor.io.records import read_field_records
+from monitor.io.records import FieldRecords, read_field_records
 from monitor.io.validate import Reference, fill_blank_targets, raise_for_problems, validate_records
 
 KIND_RECORDS = "records"
+T = TypeVar("T")
 
 
 @dataclass
@@ -145,18 +151,13 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
 
 # --- import -----------------------------------------------------------------------------------------------------
 
-
-def _round_for(session: Session, programme_id: int, year: int, cache: dict[int, M.Round]) -> M.Round:
-    if year in cache:
-        return cache[year]
-    rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme_id, M.Round.year == year)).first()
-    if rnd is None:
-        start, end = programme_window(session, programme_id, year)
-        rnd = M.Round(programme_id=programme_id, year=year, window_start=start, window_end=end, status="open")
-        session.add(rnd)
-        session.flush()
-    cache[year] = rnd
-    return rnd
+#: Test hook, not for users: when set to a number of seconds, an import that has written its visits (inside
+#: its still open transaction) says so on stderr and sleeps that long, so that a test can kill the process
+#: at that moment and show that nothing of the import is left in the database.
+PAUSE_HOOK = "MONITOR_TEST_PAUSE_AFTER_VISITS"
+#: attempts of one import when the database reports a transient failure (serialization failure, deadlock,
+#: a busy SQLite file, a round or visit created first by a concurrent import)
+ATTEMPTS = 6
 
 
 def _text(value: object) -> str:
@@ -170,27 +171,47 @@ def _text(value: object) -> str:
     return str(value)
 
 
+def run_with_retries(work: Callable[[], T], *, attempts: int = ATTEMPTS, first_wait: float = 0.05) -> T:
+    """Run one transaction's work, again from the start when it failed for a transient reason.
+
+    The wait doubles after each failed attempt (exponential backoff), offset by the process id so that
+    two processes that collided do not retry in step.
+    """
+    for attempt in range(attempts):
+        try:
+            return work()
+        except MonitorError as exc:
+            if attempt == attempts - 1 or not queries.retryable(exc):
+                raise
+            time.sleep(first_wait * (2 ** attempt) * (1 + (os.getpid() % 11) / 11))
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
 def import_records(db: str | None, path: Path, *, programme_code: str | None = None, dry_run: bool = False,
                    correct: bool = False, reason: str | None = None, accept_warnings: bool = False,
                    who: str | None = None, day_first: bool | None = None) -> ImportReport:
-    """Import a season's field records from CSV or .xlsx (wide field-sheet or long layout)."""
+    """Import a season's field records from CSV or .xlsx (wide field-sheet or long layout).
+
+    The whole file is read and checked before anything is written, and everything is written in one
+    transaction: a file with any error, or a process killed half-way, leaves the database as it was.
+    """
     path = Path(path)
     if correct and not (reason and reason.strip()):
         raise InputError(InputProblem(path.name, None, "--reason", None, "a reason for the correction"))
+    records = read_field_records(path, day_first=day_first)
+    digest = content_hash(path)
     store = Store.open(db)
     try:
-        return _import(store, path, programme_code, dry_run, correct, reason, accept_warnings,
-                       who or current_user(), day_first)
+        programme = store.programme(programme_code)
+        return run_with_retries(lambda: _import(store, programme, records, path.name, digest, dry_run, correct,
+                                                reason, accept_warnings, who or current_user()))
     finally:
         store.dispose()
 
 
-def _import(store: Store, path: Path, programme_code: str | None, dry_run: bool, correct: bool,
-            reason: str | None, accept_warnings: bool, who: str, day_first: bool | None) -> ImportReport:
-    records = read_field_records(path, day_first=day_first)
+def _import(store: Store, programme: M.Programme, records: FieldRecords, file_name: str, digest: str,
+            dry_run: bool, correct: bool, reason: str | None, accept_warnings: bool, who: str) -> ImportReport:
     report = ImportReport(file=records.file, layout=records.layout, dry_run=dry_run)
-    digest = content_hash(path)
-    programme = store.programme(programme_code)
     with store.session() as session:
         batch = session.exec(select(M.ImportBatch).where(
             M.ImportBatch.programme_id == programme.id, M.ImportBatch.kind == KIND_RECORDS,
@@ -205,6 +226,7 @@ def _import(store: Store, path: Path, programme_code: str | None, dry_run: bool,
         report.years = years
         reference = build_reference(session, programme, years)
         problems = validate_records(visits, records.observations, records.covariates, reference, file=records.file)
+        problems += _protocol_problems(session, programme.id, visits, records.file)
         accepted = raise_for_problems(problems, accept_warnings=accept_warnings)
         report.warnings.extend(p.line() for p in accepted)
         observations = fill_blank_targets(visits, records.observations, reference)
@@ -218,20 +240,38 @@ def _import(store: Store, path: Path, programme_code: str | None, dry_run: bool,
         if dry_run:
             session.rollback()
             return report
-        _write(session, programme, path.name, digest, len(visits), plan, report, reason, who)
+        _write(session, programme, file_name, digest, len(visits), plan, reason, who)
     return report
+
+
+def _protocol_problems(session: Session, programme_id: int, visits: pd.DataFrame, file: str) -> list[InputProblem]:
+    """A protocol code that the programme does not know is an error (never silently dropped)."""
+    if C.PROTOCOL not in visits.columns:
+        return []
+    known = set(session.exec(select(M.ProtocolVersion.code).where(M.ProtocolVersion.programme_id == programme_id)).all())
+    out = []
+    for code, row in zip(visits[C.PROTOCOL], visits[H.SOURCE_ROW], strict=True):
+        code = _text(code)
+        if code and code not in known:
+            out.append(InputProblem(file, int(row), C.PROTOCOL, code,
+                                    f"a protocol version of the programme ({', '.join(sorted(known)) or 'none'})"))
+    return out
 
 
 @dataclass
 class _Plan:
-    new_visits: list[dict] = field(default_factory=list)        # visit rows with their observations
+    new: pd.DataFrame = field(default_factory=pd.DataFrame)            # new visits (file order), with ids to use
+    new_observations: pd.DataFrame = field(default_factory=pd.DataFrame)
+    new_covariates: pd.DataFrame = field(default_factory=pd.DataFrame)
     changes: list[tuple[Change, int]] = field(default_factory=list)
     updates: list[tuple[int, dict]] = field(default_factory=list)  # (stored visit id, the file's version)
     locked_years: set[int] = field(default_factory=set)
+    windows: dict[int, tuple[dt.date, dt.date]] = field(default_factory=dict)
 
 
 def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFrame, observations: pd.DataFrame,
           covariates: pd.DataFrame, report: ImportReport) -> _Plan:
+    """Sort the file's visits into new ones (written in bulk) and stored ones (compared value by value)."""
     pid = programme.id
     station_ids = dict(session.exec(select(M.Station.code, M.Station.id).where(M.Station.programme_id == pid)).all())
     species_ids = dict(session.exec(select(M.Species.code, M.Species.id).where(M.Species.programme_id == pid)).all())
@@ -241,49 +281,116 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
     years = sorted({int(y) for y in visits[C.YEAR]})
     rounds = {r.year: r for r in session.exec(select(M.Round).where(M.Round.programme_id == pid,
                                                                      M.Round.year.in_(years))).all()}
-    # stored visits of these rounds, keyed (station, year, date) and (station, year) for first visits
-    stored: dict[tuple[str, int, dt.date], M.Visit] = {}
-    first_visit: dict[tuple[str, int], M.Visit] = {}
-    code_of = {v: k for k, v in station_ids.items()}
-    year_of = {r.id: y for y, r in rounds.items()}
-    if rounds:
-        for visit in session.exec(select(M.Visit).where(M.Visit.round_id.in_([r.id for r in rounds.values()]))).all():
-            key = (code_of[visit.station_id], year_of[visit.round_id])
-            stored[(*key, visit.date)] = visit
-            if visit.repeat_no == 0:
-                first_visit[key] = visit
-
-    obs_by_visit = {k: g for k, g in observations.groupby([C.STATION, C.DATE], sort=False)} if len(observations) else {}
-    cov_by_visit = {k: g for k, g in covariates.groupby([C.STATION, C.DATE], sort=False)} if len(covariates) else {}
-    plan = _Plan()
     protocol_default = _default_protocol(session, pid)
-    for v in visits.to_dict(orient="records"):
-        station, date, year = v[C.STATION], v[C.DATE], int(v[C.YEAR])
+
+    v = pd.DataFrame({
+        C.STATION: visits[C.STATION].to_numpy(dtype=object),
+        "station_id": visits[C.STATION].map(station_ids).to_numpy(dtype=object),
+        C.YEAR: visits[C.YEAR].astype(int).to_numpy(),
+        C.DATE: visits[C.DATE].to_numpy(dtype=object),
+        "status": visits[C.VISIT_STATUS].to_numpy(dtype=object),
+        "repeat": visits[H.REPEAT].fillna(False).astype(bool).to_numpy(),
+        "notes": [_text(x) for x in visits[H.NOTES]],
+        "observer_ids": [[observer_ids[o] for o in (team or ()) if o in observer_ids] for team in visits[H.OBSERVERS]],
+        "source_row": visits[H.SOURCE_ROW].astype(int).to_numpy(),
+    })
+    v["protocol_id"] = [protocol_ids.get(code) if code else protocol_default.get(year)
+                        for code, year in zip((_text(x) for x in visits[C.PROTOCOL]), v[C.YEAR], strict=True)]
+    v["existing_id"] = pd.array([None] * len(v), dtype="Int64")
+
+    stored = pd.DataFrame(columns=["id", "station_id", "round_id", "date", "repeat_no"])
+    if rounds:
+        year_of = {r.id: y for y, r in rounds.items()}
+        stored = pd.DataFrame(session.exec(select(M.Visit.id, M.Visit.station_id, M.Visit.round_id, M.Visit.date,
+                                                  M.Visit.repeat_no)
+                                           .where(M.Visit.round_id.in_(list(year_of)))).all(),
+                              columns=["id", "station_id", "round_id", "date", "repeat_no"])
+        stored[C.YEAR] = stored["round_id"].map(year_of)
+    if len(stored) and len(v):
+        # the same visit: same station, round and date; or, for a visit not marked repeat, the round's first visit
+        by_date = dict(zip(zip(stored["station_id"], stored[C.YEAR], stored["date"]), stored["id"]))
+        first = stored[stored["repeat_no"] == 0]
+        by_round = dict(zip(zip(first["station_id"], first[C.YEAR]), first["id"]))
+        matched = []
+        for sid, year, date, repeat in zip(v["station_id"], v[C.YEAR], v[C.DATE], v["repeat"], strict=True):
+            hit = by_date.get((sid, year, date))
+            if hit is None and not repeat:
+                hit = by_round.get((sid, year))
+            matched.append(hit)
+        v["existing_id"] = pd.array(matched, dtype="Int64")
+
+    plan = _Plan()
+    is_new = v["existing_id"].isna().to_numpy()
+    new = v[is_new].copy()
+    for year in sorted(set(new[C.YEAR])):
+        if year in rounds and rounds[year].status == "certified":
+            plan.locked_years.add(int(year))
+        plan.windows[int(year)] = ((rounds[year].window_start, rounds[year].window_end) if year in rounds
+                                   else programme_window(session, pid, int(year)))
+    # repeat numbers: 0 for the round's visit; marked repeats count on from what the round holds
+    new["repeat_no"] = 0
+    if new["repeat"].any():
+        stored_max = (stored.groupby(["station_id", C.YEAR])["repeat_no"].max().to_dict() if len(stored) else {})
+        reps = new[new["repeat"]]
+        order = reps.groupby(["station_id", C.YEAR]).cumcount() + 1
+        new.loc[reps.index, "repeat_no"] = [int(stored_max.get((s, y), 0)) + int(k)
+                                            for s, y, k in zip(reps["station_id"], reps[C.YEAR], order, strict=True)]
+    new["key"] = list(zip(new[C.STATION], new[C.DATE]))
+    plan.new = new
+
+    wanted = set(new["key"])
+    if len(observations):
+        okeys = list(zip(observations[C.STATION], observations[C.DATE]))
+        keep = np.fromiter((k in wanted for k in okeys), dtype=bool, count=len(okeys))
+        o = observations[keep]
+        plan.new_observations = pd.DataFrame({
+            "key": [k for k, kept in zip(okeys, keep, strict=True) if kept],
+            "species_id": o[C.SPECIES].map(species_ids).to_numpy(dtype=object),
+            "measure": o[C.MEASURE].to_numpy(dtype=object),
+            "value": o[H.VALUE].astype(float).to_numpy(),
+            "n": pd.Series([None if pd.isna(x) else int(x) for x in o[H.N]], dtype=object),
+        })
+    if len(covariates):
+        ckeys = list(zip(covariates[C.STATION], covariates[C.DATE]))
+        keep = np.fromiter((k in wanted for k in ckeys), dtype=bool, count=len(ckeys))
+        c = covariates[keep]
+        plan.new_covariates = pd.DataFrame({
+            "key": [k for k, kept in zip(ckeys, keep, strict=True) if kept],
+            "name": c["name"].to_numpy(dtype=object),
+            "unit": [_text(u) for u in c[H.UNIT]],
+            "value": c[H.VALUE].astype(float).to_numpy(),
+        })
+
+    matched_rows = v[~is_new]
+    if len(matched_rows):
+        _plan_stored(session, matched_rows, observations, covariates, species_ids, observer_ids, rounds, plan, report)
+    if plan.locked_years:
+        years_text = ", ".join(str(y) for y in sorted(plan.locked_years))
+        raise LockedError(f"{file}: season {years_text} is certified (locked); "
+                          f"unlock it first with `monitor records unlock YEAR --reason \"...\"`")
+    report.visits_added = len(plan.new)
+    report.observations_added = len(plan.new_observations)
+    report.covariates_added = len(plan.new_covariates)
+    return plan
+
+
+def _plan_stored(session: Session, matched: pd.DataFrame, observations: pd.DataFrame, covariates: pd.DataFrame,
+                 species_ids: dict, observer_ids: dict, rounds: dict, plan: _Plan, report: ImportReport) -> None:
+    """Compare the file's version of visits already stored with what is stored."""
+    obs_by_visit = {k: g for k, g in observations.groupby([C.STATION, C.DATE], sort=False)} if len(observations) else {}
+    for r in matched.to_dict(orient="records"):
+        station, date, year = r[C.STATION], r[C.DATE], int(r[C.YEAR])
         rows_obs = obs_by_visit.get((station, date))
-        rows_cov = cov_by_visit.get((station, date))
-        protocol = _text(v.get(C.PROTOCOL)) or None
-        new_obs = [] if rows_obs is None else [
-            {"species_id": species_ids[o[C.SPECIES]], "species": o[C.SPECIES], "measure": o[C.MEASURE],
-             "value": float(o[H.VALUE]), "n": None if pd.isna(o[H.N]) else int(o[H.N])}
-            for o in rows_obs.to_dict(orient="records")]
-        new_cov = [] if rows_cov is None else [
-            {"name": c["name"], "unit": _text(c.get(H.UNIT)), "value": float(c[H.VALUE])}
-            for c in rows_cov.to_dict(orient="records")]
         row = {
-            "station": station, "station_id": station_ids[station], "year": year, "date": date,
-            "status": v[C.VISIT_STATUS], "repeat": bool(v[H.REPEAT]), "notes": _text(v.get(H.NOTES)),
-            "protocol_id": protocol_ids.get(protocol) if protocol else protocol_default.get(year),
-            "observer_ids": [observer_ids[o] for o in (v.get(H.OBSERVERS) or ()) if o in observer_ids],
-            "observations": new_obs, "covariates": new_cov, "source_row": int(v[H.SOURCE_ROW]),
+            "station": station, "station_id": r["station_id"], "year": year, "date": date, "status": r["status"],
+            "repeat": bool(r["repeat"]), "notes": r["notes"], "protocol_id": r["protocol_id"],
+            "observer_ids": r["observer_ids"], "source_row": int(r["source_row"]),
+            "observations": [] if rows_obs is None else [
+                {"species_id": species_ids[o[C.SPECIES]], "species": o[C.SPECIES], "measure": o[C.MEASURE],
+                 "value": float(o[H.VALUE]), "n": None if pd.isna(o[H.N]) else int(o[H.N])}
+                for o in rows_obs.to_dict(orient="records")],
         }
-        existing = stored.get((station, year, date))
-        if existing is None and not row["repeat"]:
-            existing = first_visit.get((station, year))
-        if existing is None:
-            plan.new_visits.append(row)
-            if year in rounds and rounds[year].status == "certified":
-                plan.locked_years.add(year)
-            continue
+        existing = session.get(M.Visit, int(r["existing_id"]))
         changes = _compare(session, existing, row, species_ids, observer_ids)
         if not changes:
             report.visits_unchanged += 1
@@ -293,14 +400,6 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
         for ch in changes:
             plan.changes.append((ch, row["source_row"]))
         plan.updates.append((existing.id, row))
-    if plan.locked_years:
-        years_text = ", ".join(str(y) for y in sorted(plan.locked_years))
-        raise LockedError(f"{file}: season {years_text} is certified (locked); "
-                          f"unlock it first with `monitor records unlock YEAR --reason \"...\"`")
-    report.visits_added = len(plan.new_visits)
-    report.observations_added = sum(len(r["observations"]) for r in plan.new_visits)
-    report.covariates_added = sum(len(r["covariates"]) for r in plan.new_visits)
-    return plan
 
 
 def _default_protocol(session: Session, programme_id: int) -> dict[int, int]:
@@ -312,7 +411,7 @@ def _default_protocol(session: Session, programme_id: int) -> dict[int, int]:
         def get(self, year, default=None):  # noqa: A003 - a dict with computed lookups
             chosen = None
             for p in protos:
-                if p.effective_from <= dt.date(year, 7, 1):
+                if p.effective_from <= dt.date(int(year), 7, 1):
                     chosen = p.id
             return chosen if chosen is not None else default
 
@@ -357,51 +456,60 @@ def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, obs
 
 
 def _write(session: Session, programme: M.Programme, file_name: str, digest: str, n_rows: int, plan: _Plan,
-           report: ImportReport, reason: str | None, who: str) -> None:
+           reason: str | None, who: str) -> None:
     now = utcnow()
     batch = M.ImportBatch(programme_id=programme.id, kind=KIND_RECORDS, file_name=file_name, content_hash=digest,
                           row_count=n_rows, imported_by=who, imported_at=now)
     session.add(batch)
     session.flush()
-    rounds: dict[int, M.Round] = {}
-    visit_rows = []
-    repeat_next: dict[tuple[int, int], int] = {}
-    for r in plan.new_visits:
-        rnd = _round_for(session, programme.id, r["year"], rounds)
-        repeat_no = 0
-        if r["repeat"]:
-            key = (r["station_id"], rnd.id)
-            if key not in repeat_next:
-                stored_max = session.exec(select(M.Visit.repeat_no).where(
-                    M.Visit.station_id == r["station_id"], M.Visit.round_id == rnd.id)).all()
-                repeat_next[key] = (max(stored_max) + 1) if stored_max else 1
-            repeat_no = repeat_next[key]
-            repeat_next[key] += 1
-        r["round_id"], r["repeat_no"] = rnd.id, repeat_no
-        visit_rows.append({"station_id": r["station_id"], "round_id": rnd.id, "date": r["date"], "status": r["status"],
-                           "repeat_no": repeat_no, "protocol_id": r["protocol_id"], "notes": r["notes"],
-                           "import_batch_id": batch.id})
-    if visit_rows:
-        session.execute(insert(M.Visit), visit_rows)
-        ids = {(s, rd, rp): i for i, s, rd, rp in session.exec(
-            select(M.Visit.id, M.Visit.station_id, M.Visit.round_id, M.Visit.repeat_no)
-            .where(M.Visit.import_batch_id == batch.id)).all()}
-        obs_rows, observer_rows, cov_rows = [], [], []
-        for r in plan.new_visits:
-            vid = ids[(r["station_id"], r["round_id"], r["repeat_no"])]
-            obs_rows.extend({"visit_id": vid, "species_id": o["species_id"], "measure": o["measure"],
-                             "value": o["value"], "n": o["n"]} for o in r["observations"])
-            observer_rows.extend({"visit_id": vid, "observer_id": o} for o in dict.fromkeys(r["observer_ids"]))
-            cov_rows.extend({"station_id": r["station_id"], "visit_id": vid, **c} for c in r["covariates"])
-        if obs_rows:
-            session.execute(insert(M.Observation), obs_rows)
-        if observer_rows:
-            session.execute(insert(M.VisitObserver), observer_rows)
-        if cov_rows:
-            session.execute(insert(M.Covariate), cov_rows)
+    new = plan.new
+    if len(new):
+        # rounds in year order, so two imports creating rounds at once never wait on each other in a cycle
+        round_ids = {year: queries.ensure_round(session, programme.id, year, *plan.windows[year])
+                     for year in sorted(plan.windows)}
+        new_round = [round_ids[int(y)] for y in new[C.YEAR]]
+        queries.insert_rows(session, "visit", ["station_id", "round_id", "date", "status", "repeat_no", "protocol_id",
+                                               "notes", "import_batch_id"],
+                            list(zip([int(s) for s in new["station_id"]], new_round,
+                                     [d.isoformat() for d in new[C.DATE]], new["status"].tolist(),
+                                     [int(x) for x in new["repeat_no"]],
+                                     [None if x is None or pd.isna(x) else int(x) for x in new["protocol_id"]],
+                                     new["notes"].tolist(), [batch.id] * len(new), strict=True)))
+        _pause_hook(len(new))
+        stored = session.exec(select(M.Visit.id, M.Visit.station_id, M.Visit.round_id, M.Visit.repeat_no)
+                              .where(M.Visit.import_batch_id == batch.id)).all()
+        id_of = {(s, r, k): i for i, s, r, k in stored}
+        visit_ids = [id_of[(int(s), r, int(k))] for s, r, k in zip(new["station_id"], new_round, new["repeat_no"],
+                                                                   strict=True)]
+        id_by_key = dict(zip(new["key"], visit_ids, strict=True))
+        obs = plan.new_observations
+        if len(obs):
+            queries.insert_rows(session, "observation", ["visit_id", "species_id", "measure", "value", "n"],
+                                list(zip([id_by_key[k] for k in obs["key"]], [int(s) for s in obs["species_id"]],
+                                         obs["measure"].tolist(), obs["value"].tolist(), obs["n"].tolist(),
+                                         strict=True)))
+        queries.insert_rows(session, "visit_observer", ["visit_id", "observer_id"],
+                            [(vid, int(oid)) for vid, team in zip(visit_ids, new["observer_ids"], strict=True)
+                             for oid in dict.fromkeys(team)])
+        cov = plan.new_covariates
+        if len(cov):
+            station_of = dict(zip(new["key"], new["station_id"], strict=True))
+            queries.insert_rows(session, "covariate", ["station_id", "visit_id", "name", "unit", "value"],
+                                list(zip([int(station_of[k]) for k in cov["key"]], [id_by_key[k] for k in cov["key"]],
+                                         cov["name"].tolist(), cov["unit"].tolist(), cov["value"].tolist(),
+                                         strict=True)))
     for visit_id, row in plan.updates:
         _apply_update(session, programme.id, visit_id, row, reason or "", who, now)
     session.flush()
+
+
+def _pause_hook(n_visits: int) -> None:
+    seconds = os.environ.get(PAUSE_HOOK)
+    if not seconds:
+        return
+    print(f"{PAUSE_HOOK}: {n_visits} visits written, transaction open; pausing {seconds} s",
+          file=sys.stderr, flush=True)
+    time.sleep(float(seconds))
 
 
 def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict, reason: str, who: str,
@@ -424,7 +532,7 @@ def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict,
     new_obs = {(o["species_id"], o["measure"]): o for o in row["observations"]}
     for key, obs in stored.items():
         if key not in new_obs:
-            log("observation", obs.id, f"{obs.species_id}:{obs.measure}:value", obs.value, None)
+            log("visit", visit.id, f"{_species_code(session, obs.species_id)}:{obs.measure}", obs.value, None)
             session.delete(obs)
         elif obs.value != new_obs[key]["value"] or (obs.n or None) != (new_obs[key]["n"] or None):
             log("observation", obs.id, "value", obs.value, new_obs[key]["value"])
@@ -446,6 +554,11 @@ def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict,
         session.flush()
         for oid in dict.fromkeys(row["observer_ids"]):
             session.add(M.VisitObserver(visit_id=visit.id, observer_id=oid))
+
+
+def _species_code(session: Session, species_id: int) -> str:
+    species = session.get(M.Species, species_id)
+    return species.code if species is not None else str(species_id)
 
 
 # --- certification ------------------------------------------------------------------------------------------
