@@ -13,7 +13,7 @@ from typing import Any
 
 from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
-from monitor.services import records, setup, summary
+from monitor.services import quality, records, setup, summary
 
 
 @dataclass
@@ -47,5 +47,7 @@ def run_demo(folder: Path, *, echo: Callable[[str], None] = lambda _m: None) -> 
     echo(f"3. importing {len(sheets)} seasons of field sheets through the records importer")
     imports = [records.import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
     run.steps.append(("imports", imports))
+    echo("4. checking the stored records (quality flags)")
+    run.steps.append(("quality", quality.run_checks(db, code)))
     run.steps.append(("summary", summary.programme_summary(db, code)))
     return run

@@ -198,15 +198,18 @@ def import_records(db: str | None, path: Path, *, programme_code: str | None = N
     path = Path(path)
     if correct and not (reason and reason.strip()):
         raise InputError(InputProblem(path.name, None, "--reason", None, "a reason for the correction"))
-    records = read_field_records(path, day_first=day_first)
-    digest = content_hash(path)
-    store = Store.open(db)
     try:
-        programme = store.programme(programme_code)
-        return run_with_retries(lambda: _import(store, programme, records, path.name, digest, dry_run, correct,
-                                                reason, accept_warnings, who or current_user()))
-    finally:
-        store.dispose()
+        records = read_field_records(path, day_first=day_first)
+        digest = content_hash(path)
+        store = Store.open(db)
+        try:
+            programme = store.programme(programme_code)
+            return run_with_retries(lambda: _import(store, programme, records, path.name, digest, dry_run, correct,
+                                                    reason, accept_warnings, who or current_user()))
+        finally:
+            store.dispose()
+    except InputError as exc:
+        raise InputError(plain_problems(exc.problems)) from exc
 
 
 def _import(store: Store, programme: M.Programme, records: FieldRecords, file_name: str, digest: str,
@@ -590,3 +593,279 @@ def set_lock(db: str | None, year: int, *, lock: bool, reason: str | None = None
             return f"season {year} {'certified (locked)' if lock else 'unlocked'}"
     finally:
         store.dispose()
+
+
+# --- office commands: one value, one photo, one station -------------------------------------------------------
+
+
+def _closest(code: str, choices: list[str]) -> str:
+    import difflib
+
+    close = difflib.get_close_matches(code, choices, n=3, cutoff=0.5)
+    return f"; closest: {', '.join(close)}" if close else ""
+
+
+def _station(session: Session, programme_id: int, code: str, label: str) -> M.Station:
+    station = session.exec(select(M.Station).where(M.Station.programme_id == programme_id,
+                                                   M.Station.code == code)).first()
+    if station is None:
+        codes = list(session.exec(select(M.Station.code).where(M.Station.programme_id == programme_id)).all())
+        raise InputError(InputProblem(label, None, "STATION", code, "a station of the programme" + _closest(code, codes)))
+    return station
+
+
+def _need_reason(label: str, reason: str | None, why: str) -> str:
+    if not (reason and reason.strip()):
+        raise InputError(InputProblem(label, None, "--reason", None, why))
+    return reason.strip()
+
+
+def _log(session: Session, programme_id: int, table: str, row_id: int, field_: str, old: object, new: object,
+         reason: str, who: str, when: dt.datetime) -> None:
+    session.add(M.ChangeLog(programme_id=programme_id, table_name=table, row_id=row_id, field=field_,
+                            old_value=None if old is None else str(old), new_value=None if new is None else str(new),
+                            reason=reason, changed_by=who, changed_at=when))
+
+
+def parse_value(label: str, field_: str, measure: str, text: str) -> float:
+    """A value typed at the command line, read as a field sheet's cell would be."""
+    from monitor.io._tables import parse_bool, parse_number
+
+    if measure == C.MEASURE_PRESENCE:
+        flag = parse_bool(text) if text.strip() else None
+        if flag is None:
+            raise InputError(InputProblem(label, None, field_, text, "presence as 0/1 or yes/no"))
+        return 1.0 if flag else 0.0
+    value = parse_number(text)
+    if value is None:
+        raise InputError(InputProblem(label, None, field_, text, "a number with '.' as decimal mark, |x| <= 1e12"))
+    return value
+
+
+def set_value(db: str | None, station: str, year: int, species: str, measure: str, value: str, *, reason: str | None,
+              repeat_no: int = 0, who: str | None = None, programme_code: str | None = None) -> Change:
+    """Add or correct one value of one stored visit, with a reason that goes to the change log.
+
+    The value is checked as an imported one would be (same range rules per measure), the season must not be
+    certified, and the visit must be one that carries values (done or partial: missing is never zero).
+    Returns the change made (old is None when the value is added).
+    """
+    label = "records set"
+    reason = _need_reason(label, reason, "a reason for the change (it goes to the change log)")
+    who = who or current_user()
+    measure = measure.strip().lower()
+    field_ = f"{species}:{measure}"
+    if measure not in C.MEASURES:
+        raise InputError(InputProblem(label, None, "MEASURE", measure, f"one of {', '.join(C.MEASURES)}"))
+    number = parse_value(label, field_, measure, value)
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, station, label)
+            rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
+            visit = None if rnd is None else session.exec(select(M.Visit).where(
+                M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
+            if visit is None:
+                raise DataError(f"no visit of {station} in the {year} round"
+                                + (f" with repeat number {repeat_no}" if repeat_no else "")
+                                + "; import the visit from its field sheet first")
+            if rnd.status == "certified":
+                raise LockedError(f"season {year} is certified (locked); unlock it first with "
+                                  f"`monitor records unlock {year} --reason \"...\"`")
+            if visit.status not in C.STATUSES_WITH_VALUES:
+                raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
+                                "(missing is not zero); correct its status from the field sheet first")
+            target = session.exec(select(M.Target, M.Species).join(M.Species, M.Species.id == M.Target.species_id)
+                                  .where(M.Target.programme_id == programme.id, M.Species.code == species,
+                                         M.Target.measure == measure)).first()
+            if target is None:
+                registered = [f"{c}:{m}" for c, m in session.exec(
+                    select(M.Species.code, M.Target.measure).join(M.Target, M.Target.species_id == M.Species.id)
+                    .where(M.Species.programme_id == programme.id)).all()]
+                raise InputError(InputProblem(label, None, "SPECIES MEASURE", field_,
+                                              "a species and measure of the programme" + _closest(field_, registered)))
+            tgt, sp = target
+            _check_range(label, field_, station, visit, sp.code, measure, number, tgt.n)
+            obs = session.exec(select(M.Observation).where(M.Observation.visit_id == visit.id,
+                                                           M.Observation.species_id == sp.id,
+                                                           M.Observation.measure == measure)).first()
+            old = None if obs is None else obs.value
+            change = Change(station, year, visit.date.isoformat(), field_, old, number)
+            if old == number:
+                return change
+            now = utcnow()
+            if obs is None:
+                obs = M.Observation(visit_id=visit.id, species_id=sp.id, measure=measure, value=number, n=tgt.n)
+                session.add(obs)
+            else:
+                obs.value, obs.n = number, tgt.n
+            session.flush()
+            _log(session, programme.id, "observation", obs.id, "value", old, number, reason, who, now)
+            return change
+    finally:
+        store.dispose()
+
+
+def _check_range(label: str, field_: str, station: str, visit: M.Visit, species: str, measure: str, value: float,
+                 n: int | None) -> None:
+    """The import's own range rules (monitor.io.validate) applied to one value."""
+    visits = pd.DataFrame({C.STATION: [station], C.DATE: [visit.date], C.YEAR: [visit.date.year],
+                           H.OBSERVERS: [()], C.VISIT_STATUS: [visit.status], H.REPEAT: [visit.repeat_no > 0],
+                           C.PROTOCOL: [None], H.NOTES: [None]})
+    observations = pd.DataFrame({C.STATION: [station], C.DATE: [visit.date], C.SPECIES: [species],
+                                 C.MEASURE: [measure], H.VALUE: [value], H.N: pd.array([n], dtype="Int64"),
+                                 H.SOURCE_FIELD: [field_]})
+    reference = Reference(stations=pd.DataFrame({C.STATION: [station], H.RETIRED: [None]}),
+                          species=pd.DataFrame({C.SPECIES: [species], C.MEASURE: [measure],
+                                                H.N: pd.array([n], dtype="Int64")}),
+                          today=dt.date.max)
+    covariates = pd.DataFrame(columns=[C.STATION, C.DATE, "name", H.UNIT, H.VALUE])
+    errors = [p for p in validate_records(visits, observations, covariates, reference, file=label)
+              if p.severity == "error"]
+    if errors:
+        raise InputError(plain_problems(errors))
+
+
+def plain_problems(problems: list[InputProblem]) -> list[InputProblem]:
+    """The same problems with numpy scalars shown as plain numbers (``130.0``, not ``np.float64(130.0)``)."""
+    import dataclasses
+
+    out = []
+    for p in problems:
+        value = p.value.item() if isinstance(p.value, np.generic) else p.value
+        out.append(dataclasses.replace(p, value=value) if value is not p.value else p)
+    return out
+
+
+def add_photo(db: str | None, station: str, *, path: str, visit_date: dt.date | None = None,
+              bearing: float | None = None, height: float | None = None, notes: str = "",
+              programme_code: str | None = None) -> int:
+    """Link a photo (by file path) to a station, and to its visit on ``visit_date``; return the photo's id.
+
+    Bearing [degrees from north, 0 to < 360] and camera height [m] let repeat photos be framed alike.
+    """
+    label = "records photo"
+    if not path or not path.strip():
+        raise InputError(InputProblem(label, None, "--path", path, "the photo's file path"))
+    if bearing is not None and not (0 <= bearing < 360):
+        raise InputError(InputProblem(label, None, "--bearing", bearing, "a bearing in degrees, 0 to less than 360"))
+    if height is not None and not (0 <= height <= 100):
+        raise InputError(InputProblem(label, None, "--height", height, "a camera height in metres, 0 to 100"))
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, station, label)
+            visit_id = None
+            if visit_date is not None:
+                visits = session.exec(select(M.Visit).where(M.Visit.station_id == st.id)).all()
+                same_day = [v for v in visits if v.date == visit_date]
+                if not same_day:
+                    dates = ", ".join(sorted(v.date.isoformat() for v in visits)[-5:]) or "none stored"
+                    raise InputError(InputProblem(label, None, "--visit-date", visit_date.isoformat(),
+                                                  f"the date of a stored visit of {station} (latest: {dates})"))
+                visit_id = min(same_day, key=lambda v: v.repeat_no).id
+            photo = M.Photo(station_id=st.id, visit_id=visit_id, path=path.strip(), bearing_deg=bearing,
+                            height_m=height, notes=notes or "")
+            session.add(photo)
+            session.flush()
+            return int(photo.id)
+    finally:
+        store.dispose()
+
+
+def retire_station(db: str | None, code: str, *, reason: str | None, replaced_by: str | None = None,
+                   date: dt.date | None = None, who: str | None = None, programme_code: str | None = None) -> str:
+    """Retire a station (from ``date``, default today), with a reason and an optional replacement; logged.
+
+    Its stored visits stay; imports refuse visits on or after the retirement date.
+    """
+    label = "station retire"
+    reason = _need_reason(label, reason, "a reason for retiring the station (it goes to the change log)")
+    who = who or current_user()
+    date = date or dt.date.today()
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, code, label)
+            if st.state != "in_service":
+                raise DataError(f"station {code} is already {st.state} (since {st.retired})")
+            if st.established is not None and date < st.established:
+                raise InputError(InputProblem(label, None, "--date", date.isoformat(),
+                                              f"a date on or after the station was established ({st.established})"))
+            later = [v.date for v in session.exec(select(M.Visit).where(M.Visit.station_id == st.id)).all()
+                     if v.date >= date]
+            if later:
+                raise InputError(InputProblem(label, None, "--date", date.isoformat(),
+                                              f"a date after the station's last visit ({max(later).isoformat()})"))
+            replacement = None
+            if replaced_by is not None:
+                replacement = _station(session, programme.id, replaced_by, label)
+                if replacement.id == st.id:
+                    raise InputError(InputProblem(label, None, "--replaced-by", replaced_by, "another station"))
+                if replacement.state != "in_service":
+                    raise InputError(InputProblem(label, None, "--replaced-by", replaced_by, "a station in service"))
+            now = utcnow()
+            for field_, old, new in (("state", st.state, "retired"), ("retired", None, date.isoformat()),
+                                     ("retired_reason", st.retired_reason or None, reason),
+                                     ("replaced_by", None, replaced_by)):
+                if old != new:
+                    _log(session, programme.id, "station", st.id, field_, old, new, reason, who, now)
+            st.state, st.retired, st.retired_reason = "retired", date, reason
+            st.replaced_by_id = replacement.id if replacement is not None else None
+            return (f"station {code} retired from {date.isoformat()}"
+                    + (f", replaced by {replaced_by}" if replaced_by else ""))
+    finally:
+        store.dispose()
+
+
+def station_history(db: str | None, code: str, *, programme_code: str | None = None) -> dict:
+    """A station's full history: the station, every visit with its observers and values, corrections
+    (change log), management events at the station or its site, photos, and quality flags.
+
+    Values are keyed ``SPECIES:measure``; a missed or inaccessible visit has none (missing, not zero).
+    """
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, code, "station history")
+        info = queries.stations(store, programme.id)
+        info = info[info[C.STATION] == code].drop(columns=["placement_seed"]).iloc[0].to_dict()
+        visits = queries.visits_table(store, programme.id, station=code)
+        values = queries.observations_table(store, programme.id)
+        values = values[values["visit_id"].isin(set(visits["visit_id"]))]
+        by_visit: dict[int, dict[str, float]] = {}
+        for vid, sp, me, value in zip(values["visit_id"], values[C.SPECIES], values[C.MEASURE], values["value"],
+                                      strict=True):
+            by_visit.setdefault(int(vid), {})[f"{sp}:{me}"] = float(value)
+        visit_rows = [{
+            C.YEAR: int(v[C.YEAR]), C.DATE: v[C.DATE], C.VISIT_STATUS: v[C.VISIT_STATUS], "repeat_no": int(v["repeat_no"]),
+            C.PROTOCOL: v[C.PROTOCOL], "observers": ";".join(v["observers"]), "notes": v["notes"] or "",
+            "values": by_visit.get(int(v["visit_id"]), {}),
+        } for v in visits.to_dict(orient="records")]
+        flags = queries.quality_flag_rows(store, programme.id)
+        flags = flags[flags[C.STATION] == code].drop(columns=[C.STATION])
+        return {
+            "station": info,
+            "visits": visit_rows,
+            "changes": queries.station_change_log(store, st.id),
+            "events": queries.station_events(store, st.id),
+            "photos": queries.station_photos(store, st.id),
+            "quality_flags": flags.reset_index(drop=True),
+        }
+    finally:
+        store.dispose()
+
+
+def compare_files(first: Path, second: Path) -> pd.DataFrame:
+    """Double entry: every mismatch between two independent keyings of the same sheets (nothing stored).
+
+    Columns: station, date, species, field, value_a, value_b, row_a, row_b (see
+    :func:`monitor.io.double_entry.compare_entries`).
+    """
+    from monitor.io.double_entry import compare_entries
+
+    return compare_entries(Path(first), Path(second))
