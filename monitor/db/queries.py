@@ -415,3 +415,12 @@ def station_photos(store: Store, station_id: int) -> pd.DataFrame:
         """,
         s=station_id,
     )
+
+
+def batch_visits(session, batch_id: int) -> list[tuple[int, int, int, int]]:
+    """(id, station_id, round_id, repeat_no) of the visits an import batch wrote (inside its transaction)."""
+    from sqlalchemy import text as sql_text
+
+    return [tuple(r) for r in session.execute(
+        sql_text("SELECT id, station_id, round_id, repeat_no FROM visit WHERE import_batch_id = :b"),
+        {"b": batch_id}).all()]

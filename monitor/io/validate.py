@@ -111,24 +111,46 @@ def _dates(series: pd.Series) -> pd.Series:
     return series.map(_as_date)
 
 
+def _pair_codes(stations_a, dates_a, stations_b, dates_b) -> tuple[np.ndarray, np.ndarray]:
+    """Integer codes of (station, date) pairs, equal for equal pairs across the two sets (a fast join key)."""
+    n = len(stations_a)
+    station_codes, _ = pd.factorize(np.concatenate([np.asarray(stations_a, dtype=object),
+                                                    np.asarray(stations_b, dtype=object)]))
+    date_codes, date_values = pd.factorize(np.concatenate([np.asarray(dates_a, dtype=object),
+                                                           np.asarray(dates_b, dtype=object)]))
+    key = station_codes.astype(np.int64) * (len(date_values) + 1) + date_codes
+    return key[:n], key[n:]
+
+
 def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference: Reference):
-    """(station, date, species, measure, source_row) for each target without a value on a done visit."""
+    """(station, date, species, measure, source_row) for each target without a value on a done visit.
+
+    In the order of the done visits, then of the targets.
+    """
     done = visits[visits[C.VISIT_STATUS] == C.STATUS_DONE]
     if done.empty:
         return []
     rows = done[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in done.columns else np.full(len(done), None)
-    base = pd.DataFrame({C.STATION: done[C.STATION].to_numpy(), C.DATE: _dates(done[C.DATE]).to_numpy(),
-                         H.SOURCE_ROW: rows})
-    targets = pd.DataFrame(list(reference.targets), columns=[C.SPECIES, C.MEASURE])
-    wanted = base.merge(targets, how="cross")
-    have = pd.DataFrame({C.STATION: observations[C.STATION].to_numpy(),
-                         C.DATE: _dates(observations[C.DATE]).to_numpy(),
-                         C.SPECIES: observations[C.SPECIES].to_numpy(),
-                         C.MEASURE: observations[C.MEASURE].to_numpy()}).drop_duplicates()
-    merged = wanted.merge(have, on=[C.STATION, C.DATE, C.SPECIES, C.MEASURE], how="left", indicator=True)
-    missing = merged[merged["_merge"] == "left_only"]
-    return list(zip(missing[C.STATION], missing[C.DATE], missing[C.SPECIES], missing[C.MEASURE],
-                    missing[H.SOURCE_ROW], strict=True))
+    stations = done[C.STATION].to_numpy(dtype=object)
+    dates = _dates(done[C.DATE]).to_numpy(dtype=object)
+    targets = list(reference.targets)
+    n_targets = len(targets)
+    target_code = {pair: k for k, pair in reversed(list(enumerate(targets)))}
+    visit_key, obs_key = _pair_codes(stations, dates, observations[C.STATION].to_numpy(dtype=object),
+                                     _dates(observations[C.DATE]).to_numpy(dtype=object))
+    if len(observations):
+        pairs, pair_values = pd.factorize(pd.Series(list(zip(observations[C.SPECIES], observations[C.MEASURE],
+                                                             strict=True)), dtype=object))
+        codes = np.array([target_code.get(tuple(v), -1) for v in pair_values] or [-1], dtype=np.int64)[pairs]
+        have = np.unique(obs_key[codes >= 0] * n_targets + codes[codes >= 0])
+    else:
+        have = np.array([], dtype=np.int64)
+    code_of = np.array([target_code[t] for t in targets], dtype=np.int64)
+    wanted = (visit_key[:, None] * n_targets + code_of[None, :]).ravel()
+    missing = np.flatnonzero(~np.isin(wanted, have))
+    visit_at, target_at = np.divmod(missing, n_targets)
+    return [(stations[v], dates[v], targets[t][0], targets[t][1], rows[v])
+            for v, t in zip(visit_at.tolist(), target_at.tolist(), strict=True)]
 
 
 def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
@@ -257,11 +279,13 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             else np.full(len(obs), np.nan)
 
         # missed / inaccessible visits carry no values; values must belong to a visit in the file
-        keys = pd.DataFrame({C.STATION: stations, C.DATE: _dates(obs[C.DATE]).to_numpy()})
-        status_table = pd.DataFrame({C.STATION: visits[C.STATION].to_numpy(),
-                                     C.DATE: _dates(visits[C.DATE]).to_numpy(),
-                                     "_status": visits[C.VISIT_STATUS].to_numpy()}).drop_duplicates([C.STATION, C.DATE])
-        visit_status = keys.merge(status_table, on=[C.STATION, C.DATE], how="left")["_status"].to_numpy(dtype=object)
+        visit_key, obs_key = _pair_codes(visits[C.STATION].to_numpy(dtype=object),
+                                         _dates(visits[C.DATE]).to_numpy(dtype=object), stations,
+                                         _dates(obs[C.DATE]).to_numpy(dtype=object))
+        first_of_key = ~pd.Series(visit_key).duplicated().to_numpy()
+        at = pd.Index(visit_key[first_of_key]).get_indexer(obs_key)
+        statuses = np.append(visits[C.VISIT_STATUS].to_numpy(dtype=object)[first_of_key], None)
+        visit_status = statuses[at]  # at = -1 (no visit in the file) picks the trailing None
         for i in np.flatnonzero(pd.isna(visit_status)):
             add(rows[i], fields[i], values[i], f"a value belonging to a visit of {stations[i]} in this file")
         no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])

@@ -286,6 +286,14 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
                                                                      M.Round.year.in_(years))).all()}
     protocol_default = _default_protocol(session, pid)
 
+    team_ids: dict[tuple, list[int]] = {}
+
+    def ids_of(team: object) -> list[int]:
+        key = tuple(team) if isinstance(team, (tuple, list)) else ()
+        if key not in team_ids:
+            team_ids[key] = [observer_ids[o] for o in key if o in observer_ids]
+        return team_ids[key]
+
     v = pd.DataFrame({
         C.STATION: visits[C.STATION].to_numpy(dtype=object),
         "station_id": visits[C.STATION].map(station_ids).to_numpy(dtype=object),
@@ -293,8 +301,8 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
         C.DATE: visits[C.DATE].to_numpy(dtype=object),
         "status": visits[C.VISIT_STATUS].to_numpy(dtype=object),
         "repeat": visits[H.REPEAT].fillna(False).astype(bool).to_numpy(),
-        "notes": [_text(x) for x in visits[H.NOTES]],
-        "observer_ids": [[observer_ids[o] for o in (team or ()) if o in observer_ids] for team in visits[H.OBSERVERS]],
+        "notes": [x if isinstance(x, str) else _text(x) for x in visits[H.NOTES]],
+        "observer_ids": [ids_of(team) for team in visits[H.OBSERVERS]],
         "source_row": visits[H.SOURCE_ROW].astype(int).to_numpy(),
     })
     v["protocol_id"] = [protocol_ids.get(code) if code else protocol_default.get(year)
@@ -338,27 +346,26 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
         order = reps.groupby(["station_id", C.YEAR]).cumcount() + 1
         new.loc[reps.index, "repeat_no"] = [int(stored_max.get((s, y), 0)) + int(k)
                                             for s, y, k in zip(reps["station_id"], reps[C.YEAR], order, strict=True)]
-    new["key"] = list(zip(new[C.STATION], new[C.DATE]))
     plan.new = new
 
-    wanted = set(new["key"])
+    # each value and covariate by the position of its visit in the file, kept when that visit is new
     if len(observations):
-        okeys = list(zip(observations[C.STATION], observations[C.DATE]))
-        keep = np.fromiter((k in wanted for k in okeys), dtype=bool, count=len(okeys))
+        at = _visit_positions(visits, observations)
+        keep = is_new[at]
         o = observations[keep]
         plan.new_observations = pd.DataFrame({
-            "key": [k for k, kept in zip(okeys, keep, strict=True) if kept],
+            "at": at[keep],
             "species_id": o[C.SPECIES].map(species_ids).to_numpy(dtype=object),
             "measure": o[C.MEASURE].to_numpy(dtype=object),
             "value": o[H.VALUE].astype(float).to_numpy(),
             "n": pd.Series([None if pd.isna(x) else int(x) for x in o[H.N]], dtype=object),
         })
     if len(covariates):
-        ckeys = list(zip(covariates[C.STATION], covariates[C.DATE]))
-        keep = np.fromiter((k in wanted for k in ckeys), dtype=bool, count=len(ckeys))
+        at = _visit_positions(visits, covariates)
+        keep = is_new[at]
         c = covariates[keep]
         plan.new_covariates = pd.DataFrame({
-            "key": [k for k, kept in zip(ckeys, keep, strict=True) if kept],
+            "at": at[keep],
             "name": c["name"].to_numpy(dtype=object),
             "unit": [_text(u) for u in c[H.UNIT]],
             "value": c[H.VALUE].astype(float).to_numpy(),
@@ -375,6 +382,26 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
     report.observations_added = len(plan.new_observations)
     report.covariates_added = len(plan.new_covariates)
     return plan
+
+
+def _visit_positions(visits: pd.DataFrame, rows: pd.DataFrame) -> np.ndarray:
+    """For each row (a value or covariate), the position in ``visits`` of its visit (same station and date).
+
+    Integer codes of the (station, date) pairs make this a fast join; every row belongs to a visit of the
+    file (the reader and the validation see to that).
+    """
+    n = len(visits)
+    stations, _ = pd.factorize(np.concatenate([visits[C.STATION].to_numpy(dtype=object),
+                                               rows[C.STATION].to_numpy(dtype=object)]))
+    dates, date_values = pd.factorize(np.concatenate([visits[C.DATE].to_numpy(dtype=object),
+                                                      rows[C.DATE].to_numpy(dtype=object)]))
+    key = stations.astype(np.int64) * (len(date_values) + 1) + dates
+    at = pd.Index(key[:n]).get_indexer(key[n:]) if pd.Index(key[:n]).is_unique else \
+        pd.Series(np.arange(n), index=key[:n]).groupby(level=0).first().reindex(key[n:]).to_numpy()
+    at = np.asarray(at, dtype=np.int64)
+    if (at < 0).any():  # pragma: no cover - the validation refuses values without a visit
+        raise AssertionError("a value without its visit in the file")
+    return at
 
 
 def _plan_stored(session: Session, matched: pd.DataFrame, observations: pd.DataFrame, covariates: pd.DataFrame,
@@ -479,26 +506,25 @@ def _write(session: Session, programme: M.Programme, file_name: str, digest: str
                                      [None if x is None or pd.isna(x) else int(x) for x in new["protocol_id"]],
                                      new["notes"].tolist(), [batch.id] * len(new), strict=True)))
         _pause_hook(len(new))
-        stored = session.exec(select(M.Visit.id, M.Visit.station_id, M.Visit.round_id, M.Visit.repeat_no)
-                              .where(M.Visit.import_batch_id == batch.id)).all()
-        id_of = {(s, r, k): i for i, s, r, k in stored}
-        visit_ids = [id_of[(int(s), r, int(k))] for s, r, k in zip(new["station_id"], new_round, new["repeat_no"],
-                                                                   strict=True)]
-        id_by_key = dict(zip(new["key"], visit_ids, strict=True))
+        id_of = {(s, r, k): i for i, s, r, k in queries.batch_visits(session, batch.id)}
+        id_at = np.zeros(int(new.index.max()) + 1, dtype=np.int64)  # visit id by position in the file
+        id_at[new.index.to_numpy()] = [id_of[(int(s), r, int(k))] for s, r, k in
+                                       zip(new["station_id"], new_round, new["repeat_no"], strict=True)]
         obs = plan.new_observations
         if len(obs):
             queries.insert_rows(session, "observation", ["visit_id", "species_id", "measure", "value", "n"],
-                                list(zip([id_by_key[k] for k in obs["key"]], [int(s) for s in obs["species_id"]],
+                                list(zip(id_at[obs["at"].to_numpy()].tolist(), [int(x) for x in obs["species_id"]],
                                          obs["measure"].tolist(), obs["value"].tolist(), obs["n"].tolist(),
                                          strict=True)))
         queries.insert_rows(session, "visit_observer", ["visit_id", "observer_id"],
-                            [(vid, int(oid)) for vid, team in zip(visit_ids, new["observer_ids"], strict=True)
+                            [(vid, int(oid)) for vid, team in zip(id_at[new.index.to_numpy()].tolist(),
+                                                                  new["observer_ids"], strict=True)
                              for oid in dict.fromkeys(team)])
         cov = plan.new_covariates
         if len(cov):
-            station_of = dict(zip(new["key"], new["station_id"], strict=True))
+            station_at = dict(zip(new.index.tolist(), new["station_id"], strict=True))
             queries.insert_rows(session, "covariate", ["station_id", "visit_id", "name", "unit", "value"],
-                                list(zip([int(station_of[k]) for k in cov["key"]], [id_by_key[k] for k in cov["key"]],
+                                list(zip([int(station_at[a]) for a in cov["at"]], id_at[cov["at"].to_numpy()].tolist(),
                                          cov["name"].tolist(), cov["unit"].tolist(), cov["value"].tolist(),
                                          strict=True)))
     for visit_id, row in plan.updates:

@@ -99,3 +99,134 @@ def write_sheet(path: Path, rows: list[list[str]]) -> Path:
         writer.writerow(HEADER)
         writer.writerows(rows)
     return Path(path)
+
+
+# --- databases for the tests: built once per session and engine, copied for each test ------------------------
+
+def dump(url: str) -> dict[str, list[tuple]]:
+    """Every row of every table of a database (sorted), for before/after comparisons."""
+    from sqlalchemy import create_engine, inspect, text
+
+    engine = create_engine(url if "://" in url else f"sqlite:///{url}")
+    try:
+        with engine.connect() as connection:
+            names = sorted(inspect(connection).get_table_names())
+            return {name: sorted(connection.execute(text(f'SELECT * FROM "{name}"')).fetchall(), key=repr)
+                    for name in names}
+    finally:
+        engine.dispose()
+
+
+def postgres_admin():
+    from sqlalchemy import create_engine
+    from sqlalchemy.engine import make_url
+
+    from tests.conftest import POSTGRES_URL
+
+    return make_url(POSTGRES_URL), create_engine(make_url(POSTGRES_URL), isolation_level="AUTOCOMMIT")
+
+
+def create_postgres_database(template: str | None = None) -> str:
+    import uuid
+
+    from sqlalchemy import text
+
+    url, admin = postgres_admin()
+    name = f"monitor_t_{uuid.uuid4().hex[:12]}"
+    try:
+        with admin.connect() as connection:
+            connection.execute(text(f'CREATE DATABASE "{name}"' + (f' TEMPLATE "{template}"' if template else "")))
+    finally:
+        admin.dispose()
+    return url.set(database=name).render_as_string(hide_password=False)
+
+
+def drop_postgres_database(db_url: str) -> None:
+    from sqlalchemy import text
+    from sqlalchemy.engine import make_url
+
+    name = make_url(db_url).database
+    _url, admin = postgres_admin()
+    try:
+        with admin.connect() as connection:
+            connection.execute(text("SELECT pg_terminate_backend(pid) FROM pg_stat_activity WHERE datname = :n"),
+                               {"n": name})
+            connection.execute(text(f'DROP DATABASE IF EXISTS "{name}"'))
+    finally:
+        admin.dispose()
+
+
+def skip_without_postgres() -> None:
+    import os
+
+    import pytest
+
+    from tests.conftest import POSTGRES_URL
+
+    if not POSTGRES_URL:
+        if os.environ.get("MONITOR_REQUIRE_POSTGRES"):
+            pytest.fail("MONITOR_REQUIRE_POSTGRES is set but MONITOR_TEST_POSTGRES_URL is not")
+        pytest.skip("PostgreSQL run skipped: set MONITOR_TEST_POSTGRES_URL to a server URL (.ci/run does)")
+
+
+class Template:
+    """A database built once (``build(url)``) and copied cheaply for each test: a file copy on SQLite,
+    ``CREATE DATABASE ... TEMPLATE`` on PostgreSQL."""
+
+    def __init__(self, engine: str, folder: Path, build):
+        self.engine = engine
+        self.folder = Path(folder)
+        self.made: list[str] = []
+        if engine == "sqlite":
+            self.url = str(self.folder / "template.sqlite")
+        else:
+            self.url = create_postgres_database()
+        from monitor.services import setup
+
+        setup.init_database(self.url)
+        build(self.url)
+
+    def copy(self) -> str:
+        from sqlalchemy.engine import make_url
+
+        if self.engine == "sqlite":
+            target = self.folder / f"copy_{len(self.made)}.sqlite"
+            shutil.copy(self.url, target)
+            url = str(target)
+        else:
+            url = create_postgres_database(make_url(self.url).database)
+        self.made.append(url)
+        return url
+
+    def close(self) -> None:
+        if self.engine == "postgresql":
+            for url in [*self.made, self.url]:
+                drop_postgres_database(url)
+
+
+def build_demo(url: str, seasons=range(2015, 2024)) -> None:
+    """The invented demo programme with the given seasons imported through the importer."""
+    from monitor.services import records, setup
+
+    setup.setup_folder(url, DEMO)
+    for year in seasons:
+        records.import_records(url, DEMO / "records" / f"season_{year}.csv", who="fixture")
+
+
+import pytest  # noqa: E402  (fixtures shared by the records, quality and export tests)
+
+
+@pytest.fixture(scope="session", params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
+def demo_template(request, tmp_path_factory):
+    """The demo programme with seasons 2015-2023 imported, once per engine and session."""
+    if request.param == "postgresql":
+        skip_without_postgres()
+    template = Template(request.param, tmp_path_factory.mktemp(f"demo_{request.param}"), build_demo)
+    yield template
+    template.close()
+
+
+@pytest.fixture
+def demo_db(demo_template) -> str:
+    """A fresh copy of the demo database (seasons 2015-2023 stored; 2024-2026 sheets not yet imported)."""
+    return demo_template.copy()
