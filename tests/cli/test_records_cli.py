@@ -27,12 +27,16 @@ from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 
 from monitor.cli.main import main
-from tests.services.test_records_data import DEMO, Template, build_demo, demo_db, demo_template, dump  # noqa: F401
+from tests.services import test_records_data as shared
+from tests.services.test_records_data import DEMO, Template, build_demo, dump
 
 SHEET = DEMO / "records" / "season_2024.csv"
 HEADER = SHEET.read_text().splitlines()[0].split(",")
 ROWS = [r for r in csv.reader(io.StringIO(SHEET.read_text()))][1:]
 VALUE_COLUMNS = [h for h in HEADER if ":" in h and not h.startswith("cov:")]
+
+demo_template = shared.demo_template  # fixtures: the built demo database, copied per test
+demo_db = shared.demo_db
 
 
 @pytest.fixture(scope="module")

@@ -25,9 +25,12 @@ from pyproj import Transformer
 
 from monitor.db import Store
 from monitor.services import exports
-from tests.services.test_records_data import demo_db, demo_template  # noqa: F401
+from tests.services import test_records_data as shared
 
 DWC_TEXT = "{http://rs.tdwg.org/dwc/text/}"
+
+demo_template = shared.demo_template  # fixtures: the built demo database, copied per test
+demo_db = shared.demo_db
 
 
 def _stored(db: str):

@@ -16,7 +16,11 @@ from monitor import columns as C
 from monitor.db import Store
 from monitor.errors import DataError, InputError
 from monitor.services import quality, records
-from tests.services.test_records_data import DEMO, demo_db, demo_template, dump  # noqa: F401
+from tests.services import test_records_data as shared
+from tests.services.test_records_data import DEMO, dump
+
+demo_template = shared.demo_template  # fixtures: the built demo database, copied per test
+demo_db = shared.demo_db
 
 
 def _typical_station(year: int = 2022) -> tuple[str, int]:

@@ -17,7 +17,11 @@ from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DataError, InputError, LockedError
 from monitor.services import records
-from tests.services.test_records_data import DEMO, demo_db, demo_template, dump  # noqa: F401
+from tests.services import test_records_data as shared
+from tests.services.test_records_data import DEMO, dump
+
+demo_template = shared.demo_template  # fixtures: the built demo database, copied per test
+demo_db = shared.demo_db
 
 
 def _sheet_rows(year: int) -> list[dict]:
