@@ -122,6 +122,16 @@ def _pair_codes(stations_a, dates_a, stations_b, dates_b) -> tuple[np.ndarray, n
     return key[:n], key[n:]
 
 
+def _pair_index(first, second) -> tuple[np.ndarray, list[tuple]]:
+    """Index of each (first, second) pair in the list of distinct pairs (found without building every tuple)."""
+    a, a_values = pd.factorize(np.asarray(first, dtype=object))
+    b, b_values = pd.factorize(np.asarray(second, dtype=object))
+    combined, distinct = pd.factorize(a.astype(np.int64) * (len(b_values) + 1) + b)
+    width = len(b_values) + 1
+    pairs = [(a_values[k // width], b_values[k % width]) for k in distinct.tolist()]
+    return combined, pairs
+
+
 def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference: Reference):
     """(station, date, species, measure, source_row) for each target without a value on a done visit.
 
@@ -138,16 +148,19 @@ def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference
     target_code = {pair: k for k, pair in reversed(list(enumerate(targets)))}
     visit_key, obs_key = _pair_codes(stations, dates, observations[C.STATION].to_numpy(dtype=object),
                                      _dates(observations[C.DATE]).to_numpy(dtype=object))
+    # dense codes of the visits' keys, so that "has this target" is one boolean per visit and target
+    dense, distinct = pd.factorize(np.concatenate([visit_key, obs_key]))
+    visit_dense, obs_dense = dense[:len(visit_key)], dense[len(visit_key):]
+    have = np.zeros(len(distinct) * n_targets, dtype=bool)
     if len(observations):
-        pairs, pair_values = pd.factorize(pd.Series(list(zip(observations[C.SPECIES], observations[C.MEASURE],
-                                                             strict=True)), dtype=object))
-        codes = np.array([target_code.get(tuple(v), -1) for v in pair_values] or [-1], dtype=np.int64)[pairs]
-        have = np.unique(obs_key[codes >= 0] * n_targets + codes[codes >= 0])
-    else:
-        have = np.array([], dtype=np.int64)
+        pair_at, distinct_pairs = _pair_index(observations[C.SPECIES].to_numpy(dtype=object),
+                                              observations[C.MEASURE].to_numpy(dtype=object))
+        codes = np.array([target_code.get(pair, -1) for pair in distinct_pairs] or [-1], dtype=np.int64)[pair_at]
+        hit = codes >= 0
+        have[obs_dense[hit] * n_targets + codes[hit]] = True
     code_of = np.array([target_code[t] for t in targets], dtype=np.int64)
-    wanted = (visit_key[:, None] * n_targets + code_of[None, :]).ravel()
-    missing = np.flatnonzero(~np.isin(wanted, have))
+    wanted = (visit_dense[:, None] * n_targets + code_of[None, :]).ravel()
+    missing = np.flatnonzero(~have[wanted])
     visit_at, target_at = np.divmod(missing, n_targets)
     return [(stations[v], dates[v], targets[t][0], targets[t][1], rows[v])
             for v, t in zip(visit_at.tolist(), target_at.tolist(), strict=True)]
@@ -302,8 +315,10 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         unknown = ~np.isin(species, species_codes)
         for i in np.flatnonzero(unknown):
             add(rows[i], fields[i], species[i], "a species of the programme" + _closest(species[i], species_codes))
-        pairs = pd.Series(list(zip(species, measures, strict=True)))
-        not_registered = ~pairs.isin(list(registered)).to_numpy() & ~unknown
+        # (species, measure) pairs worked out once per distinct pair
+        pair_at, distinct_pairs = _pair_index(species, measures)
+        registered_pair = np.array([pair in registered for pair in distinct_pairs] or [False])[pair_at]
+        not_registered = ~registered_pair & ~unknown
         for i in np.flatnonzero(not_registered):
             ways = sorted(m for s, m in registered if s == species[i])
             add(rows[i], fields[i], measures[i], f"a measure registered for {species[i]}: {', '.join(ways)}")
@@ -327,8 +342,8 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
             add(rows[i], fields[i], values[i], f"a whole number of {unit} k with 0 <= k <= n = "
                                                f"{'?' if np.isnan(ns[i]) else int(ns[i])}")
-        programme_n = np.array([registered.get((s, m)) for s, m in zip(species, measures, strict=True)], dtype=object)
-        programme_n = pd.to_numeric(pd.Series(programme_n), errors="coerce").to_numpy(dtype=float)
+        distinct_n = np.array([registered.get(pair) for pair in distinct_pairs] or [None], dtype=object)
+        programme_n = pd.to_numeric(pd.Series(distinct_n), errors="coerce").to_numpy(dtype=float)[pair_at]
         bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
         for i in np.flatnonzero(bad):
             unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
