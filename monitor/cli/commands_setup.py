@@ -106,6 +106,11 @@ def demo_command(folder: Path) -> None:
             click.echo("\nImported field records")
             for report in result:
                 click.echo("  " + describe_import(report).splitlines()[0])
+        if name == "quality":
+            from monitor.services.quality import FLAG_TABLE_COLUMNS
+
+            click.echo(f"\nQuality checks on the stored records: {result.summary()}")
+            emit(result.open_flags, columns=FLAG_TABLE_COLUMNS)
         if name == "summary":
             click.echo("\nProgramme summary")
             emit(result["sites"], columns=["site", "name", "habitat", "area_m2", "in_service", "retired"],

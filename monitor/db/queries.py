@@ -238,6 +238,79 @@ def visits_with_observers(store: Store, programme_id: int, *, before_year: int |
         """,
         **params,
     )
+
+
+# --- field records: bulk writes, retries, and the tables behind history, quality and exports ----------------
+# (added for the records, quality and export services; everything below stays inside one transaction that
+# the caller's ``Store.session()`` opens)
+
+#: unique keys that two imports racing each other may both try to fill; a clash is retried, not an error
+RACE_CONSTRAINTS = ("uq_round_programme_year", "uq_visit_station_round_repeat", "uq_import_batch_programme_kind_hash",
+                    "uq_observation_visit_species_measure", "pk_visit_observer")
+_SQLITE_RACES = ("UNIQUE constraint failed: round.", "UNIQUE constraint failed: visit.",
+                 "UNIQUE constraint failed: import_batch.", "UNIQUE constraint failed: observation.",
+                 "UNIQUE constraint failed: visit_observer.")
+
+
+def retryable(exc: BaseException) -> bool:
+    """True when a failed transaction may succeed if run again: a serialization failure or deadlock
+    (PostgreSQL SQLSTATE 40001, 40P01, 55P03), a busy SQLite file, or a unique key that a concurrent
+    import filled first (its rows are then seen as stored on the next attempt)."""
+    seen: set[int] = set()
+    while exc is not None and id(exc) not in seen:
+        seen.add(id(exc))
+        orig = getattr(exc, "orig", None)
+        for candidate in (orig, exc):
+            if candidate is None:
+                continue
+            state = getattr(candidate, "sqlstate", None)
+            if state in ("40001", "40P01", "55P03"):
+                return True
+            if state == "23505":
+                diag = getattr(candidate, "diag", None)
+                name = getattr(diag, "constraint_name", None) or ""
+                if name in RACE_CONSTRAINTS:
+                    return True
+            text_ = str(candidate)
+            if type(candidate).__module__ == "sqlite3" and (
+                    "database is locked" in text_ or any(text_.startswith(s) for s in _SQLITE_RACES)):
+                return True
+        exc = exc.__cause__ or exc.__context__
+    return False
+
+
+def insert_rows(session, table: str, columns: list[str], rows: list[tuple]) -> None:
+    """Insert many rows with the driver's executemany (no per-row ORM work), inside the session's transaction.
+
+    Dates are passed as ISO strings, which both SQLite (its Date storage form) and PostgreSQL accept.
+    """
+    if not rows:
+        return
+    connection = session.connection()
+    style = connection.dialect.paramstyle
+    marks = ", ".join("?" if style == "qmark" else "%s" for _ in columns)
+    sql = f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({marks})"
+    connection.exec_driver_sql(sql, rows)
+
+
+def ensure_round(session, programme_id: int, year: int, window_start, window_end) -> int:
+    """The id of the programme's round for ``year``, creating it if absent, safe against a concurrent import
+    creating the same round (``INSERT ... ON CONFLICT DO NOTHING``, understood by SQLite and PostgreSQL)."""
+    from sqlalchemy import text as sql_text
+
+    params = {"p": programme_id, "y": year}
+    found = session.execute(sql_text("SELECT id FROM round WHERE programme_id = :p AND year = :y"), params).first()
+    if found is not None:
+        return int(found[0])
+    session.execute(sql_text(
+        "INSERT INTO round (programme_id, year, window_start, window_end, status) "
+        "VALUES (:p, :y, :s, :e, 'open') ON CONFLICT (programme_id, year) DO NOTHING"),
+        {**params, "s": window_start.isoformat(), "e": window_end.isoformat()})
+    return int(session.execute(sql_text("SELECT id FROM round WHERE programme_id = :p AND year = :y"),
+                               params).scalar_one())
+
+
+def _observer_teams(store: Store, programme_id: int) -> pd.Series:
     observers = store.frame(
         """
         SELECT vo.visit_id, ob.code FROM visit_observer vo JOIN observer ob ON ob.id = vo.observer_id
@@ -273,3 +346,148 @@ def planned_visits(store: Store, programme_id: int, year: int) -> pd.DataFrame:
         p=programme_id,
         y=year,
     )
+
+
+    if observers.empty:
+        return pd.Series(dtype=object)
+    return observers.groupby("visit_id")["code"].agg(tuple)
+
+
+def _as_date(value: object):
+    import datetime as dt
+
+    if value is None or isinstance(value, dt.date):
+        return value
+    return dt.date.fromisoformat(str(value)[:10])
+
+
+def visits_table(store: Store, programme_id: int, *, station: str | None = None) -> pd.DataFrame:
+    """Every stored visit in the canonical visit frame: station, date, year, observers (tuple), status,
+    repeat (bool), protocol, notes, plus visit_id and repeat_no.  Ordered by station, date."""
+    where, params = "t.programme_id = :p", {"p": programme_id}
+    if station is not None:
+        where += " AND t.code = :station"
+        params["station"] = station
+    frame = store.frame(
+        f"""
+        SELECT v.id AS visit_id, t.code AS {C.STATION}, v.date AS {C.DATE}, r.year AS {C.YEAR},
+               v.status AS {C.VISIT_STATUS}, v.repeat_no, pv.code AS {C.PROTOCOL}, v.notes
+        FROM visit v JOIN round r ON r.id = v.round_id JOIN station t ON t.id = v.station_id
+        LEFT JOIN protocol_version pv ON pv.id = v.protocol_id
+        WHERE {where} ORDER BY t.code, v.date, v.repeat_no
+        """,
+        **params,
+    )
+    teams = _observer_teams(store, programme_id)
+    frame["observers"] = [teams.get(v, ()) for v in frame["visit_id"]]
+    frame[C.DATE] = [_as_date(d) for d in frame[C.DATE]]
+    frame["repeat"] = frame["repeat_no"] > 0
+    frame["notes"] = frame["notes"].map(lambda s: s or None)
+    frame[C.YEAR] = frame[C.YEAR].astype(int)
+    return frame[[C.STATION, C.DATE, C.YEAR, "observers", C.VISIT_STATUS, "repeat", C.PROTOCOL, "notes",
+                  "visit_id", "repeat_no"]]
+
+
+def observations_table(store: Store, programme_id: int) -> pd.DataFrame:
+    """Every stored value in the canonical observation frame: station, date, species, measure, value, n,
+    plus visit_id.  Missed and inaccessible visits have none (missing is never zero)."""
+    frame = store.frame(
+        f"""
+        SELECT v.id AS visit_id, t.code AS {C.STATION}, v.date AS {C.DATE}, sp.code AS {C.SPECIES},
+               o.measure AS {C.MEASURE}, o.value, o.n
+        FROM observation o JOIN visit v ON v.id = o.visit_id JOIN station t ON t.id = v.station_id
+        JOIN species sp ON sp.id = o.species_id
+        WHERE t.programme_id = :p ORDER BY t.code, v.date, v.repeat_no, sp.code, o.measure
+        """,
+        p=programme_id,
+    )
+    frame[C.DATE] = [_as_date(d) for d in frame[C.DATE]]
+    frame["value"] = frame["value"].astype(float)
+    frame["n"] = frame["n"].astype("Int64")
+    return frame
+
+
+def visit_covariates(store: Store, programme_id: int) -> pd.DataFrame:
+    """Visit-level covariate values: station, date, year, name, unit, value, visit_id."""
+    frame = store.frame(
+        f"""
+        SELECT t.code AS {C.STATION}, v.date AS {C.DATE}, r.year AS {C.YEAR}, c.name, c.unit, c.value,
+               c.visit_id
+        FROM covariate c JOIN visit v ON v.id = c.visit_id JOIN round r ON r.id = v.round_id
+        JOIN station t ON t.id = c.station_id
+        WHERE t.programme_id = :p ORDER BY t.code, v.date, c.name
+        """,
+        p=programme_id,
+    )
+    frame[C.DATE] = [_as_date(d) for d in frame[C.DATE]]
+    frame["value"] = frame["value"].astype(float)
+    return frame
+
+
+def quality_flag_rows(store: Store, programme_id: int, *, states: tuple[str, ...] | None = None) -> pd.DataFrame:
+    """Stored quality flags: id, kind, station, species, year, detail, severity, state, note, raised_at."""
+    frame = store.frame(
+        f"""
+        SELECT q.id, q.kind, t.code AS {C.STATION}, sp.code AS {C.SPECIES}, q.year AS {C.YEAR}, q.detail,
+               q.severity, q.state, q.note, q.raised_at
+        FROM quality_flag q LEFT JOIN station t ON t.id = q.station_id LEFT JOIN species sp ON sp.id = q.species_id
+        WHERE q.programme_id = :p ORDER BY q.kind, t.code, q.year, q.id
+        """,
+        p=programme_id,
+    )
+    if states is not None:
+        frame = frame[frame["state"].isin(states)].reset_index(drop=True)
+    frame[C.YEAR] = frame[C.YEAR].astype("Int64")
+    return frame
+
+
+def station_change_log(store: Store, station_id: int) -> pd.DataFrame:
+    """Change-log rows about a station, its visits and their values (oldest first)."""
+    return store.frame(
+        """
+        SELECT c.changed_at, c.table_name, c.row_id, c.field, c.old_value, c.new_value, c.reason, c.changed_by
+        FROM change_log c
+        WHERE (c.table_name = 'station' AND c.row_id = :s)
+           OR (c.table_name = 'visit' AND c.row_id IN (SELECT id FROM visit WHERE station_id = :s))
+           OR (c.table_name = 'observation' AND c.row_id IN (
+                SELECT o.id FROM observation o JOIN visit v ON v.id = o.visit_id WHERE v.station_id = :s))
+           OR (c.table_name = 'photo' AND c.row_id IN (SELECT id FROM photo WHERE station_id = :s))
+        ORDER BY c.changed_at, c.id
+        """,
+        s=station_id,
+    )
+
+
+def station_events(store: Store, station_id: int) -> pd.DataFrame:
+    """Management events at a station or at its whole site."""
+    return store.frame(
+        """
+        SELECT e.kind, e.start_date, e.end_date, CASE WHEN e.station_id IS NULL THEN 'site' ELSE 'station' END
+               AS scope, e.notes
+        FROM management_event e JOIN station t ON t.id = :s
+        WHERE e.station_id = t.id OR (e.station_id IS NULL AND e.site_id = t.site_id)
+        ORDER BY e.start_date
+        """,
+        s=station_id,
+    )
+
+
+def station_photos(store: Store, station_id: int) -> pd.DataFrame:
+    """Photos of a station: id, visit date, path, bearing, height, notes."""
+    return store.frame(
+        """
+        SELECT p.id, v.date AS visit_date, p.path, p.bearing_deg, p.height_m, p.notes
+        FROM photo p LEFT JOIN visit v ON v.id = p.visit_id
+        WHERE p.station_id = :s ORDER BY v.date, p.id
+        """,
+        s=station_id,
+    )
+
+
+def batch_visits(session, batch_id: int) -> list[tuple[int, int, int, int]]:
+    """(id, station_id, round_id, repeat_no) of the visits an import batch wrote (inside its transaction)."""
+    from sqlalchemy import text as sql_text
+
+    return [tuple(r) for r in session.execute(
+        sql_text("SELECT id, station_id, round_id, repeat_no FROM visit WHERE import_batch_id = :b"),
+        {"b": batch_id}).all()]

@@ -21,6 +21,7 @@ import os
 import re
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 
 from monitor import columns as C
@@ -165,8 +166,10 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
     else:
         reader.read_long()
     problems.raise_if_any()
-    visits = pd.DataFrame(reader.visits, columns=VISIT_COLUMNS)
-    observations = pd.DataFrame(reader.observations, columns=OBSERVATION_COLUMNS)
+    visits = reader.visit_frame if reader.visit_frame is not None else pd.DataFrame(reader.visits,
+                                                                                      columns=VISIT_COLUMNS)
+    observations = (reader.observation_frame if reader.observation_frame is not None
+                    else pd.DataFrame(reader.observations, columns=OBSERVATION_COLUMNS))
     observations[H.N] = observations[H.N].astype("Int64")
     observations[H.VALUE] = observations[H.VALUE].astype(float)
     covariates = pd.DataFrame(reader.covariates, columns=COVARIATE_COLUMNS)
@@ -174,6 +177,27 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
     for frame in (visits, observations, covariates):
         frame.attrs["file"] = table.file
     return FieldRecords(table.file, layout, visits, observations, covariates)
+
+
+class _KeyedProblems:
+    """Collects problems with a sort key, so that reading column by column reports them row by row.
+
+    The key is (row, phase, column position, arrival): phase 0 visit fields, 1 value cells, 2 covariate
+    cells, 3 a repeated station and date, as a row-by-row reading meets them.
+    """
+
+    def __init__(self, file: str):
+        self.file = file
+        self.phase: tuple[int, int] = (0, 0)
+        self.items: list[tuple[tuple[int, int, int, int], InputProblem]] = []
+
+    def add(self, row: int | None, field_: str | None, value: object, expected: str,
+            severity: str = "error") -> None:
+        key = (-1 if row is None else row, *self.phase, len(self.items))
+        self.items.append((key, InputProblem(self.file, row, field_, value, expected, severity)))
+
+    def ordered(self) -> list[InputProblem]:
+        return [problem for _key, problem in sorted(self.items, key=lambda item: item[0])]
 
 
 class _Reader:
@@ -187,6 +211,9 @@ class _Reader:
         self.observations: list[dict] = []
         self.covariates: list[dict] = []
         self.visit_rows: dict[tuple[str, dt.date], int] = {}
+        self.visits_by_index: dict[int, tuple] = {}  # wide layout: row index -> its visit's fields
+        self.visit_frame: pd.DataFrame | None = None        # wide layout builds its frames column-wise
+        self.observation_frame: pd.DataFrame | None = None
 
     def raw(self, name: str) -> str:
         return self.table.raw_name(name) if name in self.table.headers else name
@@ -266,28 +293,179 @@ class _Reader:
 
     # layouts ------------------------------------------------------------------------------------
     def read_wide(self, value_columns: dict[int, tuple[str, str, int | None]]) -> None:
+        """Read the wide layout column by column (fast for big sheets).
+
+        The result, and the problems with their order, are those of reading row by row: visit fields,
+        then value cells and covariate cells in header order, then a repeated station and date.
+        """
+        t = self.table
+        rows = t.rows
+        if not rows:
+            return
+        numbers = [number for number, _ in rows]
+        columns = list(zip(*(cells for _, cells in rows), strict=True))
+        keyed = _KeyedProblems(self.problems.file)
+        collector, self.problems = self.problems, keyed  # type: ignore[assignment]
+        try:
+            good = self._wide_visit_fields(numbers, columns, keyed)
+            kept = self._wide_new_visits(numbers, good, keyed)
+            self._wide_values(numbers, columns, value_columns, kept, keyed)
+            self._wide_covariates(numbers, columns, kept, keyed)
+        finally:
+            self.problems = collector
+        collector.extend(keyed.ordered())
+
+    def _wide_visit_fields(self, numbers: list[int], columns: list[tuple[str, ...]],
+                           keyed: _KeyedProblems) -> dict[int, dict]:
+        t = self.table
+        n = len(numbers)
+
+        def column(name: str) -> tuple[str, ...]:
+            return columns[t.headers.index(name)] if name in t.headers else ("",) * n
+
+        stations, dates, statuses = column(C.STATION), column(C.DATE), column(C.VISIT_STATUS)
+        teams, repeats = column(H.OBSERVERS), column(H.REPEAT)
+        protocols, notes = column(C.PROTOCOL), column(H.NOTES)
+        raw_station, raw_date, raw_status = self.raw(C.STATION), self.raw(C.DATE), self.raw(C.VISIT_STATUS)
+        raw_observers, raw_repeat = self.raw(H.OBSERVERS), self.raw(H.REPEAT)
+        date_cache: dict[str, tuple[dt.date | None, str | None]] = {}
+        team_cache: dict[str, tuple[str, ...]] = {}
+        repeat_cache: dict[str, bool | None] = {}
+        statuses_text = ", ".join(C.VISIT_STATUSES)
+        keyed.phase = (0, 0)
+        good: dict[int, dict] = {}
+        for i in range(n):
+            number = numbers[i]
+            ok = True
+            station = stations[i]
+            if not station:
+                keyed.add(number, raw_station, None, "a station code")
+                ok = False
+            date_text = dates[i]
+            if date_text:
+                parsed = date_cache.get(date_text)
+                if parsed is None:
+                    parsed = date_cache[date_text] = parse_date(date_text, day_first=self.day_first)
+                date, why = parsed
+            else:
+                date, why = None, "a visit date"
+            if date is None:
+                keyed.add(number, raw_date, date_text or None, why or "a date")
+                ok = False
+            status_text = statuses[i]
+            status = status_text.lower()
+            if status not in C.VISIT_STATUSES:
+                keyed.add(number, raw_status, status_text or None, f"one of {statuses_text}")
+                ok = False
+            team_text = teams[i]
+            team = team_cache.get(team_text)
+            if team is None:
+                team = team_cache[team_text] = tuple(o.strip() for o in team_text.split(";") if o.strip())
+            if status in C.STATUSES_WITH_VALUES and not team:
+                keyed.add(number, raw_observers, team_text or None,
+                          f"observer codes separated by ';' for a {status} visit")
+            repeat_text = repeats[i]
+            if repeat_text in repeat_cache:
+                repeat = repeat_cache[repeat_text]
+            else:
+                repeat = repeat_cache[repeat_text] = parse_bool(repeat_text)
+            if repeat is None:
+                keyed.add(number, raw_repeat, repeat_text, "yes or no (blank = no)")
+                repeat = False
+            if ok:
+                good[i] = (station, date, team, status, repeat, protocols[i] or None, notes[i] or None, number)
+        return good
+
+    def _wide_new_visits(self, numbers: list[int], good: dict[int, tuple], keyed: _KeyedProblems) -> list[int]:
+        """Keep the first visit of each station and date (a repeated one is a problem), as new_visit does."""
+        keyed.phase = (3, 0)
+        raw_date = self.raw(C.DATE)
+        kept = []
+        for i, (station, date, *_rest, number) in good.items():
+            key = (station, date)
+            first = self.visit_rows.get(key)
+            if first is not None:
+                keyed.add(number, raw_date, date.isoformat(),
+                          f"one visit per station and date (station {station} also on row {first})")
+                continue
+            self.visit_rows[key] = number
+            kept.append(i)
+        if kept:
+            fields = list(zip(*(good[i] for i in kept), strict=True))
+            stations, dates, teams, statuses, repeats, protocols, notes, rows = (list(f) for f in fields)
+            self.visit_frame = pd.DataFrame({
+                C.STATION: stations, C.DATE: dates, C.YEAR: [d.year for d in dates], H.OBSERVERS: teams,
+                C.VISIT_STATUS: statuses, H.REPEAT: repeats, C.PROTOCOL: protocols, H.NOTES: notes,
+                H.SOURCE_ROW: rows}, columns=VISIT_COLUMNS)
+            self.visits_by_index = {i: good[i] for i in kept}
+        return kept
+
+    def _wide_values(self, numbers: list[int], columns: list[tuple[str, ...]],
+                     value_columns: dict[int, tuple[str, str, int | None]], kept: list[int],
+                     keyed: _KeyedProblems) -> None:
         headers = self.table.raw_headers
-        columns = list(value_columns.items())
-        for number, cells in self.table.rows:
-            visit = self.visit_fields(number, cells)
-            values = []
-            for i, (species, measure, n) in columns:
-                text = cells[i]
+        keep = set(kept)
+        at_row: list[int] = []
+        at_column: list[int] = []
+        values: list[float] = []
+        for position, (i, (_species, measure, _n)) in enumerate(value_columns.items()):
+            keyed.phase = (1, position)
+            field = headers[i]
+            presence = measure == C.MEASURE_PRESENCE
+            for r, text in enumerate(columns[i]):
                 if not text:
                     continue  # blank = not recorded
-                if measure != C.MEASURE_PRESENCE and text.isascii() and text.isdigit() and len(text) < 12:
+                if not presence and text.isascii() and text.isdigit() and len(text) < 12:
                     value: float | None = float(text)  # the common case, a plain whole number
                 else:
-                    value = self.value(number, headers[i], measure, text)
-                if value is not None:
-                    values.append((species, measure, value, n, headers[i]))
-            covs = self.covariate_values(number, cells, visit)
-            if visit is not None and self.new_visit(visit):
-                station, date = visit[C.STATION], visit[C.DATE]
-                self.observations.extend(
-                    {C.STATION: station, C.DATE: date, C.SPECIES: sp, C.MEASURE: me, H.VALUE: va, H.N: n,
-                     H.SOURCE_ROW: number, H.SOURCE_FIELD: field} for sp, me, va, n, field in values)
-                self.covariates.extend(covs)
+                    value = self.value(numbers[r], field, measure, text)
+                if value is None or r not in keep:
+                    continue
+                at_row.append(r)
+                at_column.append(position)
+                values.append(value)
+        if not values:
+            return
+        rows_ = np.asarray(at_row)
+        positions = np.asarray(at_column)
+        order = np.lexsort((positions, rows_))
+        rows_, positions = rows_[order].tolist(), positions[order].tolist()
+        specs = list(value_columns.items())
+        visits = self.visits_by_index
+        self.observation_frame = pd.DataFrame({
+            C.STATION: [visits[r][0] for r in rows_], C.DATE: [visits[r][1] for r in rows_],
+            C.SPECIES: [specs[k][1][0] for k in positions], C.MEASURE: [specs[k][1][1] for k in positions],
+            H.VALUE: np.asarray(values, dtype=float)[order], H.N: [specs[k][1][2] for k in positions],
+            H.SOURCE_ROW: [numbers[r] for r in rows_], H.SOURCE_FIELD: [headers[specs[k][0]] for k in positions],
+        }, columns=OBSERVATION_COLUMNS)
+
+    def _wide_covariates(self, numbers: list[int], columns: list[tuple[str, ...]], kept: list[int],
+                         keyed: _KeyedProblems) -> None:
+        if not self.cov_columns:
+            return
+        keep = set(kept)
+        at_row: list[int] = []
+        at_column: list[int] = []
+        records: list[dict] = []
+        for position, (i, (name, unit)) in enumerate(self.cov_columns.items()):
+            keyed.phase = (2, position)
+            for r, text in enumerate(columns[i]):
+                if not text:
+                    continue
+                value = parse_number(text)
+                if value is None:
+                    keyed.add(numbers[r], self.table.raw_headers[i], text,
+                              "a number with '.' as decimal mark, |x| <= 1e12")
+                    continue
+                if r in keep:
+                    station, date = self.visits_by_index[r][:2]
+                    at_row.append(r)
+                    at_column.append(position)
+                    records.append({C.STATION: station, C.DATE: date, "name": name, H.UNIT: unit,
+                                    H.VALUE: value, H.SOURCE_ROW: numbers[r]})
+        if records:
+            order = np.lexsort((np.asarray(at_column), np.asarray(at_row)))
+            self.covariates.extend(records[k] for k in order)
 
     def read_long(self) -> None:
         t, p = self.table, self.problems

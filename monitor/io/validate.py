@@ -95,6 +95,13 @@ def _as_date(value: object) -> dt.date | None:
     return pd.Timestamp(value).date()
 
 
+def _team_key(team: object) -> tuple:
+    """A visit's observers as a hashable tuple (None or NaN = no observers)."""
+    if team is None or (isinstance(team, float) and np.isnan(team)):
+        return ()
+    return tuple(team)
+
+
 def _dates(series: pd.Series) -> pd.Series:
     """A date column as datetime.date objects (accepts date objects, Timestamps or ISO strings)."""
     if pd.api.types.is_datetime64_any_dtype(series):
@@ -104,24 +111,59 @@ def _dates(series: pd.Series) -> pd.Series:
     return series.map(_as_date)
 
 
+def _pair_codes(stations_a, dates_a, stations_b, dates_b) -> tuple[np.ndarray, np.ndarray]:
+    """Integer codes of (station, date) pairs, equal for equal pairs across the two sets (a fast join key)."""
+    n = len(stations_a)
+    station_codes, _ = pd.factorize(np.concatenate([np.asarray(stations_a, dtype=object),
+                                                    np.asarray(stations_b, dtype=object)]))
+    date_codes, date_values = pd.factorize(np.concatenate([np.asarray(dates_a, dtype=object),
+                                                           np.asarray(dates_b, dtype=object)]))
+    key = station_codes.astype(np.int64) * (len(date_values) + 1) + date_codes
+    return key[:n], key[n:]
+
+
+def _pair_index(first, second) -> tuple[np.ndarray, list[tuple]]:
+    """Index of each (first, second) pair in the list of distinct pairs (found without building every tuple)."""
+    a, a_values = pd.factorize(np.asarray(first, dtype=object))
+    b, b_values = pd.factorize(np.asarray(second, dtype=object))
+    combined, distinct = pd.factorize(a.astype(np.int64) * (len(b_values) + 1) + b)
+    width = len(b_values) + 1
+    pairs = [(a_values[k // width], b_values[k % width]) for k in distinct.tolist()]
+    return combined, pairs
+
+
 def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference: Reference):
-    """(station, date, species, measure, source_row) for each target without a value on a done visit."""
+    """(station, date, species, measure, source_row) for each target without a value on a done visit.
+
+    In the order of the done visits, then of the targets.
+    """
     done = visits[visits[C.VISIT_STATUS] == C.STATUS_DONE]
     if done.empty:
         return []
     rows = done[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in done.columns else np.full(len(done), None)
-    base = pd.DataFrame({C.STATION: done[C.STATION].to_numpy(), C.DATE: _dates(done[C.DATE]).to_numpy(),
-                         H.SOURCE_ROW: rows})
-    targets = pd.DataFrame(list(reference.targets), columns=[C.SPECIES, C.MEASURE])
-    wanted = base.merge(targets, how="cross")
-    have = pd.DataFrame({C.STATION: observations[C.STATION].to_numpy(),
-                         C.DATE: _dates(observations[C.DATE]).to_numpy(),
-                         C.SPECIES: observations[C.SPECIES].to_numpy(),
-                         C.MEASURE: observations[C.MEASURE].to_numpy()}).drop_duplicates()
-    merged = wanted.merge(have, on=[C.STATION, C.DATE, C.SPECIES, C.MEASURE], how="left", indicator=True)
-    missing = merged[merged["_merge"] == "left_only"]
-    return list(zip(missing[C.STATION], missing[C.DATE], missing[C.SPECIES], missing[C.MEASURE],
-                    missing[H.SOURCE_ROW], strict=True))
+    stations = done[C.STATION].to_numpy(dtype=object)
+    dates = _dates(done[C.DATE]).to_numpy(dtype=object)
+    targets = list(reference.targets)
+    n_targets = len(targets)
+    target_code = {pair: k for k, pair in reversed(list(enumerate(targets)))}
+    visit_key, obs_key = _pair_codes(stations, dates, observations[C.STATION].to_numpy(dtype=object),
+                                     _dates(observations[C.DATE]).to_numpy(dtype=object))
+    # dense codes of the visits' keys, so that "has this target" is one boolean per visit and target
+    dense, distinct = pd.factorize(np.concatenate([visit_key, obs_key]))
+    visit_dense, obs_dense = dense[:len(visit_key)], dense[len(visit_key):]
+    have = np.zeros(len(distinct) * n_targets, dtype=bool)
+    if len(observations):
+        pair_at, distinct_pairs = _pair_index(observations[C.SPECIES].to_numpy(dtype=object),
+                                              observations[C.MEASURE].to_numpy(dtype=object))
+        codes = np.array([target_code.get(pair, -1) for pair in distinct_pairs] or [-1], dtype=np.int64)[pair_at]
+        hit = codes >= 0
+        have[obs_dense[hit] * n_targets + codes[hit]] = True
+    code_of = np.array([target_code[t] for t in targets], dtype=np.int64)
+    wanted = (visit_dense[:, None] * n_targets + code_of[None, :]).ravel()
+    missing = np.flatnonzero(~have[wanted])
+    visit_at, target_at = np.divmod(missing, n_targets)
+    return [(stations[v], dates[v], targets[t][0], targets[t][1], rows[v])
+            for v, t in zip(visit_at.tolist(), target_at.tolist(), strict=True)]
 
 
 def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
@@ -174,11 +216,31 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps, strict=True):
             date = _as_date(date)
             rounds.setdefault((station, date.year), []).append((date, bool(rep), None))
-    for rec in visits.itertuples(index=False):
-        v = rec._asdict()
-        station, date, row = v[C.STATION], _as_date(v[C.DATE]), v.get(H.SOURCE_ROW)
-        status_of[(station, date)] = v[C.VISIT_STATUS]
-        row_of[(station, date)] = row
+    n_visits = len(visits)
+    v_stations = visits[C.STATION].tolist()
+    v_dates = [d if type(d) is dt.date else _as_date(d) for d in visits[C.DATE]]
+    v_rows = visits[H.SOURCE_ROW].tolist() if H.SOURCE_ROW in visits.columns else [None] * n_visits
+    v_statuses = visits[C.VISIT_STATUS].tolist()
+    v_teams = visits[H.OBSERVERS].tolist() if H.OBSERVERS in visits.columns else [()] * n_visits
+    v_repeats = visits[H.REPEAT].tolist() if H.REPEAT in visits.columns else [None] * n_visits
+    keys = list(zip(v_stations, v_dates, strict=True))
+    status_of.update(zip(keys, v_statuses, strict=True))
+    row_of.update(zip(keys, v_rows, strict=True))
+    # cheap screens first (per distinct date and team); the full checks run only on visits they pick out
+    date_suspect: dict[dt.date, bool] = {}
+    for date in set(v_dates):
+        window = reference.windows.get(date.year)
+        date_suspect[date] = date > reference.today or (window is not None and not window[0] <= date <= window[1])
+    team_suspect: dict[object, bool] = {}
+    if reference.observers is not None:
+        for team in set(map(_team_key, v_teams)):
+            team_suspect[team] = any(code not in reference.observers for code in team)
+    for i in range(n_visits):
+        station, date = v_stations[i], v_dates[i]
+        if (station in known_stations and station not in retired and not date_suspect[date]
+                and not (team_suspect and team_suspect[_team_key(v_teams[i])])):
+            continue
+        row = v_rows[i]
         if station not in known_stations:
             add(row, C.STATION, station, "a station of the programme" + _closest(station, station_codes))
         elif station in retired and date >= retired[station]:
@@ -192,12 +254,15 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                 f"a date inside the {date.year} season window {window[0].isoformat()} to {window[1].isoformat()}",
                 WARNING)
         if reference.observers is not None:
-            for code in v.get(H.OBSERVERS) or ():
+            for code in v_teams[i] or ():
                 if code not in reference.observers:
                     add(row, H.OBSERVERS, code,
                         "an observer in the register" + _closest(code, sorted(reference.observers)))
-        rounds.setdefault((station, date.year), []).append((date, bool(v.get(H.REPEAT)), row))
+    for station, date, repeat, row in zip(v_stations, v_dates, v_repeats, v_rows, strict=True):
+        rounds.setdefault((station, date.year), []).append((date, bool(repeat), row))
     for (station, year), entries in rounds.items():
+        if len(entries) < 2:
+            continue  # one visit in the round: nothing to compare
         # same station and date already stored = the same visit (a correction), not a second one
         first_plain: dt.date | None = None
         seen_dates: set[dt.date] = set()
@@ -227,11 +292,13 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             else np.full(len(obs), np.nan)
 
         # missed / inaccessible visits carry no values; values must belong to a visit in the file
-        keys = pd.DataFrame({C.STATION: stations, C.DATE: _dates(obs[C.DATE]).to_numpy()})
-        status_table = pd.DataFrame({C.STATION: visits[C.STATION].to_numpy(),
-                                     C.DATE: _dates(visits[C.DATE]).to_numpy(),
-                                     "_status": visits[C.VISIT_STATUS].to_numpy()}).drop_duplicates([C.STATION, C.DATE])
-        visit_status = keys.merge(status_table, on=[C.STATION, C.DATE], how="left")["_status"].to_numpy(dtype=object)
+        visit_key, obs_key = _pair_codes(visits[C.STATION].to_numpy(dtype=object),
+                                         _dates(visits[C.DATE]).to_numpy(dtype=object), stations,
+                                         _dates(obs[C.DATE]).to_numpy(dtype=object))
+        first_of_key = ~pd.Series(visit_key).duplicated().to_numpy()
+        at = pd.Index(visit_key[first_of_key]).get_indexer(obs_key)
+        statuses = np.append(visits[C.VISIT_STATUS].to_numpy(dtype=object)[first_of_key], None)
+        visit_status = statuses[at]  # at = -1 (no visit in the file) picks the trailing None
         for i in np.flatnonzero(pd.isna(visit_status)):
             add(rows[i], fields[i], values[i], f"a value belonging to a visit of {stations[i]} in this file")
         no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
@@ -248,8 +315,10 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         unknown = ~np.isin(species, species_codes)
         for i in np.flatnonzero(unknown):
             add(rows[i], fields[i], species[i], "a species of the programme" + _closest(species[i], species_codes))
-        pairs = pd.Series(list(zip(species, measures, strict=True)))
-        not_registered = ~pairs.isin(list(registered)).to_numpy() & ~unknown
+        # (species, measure) pairs worked out once per distinct pair
+        pair_at, distinct_pairs = _pair_index(species, measures)
+        registered_pair = np.array([pair in registered for pair in distinct_pairs] or [False])[pair_at]
+        not_registered = ~registered_pair & ~unknown
         for i in np.flatnonzero(not_registered):
             ways = sorted(m for s, m in registered if s == species[i])
             add(rows[i], fields[i], measures[i], f"a measure registered for {species[i]}: {', '.join(ways)}")
@@ -273,8 +342,8 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
             add(rows[i], fields[i], values[i], f"a whole number of {unit} k with 0 <= k <= n = "
                                                f"{'?' if np.isnan(ns[i]) else int(ns[i])}")
-        programme_n = np.array([registered.get((s, m)) for s, m in zip(species, measures, strict=True)], dtype=object)
-        programme_n = pd.to_numeric(pd.Series(programme_n), errors="coerce").to_numpy(dtype=float)
+        distinct_n = np.array([registered.get(pair) for pair in distinct_pairs] or [None], dtype=object)
+        programme_n = pd.to_numeric(pd.Series(distinct_n), errors="coerce").to_numpy(dtype=float)[pair_at]
         bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
         for i in np.flatnonzero(bad):
             unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
@@ -283,13 +352,23 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                 f"n = {int(programme_n[i])} {unit}, the programme's {'grid' if unit == 'cells' else 'frame'} "
                 f"for {species[i]}")
 
-        # species windows (phenology): warnings
+        # species windows (phenology): warnings; month-day worked out once per distinct date
         if reference.species_windows:
-            for i in np.flatnonzero(np.isin(species, list(reference.species_windows))):
-                start, end = reference.species_windows[species[i]]
-                date = _as_date(dates[i])
-                if not _in_month_day_window(date, start, end):
-                    add(rows[i], fields[i], date.isoformat(),
+            in_scope = np.isin(species, list(reference.species_windows))
+            if in_scope.any():
+                codes, distinct = pd.factorize(pd.Series(dates, dtype=object))
+                month_days = np.array([f"{d.month:02d}-{d.day:02d}" for d in map(_as_date, distinct)] or [""])
+                md = month_days[codes]
+                outside = np.zeros(len(species), dtype=bool)
+                for code, (start, end) in reference.species_windows.items():
+                    mask = in_scope & (species == code)
+                    if not mask.any():
+                        continue
+                    inside = (start <= md) & (md <= end) if start <= end else (md >= start) | (md <= end)
+                    outside |= mask & ~inside
+                for i in np.flatnonzero(outside):
+                    start, end = reference.species_windows[species[i]]
+                    add(rows[i], fields[i], _as_date(dates[i]).isoformat(),
                         f"a visit inside {species[i]}'s season window {start} to {end}", WARNING)
         del known_species
 

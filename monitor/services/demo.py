@@ -14,7 +14,7 @@ from typing import Any
 
 from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
-from monitor.services import design, estimate, power, records, report, schedule, setup, summary, trend
+from monitor.services import design, estimate, power, quality, records, report, schedule, setup, summary, trend
 
 #: the season the demo plans: the one after its last season of records
 DEMO_SEASON = 2027
@@ -58,6 +58,8 @@ def build_programme(folder: Path, *, echo: Callable[[str], None] = lambda _m: No
     echo(f"3. importing {len(sheets)} seasons of field sheets through the records importer")
     imports = [records.import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
     run.steps.append(("imports", imports))
+    echo("4. checking the stored records (quality flags)")
+    run.steps.append(("quality", quality.run_checks(db, code)))
     run.steps.append(("summary", summary.programme_summary(db, code)))
     run.programme = code
     return run
@@ -72,18 +74,18 @@ def analyse(run: DemoRun, *, echo: Callable[[str], None] = lambda _m: None) -> D
     latest = int(run.steps[-1][1]["visits_by_year"]["year"].max())
     figures = folder / "figures"
 
-    echo(f"4. the revisit panels: which stations are due in {DEMO_SEASON}-{DEMO_SEASON + 2}")
+    echo(f"5. the revisit panels: which stations are due in {DEMO_SEASON}-{DEMO_SEASON + 2}")
     run.steps.append(("panels", design.panel_due_table(db, 3, first_year=DEMO_SEASON, programme_code=code)))
-    echo(f"5. planning season {DEMO_SEASON} with 2 teams (due and overdue stations, routes, held-back sites)")
+    echo(f"6. planning season {DEMO_SEASON} with 2 teams (due and overdue stations, routes, held-back sites)")
     plan = schedule.plan_season(db, DEMO_SEASON, teams=2, seed=DEMO_SEASON, programme_code=code)
     run.steps.append(("plan", plan))
     first = plan.plan.team_days[0]
-    echo(f"6. writing the field pack for team {first.team} on {first.date.isoformat()}")
+    echo(f"7. writing the field pack for team {first.team} on {first.date.isoformat()}")
     pack = schedule.write_field_packs(db, DEMO_SEASON, folder / "field_packs", team=first.team, day=first.date,
                                       programme_code=code)
     run.steps.append(("field_pack", pack))
 
-    echo(f"7. this season's estimates ({latest}), sample adequacy and the stream-transect gradient")
+    echo(f"8. this season's estimates ({latest}), sample adequacy and the stream-transect gradient")
     run.steps.append(("estimates", estimate.season_table(db, latest, programme_code=code)))
     run.steps.append(("adequacy", estimate.sample_adequacy(db, "MARVIO", latest, "SM", programme_code=code,
                                                            figure=figures / "running_mean_MARVIO_SM.png")))
@@ -92,11 +94,11 @@ def analyse(run: DemoRun, *, echo: Callable[[str], None] = lambda _m: None) -> D
                                                      transect=gradient_truth["transect"],
                                                      figure=figures / "gradient_MARVIO_SM-T.png"),
                                    gradient_truth)))
-    echo("8. fitting the trend of every target species across the years")
+    echo("9. fitting the trend of every target species across the years")
     trends = trend.fit_programme(db, programme_code=code, keep_data=True)
     run.steps.append(("trends", [(t, truth.get(t.species)) for t in trends]))
 
-    echo("9. a small power study: can 20 or 40 quadrats detect a 50% fall of the marsh violetwort in 10 years?")
+    echo("10. a small power study: can 20 or 40 quadrats detect a 50% fall of the marsh violetwort in 10 years?")
     marvio = next(t for t in trends if t.species == "MARVIO")
     from monitor.power import components_from_trend
 
@@ -105,6 +107,6 @@ def analyse(run: DemoRun, *, echo: Callable[[str], None] = lambda _m: None) -> D
         over_years=10, stations=[20, 40], years=[6, 11], replicates=40, seed=2027, workers=2,
         find_smallest=False, figure=figures / "power_MARVIO.png")))
 
-    echo(f"10. writing the annual report for {latest}")
+    echo(f"11. writing the annual report for {latest}")
     run.steps.append(("report", report.write_report(db, latest, folder / "reports" / str(latest), programme_code=code)))
     return run

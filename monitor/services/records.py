@@ -18,22 +18,28 @@ import datetime as dt
 import getpass
 import json
 import os
+import sys
+import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TypeVar
 
+import numpy as np
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Session, Store, insert, select
+from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.db.models import utcnow
-from monitor.errors import DataError, InputError, InputProblem, LockedError
+from monitor.errors import DataError, InputError, InputProblem, LockedError, MonitorError
 from monitor.io import headers as H
 from monitor.io.hashing import content_hash
-from monitor.io.records import read_field_records
+from monitor.io.records import FieldRecords, read_field_records
 from monitor.io.validate import Reference, fill_blank_targets, raise_for_problems, validate_records
 
 KIND_RECORDS = "records"
+T = TypeVar("T")
 
 
 @dataclass
@@ -145,18 +151,13 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
 
 # --- import -----------------------------------------------------------------------------------------------------
 
-
-def _round_for(session: Session, programme_id: int, year: int, cache: dict[int, M.Round]) -> M.Round:
-    if year in cache:
-        return cache[year]
-    rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme_id, M.Round.year == year)).first()
-    if rnd is None:
-        start, end = programme_window(session, programme_id, year)
-        rnd = M.Round(programme_id=programme_id, year=year, window_start=start, window_end=end, status="open")
-        session.add(rnd)
-        session.flush()
-    cache[year] = rnd
-    return rnd
+#: Test hook, not for users: when set to a number of seconds, an import that has written its visits (inside
+#: its still open transaction) says so on stderr and sleeps that long, so that a test can kill the process
+#: at that moment and show that nothing of the import is left in the database.
+PAUSE_HOOK = "MONITOR_TEST_PAUSE_AFTER_VISITS"
+#: attempts of one import when the database reports a transient failure (serialization failure, deadlock,
+#: a busy SQLite file, a round or visit created first by a concurrent import)
+ATTEMPTS = 6
 
 
 def _text(value: object) -> str:
@@ -170,27 +171,50 @@ def _text(value: object) -> str:
     return str(value)
 
 
+def run_with_retries(work: Callable[[], T], *, attempts: int = ATTEMPTS, first_wait: float = 0.05) -> T:
+    """Run one transaction's work, again from the start when it failed for a transient reason.
+
+    The wait doubles after each failed attempt (exponential backoff), offset by the process id so that
+    two processes that collided do not retry in step.
+    """
+    for attempt in range(attempts):
+        try:
+            return work()
+        except MonitorError as exc:
+            if attempt == attempts - 1 or not queries.retryable(exc):
+                raise
+            time.sleep(first_wait * (2 ** attempt) * (1 + (os.getpid() % 11) / 11))
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
 def import_records(db: str | None, path: Path, *, programme_code: str | None = None, dry_run: bool = False,
                    correct: bool = False, reason: str | None = None, accept_warnings: bool = False,
                    who: str | None = None, day_first: bool | None = None) -> ImportReport:
-    """Import a season's field records from CSV or .xlsx (wide field-sheet or long layout)."""
+    """Import a season's field records from CSV or .xlsx (wide field-sheet or long layout).
+
+    The whole file is read and checked before anything is written, and everything is written in one
+    transaction: a file with any error, or a process killed half-way, leaves the database as it was.
+    """
     path = Path(path)
     if correct and not (reason and reason.strip()):
         raise InputError(InputProblem(path.name, None, "--reason", None, "a reason for the correction"))
-    store = Store.open(db)
     try:
-        return _import(store, path, programme_code, dry_run, correct, reason, accept_warnings,
-                       who or current_user(), day_first)
-    finally:
-        store.dispose()
+        records = read_field_records(path, day_first=day_first)
+        digest = content_hash(path)
+        store = Store.open(db)
+        try:
+            programme = store.programme(programme_code)
+            return run_with_retries(lambda: _import(store, programme, records, path.name, digest, dry_run, correct,
+                                                    reason, accept_warnings, who or current_user()))
+        finally:
+            store.dispose()
+    except InputError as exc:
+        raise InputError(plain_problems(exc.problems)) from exc
 
 
-def _import(store: Store, path: Path, programme_code: str | None, dry_run: bool, correct: bool,
-            reason: str | None, accept_warnings: bool, who: str, day_first: bool | None) -> ImportReport:
-    records = read_field_records(path, day_first=day_first)
+def _import(store: Store, programme: M.Programme, records: FieldRecords, file_name: str, digest: str,
+            dry_run: bool, correct: bool, reason: str | None, accept_warnings: bool, who: str) -> ImportReport:
     report = ImportReport(file=records.file, layout=records.layout, dry_run=dry_run)
-    digest = content_hash(path)
-    programme = store.programme(programme_code)
     with store.session() as session:
         batch = session.exec(select(M.ImportBatch).where(
             M.ImportBatch.programme_id == programme.id, M.ImportBatch.kind == KIND_RECORDS,
@@ -205,6 +229,7 @@ def _import(store: Store, path: Path, programme_code: str | None, dry_run: bool,
         report.years = years
         reference = build_reference(session, programme, years)
         problems = validate_records(visits, records.observations, records.covariates, reference, file=records.file)
+        problems += _protocol_problems(session, programme.id, visits, records.file)
         accepted = raise_for_problems(problems, accept_warnings=accept_warnings)
         report.warnings.extend(p.line() for p in accepted)
         observations = fill_blank_targets(visits, records.observations, reference)
@@ -218,20 +243,38 @@ def _import(store: Store, path: Path, programme_code: str | None, dry_run: bool,
         if dry_run:
             session.rollback()
             return report
-        _write(session, programme, path.name, digest, len(visits), plan, report, reason, who)
+        _write(session, programme, file_name, digest, len(visits), plan, reason, who)
     return report
+
+
+def _protocol_problems(session: Session, programme_id: int, visits: pd.DataFrame, file: str) -> list[InputProblem]:
+    """A protocol code that the programme does not know is an error (never silently dropped)."""
+    if C.PROTOCOL not in visits.columns:
+        return []
+    known = set(session.exec(select(M.ProtocolVersion.code).where(M.ProtocolVersion.programme_id == programme_id)).all())
+    out = []
+    for code, row in zip(visits[C.PROTOCOL], visits[H.SOURCE_ROW], strict=True):
+        code = _text(code)
+        if code and code not in known:
+            out.append(InputProblem(file, int(row), C.PROTOCOL, code,
+                                    f"a protocol version of the programme ({', '.join(sorted(known)) or 'none'})"))
+    return out
 
 
 @dataclass
 class _Plan:
-    new_visits: list[dict] = field(default_factory=list)        # visit rows with their observations
+    new: pd.DataFrame = field(default_factory=pd.DataFrame)            # new visits (file order), with ids to use
+    new_observations: pd.DataFrame = field(default_factory=pd.DataFrame)
+    new_covariates: pd.DataFrame = field(default_factory=pd.DataFrame)
     changes: list[tuple[Change, int]] = field(default_factory=list)
     updates: list[tuple[int, dict]] = field(default_factory=list)  # (stored visit id, the file's version)
     locked_years: set[int] = field(default_factory=set)
+    windows: dict[int, tuple[dt.date, dt.date]] = field(default_factory=dict)
 
 
 def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFrame, observations: pd.DataFrame,
           covariates: pd.DataFrame, report: ImportReport) -> _Plan:
+    """Sort the file's visits into new ones (written in bulk) and stored ones (compared value by value)."""
     pid = programme.id
     station_ids = dict(session.exec(select(M.Station.code, M.Station.id).where(M.Station.programme_id == pid)).all())
     species_ids = dict(session.exec(select(M.Species.code, M.Species.id).where(M.Species.programme_id == pid)).all())
@@ -241,49 +284,143 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
     years = sorted({int(y) for y in visits[C.YEAR]})
     rounds = {r.year: r for r in session.exec(select(M.Round).where(M.Round.programme_id == pid,
                                                                      M.Round.year.in_(years))).all()}
-    # stored visits of these rounds, keyed (station, year, date) and (station, year) for first visits
-    stored: dict[tuple[str, int, dt.date], M.Visit] = {}
-    first_visit: dict[tuple[str, int], M.Visit] = {}
-    code_of = {v: k for k, v in station_ids.items()}
-    year_of = {r.id: y for y, r in rounds.items()}
-    if rounds:
-        for visit in session.exec(select(M.Visit).where(M.Visit.round_id.in_([r.id for r in rounds.values()]))).all():
-            key = (code_of[visit.station_id], year_of[visit.round_id])
-            stored[(*key, visit.date)] = visit
-            if visit.repeat_no == 0:
-                first_visit[key] = visit
-
-    obs_by_visit = {k: g for k, g in observations.groupby([C.STATION, C.DATE], sort=False)} if len(observations) else {}
-    cov_by_visit = {k: g for k, g in covariates.groupby([C.STATION, C.DATE], sort=False)} if len(covariates) else {}
-    plan = _Plan()
     protocol_default = _default_protocol(session, pid)
-    for v in visits.to_dict(orient="records"):
-        station, date, year = v[C.STATION], v[C.DATE], int(v[C.YEAR])
+
+    team_ids: dict[tuple, list[int]] = {}
+
+    def ids_of(team: object) -> list[int]:
+        key = tuple(team) if isinstance(team, (tuple, list)) else ()
+        if key not in team_ids:
+            team_ids[key] = [observer_ids[o] for o in key if o in observer_ids]
+        return team_ids[key]
+
+    v = pd.DataFrame({
+        C.STATION: visits[C.STATION].to_numpy(dtype=object),
+        "station_id": visits[C.STATION].map(station_ids).to_numpy(dtype=object),
+        C.YEAR: visits[C.YEAR].astype(int).to_numpy(),
+        C.DATE: visits[C.DATE].to_numpy(dtype=object),
+        "status": visits[C.VISIT_STATUS].to_numpy(dtype=object),
+        "repeat": visits[H.REPEAT].fillna(False).astype(bool).to_numpy(),
+        "notes": [x if isinstance(x, str) else _text(x) for x in visits[H.NOTES]],
+        "observer_ids": [ids_of(team) for team in visits[H.OBSERVERS]],
+        "source_row": visits[H.SOURCE_ROW].astype(int).to_numpy(),
+    })
+    v["protocol_id"] = [protocol_ids.get(code) if code else protocol_default.get(year)
+                        for code, year in zip((_text(x) for x in visits[C.PROTOCOL]), v[C.YEAR], strict=True)]
+    v["existing_id"] = pd.array([None] * len(v), dtype="Int64")
+
+    stored = pd.DataFrame(columns=["id", "station_id", "round_id", "date", "repeat_no"])
+    if rounds:
+        year_of = {r.id: y for y, r in rounds.items()}
+        stored = pd.DataFrame(session.exec(select(M.Visit.id, M.Visit.station_id, M.Visit.round_id, M.Visit.date,
+                                                  M.Visit.repeat_no)
+                                           .where(M.Visit.round_id.in_(list(year_of)))).all(),
+                              columns=["id", "station_id", "round_id", "date", "repeat_no"])
+        stored[C.YEAR] = stored["round_id"].map(year_of)
+    if len(stored) and len(v):
+        # the same visit: same station, round and date; or, for a visit not marked repeat, the round's first visit
+        by_date = dict(zip(zip(stored["station_id"], stored[C.YEAR], stored["date"]), stored["id"]))
+        first = stored[stored["repeat_no"] == 0]
+        by_round = dict(zip(zip(first["station_id"], first[C.YEAR]), first["id"]))
+        matched = []
+        for sid, year, date, repeat in zip(v["station_id"], v[C.YEAR], v[C.DATE], v["repeat"], strict=True):
+            hit = by_date.get((sid, year, date))
+            if hit is None and not repeat:
+                hit = by_round.get((sid, year))
+            matched.append(hit)
+        v["existing_id"] = pd.array(matched, dtype="Int64")
+
+    plan = _Plan()
+    is_new = v["existing_id"].isna().to_numpy()
+    new = v[is_new].copy()
+    for year in sorted(set(new[C.YEAR])):
+        if year in rounds and rounds[year].status == "certified":
+            plan.locked_years.add(int(year))
+        plan.windows[int(year)] = ((rounds[year].window_start, rounds[year].window_end) if year in rounds
+                                   else programme_window(session, pid, int(year)))
+    # repeat numbers: 0 for the round's visit; marked repeats count on from what the round holds
+    new["repeat_no"] = 0
+    if new["repeat"].any():
+        stored_max = (stored.groupby(["station_id", C.YEAR])["repeat_no"].max().to_dict() if len(stored) else {})
+        reps = new[new["repeat"]]
+        order = reps.groupby(["station_id", C.YEAR]).cumcount() + 1
+        new.loc[reps.index, "repeat_no"] = [int(stored_max.get((s, y), 0)) + int(k)
+                                            for s, y, k in zip(reps["station_id"], reps[C.YEAR], order, strict=True)]
+    plan.new = new
+
+    # each value and covariate by the position of its visit in the file, kept when that visit is new
+    if len(observations):
+        at = _visit_positions(visits, observations)
+        keep = is_new[at]
+        o = observations[keep]
+        plan.new_observations = pd.DataFrame({
+            "at": at[keep],
+            "species_id": o[C.SPECIES].map(species_ids).to_numpy(dtype=object),
+            "measure": o[C.MEASURE].to_numpy(dtype=object),
+            "value": o[H.VALUE].astype(float).to_numpy(),
+            "n": pd.Series([None if pd.isna(x) else int(x) for x in o[H.N]], dtype=object),
+        })
+    if len(covariates):
+        at = _visit_positions(visits, covariates)
+        keep = is_new[at]
+        c = covariates[keep]
+        plan.new_covariates = pd.DataFrame({
+            "at": at[keep],
+            "name": c["name"].to_numpy(dtype=object),
+            "unit": [_text(u) for u in c[H.UNIT]],
+            "value": c[H.VALUE].astype(float).to_numpy(),
+        })
+
+    matched_rows = v[~is_new]
+    if len(matched_rows):
+        _plan_stored(session, matched_rows, observations, covariates, species_ids, observer_ids, rounds, plan, report)
+    if plan.locked_years:
+        years_text = ", ".join(str(y) for y in sorted(plan.locked_years))
+        raise LockedError(f"{file}: season {years_text} is certified (locked); "
+                          f"unlock it first with `monitor records unlock YEAR --reason \"...\"`")
+    report.visits_added = len(plan.new)
+    report.observations_added = len(plan.new_observations)
+    report.covariates_added = len(plan.new_covariates)
+    return plan
+
+
+def _visit_positions(visits: pd.DataFrame, rows: pd.DataFrame) -> np.ndarray:
+    """For each row (a value or covariate), the position in ``visits`` of its visit (same station and date).
+
+    Integer codes of the (station, date) pairs make this a fast join; every row belongs to a visit of the
+    file (the reader and the validation see to that).
+    """
+    n = len(visits)
+    stations, _ = pd.factorize(np.concatenate([visits[C.STATION].to_numpy(dtype=object),
+                                               rows[C.STATION].to_numpy(dtype=object)]))
+    dates, date_values = pd.factorize(np.concatenate([visits[C.DATE].to_numpy(dtype=object),
+                                                      rows[C.DATE].to_numpy(dtype=object)]))
+    key = stations.astype(np.int64) * (len(date_values) + 1) + dates
+    at = pd.Index(key[:n]).get_indexer(key[n:]) if pd.Index(key[:n]).is_unique else \
+        pd.Series(np.arange(n), index=key[:n]).groupby(level=0).first().reindex(key[n:]).to_numpy()
+    at = np.asarray(at, dtype=np.int64)
+    if (at < 0).any():  # pragma: no cover - the validation refuses values without a visit
+        raise AssertionError("a value without its visit in the file")
+    return at
+
+
+def _plan_stored(session: Session, matched: pd.DataFrame, observations: pd.DataFrame, covariates: pd.DataFrame,
+                 species_ids: dict, observer_ids: dict, rounds: dict, plan: _Plan, report: ImportReport) -> None:
+    """Compare the file's version of visits already stored with what is stored."""
+    obs_by_visit = {k: g for k, g in observations.groupby([C.STATION, C.DATE], sort=False)} if len(observations) else {}
+    for r in matched.to_dict(orient="records"):
+        station, date, year = r[C.STATION], r[C.DATE], int(r[C.YEAR])
         rows_obs = obs_by_visit.get((station, date))
-        rows_cov = cov_by_visit.get((station, date))
-        protocol = _text(v.get(C.PROTOCOL)) or None
-        new_obs = [] if rows_obs is None else [
-            {"species_id": species_ids[o[C.SPECIES]], "species": o[C.SPECIES], "measure": o[C.MEASURE],
-             "value": float(o[H.VALUE]), "n": None if pd.isna(o[H.N]) else int(o[H.N])}
-            for o in rows_obs.to_dict(orient="records")]
-        new_cov = [] if rows_cov is None else [
-            {"name": c["name"], "unit": _text(c.get(H.UNIT)), "value": float(c[H.VALUE])}
-            for c in rows_cov.to_dict(orient="records")]
         row = {
-            "station": station, "station_id": station_ids[station], "year": year, "date": date,
-            "status": v[C.VISIT_STATUS], "repeat": bool(v[H.REPEAT]), "notes": _text(v.get(H.NOTES)),
-            "protocol_id": protocol_ids.get(protocol) if protocol else protocol_default.get(year),
-            "observer_ids": [observer_ids[o] for o in (v.get(H.OBSERVERS) or ()) if o in observer_ids],
-            "observations": new_obs, "covariates": new_cov, "source_row": int(v[H.SOURCE_ROW]),
+            "station": station, "station_id": r["station_id"], "year": year, "date": date, "status": r["status"],
+            "repeat": bool(r["repeat"]), "notes": r["notes"], "protocol_id": r["protocol_id"],
+            "observer_ids": r["observer_ids"], "source_row": int(r["source_row"]),
+            "observations": [] if rows_obs is None else [
+                {"species_id": species_ids[o[C.SPECIES]], "species": o[C.SPECIES], "measure": o[C.MEASURE],
+                 "value": float(o[H.VALUE]), "n": None if pd.isna(o[H.N]) else int(o[H.N])}
+                for o in rows_obs.to_dict(orient="records")],
         }
-        existing = stored.get((station, year, date))
-        if existing is None and not row["repeat"]:
-            existing = first_visit.get((station, year))
-        if existing is None:
-            plan.new_visits.append(row)
-            if year in rounds and rounds[year].status == "certified":
-                plan.locked_years.add(year)
-            continue
+        existing = session.get(M.Visit, int(r["existing_id"]))
         changes = _compare(session, existing, row, species_ids, observer_ids)
         if not changes:
             report.visits_unchanged += 1
@@ -293,14 +430,6 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
         for ch in changes:
             plan.changes.append((ch, row["source_row"]))
         plan.updates.append((existing.id, row))
-    if plan.locked_years:
-        years_text = ", ".join(str(y) for y in sorted(plan.locked_years))
-        raise LockedError(f"{file}: season {years_text} is certified (locked); "
-                          f"unlock it first with `monitor records unlock YEAR --reason \"...\"`")
-    report.visits_added = len(plan.new_visits)
-    report.observations_added = sum(len(r["observations"]) for r in plan.new_visits)
-    report.covariates_added = sum(len(r["covariates"]) for r in plan.new_visits)
-    return plan
 
 
 def _default_protocol(session: Session, programme_id: int) -> dict[int, int]:
@@ -312,7 +441,7 @@ def _default_protocol(session: Session, programme_id: int) -> dict[int, int]:
         def get(self, year, default=None):  # noqa: A003 - a dict with computed lookups
             chosen = None
             for p in protos:
-                if p.effective_from <= dt.date(year, 7, 1):
+                if p.effective_from <= dt.date(int(year), 7, 1):
                     chosen = p.id
             return chosen if chosen is not None else default
 
@@ -357,51 +486,74 @@ def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, obs
 
 
 def _write(session: Session, programme: M.Programme, file_name: str, digest: str, n_rows: int, plan: _Plan,
-           report: ImportReport, reason: str | None, who: str) -> None:
+           reason: str | None, who: str) -> None:
     now = utcnow()
     batch = M.ImportBatch(programme_id=programme.id, kind=KIND_RECORDS, file_name=file_name, content_hash=digest,
                           row_count=n_rows, imported_by=who, imported_at=now)
     session.add(batch)
     session.flush()
-    rounds: dict[int, M.Round] = {}
-    visit_rows = []
-    repeat_next: dict[tuple[int, int], int] = {}
-    for r in plan.new_visits:
-        rnd = _round_for(session, programme.id, r["year"], rounds)
-        repeat_no = 0
-        if r["repeat"]:
-            key = (r["station_id"], rnd.id)
-            if key not in repeat_next:
-                stored_max = session.exec(select(M.Visit.repeat_no).where(
-                    M.Visit.station_id == r["station_id"], M.Visit.round_id == rnd.id)).all()
-                repeat_next[key] = (max(stored_max) + 1) if stored_max else 1
-            repeat_no = repeat_next[key]
-            repeat_next[key] += 1
-        r["round_id"], r["repeat_no"] = rnd.id, repeat_no
-        visit_rows.append({"station_id": r["station_id"], "round_id": rnd.id, "date": r["date"], "status": r["status"],
-                           "repeat_no": repeat_no, "protocol_id": r["protocol_id"], "notes": r["notes"],
-                           "import_batch_id": batch.id})
-    if visit_rows:
-        session.execute(insert(M.Visit), visit_rows)
-        ids = {(s, rd, rp): i for i, s, rd, rp in session.exec(
-            select(M.Visit.id, M.Visit.station_id, M.Visit.round_id, M.Visit.repeat_no)
-            .where(M.Visit.import_batch_id == batch.id)).all()}
-        obs_rows, observer_rows, cov_rows = [], [], []
-        for r in plan.new_visits:
-            vid = ids[(r["station_id"], r["round_id"], r["repeat_no"])]
-            obs_rows.extend({"visit_id": vid, "species_id": o["species_id"], "measure": o["measure"],
-                             "value": o["value"], "n": o["n"]} for o in r["observations"])
-            observer_rows.extend({"visit_id": vid, "observer_id": o} for o in dict.fromkeys(r["observer_ids"]))
-            cov_rows.extend({"station_id": r["station_id"], "visit_id": vid, **c} for c in r["covariates"])
-        if obs_rows:
-            session.execute(insert(M.Observation), obs_rows)
-        if observer_rows:
-            session.execute(insert(M.VisitObserver), observer_rows)
-        if cov_rows:
-            session.execute(insert(M.Covariate), cov_rows)
+    new = plan.new
+    if len(new):
+        # rounds in year order, so two imports creating rounds at once never wait on each other in a cycle
+        round_ids = {year: queries.ensure_round(session, programme.id, year, *plan.windows[year])
+                     for year in sorted(plan.windows)}
+        new_round = [round_ids[int(y)] for y in new[C.YEAR]]
+        queries.insert_rows(session, "visit", ["station_id", "round_id", "date", "status", "repeat_no", "protocol_id",
+                                               "notes", "import_batch_id"],
+                            list(zip([int(s) for s in new["station_id"]], new_round,
+                                     [d.isoformat() for d in new[C.DATE]], new["status"].tolist(),
+                                     [int(x) for x in new["repeat_no"]],
+                                     [None if x is None or pd.isna(x) else int(x) for x in new["protocol_id"]],
+                                     new["notes"].tolist(), [batch.id] * len(new), strict=True)))
+        _pause_hook(len(new))
+        id_of = {(s, r, k): i for i, s, r, k in queries.batch_visits(session, batch.id)}
+        id_at = np.zeros(int(new.index.max()) + 1, dtype=np.int64)  # visit id by position in the file
+        id_at[new.index.to_numpy()] = [id_of[(int(s), r, int(k))] for s, r, k in
+                                       zip(new["station_id"], new_round, new["repeat_no"], strict=True)]
+        obs = plan.new_observations
+        if len(obs):
+            queries.insert_rows(session, "observation", ["visit_id", "species_id", "measure", "value", "n"],
+                                list(zip(id_at[obs["at"].to_numpy()].tolist(), [int(x) for x in obs["species_id"]],
+                                         obs["measure"].tolist(), obs["value"].tolist(), obs["n"].tolist(),
+                                         strict=True)))
+        queries.insert_rows(session, "visit_observer", ["visit_id", "observer_id"],
+                            [(vid, int(oid)) for vid, team in zip(id_at[new.index.to_numpy()].tolist(),
+                                                                  new["observer_ids"], strict=True)
+                             for oid in dict.fromkeys(team)])
+        cov = plan.new_covariates
+        if len(cov):
+            station_at = dict(zip(new.index.tolist(), new["station_id"], strict=True))
+            queries.insert_rows(session, "covariate", ["station_id", "visit_id", "name", "unit", "value"],
+                                list(zip([int(station_at[a]) for a in cov["at"]], id_at[cov["at"].to_numpy()].tolist(),
+                                         cov["name"].tolist(), cov["unit"].tolist(), cov["value"].tolist(),
+                                         strict=True)))
     for visit_id, row in plan.updates:
         _apply_update(session, programme.id, visit_id, row, reason or "", who, now)
     session.flush()
+    _refresh_planned_outcomes(session, programme.id, sorted({int(r["year"]) for r in plan.new_visits}
+                                                          | {int(r["year"]) for _i, r in plan.updates}))
+
+
+def _refresh_planned_outcomes(session: Session, programme_id: int, years: list[int]) -> None:
+    """Stored season plans learn each planned station's outcome as its records arrive."""
+    if not years:
+        return
+    planned = session.exec(select(M.PlannedVisit.id).join(M.Round, M.Round.id == M.PlannedVisit.round_id)
+                           .where(M.Round.programme_id == programme_id, M.Round.year.in_(years)).limit(1)).first()
+    if planned is None:
+        return
+    from monitor.services.schedule import refresh_outcomes
+
+    refresh_outcomes(session, programme_id, years)
+
+
+def _pause_hook(n_visits: int) -> None:
+    seconds = os.environ.get(PAUSE_HOOK)
+    if not seconds:
+        return
+    print(f"{PAUSE_HOOK}: {n_visits} visits written, transaction open; pausing {seconds} s",
+          file=sys.stderr, flush=True)
+    time.sleep(float(seconds))
 
 
 def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict, reason: str, who: str,
@@ -424,7 +576,7 @@ def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict,
     new_obs = {(o["species_id"], o["measure"]): o for o in row["observations"]}
     for key, obs in stored.items():
         if key not in new_obs:
-            log("observation", obs.id, f"{obs.species_id}:{obs.measure}:value", obs.value, None)
+            log("visit", visit.id, f"{_species_code(session, obs.species_id)}:{obs.measure}", obs.value, None)
             session.delete(obs)
         elif obs.value != new_obs[key]["value"] or (obs.n or None) != (new_obs[key]["n"] or None):
             log("observation", obs.id, "value", obs.value, new_obs[key]["value"])
@@ -446,6 +598,11 @@ def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict,
         session.flush()
         for oid in dict.fromkeys(row["observer_ids"]):
             session.add(M.VisitObserver(visit_id=visit.id, observer_id=oid))
+
+
+def _species_code(session: Session, species_id: int) -> str:
+    species = session.get(M.Species, species_id)
+    return species.code if species is not None else str(species_id)
 
 
 # --- certification ------------------------------------------------------------------------------------------
@@ -477,3 +634,279 @@ def set_lock(db: str | None, year: int, *, lock: bool, reason: str | None = None
             return f"season {year} {'certified (locked)' if lock else 'unlocked'}"
     finally:
         store.dispose()
+
+
+# --- office commands: one value, one photo, one station -------------------------------------------------------
+
+
+def _closest(code: str, choices: list[str]) -> str:
+    import difflib
+
+    close = difflib.get_close_matches(code, choices, n=3, cutoff=0.5)
+    return f"; closest: {', '.join(close)}" if close else ""
+
+
+def _station(session: Session, programme_id: int, code: str, label: str) -> M.Station:
+    station = session.exec(select(M.Station).where(M.Station.programme_id == programme_id,
+                                                   M.Station.code == code)).first()
+    if station is None:
+        codes = list(session.exec(select(M.Station.code).where(M.Station.programme_id == programme_id)).all())
+        raise InputError(InputProblem(label, None, "STATION", code, "a station of the programme" + _closest(code, codes)))
+    return station
+
+
+def _need_reason(label: str, reason: str | None, why: str) -> str:
+    if not (reason and reason.strip()):
+        raise InputError(InputProblem(label, None, "--reason", None, why))
+    return reason.strip()
+
+
+def _log(session: Session, programme_id: int, table: str, row_id: int, field_: str, old: object, new: object,
+         reason: str, who: str, when: dt.datetime) -> None:
+    session.add(M.ChangeLog(programme_id=programme_id, table_name=table, row_id=row_id, field=field_,
+                            old_value=None if old is None else str(old), new_value=None if new is None else str(new),
+                            reason=reason, changed_by=who, changed_at=when))
+
+
+def parse_value(label: str, field_: str, measure: str, text: str) -> float:
+    """A value typed at the command line, read as a field sheet's cell would be."""
+    from monitor.io._tables import parse_bool, parse_number
+
+    if measure == C.MEASURE_PRESENCE:
+        flag = parse_bool(text) if text.strip() else None
+        if flag is None:
+            raise InputError(InputProblem(label, None, field_, text, "presence as 0/1 or yes/no"))
+        return 1.0 if flag else 0.0
+    value = parse_number(text)
+    if value is None:
+        raise InputError(InputProblem(label, None, field_, text, "a number with '.' as decimal mark, |x| <= 1e12"))
+    return value
+
+
+def set_value(db: str | None, station: str, year: int, species: str, measure: str, value: str, *, reason: str | None,
+              repeat_no: int = 0, who: str | None = None, programme_code: str | None = None) -> Change:
+    """Add or correct one value of one stored visit, with a reason that goes to the change log.
+
+    The value is checked as an imported one would be (same range rules per measure), the season must not be
+    certified, and the visit must be one that carries values (done or partial: missing is never zero).
+    Returns the change made (old is None when the value is added).
+    """
+    label = "records set"
+    reason = _need_reason(label, reason, "a reason for the change (it goes to the change log)")
+    who = who or current_user()
+    measure = measure.strip().lower()
+    field_ = f"{species}:{measure}"
+    if measure not in C.MEASURES:
+        raise InputError(InputProblem(label, None, "MEASURE", measure, f"one of {', '.join(C.MEASURES)}"))
+    number = parse_value(label, field_, measure, value)
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, station, label)
+            rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
+            visit = None if rnd is None else session.exec(select(M.Visit).where(
+                M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
+            if visit is None:
+                raise DataError(f"no visit of {station} in the {year} round"
+                                + (f" with repeat number {repeat_no}" if repeat_no else "")
+                                + "; import the visit from its field sheet first")
+            if rnd.status == "certified":
+                raise LockedError(f"season {year} is certified (locked); unlock it first with "
+                                  f"`monitor records unlock {year} --reason \"...\"`")
+            if visit.status not in C.STATUSES_WITH_VALUES:
+                raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
+                                "(missing is not zero); correct its status from the field sheet first")
+            target = session.exec(select(M.Target, M.Species).join(M.Species, M.Species.id == M.Target.species_id)
+                                  .where(M.Target.programme_id == programme.id, M.Species.code == species,
+                                         M.Target.measure == measure)).first()
+            if target is None:
+                registered = [f"{c}:{m}" for c, m in session.exec(
+                    select(M.Species.code, M.Target.measure).join(M.Target, M.Target.species_id == M.Species.id)
+                    .where(M.Species.programme_id == programme.id)).all()]
+                raise InputError(InputProblem(label, None, "SPECIES MEASURE", field_,
+                                              "a species and measure of the programme" + _closest(field_, registered)))
+            tgt, sp = target
+            _check_range(label, field_, station, visit, sp.code, measure, number, tgt.n)
+            obs = session.exec(select(M.Observation).where(M.Observation.visit_id == visit.id,
+                                                           M.Observation.species_id == sp.id,
+                                                           M.Observation.measure == measure)).first()
+            old = None if obs is None else obs.value
+            change = Change(station, year, visit.date.isoformat(), field_, old, number)
+            if old == number:
+                return change
+            now = utcnow()
+            if obs is None:
+                obs = M.Observation(visit_id=visit.id, species_id=sp.id, measure=measure, value=number, n=tgt.n)
+                session.add(obs)
+            else:
+                obs.value, obs.n = number, tgt.n
+            session.flush()
+            _log(session, programme.id, "observation", obs.id, "value", old, number, reason, who, now)
+            return change
+    finally:
+        store.dispose()
+
+
+def _check_range(label: str, field_: str, station: str, visit: M.Visit, species: str, measure: str, value: float,
+                 n: int | None) -> None:
+    """The import's own range rules (monitor.io.validate) applied to one value."""
+    visits = pd.DataFrame({C.STATION: [station], C.DATE: [visit.date], C.YEAR: [visit.date.year],
+                           H.OBSERVERS: [()], C.VISIT_STATUS: [visit.status], H.REPEAT: [visit.repeat_no > 0],
+                           C.PROTOCOL: [None], H.NOTES: [None]})
+    observations = pd.DataFrame({C.STATION: [station], C.DATE: [visit.date], C.SPECIES: [species],
+                                 C.MEASURE: [measure], H.VALUE: [value], H.N: pd.array([n], dtype="Int64"),
+                                 H.SOURCE_FIELD: [field_]})
+    reference = Reference(stations=pd.DataFrame({C.STATION: [station], H.RETIRED: [None]}),
+                          species=pd.DataFrame({C.SPECIES: [species], C.MEASURE: [measure],
+                                                H.N: pd.array([n], dtype="Int64")}),
+                          today=dt.date.max)
+    covariates = pd.DataFrame(columns=[C.STATION, C.DATE, "name", H.UNIT, H.VALUE])
+    errors = [p for p in validate_records(visits, observations, covariates, reference, file=label)
+              if p.severity == "error"]
+    if errors:
+        raise InputError(plain_problems(errors))
+
+
+def plain_problems(problems: list[InputProblem]) -> list[InputProblem]:
+    """The same problems with numpy scalars shown as plain numbers (``130.0``, not ``np.float64(130.0)``)."""
+    import dataclasses
+
+    out = []
+    for p in problems:
+        value = p.value.item() if isinstance(p.value, np.generic) else p.value
+        out.append(dataclasses.replace(p, value=value) if value is not p.value else p)
+    return out
+
+
+def add_photo(db: str | None, station: str, *, path: str, visit_date: dt.date | None = None,
+              bearing: float | None = None, height: float | None = None, notes: str = "",
+              programme_code: str | None = None) -> int:
+    """Link a photo (by file path) to a station, and to its visit on ``visit_date``; return the photo's id.
+
+    Bearing [degrees from north, 0 to < 360] and camera height [m] let repeat photos be framed alike.
+    """
+    label = "records photo"
+    if not path or not path.strip():
+        raise InputError(InputProblem(label, None, "--path", path, "the photo's file path"))
+    if bearing is not None and not (0 <= bearing < 360):
+        raise InputError(InputProblem(label, None, "--bearing", bearing, "a bearing in degrees, 0 to less than 360"))
+    if height is not None and not (0 <= height <= 100):
+        raise InputError(InputProblem(label, None, "--height", height, "a camera height in metres, 0 to 100"))
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, station, label)
+            visit_id = None
+            if visit_date is not None:
+                visits = session.exec(select(M.Visit).where(M.Visit.station_id == st.id)).all()
+                same_day = [v for v in visits if v.date == visit_date]
+                if not same_day:
+                    dates = ", ".join(sorted(v.date.isoformat() for v in visits)[-5:]) or "none stored"
+                    raise InputError(InputProblem(label, None, "--visit-date", visit_date.isoformat(),
+                                                  f"the date of a stored visit of {station} (latest: {dates})"))
+                visit_id = min(same_day, key=lambda v: v.repeat_no).id
+            photo = M.Photo(station_id=st.id, visit_id=visit_id, path=path.strip(), bearing_deg=bearing,
+                            height_m=height, notes=notes or "")
+            session.add(photo)
+            session.flush()
+            return int(photo.id)
+    finally:
+        store.dispose()
+
+
+def retire_station(db: str | None, code: str, *, reason: str | None, replaced_by: str | None = None,
+                   date: dt.date | None = None, who: str | None = None, programme_code: str | None = None) -> str:
+    """Retire a station (from ``date``, default today), with a reason and an optional replacement; logged.
+
+    Its stored visits stay; imports refuse visits on or after the retirement date.
+    """
+    label = "station retire"
+    reason = _need_reason(label, reason, "a reason for retiring the station (it goes to the change log)")
+    who = who or current_user()
+    date = date or dt.date.today()
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, code, label)
+            if st.state != "in_service":
+                raise DataError(f"station {code} is already {st.state} (since {st.retired})")
+            if st.established is not None and date < st.established:
+                raise InputError(InputProblem(label, None, "--date", date.isoformat(),
+                                              f"a date on or after the station was established ({st.established})"))
+            later = [v.date for v in session.exec(select(M.Visit).where(M.Visit.station_id == st.id)).all()
+                     if v.date >= date]
+            if later:
+                raise InputError(InputProblem(label, None, "--date", date.isoformat(),
+                                              f"a date after the station's last visit ({max(later).isoformat()})"))
+            replacement = None
+            if replaced_by is not None:
+                replacement = _station(session, programme.id, replaced_by, label)
+                if replacement.id == st.id:
+                    raise InputError(InputProblem(label, None, "--replaced-by", replaced_by, "another station"))
+                if replacement.state != "in_service":
+                    raise InputError(InputProblem(label, None, "--replaced-by", replaced_by, "a station in service"))
+            now = utcnow()
+            for field_, old, new in (("state", st.state, "retired"), ("retired", None, date.isoformat()),
+                                     ("retired_reason", st.retired_reason or None, reason),
+                                     ("replaced_by", None, replaced_by)):
+                if old != new:
+                    _log(session, programme.id, "station", st.id, field_, old, new, reason, who, now)
+            st.state, st.retired, st.retired_reason = "retired", date, reason
+            st.replaced_by_id = replacement.id if replacement is not None else None
+            return (f"station {code} retired from {date.isoformat()}"
+                    + (f", replaced by {replaced_by}" if replaced_by else ""))
+    finally:
+        store.dispose()
+
+
+def station_history(db: str | None, code: str, *, programme_code: str | None = None) -> dict:
+    """A station's full history: the station, every visit with its observers and values, corrections
+    (change log), management events at the station or its site, photos, and quality flags.
+
+    Values are keyed ``SPECIES:measure``; a missed or inaccessible visit has none (missing, not zero).
+    """
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            st = _station(session, programme.id, code, "station history")
+        info = queries.stations(store, programme.id)
+        info = info[info[C.STATION] == code].drop(columns=["placement_seed"]).iloc[0].to_dict()
+        visits = queries.visits_table(store, programme.id, station=code)
+        values = queries.observations_table(store, programme.id)
+        values = values[values["visit_id"].isin(set(visits["visit_id"]))]
+        by_visit: dict[int, dict[str, float]] = {}
+        for vid, sp, me, value in zip(values["visit_id"], values[C.SPECIES], values[C.MEASURE], values["value"],
+                                      strict=True):
+            by_visit.setdefault(int(vid), {})[f"{sp}:{me}"] = float(value)
+        visit_rows = [{
+            C.YEAR: int(v[C.YEAR]), C.DATE: v[C.DATE], C.VISIT_STATUS: v[C.VISIT_STATUS], "repeat_no": int(v["repeat_no"]),
+            C.PROTOCOL: v[C.PROTOCOL], "observers": ";".join(v["observers"]), "notes": v["notes"] or "",
+            "values": by_visit.get(int(v["visit_id"]), {}),
+        } for v in visits.to_dict(orient="records")]
+        flags = queries.quality_flag_rows(store, programme.id)
+        flags = flags[flags[C.STATION] == code].drop(columns=[C.STATION])
+        return {
+            "station": info,
+            "visits": visit_rows,
+            "changes": queries.station_change_log(store, st.id),
+            "events": queries.station_events(store, st.id),
+            "photos": queries.station_photos(store, st.id),
+            "quality_flags": flags.reset_index(drop=True),
+        }
+    finally:
+        store.dispose()
+
+
+def compare_files(first: Path, second: Path) -> pd.DataFrame:
+    """Double entry: every mismatch between two independent keyings of the same sheets (nothing stored).
+
+    Columns: station, date, species, field, value_a, value_b, row_a, row_b (see
+    :func:`monitor.io.double_entry.compare_entries`).
+    """
+    from monitor.io.double_entry import compare_entries
+
+    return compare_entries(Path(first), Path(second))
