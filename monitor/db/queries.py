@@ -238,6 +238,41 @@ def visits_with_observers(store: Store, programme_id: int, *, before_year: int |
         """,
         **params,
     )
+    observers = store.frame(
+        """
+        SELECT vo.visit_id, ob.code FROM visit_observer vo JOIN observer ob ON ob.id = vo.observer_id
+        WHERE ob.programme_id = :p ORDER BY ob.code
+        """,
+        p=programme_id,
+    )
+    joined = observers.groupby("visit_id")["code"].agg(";".join) if len(observers) else pd.Series(dtype=str)
+    frame["observers"] = frame["visit_id"].map(joined).fillna("")
+    return frame
+
+
+def planned_visits(store: Store, programme_id: int, year: int) -> pd.DataFrame:
+    """A season's stored plan with each station's outcome read from the stored visits at read time.
+
+    Columns: station, site, x, y, team, day, route_order, arrival (HH:MM), reason, stored_outcome (as
+    stored in planned_visit), outcome (the round's first visit's status when one is stored, else the
+    stored outcome), visit_date, seed.  Rows in team, day, route order; unscheduled stations last.
+    """
+    return store.frame(
+        f"""
+        SELECT t.code AS {C.STATION}, s.code AS {C.SITE}, t.x AS {C.X}, t.y AS {C.Y}, pv.team, pv.day,
+               pv.route_order, pv.arrival, pv.reason, pv.outcome AS stored_outcome,
+               COALESCE(v.status, pv.outcome) AS outcome, v.date AS visit_date, pv.seed
+        FROM planned_visit pv
+        JOIN round r ON r.id = pv.round_id
+        JOIN station t ON t.id = pv.station_id
+        JOIN site s ON s.id = t.site_id
+        LEFT JOIN visit v ON v.station_id = pv.station_id AND v.round_id = pv.round_id AND v.repeat_no = 0
+        WHERE r.programme_id = :p AND r.year = :y
+        ORDER BY CASE WHEN pv.day IS NULL THEN 1 ELSE 0 END, pv.day, pv.team, pv.route_order, t.code
+        """,
+        p=programme_id,
+        y=year,
+    )
 
 
 # --- field records: bulk writes, retries, and the tables behind history, quality and exports ----------------
@@ -318,36 +353,6 @@ def _observer_teams(store: Store, programme_id: int) -> pd.Series:
         """,
         p=programme_id,
     )
-    joined = observers.groupby("visit_id")["code"].agg(";".join) if len(observers) else pd.Series(dtype=str)
-    frame["observers"] = frame["visit_id"].map(joined).fillna("")
-    return frame
-
-
-def planned_visits(store: Store, programme_id: int, year: int) -> pd.DataFrame:
-    """A season's stored plan with each station's outcome read from the stored visits at read time.
-
-    Columns: station, site, x, y, team, day, route_order, arrival (HH:MM), reason, stored_outcome (as
-    stored in planned_visit), outcome (the round's first visit's status when one is stored, else the
-    stored outcome), visit_date, seed.  Rows in team, day, route order; unscheduled stations last.
-    """
-    return store.frame(
-        f"""
-        SELECT t.code AS {C.STATION}, s.code AS {C.SITE}, t.x AS {C.X}, t.y AS {C.Y}, pv.team, pv.day,
-               pv.route_order, pv.arrival, pv.reason, pv.outcome AS stored_outcome,
-               COALESCE(v.status, pv.outcome) AS outcome, v.date AS visit_date, pv.seed
-        FROM planned_visit pv
-        JOIN round r ON r.id = pv.round_id
-        JOIN station t ON t.id = pv.station_id
-        JOIN site s ON s.id = t.site_id
-        LEFT JOIN visit v ON v.station_id = pv.station_id AND v.round_id = pv.round_id AND v.repeat_no = 0
-        WHERE r.programme_id = :p AND r.year = :y
-        ORDER BY CASE WHEN pv.day IS NULL THEN 1 ELSE 0 END, pv.day, pv.team, pv.route_order, t.code
-        """,
-        p=programme_id,
-        y=year,
-    )
-
-
     if observers.empty:
         return pd.Series(dtype=object)
     return observers.groupby("visit_id")["code"].agg(tuple)

@@ -530,8 +530,8 @@ def _write(session: Session, programme: M.Programme, file_name: str, digest: str
     for visit_id, row in plan.updates:
         _apply_update(session, programme.id, visit_id, row, reason or "", who, now)
     session.flush()
-    _refresh_planned_outcomes(session, programme.id, sorted({int(r["year"]) for r in plan.new_visits}
-                                                          | {int(r["year"]) for _i, r in plan.updates}))
+    new_years = {int(y) for y in plan.new[C.YEAR].unique()} if len(plan.new) else set()
+    _refresh_planned_outcomes(session, programme.id, sorted(new_years | {int(r["year"]) for _i, r in plan.updates}))
 
 
 def _refresh_planned_outcomes(session: Session, programme_id: int, years: list[int]) -> None:
