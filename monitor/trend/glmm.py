@@ -848,15 +848,15 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
                    n_evaluations=eng.n_eval, vcov_method=vcov_method)
 
 
-NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 uses L-BFGS-B
+NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 goes block-wise
 
 
 def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
     """Maximise the Laplace / AGQ log-likelihood over (log-SDs, log dispersion, beta).
 
-    Newton's method with a central-difference Hessian (whose last value gives the
-    standard errors) when there are few parameters; L-BFGS-B otherwise.  Variance
-    parameters on their lower bound are held there.
+    Projected Newton's method with a central-difference Hessian (whose last value gives
+    the standard errors) when there are few parameters; block-wise steps otherwise
+    (_stage2_blockwise).  Variance parameters on their lower bound are held there.
     Returns (phi, beta, loglik, vcov_from_hessian or None, ok, message).
     """
     k = eng.n_phi
@@ -972,14 +972,6 @@ def _conditional_vcov_at(eng: LaplaceEngine, phi, beta) -> np.ndarray:
     d1, w = eng.fam.derivs(eng.last_eta)
     f = eng._factor(w, s_st, s_o, eng._design(s_terms, True))
     return _conditional_vcov(f, eng)
-
-
-def _ml_at(eng: LaplaceEngine, phi) -> float:
-    eng.reml = False
-    try:
-        return eng.loglik_profiled(phi)
-    finally:
-        eng.reml = True
 
 
 def _conditional_vcov(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
