@@ -79,7 +79,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.linalg as la
 from scipy.linalg import lapack
 from scipy.optimize import minimize
 
@@ -588,34 +587,50 @@ def _num_gradient(fun, x, h, f0):
     return g
 
 
-def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9, quasi=False):
+def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9, quasi=False,
+                    reuse_below=0.0, flat_at_bound=1e-3, snap_width=0.0):
     """Projected Newton's method with a central-difference Hessian, for a few bounded parameters.
 
-    Parameters on a bound whose gradient points outwards are held there (active set);
-    an indefinite Hessian is shifted to positive definite (Levenberg); steps are capped
-    at ``max_step`` and halved until the function decreases.  With ``quasi`` the
-    finite-difference Hessian is computed once and then updated by BFGS from central
-    difference gradients (fewer evaluations; used by the fast path).
+    Parameters on a bound whose gradient points outwards (or is flat there: a variance
+    that has gone to zero) are held there (active set); where the Hessian is not
+    positive definite the step uses its absolute eigenvalues (saddle-free Newton);
+    steps are capped at ``max_step`` and halved until the function decreases.  With
+    ``quasi`` the difference Hessian is computed once and then updated by BFGS from
+    central-difference gradients (the fast path).  With ``reuse_below`` > 0 the
+    Hessian is kept (only the gradient refreshed) once the Newton decrement falls
+    below it: near the optimum it changes by O(step).  Parameters within ``snap_width``
+    of their lower bound with a flat gradient are moved onto it.
+    Returns a result with x, fun, success, message, nit, hess (last Hessian) and active.
     """
     lo, hi = np.asarray(lo, float), np.asarray(hi, float)
     x = np.clip(np.asarray(x0, float), lo, hi)
     f0 = fun(x)
     msg, ok = "iteration limit", False
     H = g = None
-    fresh = False
+    active = np.zeros(len(x), bool)
+    decrement = np.inf
     for _it in range(max_iter):
         scale = max(1.0, abs(f0))
-        fresh = H is None or not quasi
+        fresh = H is None or not (quasi or decrement < reuse_below)
         if fresh:
             f0, g, H = num_hessian(fun, x, h, f0=f0)
-        active = ((x <= lo + 1e-9) & (g > 0)) | ((x >= hi - 1e-9) & (g < 0))
+        elif g is None:
+            g = _num_gradient(fun, x, h, f0)
+        # a variance parameter drifting down a flat likelihood towards zero: put it on its
+        # bound (an SD below about 1e-3 on the link scale is no random effect at all)
+        snap = (x < lo + snap_width) & (np.abs(g) < flat_at_bound) & (x > lo)
+        if np.any(snap):
+            x = x.copy()
+            x[snap] = lo[snap]
+            f0 = fun(x)
+        at_lo = x <= lo + 1e-9
+        at_hi = x >= hi - 1e-9
+        active = (at_lo & (g > -flat_at_bound)) | (at_hi & (g < flat_at_bound))
         free = ~active
         if not np.any(free):
             ok, msg = True, "all parameters on bounds"
             break
         gf, Hf = g[free], H[np.ix_(free, free)]
-        # Newton step with the absolute eigenvalues (a saddle-free step where the
-        # likelihood is not concave), floored to keep the step finite
         ev, vec = np.linalg.eigh((Hf + Hf.T) / 2)
         lam = np.maximum(np.abs(ev), 1e-6 * max(1e-8, np.abs(ev).max()))
         step_f = -vec @ ((vec.T @ gf) / lam)
@@ -637,8 +652,9 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 break
             t *= 0.5
         if not improved:
-            if quasi and not fresh:
+            if not fresh:
                 H = None  # refresh the Hessian by differences and try again
+                decrement = np.inf
                 continue
             # no decrease at all: at the optimum to within the noise of the evaluations
             ok = decrement < 1e-6 * scale
@@ -647,6 +663,7 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
         moved = np.max(np.abs(cand - x))
         x_old, g_old = x, g
         x, f_prev, f0 = cand, f0, fc
+        g = None
         if f_prev - f0 < ftol * scale or (f_prev - f0 < tol * 1e-2 * scale and moved < 1e-7):
             ok, msg = True, "converged"
             break
@@ -659,7 +676,10 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 H = H - np.outer(Bs, Bs) / float(s_ @ Bs) + np.outer(y_, y_) / sy
             else:
                 H = None
-    return _Result(x, f0, ok, msg, _it + 1)
+    res = _Result(x, f0, ok, msg, _it + 1)
+    res.hess = H
+    res.active = active
+    return res
 
 
 def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = 100):
@@ -759,8 +779,9 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     quick = not (stage2 or hessian) or will_refine
     obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
     if eng.n_phi <= 6:
+        snap1 = np.r_[np.full(eng.n_sd, 5.0), np.zeros(eng.n_phi - eng.n_sd)]
         res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
-                               np.full(eng.n_phi, 1e-3), tol=1e-10 if quick else 1e-13,
+                               np.full(eng.n_phi, 1e-3), snap_width=snap1, tol=1e-10 if quick else 1e-13,
                                ftol=1e-9 if quick else 1e-12, quasi=quick)
     else:
         res1 = _bounded_minimize(obj1, phi0, bounds, hphi, ftol=1e-10 if quick else 1e-13,
@@ -816,7 +837,9 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
                                 f"reach full precision {eng.pirls_failures} time(s).", "info"))
     eng.unpack(phi)
-    sd = {nm: float(np.exp(v)) for nm, v in zip(names, phi[:eng.n_sd], strict=False)}
+    # an SD held on its lower bound is reported as 0 (as lme4 reports a singular fit)
+    sd = {nm: (0.0 if i in at_bound else float(np.exp(v)))
+          for i, (nm, v) in enumerate(zip(names, phi[:eng.n_sd], strict=True))}
     n_par = eng.p + eng.n_phi
     return GlmmFit(beta=beta, vcov=vcov, x_names=list(spec.x_names), sd=sd,
                    dispersion=(float(fam.dispersion) if fam.has_dispersion else None),
@@ -825,15 +848,15 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
                    n_evaluations=eng.n_eval, vcov_method=vcov_method)
 
 
-NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 uses L-BFGS-B
+NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 goes block-wise
 
 
 def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
     """Maximise the Laplace / AGQ log-likelihood over (log-SDs, log dispersion, beta).
 
-    Newton's method with a central-difference Hessian (whose last value gives the
-    standard errors) when there are few parameters; L-BFGS-B otherwise.  Variance
-    parameters on their lower bound are held there.
+    Projected Newton's method with a central-difference Hessian (whose last value gives
+    the standard errors) when there are few parameters; block-wise steps otherwise
+    (_stage2_blockwise).  Variance parameters on their lower bound are held there.
     Returns (phi, beta, loglik, vcov_from_hessian or None, ok, message).
     """
     k = eng.n_phi
@@ -851,62 +874,95 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
 
     xs = x[free].copy()
     if len(free) > NEWTON_MAX_DIM:
-        bnd = list(zip(lo[free], hi[free], strict=False))
-        res = _bounded_minimize(fun, xs, bnd, step_h / 20)
-        x[free] = res.x
-        ok = bool(res.success or "REL_REDUCTION" in str(res.message))
-        return x[:k], x[k:], -fun(res.x), None, ok, str(res.message)
-    f0, g, H = num_hessian(fun, xs, step_h)
-    ok, msg, Hfin = False, "iteration limit", None
-    for _ in range(20):
-        try:
-            Lc = np.linalg.cholesky(H)
-        except np.linalg.LinAlgError:
-            Lc = None
-        if Lc is None:
-            # not locally convex: a short gradient step scaled by the step sizes
-            step = -g * step_h ** 2 * 10
-        else:
-            step = -la.cho_solve((Lc, True), g)
-        decrement = float(-g @ step)
-        scale = max(1e3, abs(f0))
-        if Lc is not None and decrement < 1e-12 * scale:
-            ok, msg, Hfin = True, "converged", H
-            break
-        t = 1.0
-        improved = False
-        for _h in range(30):
-            cand = np.clip(xs + t * step, lo[free], hi[free])
-            fc = fun(cand)
-            if np.isfinite(fc) and fc <= f0 + 1e-12:
-                improved = True
-                break
-            t *= 0.5
-        if not improved:
-            ok = Lc is not None and decrement < 1e-8 * scale
-            msg = "no further improvement" if not ok else "converged"
-            Hfin = H if Lc is not None else None
-            break
-        xs, f0 = cand, fc
-        if Lc is not None and decrement < 1e-2:
-            # close: keep this Hessian (it changes by O(step)) and refresh only the gradient;
-            # it is then also accurate enough for the standard errors
-            g = _num_gradient(fun, xs, step_h, f0)
-        else:
-            f0, g, H = num_hessian(fun, xs, step_h, f0=f0)
+        return _stage2_blockwise(eng, x, free, lo, hi, step_h)
+    snap = np.where(free < eng.n_sd, 5.0, 0.0)
+    res = _newton_bounded(fun, xs, lo[free], hi[free], step_h, tol=1e-12, ftol=1e-14, max_step=2.0,
+                          reuse_below=1e-2, max_iter=40, snap_width=snap)
+    xs, f0 = res.x, res.fun
     x[free] = xs
     vb = None
-    if want_hessian and Hfin is not None:
+    H = res.hess
+    if want_hessian and H is not None:
+        # the variance parameters held on a bound are fixed; the rest are profiled out
+        keep = ~np.asarray(res.active)
+        keep[-eng.p:] = True
+        Hk = H[np.ix_(keep, keep)]
         try:
-            Hinv = np.linalg.inv(Hfin)
-            nb = eng.p
-            vb = Hinv[-nb:, -nb:]
+            Hinv = np.linalg.inv(Hk)
+            vb = Hinv[-eng.p:, -eng.p:]
             vb = (vb + vb.T) / 2
-            if not (np.all(np.isfinite(vb)) and np.all(np.linalg.eigvalsh(vb) > 0)):
+            if not (np.all(np.isfinite(vb)) and np.all(np.linalg.eigvalsh(vb) > 0)
+                    and np.all(np.linalg.eigvalsh((Hk + Hk.T) / 2) > 0)):
                 vb = None
         except np.linalg.LinAlgError:
             vb = None
-    return x[:k], x[k:], -f0, vb, ok, msg
+    return x[:k], x[k:], -f0, vb, bool(res.success), res.message
+
+
+def _stage2_blockwise(eng: LaplaceEngine, x, free, lo, hi, step_h, max_rounds=25):
+    """Stage 2 with many fixed effects (e.g. a year factor): alternate Newton-type steps.
+
+    beta: gradient by central differences, curvature from the conditional information
+    X' V^-1 X at the current point (exact for the Gaussian family, close for the others);
+    variance parameters: one Newton step with a difference Hessian.  This block
+    coordinate search reaches the joint maximum with about 2p + k^2 evaluations per
+    round instead of a difference Hessian over all p + k parameters.
+    """
+    k = eng.n_phi
+    fphi = np.array([i for i in free if i < k], dtype=int)
+    hb = step_h[len(fphi):]
+    hphi = step_h[:len(fphi)]
+    beta_idx = np.arange(k, k + eng.p)
+
+    def f_all(xx):
+        return -eng.loglik_beta(xx[:k], xx[k:])
+
+    f0 = f_all(x)
+    ok, msg = False, "round limit"
+    for _ in range(max_rounds):
+        # beta block
+        def fb(b, x=x):
+            xx = x.copy()
+            xx[beta_idx] = b
+            return f_all(xx)
+        gb = _num_gradient(fb, x[beta_idx], hb, f0)
+        V = _conditional_vcov_at(eng, x[:k], x[k:])
+        step = -V @ gb
+        dec_b = float(-gb @ step)
+        t = 1.0
+        for _h in range(30):
+            cand = x.copy()
+            cand[beta_idx] = x[beta_idx] + t * step
+            fc = f_all(cand)
+            if np.isfinite(fc) and fc <= f0:
+                x, f0 = cand, fc
+                break
+            t *= 0.5
+        # variance block
+        dec_p = 0.0
+        if len(fphi):
+            def fp(ph, x=x):
+                xx = x.copy()
+                xx[fphi] = np.clip(ph, lo[fphi], hi[fphi])
+                return f_all(xx)
+            f0, gp, Hp = num_hessian(fp, x[fphi], hphi, f0=f0)
+            ev, vec = np.linalg.eigh((Hp + Hp.T) / 2)
+            lam = np.maximum(np.abs(ev), 1e-6 * max(1e-8, np.abs(ev).max()))
+            sp_ = -vec @ ((vec.T @ gp) / lam)
+            dec_p = float(-gp @ sp_)
+            t = 1.0
+            for _h in range(30):
+                cand = x.copy()
+                cand[fphi] = np.clip(x[fphi] + t * sp_, lo[fphi], hi[fphi])
+                fc = f_all(cand)
+                if np.isfinite(fc) and fc <= f0:
+                    x, f0 = cand, fc
+                    break
+                t *= 0.5
+        if dec_b + dec_p < 1e-12 * max(1e3, abs(f0)):
+            ok, msg = True, "converged"
+            break
+    return x[:k], x[k:], -f0, None, ok, msg
 
 
 def _conditional_vcov_at(eng: LaplaceEngine, phi, beta) -> np.ndarray:
@@ -916,14 +972,6 @@ def _conditional_vcov_at(eng: LaplaceEngine, phi, beta) -> np.ndarray:
     d1, w = eng.fam.derivs(eng.last_eta)
     f = eng._factor(w, s_st, s_o, eng._design(s_terms, True))
     return _conditional_vcov(f, eng)
-
-
-def _ml_at(eng: LaplaceEngine, phi) -> float:
-    eng.reml = False
-    try:
-        return eng.loglik_profiled(phi)
-    finally:
-        eng.reml = True
 
 
 def _conditional_vcov(f: _Factor, eng: LaplaceEngine) -> np.ndarray:
