@@ -80,6 +80,26 @@ def demo_source() -> Path:
     return REPO_ROOT / "demo_programme"
 
 
+@pytest.fixture
+def programme_db(db_url, demo_source) -> str:
+    """A database on each engine holding the demo programme's set-up (no records yet)."""
+    from monitor.services import setup
+
+    setup.setup_folder(db_url, demo_source)
+    return db_url
+
+
+def table_counts(db_url: str) -> dict[str, int]:
+    """Rows in every table: compared before and after a refused command to show nothing was written."""
+    from monitor.db import Store, queries
+
+    store = Store.open(db_url)
+    try:
+        return queries.table_counts(store)
+    finally:
+        store.dispose()
+
+
 @pytest.fixture(scope="session")
 def demo_db(tmp_path_factory) -> str:
     """The demo programme built once (set up and all seasons imported) in SQLite; tests must not change it."""

@@ -55,7 +55,6 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
         trends = [trend.fit_table(table, family=family, margin=margin if margin is not None else 0.02,
                                   observer_effect=observer_effect)]
     else:
-        bar = None
         with progress(1, "fitting") as bar:
             def tick(i: int, n: int, _name: str) -> None:
                 bar.length = max(n, 1)

@@ -17,7 +17,19 @@ import io
 import json
 from pathlib import Path
 
-from sqlalchemy import Boolean, Date, DateTime, Float, Integer, TypeDecorator, func, inspect, select, text, update
+from sqlalchemy import (
+    Boolean,
+    Date,
+    DateTime,
+    Float,
+    Integer,
+    TypeDecorator,
+    func,
+    inspect,
+    select,
+    text,
+    update,
+)
 
 from monitor import __version__
 from monitor.db import migrate

@@ -51,7 +51,7 @@ def setup_roles(engine: Engine) -> list[str]:
     tables = [t.name for t in metadata.sorted_tables] + ["alembic_version"]
     statements = []
     with engine.begin() as connection:
-        for group, name in names.items():
+        for name in names.values():
             exists = connection.execute(text("SELECT 1 FROM pg_roles WHERE rolname = :n"), {"n": name}).first()
             if not exists:
                 statements.append(f"CREATE ROLE {_quote(name)} NOLOGIN")

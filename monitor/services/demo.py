@@ -14,7 +14,18 @@ from typing import Any
 
 from monitor.config import demo_source_dir
 from monitor.errors import InputError, InputProblem
-from monitor.services import design, estimate, power, quality, records, report, schedule, setup, summary, trend
+from monitor.services import (
+    design,
+    estimate,
+    power,
+    quality,
+    records,
+    report,
+    schedule,
+    setup,
+    summary,
+    trend,
+)
 
 #: the season the demo plans: the one after its last season of records
 DEMO_SEASON = 2027

@@ -97,7 +97,8 @@ def stored_panels(store: Store, programme_id: int) -> StoredPanels:
 # --- reading helpers --------------------------------------------------------------------------------------
 
 
-def _as_date(value: Any) -> dt.date | None:
+def as_date(value: Any) -> dt.date | None:
+    """A stored date as a ``datetime.date`` (SQLite gives ISO text, PostgreSQL dates; NaN/None -> None)."""
     if value is None or (not isinstance(value, dt.date) and pd.isna(value)):
         return None
     if isinstance(value, dt.datetime):

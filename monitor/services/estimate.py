@@ -15,7 +15,13 @@ import pandas as pd
 from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DataError, InputError, InputProblem
-from monitor.estimate import compare_seasons, estimate_gradient, quadrats_needed, running_mean, season_estimates
+from monitor.estimate import (
+    compare_seasons,
+    estimate_gradient,
+    quadrats_needed,
+    running_mean,
+    season_estimates,
+)
 from monitor.estimate.plots import plot_gradient, plot_running_mean, plot_season_comparison
 
 

@@ -46,7 +46,7 @@ from monitor.schedule.season import (
     WINDOW_END,
     WINDOW_START,
 )
-from monitor.services.design import StoredPanels, default_first_year, fresh_seed
+from monitor.services.design import StoredPanels, as_date, default_first_year, fresh_seed
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
 #: reserve [m] (common practice: parking at the reserve's edge)
@@ -66,16 +66,6 @@ def _settings(programme: M.Programme) -> dict:
     except json.JSONDecodeError:
         return {}
     return value if isinstance(value, dict) else {}
-
-
-def _date(value: Any) -> dt.date | None:
-    if value is None or (not isinstance(value, dt.date) and pd.isna(value)):
-        return None
-    if isinstance(value, dt.datetime):
-        return value.date()
-    if isinstance(value, dt.date):
-        return value
-    return dt.date.fromisoformat(str(value)[:10])
 
 
 def _window_for(windows: pd.DataFrame, year: int, species: str | None) -> tuple[str, str] | None:
@@ -161,7 +151,7 @@ def season_inputs(store: Store, programme: M.Programme, year: int,
             species_windows[code] = _parse_window(w[0], w[1], f"species {code} season window")
     stations = queries.stations(store, pid)
     stations = stations[stations["state"] == "in_service"].reset_index(drop=True)
-    stations[FIRST_SEASON] = pd.array([_first_season(_date(v), season_window) for v in stations["established"]],
+    stations[FIRST_SEASON] = pd.array([_first_season(as_date(v), season_window) for v in stations["established"]],
                                       dtype="Int64")
     history = queries.visit_outcomes(store, pid)
     history[C.YEAR] = history[C.YEAR].astype(int)
@@ -208,7 +198,7 @@ def due_for_season(db: str | None, year: int, *, window: tuple[str, str] | None 
         store.dispose()
     due["reason"] = np.where(due[OVERDUE_YEARS] > 0, REASON_OVERDUE, REASON_DUE)
     plan = plan[[C.STATION, "team", "day", "route_order", "outcome"]].copy()
-    plan["day"] = [_date(v) for v in plan["day"]]
+    plan["day"] = [as_date(v) for v in plan["day"]]
     out = due.merge(plan, on=C.STATION, how="left")
     out["outcome"] = out["outcome"].fillna("not planned")
     out["route_order"] = out["route_order"].astype("Int64")
@@ -424,7 +414,7 @@ def plan_season(
         if due.empty:
             raise DataError(f"no station is due or overdue in {year}"
                             + (f" that has not been recorded already ({len(already)} recorded)" if already else ""))
-        access = {r[C.SITE]: _date(r["access_until"]) for r in sites.to_dict(orient="records")}
+        access = {r[C.SITE]: as_date(r["access_until"]) for r in sites.to_dict(orient="records")}
         rng = fresh_seed(seed)
         plan = S.plan_season(due, crews, year=int(year), rng=rng, access_until=access, reserve=reserve,
                              randomise_site_order=randomise_sites)
@@ -550,7 +540,7 @@ def stored_plan(store: Store, programme: M.Programme, year: int) -> S.SeasonPlan
         raise DataError(f"no plan is stored for {year}; run `monitor season plan {year}` first")
     if not meta:
         raise DataError(f"the plan for {year} has no stored crew details; plan it again with --replace")
-    rows["day"] = [_date(v) for v in rows["day"]]
+    rows["day"] = [as_date(v) for v in rows["day"]]
     scheduled = rows[rows["team"].notna()].copy()
     scheduled["route_order"] = scheduled["route_order"].astype(int)
     scheduled = scheduled.sort_values(["day", "team", "route_order"], kind="stable")
@@ -591,7 +581,7 @@ class PackResult:
 def _protocol_on(session_rows: pd.DataFrame, day: dt.date) -> str:
     chosen = ""
     for code, since in zip(session_rows["code"], session_rows["effective_from"], strict=True):
-        if _date(since) <= day:
+        if as_date(since) <= day:
             chosen = str(code)
     return chosen
 
@@ -633,8 +623,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     stations[fieldpack.RELOCATION] = [
         "; ".join(x for x in (str(m or ""), str(r or "")) if x and x != "nan")
         for m, r in zip(stations["marker"], stations[fieldpack.RELOCATION], strict=True)]
-    visits[C.DATE] = [_date(v) for v in visits[C.DATE]]
-    observations[C.DATE] = [_date(v) for v in observations[C.DATE]]
+    visits[C.DATE] = [as_date(v) for v in visits[C.DATE]]
+    observations[C.DATE] = [as_date(v) for v in observations[C.DATE]]
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     written = []

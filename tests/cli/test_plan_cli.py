@@ -4,31 +4,15 @@ from __future__ import annotations
 
 import json
 
-import pytest
 from sqlalchemy import create_engine, text
 
 from monitor.cli.main import main
 from monitor.config import database_url
-from monitor.db import Store, queries
-from monitor.services import setup
-
-
-@pytest.fixture
-def programme_db(db_url, demo_source):
-    setup.setup_folder(db_url, demo_source)
-    return db_url
-
-
-def _counts(db_url):
-    store = Store.open(db_url)
-    try:
-        return queries.table_counts(store)
-    finally:
-        store.dispose()
+from tests.conftest import table_counts
 
 
 def _refused(db_url, argv, capsys, *expected):
-    before = _counts(db_url)
+    before = table_counts(db_url)
     capsys.readouterr()
     assert main(["--db", db_url, *argv]) == 1
     err = capsys.readouterr().err.strip().splitlines()
@@ -36,7 +20,7 @@ def _refused(db_url, argv, capsys, *expected):
     for word in expected:
         assert word in err[0], err[0]
     assert "Traceback" not in err[0]
-    assert _counts(db_url) == before
+    assert table_counts(db_url) == before
     return err[0]
 
 

@@ -16,22 +16,8 @@ from shapely.geometry import Point, box, shape
 from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DesignError
-from monitor.services import design, setup
-from tests.conftest import REPO_ROOT
-
-
-@pytest.fixture
-def programme_db(db_url, demo_source):
-    setup.setup_folder(db_url, demo_source)
-    return db_url
-
-
-def _counts(db_url):
-    store = Store.open(db_url)
-    try:
-        return queries.table_counts(store)
-    finally:
-        store.dispose()
+from monitor.services import design
+from tests.conftest import REPO_ROOT, table_counts
 
 
 def _stations(db_url):
@@ -48,12 +34,12 @@ def _site_polygon(demo_source, code):
 
 
 def test_balanced_placement_is_stored_with_method_and_seed_inside_the_site(programme_db, demo_source):
-    before = _counts(programme_db)
+    before = table_counts(programme_db)
     result = design.place_stations(programme_db, "CB", "balanced", n=12, seed=41, min_separation=8.0)
     assert result.stored and result.seed == 41 and len(result.stations) == 12
     stored = _stations(programme_db)
     new = stored[stored[C.STATION].isin(result.stations[C.STATION])]
-    assert len(new) == 12 and _counts(programme_db)["station"] == before["station"] + 12
+    assert len(new) == 12 and table_counts(programme_db)["station"] == before["station"] + 12
     assert set(new["placement"]) == {"balanced"} and set(new["placement_seed"]) == {41}
     # every quadrat lies inside the site's polygon (shapely, as the geometry reference)
     site = _site_polygon(demo_source, "CB")
@@ -68,15 +54,15 @@ def test_balanced_placement_is_stored_with_method_and_seed_inside_the_site(progr
     # the same seed gives the same stations again (reproducible from the stored seed)
     again = design.place_stations(programme_db, "CB", "balanced", n=12, seed=41, min_separation=8.0,
                                   prefix="CB-B", dry_run=True)
-    assert not again.stored and _counts(programme_db)["station"] == before["station"] + 12
+    assert not again.stored and table_counts(programme_db)["station"] == before["station"] + 12
 
 
 def test_same_seed_same_positions_dry_run_writes_nothing(programme_db):
-    before = _counts(programme_db)
+    before = table_counts(programme_db)
     a = design.place_stations(programme_db, "WE", "random", n=10, seed=5, dry_run=True)
     b = design.place_stations(programme_db, "WE", "random", n=10, seed=5, dry_run=True)
     assert np.allclose(a.stations[[C.X, C.Y]].to_numpy(), b.stations[[C.X, C.Y]].to_numpy())
-    assert _counts(programme_db) == before
+    assert table_counts(programme_db) == before
 
 
 def test_transect_stations_are_spaced_along_the_bearing(programme_db):
@@ -98,10 +84,10 @@ def test_exclusions_covering_the_site_are_refused_and_nothing_written(programme_
                                                               [512500, 5742000]]]}}]}
     path = tmp_path / "exclude.geojson"
     path.write_text(json.dumps(cover))
-    before = _counts(programme_db)
+    before = table_counts(programme_db)
     with pytest.raises(DesignError, match="exclusion zones cover the whole site CB"):
         design.place_stations(programme_db, "CB", "random", n=10, seed=1, exclude=path)
-    assert _counts(programme_db) == before
+    assert table_counts(programme_db) == before
 
 
 def test_panel_due_table_matches_the_revisit_definition_and_the_demo_sheets(programme_db, demo_source):

@@ -17,7 +17,7 @@ from monitor.db import Store, queries
 from monitor.errors import DesignError
 from monitor.schedule import fieldpack
 from monitor.services import records, schedule, setup
-from tests.conftest import REPO_ROOT
+from tests.conftest import REPO_ROOT, table_counts
 
 YEARS = (2024, 2025, 2026)
 
@@ -30,13 +30,6 @@ def season_db(db_url, demo_source):
         records.import_records(db_url, demo_source / "records" / f"season_{year}.csv")
     return db_url
 
-
-def _counts(db_url):
-    store = Store.open(db_url)
-    try:
-        return queries.table_counts(store)
-    finally:
-        store.dispose()
 
 
 def _sheet_rows(demo_source, year):
@@ -141,13 +134,13 @@ def test_work_that_does_not_fit_is_said_and_kept_in_the_plan(season_db):
 
 def test_a_stored_plan_is_replaced_only_when_asked(season_db):
     schedule.plan_season(season_db, 2027, teams=2, seed=1)
-    before = _counts(season_db)
+    before = table_counts(season_db)
     with pytest.raises(DesignError, match="--replace"):
         schedule.plan_season(season_db, 2027, teams=2, seed=2)
-    assert _counts(season_db) == before
+    assert table_counts(season_db) == before
     again = schedule.plan_season(season_db, 2027, teams=2, seed=2, replace=True)
     assert again.replaced == before["planned_visit"]
-    assert _counts(season_db)["planned_visit"] == before["planned_visit"]
+    assert table_counts(season_db)["planned_visit"] == before["planned_visit"]
     store = Store.open(season_db)
     try:
         assert set(queries.planned_visits(store, store.programme().id, 2027)["seed"]) == {2}
@@ -213,12 +206,12 @@ def test_field_pack_is_read_back_by_the_records_importer(season_db, demo_source,
     filled = _fill(entry, first.date, first.members)
     sheet = tmp_path / "keyed_2027.csv"
     filled.to_csv(sheet, index=False)
-    before = _counts(season_db)
+    before = table_counts(season_db)
     report = records.import_records(season_db, sheet, accept_warnings=True)
     assert report.visits_added == len(first.stations)
     # the only warning allowed is a visit date still in the future on the day the test runs
     assert all("not after today" in w for w in report.warnings)
-    after = _counts(season_db)
+    after = table_counts(season_db)
     assert after["visit"] == before["visit"] + len(first.stations)
 
     # outcomes: read at read time from the stored visits, and written by refresh_outcomes

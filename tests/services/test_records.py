@@ -7,21 +7,8 @@ import pytest
 from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import InputError, LockedError
-from monitor.services import records, setup
-
-
-@pytest.fixture
-def programme_db(db_url, demo_source):
-    setup.setup_folder(db_url, demo_source)
-    return db_url
-
-
-def _counts(db_url):
-    store = Store.open(db_url)
-    try:
-        return queries.table_counts(store)
-    finally:
-        store.dispose()
+from monitor.services import records
+from tests.conftest import table_counts
 
 
 def _sheet(demo_source, year=2024):
@@ -46,10 +33,10 @@ def _edit_first_value(text: str, column: str, new: str) -> tuple[str, str, str]:
 def test_import_then_reimport_is_a_no_op(programme_db, demo_source):
     first = records.import_records(programme_db, _sheet(demo_source))
     assert first.visits_added == 36 and first.observations_added > 100
-    counts = _counts(programme_db)
+    counts = table_counts(programme_db)
     again = records.import_records(programme_db, _sheet(demo_source))
     assert again.already_imported and again.visits_added == 0
-    assert _counts(programme_db) == counts
+    assert table_counts(programme_db) == counts
 
 
 def test_missed_and_inaccessible_visits_store_no_values(programme_db, demo_source):
@@ -69,10 +56,10 @@ def test_missed_and_inaccessible_visits_store_no_values(programme_db, demo_sourc
 
 
 def test_dry_run_writes_nothing(programme_db, demo_source):
-    before = _counts(programme_db)
+    before = table_counts(programme_db)
     report = records.import_records(programme_db, _sheet(demo_source), dry_run=True)
     assert report.dry_run and report.visits_added == 36
-    assert _counts(programme_db) == before
+    assert table_counts(programme_db) == before
 
 
 def test_changing_a_stored_value_needs_correct_and_reason(programme_db, demo_source, tmp_path):
@@ -80,10 +67,10 @@ def test_changing_a_stored_value_needs_correct_and_reason(programme_db, demo_sou
     text, station, old = _edit_first_value(_sheet(demo_source).read_text(), "MARVIO:count", "977")
     changed = tmp_path / "season_2024_fixed.csv"
     changed.write_text(text)
-    before = _counts(programme_db)
+    before = table_counts(programme_db)
     with pytest.raises(InputError, match="--correct"):
         records.import_records(programme_db, changed)
-    assert _counts(programme_db) == before
+    assert table_counts(programme_db) == before
     with pytest.raises(InputError, match="reason"):
         records.import_records(programme_db, changed, correct=True, reason="  ")
     report = records.import_records(programme_db, changed, correct=True, reason="keying error, paper sheet says 977",
@@ -125,8 +112,8 @@ def test_an_unknown_station_fails_the_whole_file(programme_db, demo_source, tmp_
     first_station = text.splitlines()[1].split(",")[0]
     bad = tmp_path / "bad.csv"
     bad.write_text(text.replace(first_station + ",", "XX-99,", 1))
-    before = _counts(programme_db)
+    before = table_counts(programme_db)
     with pytest.raises(InputError) as info:
         records.import_records(programme_db, bad)
     assert "XX-99" in str(info.value) and "row 2" in str(info.value)
-    assert _counts(programme_db) == before
+    assert table_counts(programme_db) == before

@@ -10,14 +10,7 @@ import pytest
 from monitor.db import Store, queries
 from monitor.errors import InputError
 from monitor.services import setup
-
-
-def _snapshot(db_url) -> dict[str, int]:
-    store = Store.open(db_url)
-    try:
-        return queries.table_counts(store)
-    finally:
-        store.dispose()
+from tests.conftest import table_counts
 
 
 def test_demo_folder_loads(db_url, demo_source):
@@ -79,12 +72,12 @@ def test_bad_file_writes_nothing(db_url, demo_source, tmp_path, file, edit, expe
     shutil.copytree(demo_source, folder)
     path = folder / file
     path.write_text(edit(path.read_text()))
-    before = _snapshot(db_url)
+    before = table_counts(db_url)
     with pytest.raises(InputError) as info:
         setup.setup_folder(db_url, folder)
     assert expected in str(info.value).lower()
     assert file.split(".")[0] in str(info.value) or file in str(info.value)
-    assert _snapshot(db_url) == before
+    assert table_counts(db_url) == before
 
 
 def test_invalid_site_polygon_is_refused(db_url, demo_source, tmp_path):
@@ -94,15 +87,15 @@ def test_invalid_site_polygon_is_refused(db_url, demo_source, tmp_path):
     ring = doc["features"][0]["geometry"]["coordinates"][0]
     ring[1], ring[2] = ring[2], ring[1]  # a bow-tie: self-intersecting
     (folder / "sites.geojson").write_text(json.dumps(doc))
-    before = _snapshot(db_url)
+    before = table_counts(db_url)
     with pytest.raises(InputError, match="valid polygon"):
         setup.setup_folder(db_url, folder)
-    assert _snapshot(db_url) == before
+    assert table_counts(db_url) == before
 
 
 def test_loading_the_same_stations_twice_is_refused(db_url, demo_source):
     setup.setup_folder(db_url, demo_source)
-    before = _snapshot(db_url)
+    before = table_counts(db_url)
     with pytest.raises(InputError, match="not already in the programme"):
         setup.load_file(db_url, "stations", demo_source / "stations.csv")
-    assert _snapshot(db_url) == before
+    assert table_counts(db_url) == before
