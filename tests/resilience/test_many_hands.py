@@ -6,7 +6,8 @@ crew also corrects values it recorded before: a recount of one species through
 ``monitor records import --correct --reason`` and single values through ``monitor records set``.
 
 Eight processes load their modules, wait at a barrier, and then run their commands at the same moment.
-The test then checks, on PostgreSQL (and on SQLite, where writers queue for the file's lock):
+The test then checks, on PostgreSQL (and with ``-m slow`` on SQLite, where writers queue for the file's
+lock):
 
 * every command of every crew succeeded: none failed on a deadlock, a serialization failure or a busy
   file (the import and ``records set`` run their transaction again, with backoff, when the database asks);
@@ -44,7 +45,10 @@ SET_SEASON = 2018              # stored season a crew corrects value by value (r
 RECOUNTED = "MARVIO:count"
 
 
-@pytest.fixture(scope="module", params=[pytest.param("postgresql", marks=pytest.mark.postgres), "sqlite"])
+# the default run takes PostgreSQL, where the many hands of a shared programme meet; SQLite (writers queue for
+# the file's lock) runs with -m slow
+@pytest.fixture(scope="module", params=[pytest.param("postgresql", marks=pytest.mark.postgres),
+                                        pytest.param("sqlite", marks=pytest.mark.slow)])
 def base(request, tmp_path_factory):
     """The demo with seasons 2015-2020 imported, built once per engine and copied for each run."""
     if request.param == "postgresql":
