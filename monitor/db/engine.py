@@ -12,7 +12,6 @@ from sqlmodel import Session
 
 from monitor.config import database_url, is_sqlite
 
-
 #: Test hook, not for users: a number of pages that an SQLite database may not grow beyond
 #: (``PRAGMA max_page_count``), so that a test sees what a full disk does: SQLite then fails a write that
 #: needs a new page with SQLITE_FULL ("database or disk is full"), as when the disk itself is full

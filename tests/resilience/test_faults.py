@@ -37,7 +37,10 @@ from monitor.db.engine import MAX_PAGES_HOOK
 from monitor.services import records
 from tests.conftest import REPO_ROOT
 from tests.resilience.tables import season_rows, write_rows
-from tests.services.test_records_data import DEMO, Template, build_demo, demo_template, dump  # noqa: F401
+from tests.services import test_records_data as shared
+from tests.services.test_records_data import DEMO, Template, build_demo, dump
+
+demo_template = shared.demo_template  # fixture: the demo with seasons 2015-2023, once per engine
 
 
 def _env(**extra: str) -> dict[str, str]:
