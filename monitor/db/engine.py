@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import os
 from collections.abc import Iterator
 
 from sqlalchemy import create_engine, event
@@ -11,11 +12,20 @@ from sqlmodel import Session
 
 from monitor.config import database_url, is_sqlite
 
+#: Test hook, not for users: a number of pages that an SQLite database may not grow beyond
+#: (``PRAGMA max_page_count``), so that a test sees what a full disk does: SQLite then fails a write that
+#: needs a new page with SQLITE_FULL ("database or disk is full"), as when the disk itself is full
+#: (https://www.sqlite.org/pragma.html#pragma_max_page_count).
+MAX_PAGES_HOOK = "MONITOR_TEST_SQLITE_MAX_PAGES"
+
 
 def _sqlite_on_connect(dbapi_connection, _record) -> None:
     cursor = dbapi_connection.cursor()
     cursor.execute("PRAGMA foreign_keys = ON")
     cursor.execute("PRAGMA busy_timeout = 30000")
+    max_pages = os.environ.get(MAX_PAGES_HOOK)
+    if max_pages:
+        cursor.execute(f"PRAGMA max_page_count = {int(max_pages)}")
     cursor.close()
 
 

@@ -90,15 +90,26 @@ def table_counts(store: Store) -> dict[str, int]:
     return out
 
 
+#: the columns of :func:`observations_long` and the SQL behind each (observer is joined in Python)
+LONG_COLUMNS = {
+    C.STATION: "t.code", C.SITE: "s.code", C.TRANSECT: "t.transect", C.DISTANCE: "t.distance_m", C.X: "t.x",
+    C.Y: "t.y", "placement": "t.placement", C.QUADRAT_AREA: "t.quadrat_width_m * t.quadrat_length_m",
+    C.YEAR: "r.year", C.DATE: "v.date", "visit_id": "v.id", "repeat_no": "v.repeat_no",
+    C.VISIT_STATUS: "v.status", C.PROTOCOL: "pv.code", C.SPECIES: "sp.code", C.MEASURE: "o.measure",
+    "value": "o.value", "n": "o.n",
+}
+
+
 def observations_long(store: Store, programme_id: int, *, species: str | None = None, measure: str | None = None,
                       sites: list[str] | None = None, first_year: int | None = None,
-                      last_year: int | None = None) -> pd.DataFrame:
+                      last_year: int | None = None, columns: list[str] | None = None) -> pd.DataFrame:
     """The long table that feeds the analyses: one row per stored value.
 
     Only done and partial visits carry values, so a missed or inaccessible visit is simply absent here:
     missing is never turned into zero.  A zero is a recorded absence.  Columns: station, site, transect,
     distance_m, x, y, placement, quadrat_area_m2, year, date, visit_id, repeat_no, status, protocol,
-    observer (';'-joined codes), species, measure, value, n.
+    observer (';'-joined codes), species, measure, value, n.  ``columns`` keeps only those named (a
+    whole programme's values are a million rows: a check that needs six columns need not hold nineteen).
     """
     where = ["t.programme_id = :p"]
     params: dict[str, object] = {"p": programme_id}
@@ -120,12 +131,15 @@ def observations_long(store: Store, programme_id: int, *, species: str | None = 
             params[f"s{i}"] = code
             names.append(f":s{i}")
         where.append(f"s.code IN ({', '.join(names)})")
+    wanted = list(LONG_COLUMNS) + [C.OBSERVER] if columns is None else list(columns)
+    unknown = set(wanted) - set(LONG_COLUMNS) - {C.OBSERVER}
+    if unknown:
+        raise ValueError(f"observations_long has no columns {sorted(unknown)}")
+    chosen = [c for c in LONG_COLUMNS if c in wanted or (c == "visit_id" and C.OBSERVER in wanted)]
+    select = ", ".join(f"{LONG_COLUMNS[c]} AS {c}" for c in chosen)
     frame = store.frame(
         f"""
-        SELECT t.code AS {C.STATION}, s.code AS {C.SITE}, t.transect AS {C.TRANSECT}, t.distance_m AS {C.DISTANCE},
-               t.x AS {C.X}, t.y AS {C.Y}, t.placement, t.quadrat_width_m * t.quadrat_length_m AS {C.QUADRAT_AREA},
-               r.year AS {C.YEAR}, v.date AS {C.DATE}, v.id AS visit_id, v.repeat_no, v.status AS {C.VISIT_STATUS},
-               pv.code AS {C.PROTOCOL}, sp.code AS {C.SPECIES}, o.measure AS {C.MEASURE}, o.value, o.n
+        SELECT {select}
         FROM observation o
         JOIN visit v ON v.id = o.visit_id
         JOIN round r ON r.id = v.round_id
@@ -138,18 +152,21 @@ def observations_long(store: Store, programme_id: int, *, species: str | None = 
         """,
         **params,
     )
-    observers = store.frame(
-        """
-        SELECT vo.visit_id, ob.code FROM visit_observer vo JOIN observer ob ON ob.id = vo.observer_id
-        WHERE ob.programme_id = :p ORDER BY ob.code
-        """,
-        p=programme_id,
-    )
-    joined = observers.groupby("visit_id")["code"].agg(";".join) if len(observers) else pd.Series(dtype=str)
-    frame[C.OBSERVER] = frame["visit_id"].map(joined)
-    frame[C.YEAR] = frame[C.YEAR].astype(int)
-    frame["n"] = frame["n"].astype("Int64")
-    return frame
+    if C.OBSERVER in wanted:
+        observers = store.frame(
+            """
+            SELECT vo.visit_id, ob.code FROM visit_observer vo JOIN observer ob ON ob.id = vo.observer_id
+            WHERE ob.programme_id = :p ORDER BY ob.code
+            """,
+            p=programme_id,
+        )
+        joined = observers.groupby("visit_id")["code"].agg(";".join) if len(observers) else pd.Series(dtype=str)
+        frame[C.OBSERVER] = frame["visit_id"].map(joined)
+    if C.YEAR in frame:
+        frame[C.YEAR] = frame[C.YEAR].astype(int)
+    if "n" in frame:
+        frame["n"] = frame["n"].astype("Int64")
+    return frame if columns is None else frame[list(columns)]
 
 
 def to_measure_columns(frame: pd.DataFrame, measure: str) -> pd.DataFrame:

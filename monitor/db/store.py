@@ -73,7 +73,9 @@ class Store:
         try:
             with self.engine.connect() as connection:
                 result = connection.execute(text(sql), params)
-                return pd.DataFrame(result.fetchall(), columns=list(result.keys()))
+                # plain tuples: pandas reads a list of tuples column by column at C speed, whereas rows of
+                # another type go through a per-row attribute probe that costs seconds per million rows
+                return pd.DataFrame([tuple(row) for row in result], columns=list(result.keys()))
         except DBAPIError as exc:
             if _denied(exc):
                 raise AccessError(f"your database role may not read this: {_first_line(exc)}") from exc

@@ -98,24 +98,37 @@ def station_jumps(table: pd.DataFrame, *, threshold: float = JUMP_THRESHOLD, min
     data = table.assign(_value=analysis_values(table))
     data = data[data[C.MEASURE] != C.MEASURE_PRESENCE].dropna(subset=["_value"])
     yearly = data.groupby([C.STATION, C.SPECIES, C.MEASURE, C.YEAR], sort=True)["_value"].mean().reset_index()
-    rows = []
-    for (station, species, measure), group in yearly.groupby([C.STATION, C.SPECIES, C.MEASURE], sort=True):
-        if len(group) < min_history + 1:
+    # the series of one station, species and measure are consecutive rows (sorted); series of the same
+    # length are stacked into a matrix and judged together, one leave-one-out column at a time, so the
+    # work is a few vectorised medians per series length rather than two per value
+    series = yearly.groupby([C.STATION, C.SPECIES, C.MEASURE], sort=False).ngroup().to_numpy()
+    starts = np.flatnonzero(np.r_[True, series[1:] != series[:-1]])
+    lengths = np.diff(np.r_[starts, len(series)])
+    years_all = yearly[C.YEAR].to_numpy()
+    y_all = yearly["_value"].to_numpy(dtype=float)
+    found = []  # (first row of the series, t, z, median of the others)
+    for length in np.unique(lengths):
+        if length < min_history + 1:
             continue
-        years = group[C.YEAR].to_numpy()
-        y = group["_value"].to_numpy(dtype=float)
-        u = np.log1p(np.clip(y, 0, None))
-        for t in range(len(u)):
-            others = np.delete(u, t)
-            med = float(np.median(others))
-            scale = max(MAD_TO_SD * float(np.median(np.abs(others - med))), min_scale)
-            z = (u[t] - med) / scale
-            if abs(z) > threshold:
-                typical = math.expm1(med)
-                rows.append({"kind": "jump", C.STATION: station, C.SPECIES: species, C.YEAR: int(years[t]),
-                             "detail": f"{measure} {y[t]:g} against a typical {typical:.3g} in the station's other "
-                                       f"{len(others)} years (robust z = {z:+.1f}, |z| > {threshold:g})",
-                             "severity": "warning"})
+        first = starts[lengths == length]
+        at = first[:, None] + np.arange(length)[None, :]
+        u = np.log1p(np.clip(y_all[at], 0, None))
+        for t in range(length):
+            others = np.delete(u, t, axis=1)
+            med = np.median(others, axis=1)
+            scale = np.maximum(MAD_TO_SD * np.median(np.abs(others - med[:, None]), axis=1), min_scale)
+            z = (u[:, t] - med) / scale
+            for g in np.flatnonzero(np.abs(z) > threshold):
+                found.append((int(first[g]), t, float(z[g]), float(med[g]), int(length)))
+    rows = []
+    for start, t, z, med, length in sorted(found):
+        station, species, measure = (yearly[c].iat[start] for c in (C.STATION, C.SPECIES, C.MEASURE))
+        value = y_all[start + t]
+        typical = math.expm1(med)
+        rows.append({"kind": "jump", C.STATION: station, C.SPECIES: species, C.YEAR: int(years_all[start + t]),
+                     "detail": f"{measure} {value:g} against a typical {typical:.3g} in the station's other "
+                               f"{length - 1} years (robust z = {z:+.1f}, |z| > {threshold:g})",
+                     "severity": "warning"})
     return _flags(rows)
 
 
@@ -186,13 +199,27 @@ def observer_pairs(table: pd.DataFrame, observer: str, *, across_years: bool = T
     ``across_years`` is set, in the station's other years.  The d of one station are averaged, so the
     units tested are stations (independent), not visits that share a reference value.
     """
-    data = table.assign(_value=analysis_values(table), _team=table[C.OBSERVER].map(_observers_of))
+    return _observer_pairs(*_observer_data(table), observer, across_years=across_years)
+
+
+def _observer_data(table: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple[str, ...]]]:
+    """The rows the observer check uses, with ``_u = log(1 + y)`` and ``_team``, the position of the row's
+    team in the list returned beside (each distinct team is read once, not once a row)."""
+    data = table.assign(_value=analysis_values(table))
     data = data[data[C.MEASURE] != C.MEASURE_PRESENCE].dropna(subset=["_value"])
+    codes, uniques = pd.factorize(data[C.OBSERVER], use_na_sentinel=False)
+    data = data.assign(_u=np.log1p(np.clip(data["_value"].to_numpy(dtype=float), 0, None)), _team=codes,
+                       _key=data.groupby([C.STATION, C.SPECIES, C.MEASURE], sort=True).ngroup().to_numpy())
+    return data[["_key", C.YEAR, "_u", "_team"]], [_observers_of(team) for team in uniques]
+
+
+def _observer_pairs(data: pd.DataFrame, teams: list[tuple[str, ...]], observer: str, *,
+                    across_years: bool = True) -> np.ndarray:
     if data.empty:
         return np.array([], dtype=float)
-    data = data.assign(_u=np.log1p(np.clip(data["_value"].to_numpy(dtype=float), 0, None)),
-                       _mine=data["_team"].map(lambda team: observer in team).astype(bool))
-    keys = [C.STATION, C.SPECIES, C.MEASURE]
+    with_observer = [k for k, team in enumerate(teams) if observer in team]
+    data = data.assign(_mine=np.isin(data["_team"].to_numpy(), with_observer))
+    keys = ["_key"]  # station, species and measure as one integer, numbered in their sorted order
     mine, others = data[data["_mine"]], data[~data["_mine"]]
     if mine.empty or others.empty:
         return np.array([], dtype=float)
@@ -216,10 +243,11 @@ def observer_differences(table: pd.DataFrame, *, min_pairs: int = 6, alpha: floa
     """
     from scipy.stats import wilcoxon
 
-    observers = sorted({o for team in table[C.OBSERVER].map(_observers_of) for o in team})
+    data, teams = _observer_data(table)
+    observers = sorted({o for team in teams for o in team})
     rows = []
     for observer in observers:
-        d = observer_pairs(table, observer, across_years=across_years)
+        d = _observer_pairs(data, teams, observer, across_years=across_years)
         d = d[d != 0]
         if len(d) < min_pairs:
             continue

@@ -89,7 +89,9 @@ def _date(value: object) -> dt.date | None:
 def check_inputs(store: Store, programme: M.Programme) -> dict:
     """The stored tables the checks read, in the frames :func:`monitor.quality.quality_flags` takes."""
     pid = programme.id
-    table = queries.observations_long(store, pid)
+    # the columns the checks read, not the whole long table: a national programme holds a million values
+    table = queries.observations_long(store, pid, columns=[C.STATION, C.SPECIES, C.MEASURE, C.YEAR, "value",
+                                                           C.OBSERVER])
     visits = queries.visit_outcomes(store, pid)
     visits[C.DATE] = [_date(d) for d in visits[C.DATE]]
     stations = queries.stations(store, pid)

@@ -151,9 +151,10 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
 
 # --- import -----------------------------------------------------------------------------------------------------
 
-#: Test hook, not for users: when set to a number of seconds, an import that has written its visits (inside
-#: its still open transaction) says so on stderr and sleeps that long, so that a test can kill the process
-#: at that moment and show that nothing of the import is left in the database.
+#: Test hook, not for users: when set to a number of seconds, an import that has written its visits, an import
+#: that has applied its corrections (and written none), or ``set_value`` once it has written its value and the
+#: change-log row (each inside its still open transaction) says so on stderr and sleeps that long, so that a
+#: test can kill the process at that moment and show that nothing of the command is left in the database.
 PAUSE_HOOK = "MONITOR_TEST_PAUSE_AFTER_VISITS"
 #: attempts of one import when the database reports a transient failure (serialization failure, deadlock,
 #: a busy SQLite file, a round or visit created first by a concurrent import)
@@ -505,7 +506,7 @@ def _write(session: Session, programme: M.Programme, file_name: str, digest: str
                                      [int(x) for x in new["repeat_no"]],
                                      [None if x is None or pd.isna(x) else int(x) for x in new["protocol_id"]],
                                      new["notes"].tolist(), [batch.id] * len(new), strict=True)))
-        _pause_hook(len(new))
+        _pause_hook(f"{len(new)} visits written")
         id_of = {(s, r, k): i for i, s, r, k in queries.batch_visits(session, batch.id)}
         id_at = np.zeros(int(new.index.max()) + 1, dtype=np.int64)  # visit id by position in the file
         id_at[new.index.to_numpy()] = [id_of[(int(s), r, int(k))] for s, r, k in
@@ -530,6 +531,8 @@ def _write(session: Session, programme: M.Programme, file_name: str, digest: str
     for visit_id, row in plan.updates:
         _apply_update(session, programme.id, visit_id, row, reason or "", who, now)
     session.flush()
+    if plan.updates and not len(new):
+        _pause_hook(f"{len(plan.updates)} visits corrected")
     new_years = {int(y) for y in plan.new[C.YEAR].unique()} if len(plan.new) else set()
     _refresh_planned_outcomes(session, programme.id, sorted(new_years | {int(r["year"]) for _i, r in plan.updates}))
 
@@ -547,11 +550,11 @@ def _refresh_planned_outcomes(session: Session, programme_id: int, years: list[i
     refresh_outcomes(session, programme_id, years)
 
 
-def _pause_hook(n_visits: int) -> None:
+def _pause_hook(what: str) -> None:
     seconds = os.environ.get(PAUSE_HOOK)
     if not seconds:
         return
-    print(f"{PAUSE_HOOK}: {n_visits} visits written, transaction open; pausing {seconds} s",
+    print(f"{PAUSE_HOOK}: {what}, transaction open; pausing {seconds} s",
           file=sys.stderr, flush=True)
     time.sleep(float(seconds))
 
@@ -702,50 +705,60 @@ def set_value(db: str | None, station: str, year: int, species: str, measure: st
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
-        with store.session() as session:
-            st = _station(session, programme.id, station, label)
-            rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
-            visit = None if rnd is None else session.exec(select(M.Visit).where(
-                M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
-            if visit is None:
-                raise DataError(f"no visit of {station} in the {year} round"
-                                + (f" with repeat number {repeat_no}" if repeat_no else "")
-                                + "; import the visit from its field sheet first")
-            if rnd.status == "certified":
-                raise LockedError(f"season {year} is certified (locked); unlock it first with "
-                                  f"`monitor records unlock {year} --reason \"...\"`")
-            if visit.status not in C.STATUSES_WITH_VALUES:
-                raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
-                                "(missing is not zero); correct its status from the field sheet first")
-            target = session.exec(select(M.Target, M.Species).join(M.Species, M.Species.id == M.Target.species_id)
-                                  .where(M.Target.programme_id == programme.id, M.Species.code == species,
-                                         M.Target.measure == measure)).first()
-            if target is None:
-                registered = [f"{c}:{m}" for c, m in session.exec(
-                    select(M.Species.code, M.Target.measure).join(M.Target, M.Target.species_id == M.Species.id)
-                    .where(M.Species.programme_id == programme.id)).all()]
-                raise InputError(InputProblem(label, None, "SPECIES MEASURE", field_,
-                                              "a species and measure of the programme" + _closest(field_, registered)))
-            tgt, sp = target
-            _check_range(label, field_, station, visit, sp.code, measure, number, tgt.n)
-            obs = session.exec(select(M.Observation).where(M.Observation.visit_id == visit.id,
-                                                           M.Observation.species_id == sp.id,
-                                                           M.Observation.measure == measure)).first()
-            old = None if obs is None else obs.value
-            change = Change(station, year, visit.date.isoformat(), field_, old, number)
-            if old == number:
-                return change
-            now = utcnow()
-            if obs is None:
-                obs = M.Observation(visit_id=visit.id, species_id=sp.id, measure=measure, value=number, n=tgt.n)
-                session.add(obs)
-            else:
-                obs.value, obs.n = number, tgt.n
-            session.flush()
-            _log(session, programme.id, "observation", obs.id, "value", old, number, reason, who, now)
-            return change
+        # run again from the start when the database reports a transient failure (a deadlock or
+        # serialization failure with a concurrent import, a busy SQLite file), as the import does
+        return run_with_retries(lambda: _set_value(store, programme, label, station, year, species, measure,
+                                                   field_, number, reason, repeat_no, who))
     finally:
         store.dispose()
+
+
+def _set_value(store: Store, programme: M.Programme, label: str, station: str, year: int, species: str,
+               measure: str, field_: str, number: float, reason: str, repeat_no: int, who: str) -> Change:
+    with store.session() as session:
+        st = _station(session, programme.id, station, label)
+        rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
+        visit = None if rnd is None else session.exec(select(M.Visit).where(
+            M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
+        if visit is None:
+            raise DataError(f"no visit of {station} in the {year} round"
+                            + (f" with repeat number {repeat_no}" if repeat_no else "")
+                            + "; import the visit from its field sheet first")
+        if rnd.status == "certified":
+            raise LockedError(f"season {year} is certified (locked); unlock it first with "
+                              f"`monitor records unlock {year} --reason \"...\"`")
+        if visit.status not in C.STATUSES_WITH_VALUES:
+            raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
+                            "(missing is not zero); correct its status from the field sheet first")
+        target = session.exec(select(M.Target, M.Species).join(M.Species, M.Species.id == M.Target.species_id)
+                              .where(M.Target.programme_id == programme.id, M.Species.code == species,
+                                     M.Target.measure == measure)).first()
+        if target is None:
+            registered = [f"{c}:{m}" for c, m in session.exec(
+                select(M.Species.code, M.Target.measure).join(M.Target, M.Target.species_id == M.Species.id)
+                .where(M.Species.programme_id == programme.id)).all()]
+            raise InputError(InputProblem(label, None, "SPECIES MEASURE", field_,
+                                          "a species and measure of the programme" + _closest(field_, registered)))
+        tgt, sp = target
+        _check_range(label, field_, station, visit, sp.code, measure, number, tgt.n)
+        obs = session.exec(select(M.Observation).where(M.Observation.visit_id == visit.id,
+                                                       M.Observation.species_id == sp.id,
+                                                       M.Observation.measure == measure)).first()
+        old = None if obs is None else obs.value
+        change = Change(station, year, visit.date.isoformat(), field_, old, number)
+        if old == number:
+            return change
+        now = utcnow()
+        if obs is None:
+            obs = M.Observation(visit_id=visit.id, species_id=sp.id, measure=measure, value=number, n=tgt.n)
+            session.add(obs)
+        else:
+            obs.value, obs.n = number, tgt.n
+        session.flush()
+        _log(session, programme.id, "observation", obs.id, "value", old, number, reason, who, now)
+        session.flush()
+        _pause_hook("1 value corrected")
+        return change
 
 
 def _check_range(label: str, field_: str, station: str, visit: M.Visit, species: str, measure: str, value: float,

@@ -224,4 +224,9 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
         )
     finally:
         store.dispose()
-    return render_report(context, out_dir, progress=progress)
+    try:
+        return render_report(context, out_dir, progress=progress)
+    except OSError as exc:
+        if exc.filename is None and exc.errno is not None:  # a failed write names no file (a full disk)
+            raise OSError(exc.errno, exc.strerror, str(out_dir)) from exc
+        raise
