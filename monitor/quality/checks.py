@@ -210,7 +210,8 @@ def _observer_data(table: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple[str, .
     codes, uniques = pd.factorize(data[C.OBSERVER], use_na_sentinel=False)
     data = data.assign(_u=np.log1p(np.clip(data["_value"].to_numpy(dtype=float), 0, None)), _team=codes,
                        _key=data.groupby([C.STATION, C.SPECIES, C.MEASURE], sort=True).ngroup().to_numpy())
-    return data[["_key", C.YEAR, "_u", "_team"]], [_observers_of(team) for team in uniques]
+    data = data.assign(_key_year=data["_key"].to_numpy(np.int64) * 10_000 + data[C.YEAR].to_numpy(np.int64))
+    return data[["_key", "_key_year", "_u", "_team"]], [_observers_of(team) for team in uniques]
 
 
 def _observer_pairs(data: pd.DataFrame, teams: list[tuple[str, ...]], observer: str, *,
@@ -218,19 +219,20 @@ def _observer_pairs(data: pd.DataFrame, teams: list[tuple[str, ...]], observer: 
     if data.empty:
         return np.array([], dtype=float)
     with_observer = [k for k, team in enumerate(teams) if observer in team]
-    data = data.assign(_mine=np.isin(data["_team"].to_numpy(), with_observer))
-    keys = ["_key"]  # station, species and measure as one integer, numbered in their sorted order
-    mine, others = data[data["_mine"]], data[~data["_mine"]]
+    is_mine = np.isin(data["_team"].to_numpy(), with_observer)
+    mine, others = data[is_mine], data[~is_mine]
     if mine.empty or others.empty:
         return np.array([], dtype=float)
-    same_year = others.groupby(keys + [C.YEAR])["_u"].median().rename("_ref_year").reset_index()
-    any_year = others.groupby(keys)["_u"].median().rename("_ref_all").reset_index()
-    paired = mine.merge(same_year, on=keys + [C.YEAR], how="left").merge(any_year, on=keys, how="left")
-    ref = paired["_ref_year"]
+    # references only where the observer recorded: the work per observer follows their own stations, so the
+    # whole check grows with the values, not with values times observers
+    others = others[np.isin(others["_key"].to_numpy(), mine["_key"].unique())]
+    ref = mine["_key_year"].map(others.groupby("_key_year")["_u"].median())
     if across_years:
-        ref = ref.fillna(paired["_ref_all"])
-    paired = paired.assign(_d=paired["_u"] - ref).dropna(subset=["_d"])
-    return paired.groupby(keys)["_d"].mean().to_numpy(dtype=float)
+        ref = ref.fillna(mine["_key"].map(others.groupby("_key")["_u"].median()))
+    d = (mine["_u"] - ref).to_numpy(dtype=float)
+    kept = ~np.isnan(d)
+    # one mean per station, species and measure (integer keys numbered in their sorted order)
+    return pd.Series(d[kept]).groupby(mine["_key"].to_numpy()[kept]).mean().to_numpy(dtype=float)
 
 
 def observer_differences(table: pd.DataFrame, *, min_pairs: int = 6, alpha: float = 0.01,

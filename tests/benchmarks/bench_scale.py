@@ -71,7 +71,6 @@ def generate(folder: Path, scale: float, seed: int = 20240601) -> dict:
     rng = np.random.default_rng(seed)
     folder.mkdir(parents=True, exist_ok=True)
     n_sites = max(1, round(FULL_SITES * scale))
-    n_stations = n_sites * STATIONS_PER_SITE
     (folder / "programme.json").write_text(json.dumps({
         "code": "BIG", "name": "Broadland Uplands invented national programme", "crs_epsg": EPSG,
         "description": "Generated for the scale benchmark (invented).", "organisation": "Invented Trust",

@@ -39,13 +39,14 @@ def main(job_path: str) -> int:
     for command in job["commands"]:
         os.environ["MONITOR_USER"] = command["user"]
         argv = ["--db", job["db"], *command["argv"]]
-        started = time.monotonic()
+        started, wall = time.monotonic(), time.time()
         try:
             code = monitor_main(argv)
         except BaseException:  # anything the CLI did not map is a failure the test must see
             traceback.print_exc()
             code = -1
-        results.append({"argv": command["argv"], "code": code, "seconds": round(time.monotonic() - started, 3)})
+        results.append({"argv": command["argv"], "code": code, "seconds": round(time.monotonic() - started, 3),
+                        "start": wall, "end": time.time()})
     print(json.dumps(results))
     return 0
 

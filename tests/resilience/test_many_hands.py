@@ -182,6 +182,10 @@ def test_eight_crews_at_once_equal_a_serial_run(base, tmp_path, monkeypatch):
         for word in ("deadlock", "could not serialize", "database is locked", "Traceback", "error:"):
             assert word not in stderr, (name, stderr)
 
+    # the crews worked at the same time: every crew started before any crew had finished
+    spans = [(results[0]["start"], results[-1]["end"]) for _rc, results, _err in outcome.values()]
+    assert max(start for start, _end in spans) < min(end for _start, end in spans)
+
     # the same commands, crew after crew, in this process
     from monitor.cli.main import main
 
