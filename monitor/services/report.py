@@ -62,9 +62,8 @@ def _estimate_rows(table: pd.DataFrame) -> pd.DataFrame:
                 rows.append({**base, "quantity": "total", "estimate": r["total"], "lower": r["total_lower"],
                              "upper": r["total_upper"]})
         else:
-            scale = 1.0 if r["measure"] == C.MEASURE_COVER else 1.0
-            rows.append({**base, "quantity": quantity_of[r["measure"]], "estimate": r["estimate"] * scale,
-                         "lower": r["lower"] * scale, "upper": r["upper"] * scale})
+            rows.append({**base, "quantity": quantity_of[r["measure"]], "estimate": r["estimate"],
+                         "lower": r["lower"], "upper": r["upper"]})
     return pd.DataFrame(rows)
 
 

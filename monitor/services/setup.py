@@ -7,7 +7,6 @@ database exactly as it was.
 
 from __future__ import annotations
 
-import datetime as dt
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -23,6 +22,9 @@ from monitor.errors import InputError, InputProblem
 from monitor.io import headers as H
 from monitor.io import programme as readers
 from monitor.io.settings import read_programme_json
+
+#: start year stored for an every-year panel given without one: it is due in every season on record
+ALWAYS_SINCE = 1900
 
 SETUP_FILES = {
     "programme": "programme.json",
@@ -266,7 +268,8 @@ def load_panels(session: Session, programme: M.Programme, path: Path, report: Lo
     for row in frame.to_dict(orient="records"):
         start = _none(row[H.START_YEAR])
         session.add(M.Panel(programme_id=programme.id, code=row[C.PANEL], rule=row[H.RULE],
-                            start_year=int(start) if start is not None else dt.date.today().year,
+                            # only a rule that never rests may omit its start (the reader checks): due every year
+                            start_year=int(start) if start is not None else ALWAYS_SINCE,
                             description=str(row.get("description") or "")))
     session.flush()
     report.add("panels", len(frame))
