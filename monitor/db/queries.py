@@ -332,13 +332,31 @@ def retryable(exc: BaseException) -> bool:
 
 
 def insert_rows(session, table: str, columns: list[str], rows: list[tuple]) -> None:
-    """Insert many rows with the driver's executemany (no per-row ORM work), inside the session's transaction.
+    """Insert many rows in bulk (no per-row ORM work; COPY on PostgreSQL, executemany on SQLite), inside the
+    session's transaction.
 
     Dates are passed as ISO strings, which both SQLite (its Date storage form) and PostgreSQL accept.
     """
     if not rows:
         return
     connection = session.connection()
+    if connection.dialect.name == "postgresql":
+        # COPY streams the rows in one statement: several times faster than one prepared INSERT a row, even
+        # pipelined; the server checks every constraint as for an INSERT, inside the same transaction
+        from sqlalchemy.exc import DBAPIError
+
+        sql = f"COPY {table} ({', '.join(columns)}) FROM STDIN"
+        driver_error = connection.dialect.loaded_dbapi.Error
+        cursor = connection.connection.dbapi_connection.cursor()
+        try:
+            with cursor.copy(sql) as copy:
+                for row in rows:
+                    copy.write_row(row)
+        except driver_error as exc:  # as SQLAlchemy would raise it (IntegrityError, OperationalError, ...)
+            raise DBAPIError.instance(sql, None, exc, driver_error) from exc
+        finally:
+            cursor.close()
+        return
     style = connection.dialect.paramstyle
     marks = ", ".join("?" if style == "qmark" else "%s" for _ in columns)
     sql = f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({marks})"

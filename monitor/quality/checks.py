@@ -210,7 +210,9 @@ def _observer_data(table: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple[str, .
     codes, uniques = pd.factorize(data[C.OBSERVER], use_na_sentinel=False)
     data = data.assign(_u=np.log1p(np.clip(data["_value"].to_numpy(dtype=float), 0, None)), _team=codes,
                        _key=data.groupby([C.STATION, C.SPECIES, C.MEASURE], sort=True).ngroup().to_numpy())
-    data = data.assign(_key_year=data["_key"].to_numpy(np.int64) * 10_000 + data[C.YEAR].to_numpy(np.int64))
+    data = data[data["_key"] >= 0]  # a row without station, species or measure has no series (as before)
+    # station-series and season as one number (exact in float64; a missing year stays missing)
+    data = data.assign(_key_year=data["_key"].to_numpy(float) * 10_000 + data[C.YEAR].to_numpy(float, na_value=np.nan))
     return data[["_key", "_key_year", "_u", "_team"]], [_observers_of(team) for team in uniques]
 
 
