@@ -72,6 +72,14 @@ def _clash(file: str, row: object, fld: str, code: str, what: str) -> InputProbl
     return InputProblem(file, int(row) if row is not None else None, fld, code, f"a {what} code not already in the programme")
 
 
+def _refuse_existing(frame: pd.DataFrame, key: str, existing: dict[str, int], file: str, what: str) -> None:
+    """Every row whose code the programme already holds, as one InputError (nothing is written)."""
+    problems = [_clash(file, r["source_row"], "code", r[key], what)
+                for r in frame.to_dict(orient="records") if r[key] in existing]
+    if problems:
+        raise InputError(problems)
+
+
 def _existing(session: Session, model, programme_id: int) -> dict[str, int]:
     return {r.code: r.id for r in session.exec(select(model).where(model.programme_id == programme_id)).all()}
 
@@ -235,10 +243,7 @@ def load_species(session: Session, programme: M.Programme, path: Path, report: L
     frame = readers.read_species_csv(path)
     file = frame.attrs.get("file", path.name)
     existing = _existing(session, M.Species, programme.id)
-    problems = [_clash(file, r["source_row"], "code", r[C.SPECIES], "species")
-                for r in frame.to_dict(orient="records") if r[C.SPECIES] in existing]
-    if problems:
-        raise InputError(problems)
+    _refuse_existing(frame, C.SPECIES, existing, file, "species")
     for row in frame.to_dict(orient="records"):
         species = M.Species(programme_id=programme.id, code=row[C.SPECIES], scientific_name=row[H.SCIENTIFIC_NAME],
                             common_name=row[H.COMMON_NAME] or "", sensitive=bool(row[H.SENSITIVE]))
@@ -261,10 +266,7 @@ def load_panels(session: Session, programme: M.Programme, path: Path, report: Lo
     frame = readers.read_panels_csv(path)
     file = frame.attrs.get("file", path.name)
     existing = _existing(session, M.Panel, programme.id)
-    problems = [_clash(file, r["source_row"], "code", r[C.PANEL], "panel")
-                for r in frame.to_dict(orient="records") if r[C.PANEL] in existing]
-    if problems:
-        raise InputError(problems)
+    _refuse_existing(frame, C.PANEL, existing, file, "panel")
     for row in frame.to_dict(orient="records"):
         start = _none(row[H.START_YEAR])
         session.add(M.Panel(programme_id=programme.id, code=row[C.PANEL], rule=row[H.RULE],
@@ -294,10 +296,7 @@ def load_observers(session: Session, programme: M.Programme, path: Path, report:
     frame = readers.read_observers_csv(path)
     file = frame.attrs.get("file", path.name)
     existing = _existing(session, M.Observer, programme.id)
-    problems = [_clash(file, r["source_row"], "code", r[C.OBSERVER], "observer")
-                for r in frame.to_dict(orient="records") if r[C.OBSERVER] in existing]
-    if problems:
-        raise InputError(problems)
+    _refuse_existing(frame, C.OBSERVER, existing, file, "observer")
     for row in frame.to_dict(orient="records"):
         session.add(M.Observer(programme_id=programme.id, code=row[C.OBSERVER], name=row[H.NAME],
                                trained=_none(row[H.TRAINED])))

@@ -99,3 +99,14 @@ def test_loading_the_same_stations_twice_is_refused(db_url, demo_source):
     with pytest.raises(InputError, match="not already in the programme"):
         setup.load_file(db_url, "stations", demo_source / "stations.csv")
     assert table_counts(db_url) == before
+
+
+@pytest.mark.parametrize("kind, file", [("species", "species.csv"), ("panels", "panels.csv"),
+                                        ("observers", "observers.csv")])
+def test_loading_codes_the_programme_holds_is_refused(db_url, demo_source, kind, file):
+    setup.setup_folder(db_url, demo_source)
+    before = table_counts(db_url)
+    with pytest.raises(InputError, match="not already in the programme") as info:
+        setup.load_file(db_url, kind, demo_source / file)
+    assert len(info.value.problems) == len((demo_source / file).read_text().splitlines()) - 1  # every row named
+    assert table_counts(db_url) == before
