@@ -55,8 +55,9 @@ _register()
 
 def _set_on_context(name: str):
     def callback(click_ctx: click.Context, _param: click.Parameter, value: str | None) -> None:
-        if value is not None:
-            setattr(click_ctx.find_object(Context), name, value)
+        obj = click_ctx.find_object(Context)  # None only when parsed without running (completion, checks)
+        if value is not None and obj is not None:
+            setattr(obj, name, value)
     return callback
 
 
@@ -73,11 +74,11 @@ def _accept_anywhere(group: click.Group) -> None:
         if "db" not in names:
             command.params.append(click.Option(
                 ["--db"], expose_value=False, callback=_set_on_context("db"), is_eager=True,
-                help="Database (as for `monitor --db`); may be given before or after the command."))
+                help="Database: a file path (SQLite) or a postgresql+psycopg:// URL; before or after the command."))
         if "programme" not in names:
             command.params.append(click.Option(
                 ["--programme"], expose_value=False, callback=_set_on_context("programme"), is_eager=True,
-                help="Programme code (as for `monitor --programme`)."))
+                help="Programme code, when the database holds more than one."))
         if isinstance(command, click.Group):
             _accept_anywhere(command)
 
