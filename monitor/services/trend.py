@@ -16,7 +16,6 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.db import Store, queries
-from monitor.design.lineage import lineage_keys
 from monitor.errors import DataError, Diagnostic, InputError, InputProblem
 from monitor.trend import TrendModel, TrendResult, default_family
 
@@ -95,7 +94,6 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                 raise InputError(InputProblem("--species", None, None, ", ".join(unknown),
                                               f"a target species code ({', '.join(targets[C.SPECIES])})"))
             targets = targets[targets[C.SPECIES].isin(species)]
-        lineage = lineage_keys(queries.stations(store, programme.id))
         out = []
         for i, target in enumerate(targets.to_dict(orient="records")):
             if progress:
@@ -105,7 +103,6 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                                              last_year=last_year)
             if long.empty:
                 raise DataError(f"no stored values for {target[C.SPECIES]} ({target[C.MEASURE]}) in the years asked")
-            long[C.LINEAGE] = long[C.STATION].map(lineage)
             data, notes = analysis_frame(long, target[C.MEASURE])
             result = fit_one(data, target[C.MEASURE], family=family, margin=programme.change_margin,
                              observer_effect=observer_effect)
