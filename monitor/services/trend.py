@@ -47,9 +47,16 @@ def presence_value(frame: pd.DataFrame) -> pd.Series:
 def analysis_frame(long: pd.DataFrame, measure: str) -> tuple[pd.DataFrame, list[Diagnostic]]:
     """The model's input for one species and measure, and the notes about what was left out and why."""
     notes: list[Diagnostic] = []
-    present_at = set(long.loc[presence_value(long), C.STATION])
-    dropped = long[C.STATION].nunique() - len(present_at)
-    frame = long[long[C.STATION].isin(present_at)]
+    # a relocated quadrat continues its lineage: presence, counts and the station effect go by lineage
+    key = C.LINEAGE if C.LINEAGE in long.columns else C.STATION
+    present_at = set(long.loc[presence_value(long), key])
+    dropped = long[key].nunique() - len(present_at)
+    frame = long[long[key].isin(present_at)]
+    moved = frame[C.STATION].nunique() - frame[key].nunique()
+    if moved:
+        notes.append(Diagnostic("relocated_stations",
+                                f"{moved} relocated station(s) continue the series of the station they replaced "
+                                "(one station effect per chain).", "info"))
     if dropped:
         notes.append(Diagnostic("stations_never_present",
                                 f"{dropped} stations where the species was never recorded are left out of the model.",

@@ -217,7 +217,9 @@ class TrendModel:
     data : DataFrame
         Long table, one row per (station, visit) with a value (missing visits absent):
         ``station``, ``year`` [int], optional ``site``, ``observer``, covariates, and the
-        measure's value columns (monitor.columns.MEASURE_COLUMNS).
+        measure's value columns (monitor.columns.MEASURE_COLUMNS).  An optional ``lineage``
+        column names the first station of a relocation chain: the stations of one chain
+        share one station effect (a moved quadrat continues its series).
     measure : str
         count, cover, frequency, pin_hits or presence.
     family : str, optional
@@ -361,11 +363,13 @@ class TrendModel:
         for c in value_cols:
             d[c] = v[c]
         # a station is identified within its site (codes are unique in a programme, but a
-        # table brought from elsewhere may reuse a code in two sites)
+        # table brought from elsewhere may reuse a code in two sites); a relocated quadrat
+        # carries the first station of its chain in ``lineage`` and shares that station's effect
+        station = d[C.LINEAGE].fillna(d[C.STATION]) if C.LINEAGE in d.columns else d[C.STATION]
         if C.SITE in d.columns:
-            d["_station_key"] = d[C.SITE].astype(str) + "\x1f" + d[C.STATION].astype(str)
+            d["_station_key"] = d[C.SITE].astype(str) + "\x1f" + station.astype(str)
         else:
-            d["_station_key"] = d[C.STATION].astype(str)
+            d["_station_key"] = station.astype(str)
         return d.reset_index(drop=True)
 
     # ------------------------------------------------------------------ design
