@@ -53,7 +53,7 @@ from scipy.stats import chi2, norm
 from monitor import columns as C
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 
-from .call import DEFAULT_MARGIN, MIN_STATIONS, classify_call
+from .call import DEFAULT_MARGIN, MIN_STATIONS, MIN_YEARS, classify_call
 from .families import Binomial, Gaussian, NegativeBinomial, Poisson
 from .glmm import GlmmFit, GlmmSpec, Term, fit_glmm
 
@@ -504,7 +504,7 @@ class TrendModel:
         call, reason = classify_call(lo_c, hi_c, self.margin, n_st, n_years)
         if n_st < MIN_STATIONS:
             diags.append(Diagnostic("few_stations", f"Only {n_st} stations: the call is 'unclear' by rule."))
-        if n_years < 5:
+        if n_years < MIN_YEARS:
             diags.append(Diagnostic("few_years", f"Only {n_years} years with data: the call is 'unclear' by rule."))
         b = self.base_year
         yrs = np.arange(self.first, self.last + 1)
