@@ -53,7 +53,7 @@ from scipy.stats import norm
 from monitor import columns as C
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 
-from .call import DEFAULT_MARGIN, MIN_STATIONS, classify_call
+from .call import DEFAULT_MARGIN, MIN_STATIONS, MIN_YEARS, classify_call
 from .families import Binomial, Gaussian, NegativeBinomial, Poisson
 from .glmm import GlmmFit, GlmmSpec, Term, default_year_effect, fit_glmm, year_terms
 
@@ -225,7 +225,9 @@ class TrendModel:
     data : DataFrame
         Long table, one row per (station, visit) with a value (missing visits absent):
         ``station``, ``year`` [int], optional ``site``, ``observer``, covariates, and the
-        measure's value columns (monitor.columns.MEASURE_COLUMNS).
+        measure's value columns (monitor.columns.MEASURE_COLUMNS).  An optional ``lineage``
+        column names the first station of a relocation chain: the stations of one chain
+        share one station effect (a moved quadrat continues its series).
     measure : str
         count, cover, frequency, pin_hits or presence.
     family : str, optional
@@ -389,11 +391,13 @@ class TrendModel:
         for c in value_cols:
             d[c] = v[c]
         # a station is identified within its site (codes are unique in a programme, but a
-        # table brought from elsewhere may reuse a code in two sites)
+        # table brought from elsewhere may reuse a code in two sites); a relocated quadrat
+        # carries the first station of its chain in ``lineage`` and shares that station's effect
+        station = d[C.LINEAGE].fillna(d[C.STATION]) if C.LINEAGE in d.columns else d[C.STATION]
         if C.SITE in d.columns:
-            d["_station_key"] = d[C.SITE].astype(str) + "\x1f" + d[C.STATION].astype(str)
+            d["_station_key"] = d[C.SITE].astype(str) + "\x1f" + station.astype(str)
         else:
-            d["_station_key"] = d[C.STATION].astype(str)
+            d["_station_key"] = station.astype(str)
         return d.reset_index(drop=True)
 
     # ------------------------------------------------------------------ design
@@ -534,7 +538,7 @@ class TrendModel:
         call, reason = classify_call(lo_c, hi_c, self.margin, n_st, n_years)
         if n_st < MIN_STATIONS:
             diags.append(Diagnostic("few_stations", f"Only {n_st} stations: the call is 'unclear' by rule."))
-        if n_years < 5:
+        if n_years < MIN_YEARS:
             diags.append(Diagnostic("few_years", f"Only {n_years} years with data: the call is 'unclear' by rule."))
         b = self.base_year
         yrs = np.arange(self.first, self.last + 1)
