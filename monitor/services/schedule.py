@@ -270,10 +270,20 @@ def read_crews_file(path: Path) -> dict[str, Any]:
         raise InputError(InputProblem(file, None, None, None, "a crews file in JSON")) from None
     if not isinstance(doc, dict) or not isinstance(doc.get("teams"), list):
         raise _crew_problem(file, "teams", None, "a list of teams")
+    from monitor.io import filespec as FS  # the one definition of the file (docs/files.md)
+
+    known = [f.name for f in FS.CREWS.fields]
+    for key in doc:
+        if key not in known:
+            raise _crew_problem(file, key, None, f"a known key ({', '.join(known)})")
+    known_team = [f.name for f in FS.CREW_TEAM.fields]
     teams = []
     for i, t in enumerate(doc["teams"], start=1):
         if not isinstance(t, dict) or not str(t.get("code") or "").strip():
             raise _crew_problem(file, f"teams[{i}].code", None, "a team code")
+        for key in t:
+            if key not in known_team:
+                raise _crew_problem(file, f"teams[{i}].{key}", None, f"a known key ({', '.join(known_team)})")
         members = t.get("members")
         if not isinstance(members, list) or not all(isinstance(m, str) and m.strip() for m in members):
             raise _crew_problem(file, f"teams[{i}].members", members, "a list of member codes or names")
