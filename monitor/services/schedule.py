@@ -48,6 +48,7 @@ from monitor.schedule.season import (
     WINDOW_END,
     WINDOW_START,
 )
+from monitor.services import relocation
 from monitor.services.design import StoredPanels, as_date, default_first_year, fresh_seed
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
@@ -658,6 +659,7 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         species = queries.species(store, programme.id)
         observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
                                                        p=programme.id)["code"]]
+        lineage_notes = relocation.lineage_notes(store, programme.id)
     finally:
         store.dispose()
     species = species[species[C.MEASURE].notna()]
@@ -666,9 +668,10 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     units = _settings(programme).get("covariate_units") or {}
     covariates = [(str(k), str(v)) for k, v in sorted(units.items())] if isinstance(units, dict) else []
     stations = stations.rename(columns={"relocation_notes": fieldpack.RELOCATION})
+    # a relocated quadrat's sheet says which station it continues, how far it moved and when
     stations[fieldpack.RELOCATION] = [
-        "; ".join(x for x in (str(m or ""), str(r or "")) if x and x != "nan")
-        for m, r in zip(stations["marker"], stations[fieldpack.RELOCATION], strict=True)]
+        "; ".join(x for x in (lineage_notes.get(c, ""), str(m or ""), str(r or "")) if x and x != "nan")
+        for c, m, r in zip(stations[C.STATION], stations["marker"], stations[fieldpack.RELOCATION], strict=True)]
     visits[C.DATE] = [as_date(v) for v in visits[C.DATE]]
     observations[C.DATE] = [as_date(v) for v in observations[C.DATE]]
     folder = Path(folder)
