@@ -947,7 +947,9 @@ def build_report_context(
                      + f" coloured by each station's own annual change in {name}: {n_fall} falling "
                        f"(down triangles), {n_rise} rising (up triangles), {n_none} with too few years "
                        "(open circles)."),
-                caption="Stations coloured by their own change (orange falling, purple rising).",
+                caption=("Stations coloured by their own change (orange falling, purple rising); open circles: "
+                         "too few years for a station's own trend; grey crosses: never recorded there. "
+                         "Grid north is up."),
             ))
         gradient = gradients.get((sp, ms))
         if gradient is not None:
