@@ -212,6 +212,20 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
         except (OSError, json.JSONDecodeError) as exc:
             raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
 
+    if site is not None or species is not None:  # refuse an unknown code before any fitting
+        store = Store.open(db)
+        try:
+            programme = store.programme(programme_code)
+            known_sites = set(queries.sites(store, programme.id)["site"])
+            known_species = set(queries.species(store, programme.id)[C.SPECIES])
+        finally:
+            store.dispose()
+        if site is not None and site not in known_sites:
+            raise InputError(InputProblem("report", None, "--site", site,
+                                          f"a site code of the programme ({', '.join(sorted(known_sites))})"))
+        if species is not None and species not in known_species:
+            raise InputError(InputProblem("report", None, "--species", species,
+                                          f"a species code of the programme ({', '.join(sorted(known_species))})"))
     trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True,
                                  sites=[site] if site else None, species=[species] if species else None)
     if not trends:
@@ -267,7 +281,7 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             estimates=estimates,
             coverage=_scoped(_coverage(store, programme.id, year), site),
             quality_flags=_quality_flags(store, programme.id),
-            triggers=triggers_of(programme),
+            triggers=[t for t in triggers_of(programme) if species is None or t.species == species],
             events=_events(store, programme.id),
             previous=previous_doc,
             power=power,
