@@ -9,6 +9,10 @@ Two fitters:
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
                noncentral-t check, and only valid for data with no station, site or
                overdispersion effects.
+``"yearly-means"`` least squares of the yearly means of the log (counts) or logit (cover) values on
+               year, t test with n_years - 2 degrees of freedom: the analysis whose power is exactly
+               noncentral t when stations are balanced and the noise is normal on that scale
+               (Urquhart, Paulsen & Larsen 1998), whatever the year-to-year variation.  A reference.
 """
 
 from __future__ import annotations
@@ -101,6 +105,45 @@ def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Sc
     return FitOutcome(b, se, float(df), lower, upper, _call(lower, upper, scenario.margin, n_stations, n_years))
 
 
+def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:
+    """Least-squares slope of the yearly mean log (or logit) value on year, t on n_years - 2 df.
+
+    Notes
+    -----
+    ``ybar_t = a + b t + d_t``, ``d_t ~ N(0, s_year^2 + s_e^2 / m)`` independent across years for a
+    balanced design; ``se(b) = s / sqrt(sum (t - tbar)^2)`` with ``s^2`` the residual mean square
+    of the yearly means on ``n_years - 2`` degrees of freedom.
+    """
+    y = _link_values(data, components)
+    if y is None:
+        return FAILED
+    means = pd.Series(y).groupby(data[col.YEAR].to_numpy()).mean()
+    x = means.index.to_numpy(float)
+    ybar = means.to_numpy(float)
+    n = ybar.size
+    if n < 3:
+        return FAILED
+    xc = x - x.mean()
+    sxx = float(xc @ xc)
+    b = float(xc @ (ybar - ybar.mean())) / sxx
+    resid = ybar - ybar.mean() - b * xc
+    df = n - 2
+    se = math.sqrt(float(resid @ resid) / df / sxx)
+    q = float(stats.t.isf(0.025, df))
+    lower, upper = math.expm1(b - q * se), math.expm1(b + q * se)
+    return FitOutcome(b, se, float(df), lower, upper,
+                      _call(lower, upper, scenario.margin, data[col.STATION].nunique(), n))
+
+
+def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
+    if components.measure == col.MEASURE_COVER:
+        p = data[col.COVER].to_numpy(float) / 100.0
+        y = np.log(p / (1 - p))
+    else:
+        y = np.log(data[col.COUNT].to_numpy(float))
+    return y if y.size and np.all(np.isfinite(y)) else None
+
+
 def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: int) -> str | None:
     try:
         from monitor.trend import classify_call
@@ -109,7 +152,7 @@ def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: i
     return str(classify_call(lower, upper, margin, n_stations, n_years)[0])
 
 
-FITTERS = {"trend": fit_trend_engine, "ols-log": fit_ols_log}
+FITTERS = {"trend": fit_trend_engine, "ols-log": fit_ols_log, "yearly-means": fit_yearly_means}
 
 
 def fit_one(fitter: str, data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:

@@ -154,8 +154,8 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
         raise DesignError(f"fitter {fitter!r}: expected one of {', '.join(FITTERS)}")
     if fitter == "trend" and components.family == "lognormal":
         raise DesignError("the trend engine has no lognormal family; use fitter 'ols-log' for it")
-    if fitter == "ols-log" and components.family not in ("lognormal", "logit-normal"):
-        raise DesignError("fitter 'ols-log' regresses log or logit values: use it with the lognormal or "
+    if fitter in ("ols-log", "yearly-means") and components.family not in ("lognormal", "logit-normal"):
+        raise DesignError(f"fitter '{fitter}' regresses log or logit values: use it with the lognormal or "
                           "logit-normal family only")
     if n_replicates < 1:
         raise DesignError("at least one replicate is needed")
