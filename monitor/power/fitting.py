@@ -4,7 +4,11 @@ Two fitters:
 
 ``"trend"``    the trend engine's fast path, ``monitor.trend.TrendModel(...).fit(profile=False,
                indices=False)``: the same model family and random effects a programme's own
-               analysis would use.  Wald z test of the slope.
+               analysis would use, the year effect included where the engine puts it by default
+               (and a site-by-year effect where the population model has one).  Wald test of the
+               slope against t on the engine's between-year df (``slope_df``; normal without a
+               year effect).
+``"trend-no-year"`` the same without a year effect (a reference where the truth has none).
 ``"ols-log"``  ordinary least squares of the log (counts) or logit (cover) value on year, no random
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
                noncentral-t check, and only valid for data with no station, site or
@@ -48,10 +52,12 @@ class FitOutcome:
 FAILED = FitOutcome(math.nan, math.nan, math.inf, math.nan, math.nan, None, False, True, False)
 
 
-def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:
+def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario, *,
+                     year_random: str | None = None) -> FitOutcome:
     """Fit with the trend engine's fast path (no profile intervals, no yearly indices)."""
     from monitor.trend import TrendModel  # imported here: monitor.power works without a fitted engine
 
+    sites = col.SITE in data.columns and data[col.SITE].nunique() >= 2
     model = TrendModel(
         data,
         measure=components.measure,
@@ -59,13 +65,17 @@ def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenari
         year_effect="linear",
         site_effect=col.SITE in data.columns,
         margin=scenario.margin,
+        # the year effect as the programme's own analysis fits it (the engine's default: on wherever
+        # the series is long enough), and a site-by-year effect where the population model has one
+        year_random=year_random,
+        site_by_year=bool(components.site_year_sd > 0 and sites and year_random != "none"),
     )
     result = model.fit(profile=False, indices=False)
     change = result.annual_change
     return FitOutcome(
         slope=float(result.slope),
         slope_se=float(result.slope_se),
-        df=math.inf,
+        df=float(getattr(result, "slope_df", math.inf)),
         lower=float(change.lower),
         upper=float(change.upper),
         call=str(result.call),
@@ -152,7 +162,13 @@ def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: i
     return str(classify_call(lower, upper, margin, n_stations, n_years)[0])
 
 
-FITTERS = {"trend": fit_trend_engine, "ols-log": fit_ols_log, "yearly-means": fit_yearly_means}
+def fit_trend_engine_without_year(data: pd.DataFrame, components: VarianceComponents,
+                                  scenario: Scenario) -> FitOutcome:
+    """The engine's fast path with no year effect (a reference for models without year variation)."""
+    return fit_trend_engine(data, components, scenario, year_random="none")
+
+
+FITTERS = {"trend": fit_trend_engine, "trend-no-year": fit_trend_engine_without_year, "ols-log": fit_ols_log, "yearly-means": fit_yearly_means}
 
 
 def fit_one(fitter: str, data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:

@@ -46,7 +46,7 @@ from monitor.power.approximation import (
 from monitor.power.fitting import FITTERS, fit_one
 from monitor.power.model import Design, Scenario, VarianceComponents
 from monitor.power.simulate import simulate_dataset
-from monitor.settings import DEFAULT_CHANGE_MARGIN
+from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_YEAR_EFFECT_YEARS
 
 Progress = Callable[[int, int], None] | None
 
@@ -152,7 +152,7 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
     """Run every job's replicates, in this process or across a process pool."""
     if fitter not in FITTERS:
         raise DesignError(f"fitter {fitter!r}: expected one of {', '.join(FITTERS)}")
-    if fitter == "trend" and components.family == "lognormal":
+    if fitter.startswith("trend") and components.family == "lognormal":
         raise DesignError("the trend engine has no lognormal family; use fitter 'ols-log' for it")
     if fitter in ("ols-log", "yearly-means") and components.family not in ("lognormal", "logit-normal"):
         raise DesignError(f"fitter '{fitter}' regresses log or logit values: use it with the lognormal or "
@@ -234,7 +234,7 @@ def _summarise(components: VarianceComponents, job: _Job, fitter: str, rows: lis
     approx = None
     if approximation:
         try:
-            approx = approximate_power(components, job.design, scenario)
+            approx = approximate_power(components, job.design, scenario, df=analysis_df(fitter, job.design, components))
         except DesignError:
             approx = None
     return PowerResult(
@@ -243,6 +243,20 @@ def _summarise(components: VarianceComponents, job: _Job, fitter: str, rows: lis
         power=power, power_se=power_se, median_interval_width=width, share_right_call=share_right,
         approximation=approx, seed_entropy=entropy, replicates=table, diagnostics=tuple(diagnostics),
     )
+
+
+def analysis_df(fitter: str, design: Design, components: VarianceComponents) -> float | None:
+    """Degrees of freedom of the test the fitter makes, for the approximation beside it.
+
+    The engine puts a year effect in the model wherever the series is long enough
+    (``MIN_YEAR_EFFECT_YEARS``) and then judges the slope on t with n_years - 2 df; the yearly-means
+    reference always does; the others use a normal reference.  None: the approximation's own rule.
+    """
+    if fitter == "yearly-means" or (fitter == "trend" and design.n_years >= MIN_YEAR_EFFECT_YEARS):
+        return float(design.n_years - 2)
+    if fitter in ("trend", "trend-no-year", "ols-log"):
+        return math.inf
+    return None
 
 
 def reject_null(slope: np.ndarray, slope_se: np.ndarray, df: np.ndarray, alpha: float, side: str) -> np.ndarray:
