@@ -70,10 +70,11 @@ class ImportReport:
     changes: list[Change] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     years: list[int] = field(default_factory=list)
+    sheet: str | None = None
 
     def to_dict(self) -> dict:
         return {
-            "file": self.file, "layout": self.layout, "already_imported": self.already_imported,
+            "file": self.file, "sheet": self.sheet, "layout": self.layout, "already_imported": self.already_imported,
             "dry_run": self.dry_run, "visits_added": self.visits_added,
             "observations_added": self.observations_added, "covariates_added": self.covariates_added,
             "visits_unchanged": self.visits_unchanged, "years": self.years,
@@ -190,17 +191,20 @@ def run_with_retries(work: Callable[[], T], *, attempts: int = ATTEMPTS, first_w
 
 def import_records(db: str | None, path: Path, *, programme_code: str | None = None, dry_run: bool = False,
                    correct: bool = False, reason: str | None = None, accept_warnings: bool = False,
-                   who: str | None = None, day_first: bool | None = None) -> ImportReport:
+                   who: str | None = None, day_first: bool | None = None,
+                   sheet: str | None = None) -> ImportReport:
     """Import a season's field records from CSV or .xlsx (wide field-sheet or long layout).
 
     The whole file is read and checked before anything is written, and everything is written in one
     transaction: a file with any error, or a process killed half-way, leaves the database as it was.
+    Every problem is listed at once: the cells that could not be read and what the programme's checks
+    find in the rest.  ``sheet`` names the workbook sheet to read (see :mod:`monitor.io._tables`).
     """
     path = Path(path)
     if correct and not (reason and reason.strip()):
         raise InputError(InputProblem(path.name, None, "--reason", None, "a reason for the correction"))
     try:
-        records = read_field_records(path, day_first=day_first)
+        records = read_field_records(path, day_first=day_first, sheet=sheet, keep_going=True)
         digest = content_hash(path)
         store = Store.open(db)
         try:
@@ -215,7 +219,7 @@ def import_records(db: str | None, path: Path, *, programme_code: str | None = N
 
 def _import(store: Store, programme: M.Programme, records: FieldRecords, file_name: str, digest: str,
             dry_run: bool, correct: bool, reason: str | None, accept_warnings: bool, who: str) -> ImportReport:
-    report = ImportReport(file=records.file, layout=records.layout, dry_run=dry_run)
+    report = ImportReport(file=records.file, layout=records.layout, dry_run=dry_run, sheet=records.sheet)
     with store.session() as session:
         batch = session.exec(select(M.ImportBatch).where(
             M.ImportBatch.programme_id == programme.id, M.ImportBatch.kind == KIND_RECORDS,
@@ -230,7 +234,8 @@ def _import(store: Store, programme: M.Programme, records: FieldRecords, file_na
         report.years = years
         reference = build_reference(session, programme, years)
         problems = validate_records(visits, records.observations, records.covariates, reference, file=records.file)
-        problems += _protocol_problems(session, programme.id, visits, records.file)
+        problems = with_reader_problems(records, problems, _protocol_problems(session, programme.id, visits,
+                                                                              records.file))
         accepted = raise_for_problems(problems, accept_warnings=accept_warnings)
         report.warnings.extend(p.line() for p in accepted)
         observations = fill_blank_targets(visits, records.observations, reference)
@@ -246,6 +251,41 @@ def _import(store: Store, programme: M.Programme, records: FieldRecords, file_na
             return report
         _write(session, programme, file_name, digest, len(visits), plan, reason, who)
     return report
+
+
+def with_reader_problems(records: FieldRecords, problems: list[InputProblem],
+                         more: list[InputProblem]) -> list[InputProblem]:
+    """The reader's problems (cells that could not be read) with the checks' problems, in row order.
+
+    A check's complaint about a cell the reader already refused (a target "missing" because its cell was
+    not a number) is left out: the reader's line says it.
+    """
+    from monitor.errors import ProblemCounter
+    from monitor.io.validate import ProblemList
+
+    reader = records.problems
+    if reader is None and not more:
+        return problems
+    counter = ProblemCounter()
+    refused: set[tuple] = set()
+    if reader is not None:
+        for problem in reader.kept():
+            refused.add((problem.row, problem.field))
+            counter.add(problem, (-1 if problem.row is None else problem.row, 0), count=False)
+        counter.merge_counts(reader)
+    for problem in [*problems, *more]:
+        if (problem.row, problem.field) in refused:
+            continue
+        counter.add(problem, (-1 if problem.row is None else problem.row, 1))
+    extra = getattr(problems, "total", len(problems)) - len(problems)
+    if extra > 0:  # the checks counted more than they listed
+        for kind, n in problems.counts.items():
+            listed = sum(1 for p in problems if p.kind == kind)
+            counter.counts[kind] = counter.counts.get(kind, 0) + n - listed
+            counter.total += n - listed
+            if not kind.startswith("warning: "):
+                counter.errors += n - listed
+    return ProblemList.of(counter)
 
 
 def _protocol_problems(session: Session, programme_id: int, visits: pd.DataFrame, file: str) -> list[InputProblem]:
