@@ -173,14 +173,14 @@ def decode_bytes(data: bytes, file: str) -> tuple[str, str]:
     bad = data[first_bad:first_bad + 1]
     if encoding == "utf-8-sig" or _UTF8_MULTIBYTE.search(data):
         raise InputError(InputProblem(
-            file, _line_of(data, first_bad), _field_at(data, first_bad, file), f"byte {bad!r}",
+            file, _line_of(data, first_bad), _field_at(data, first_bad, file), f"byte 0x{bad.hex().upper()}",
             "one encoding throughout: the file is UTF-8 but this byte is not (a character pasted from "
             "another program?); retype the character, or save the whole file again as UTF-8"))
     try:
         return data.decode("cp1252"), "cp1252"
     except UnicodeDecodeError as exc:
         bad = data[exc.start:exc.start + 1]
-        raise InputError(InputProblem(file, _line_of(data, exc.start), None, f"byte {bad!r}",
+        raise InputError(InputProblem(file, _line_of(data, exc.start), None, f"byte 0x{bad.hex().upper()}",
                                       "text in UTF-8 or Windows-1252")) from None
 
 
@@ -188,7 +188,7 @@ def _not_a_table(data: bytes, path: Path, file: str) -> None:
     """Refuse, saying what it is, a file that is neither CSV nor .xlsx but carries a spreadsheet's name."""
     head = data[:512].lstrip(codecs.BOM_UTF8).lstrip().lower()
     if head.startswith((b"<!doctype html", b"<html", b"<table", b"<head", b"<body", b"<meta")):
-        what = "a web page (HTML) saved with a spreadsheet's name"
+        what = "a web page (HTML) saved under a spreadsheet file name"
     elif head.startswith(b"<?xml"):
         what = "an XML file (an 'XML spreadsheet' or a web export)"
     elif data.startswith(b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"):

@@ -74,6 +74,8 @@ class FieldRecords:
     #: with ``keep_going=True``: the problems of the rows and cells that could not be read (the frames hold
     #: the rest), so that the programme's checks can report theirs too, all in one listing
     problems: ProblemCounter | None = None
+    #: the covariates the file has a column for (a blank cell there means "not recorded")
+    covariate_names: tuple[str, ...] = ()
 
 
 def parse_value_header(raw: str) -> tuple[str, str, int | None] | str:
@@ -194,7 +196,8 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
     for frame in (visits, observations, covariates):
         frame.attrs["file"] = table.file
     return FieldRecords(table.file, layout, visits, observations, covariates, table.sheet,
-                        problems.counter if problems.has_errors else None)
+                        problems.counter if problems.has_errors else None,
+                        tuple(dict.fromkeys(name for name, _unit in cov_columns.values())))
 
 
 def covariate_number(text: str, unit: str | None, problems, row: int, field: str) -> float | None:
