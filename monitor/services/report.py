@@ -17,6 +17,7 @@ from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
+from monitor.report.render import report_files_in
 from monitor.services import estimate, trend
 from monitor.trend import station_changes
 
@@ -151,6 +152,7 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
                  progress=None) -> Path:
     """Fit every target species up to ``year`` and write the report folder; returns its path."""
     out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
+    report_files_in(out_dir)  # refuse a folder we did not write now, not after the fits
     if previous is None:
         guess = out_dir.parent / str(year - 1) / REPORT_JSON
         previous = guess if guess.is_file() else None
