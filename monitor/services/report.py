@@ -18,6 +18,7 @@ from monitor.db import Store, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
 from monitor.report.render import report_files_in
+from monitor.services.exports import generalise_m_of, generalised_positions
 from monitor.services import estimate, trend
 from monitor.trend import station_changes
 
@@ -212,7 +213,11 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             events=_events(store, programme.id),
             previous=previous_doc,
             power=power,
-            stations=stations[stations["state"] == "in_service"][[C.STATION, C.X, C.Y, C.SITE, "placement"]],
+            # positions as every export gives them: sensitive species' stations generalised
+            stations=generalised_positions(store, programme.id,
+                                           stations[stations["state"] == "in_service"][[C.STATION, C.X, C.Y, C.SITE,
+                                                                                          "placement"]],
+                                           generalise_m_of(programme)),
             sites=_sites_geometry(store, programme.id),
             station_changes={(t.species, t.measure): station_changes(t.data, t.measure)
                              for t in trends if t.data is not None},
