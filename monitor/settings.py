@@ -21,6 +21,10 @@ exists, overrides the default through :func:`change_margin`.
 ``MIN_TREND_YEARS``, ``MIN_TREND_STATIONS``
     Below these a trend call is "unclear" by rule, and fewer stations than this are warned about
     when stations are placed (common practice minimums).
+``MIN_YEAR_EFFECT_YEARS``
+    From this many years with data the trend engine fits a year random effect by default (with an
+    intercept and a slope at the year level, 5 years leave 3 df for the year-to-year variance);
+    the power study's approximation follows the same rule.
 
 References
 ----------
@@ -37,6 +41,7 @@ GENERALISE_M = 1000.0         # m; common practice
 FIELD_PACKS_OUTSIDE = "field_packs_for_outside_crews"
 MIN_TREND_YEARS = 5           # common practice minimum for a trend call
 MIN_TREND_STATIONS = 10       # common practice minimum for a trend call and for a placement
+MIN_YEAR_EFFECT_YEARS = 5     # a year random effect is fitted by default from this many years with data
 
 
 def change_margin(programme_value: float | None = None) -> float:
@@ -46,4 +51,5 @@ def change_margin(programme_value: float | None = None) -> float:
     return float(programme_value)
 
 
-__all__ = ["DEFAULT_CHANGE_MARGIN", "FIELD_PACKS_OUTSIDE", "GENERALISE_M", "MIN_TREND_STATIONS", "MIN_TREND_YEARS", "change_margin"]
+__all__ = ["DEFAULT_CHANGE_MARGIN", "FIELD_PACKS_OUTSIDE", "GENERALISE_M", "MIN_TREND_STATIONS", "MIN_TREND_YEARS",
+           "MIN_YEAR_EFFECT_YEARS", "change_margin"]
