@@ -46,6 +46,7 @@ def _register() -> None:
         commands_plan,
         commands_records,
         commands_setup,
+        commands_web,
     )
 
 

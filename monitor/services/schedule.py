@@ -568,6 +568,10 @@ def stored_plan(store: Store, programme: M.Programme, year: int) -> S.SeasonPlan
                         params={"crews": meta.get("crews") or {}})
 
 
+#: the offline phone field sheet in each team-day's pack
+PHONE_SHEET = "phone_sheet.html"
+
+
 @dataclass
 class PackResult:
     folder: Path
@@ -594,7 +598,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
     relocation notes, quadrat size, the last two visits' values, empty boxes and the safety
     caution), ``entry_sheet.csv`` (the blank wide-layout table to key into), ``route.gpx``
-    (GPX 1.1 waypoints and route).  In ``folder``: ``season_<year>.ics`` with one event per
+    (GPX 1.1 waypoints and route), ``phone_sheet.html`` (the offline sheet for a phone: checks as typed,
+    keeps the work in the browser, exports the entry CSV).  In ``folder``: ``season_<year>.ics`` with one event per
     team-day written.
     """
     now = now or dt.datetime.now(dt.UTC)
@@ -637,6 +642,7 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
             visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now)
         (out / "field_sheet.html").write_text(fieldpack.render_field_sheet(context), encoding="utf-8")
         fieldpack.field_sheet_frame(context).to_csv(out / "entry_sheet.csv", index=False)
+        (out / PHONE_SHEET).write_text(fieldpack.render_phone_sheet(context, targets, covariates), encoding="utf-8")
         (out / "route.gpx").write_text(fieldpack.team_day_gpx(plan, td.team, td.date, stations,
                                                               crs=programme.crs_epsg), encoding="utf-8")
         written.append({"team": td.team, "date": td.date.isoformat(), "site": td.site, "stations": len(td.stations),
