@@ -141,6 +141,7 @@ class Ctx:
     app: WorkspaceApp
     form: dict[str, Any] = field(default_factory=dict)
     files: dict[str, UploadFile] = field(default_factory=dict)
+    raw_form: Any = None
 
     @property
     def db(self) -> str:
@@ -219,6 +220,9 @@ class WorkspaceApp:
             except MonitorError as exc:
                 response = ctx.render("web/error.html", status=400, title="Could not do that", message=str(exc),
                                       problems=[])
+            finally:
+                if ctx.raw_form is not None:
+                    await ctx.raw_form.close()
             if fresh or getattr(response, "_new_session", False):
                 sid = getattr(response, "_new_session", None) or session.sid
                 response.set_cookie(SESSION_COOKIE, sid, httponly=True, samesite="strict",
@@ -233,6 +237,7 @@ class WorkspaceApp:
         if length > MAX_UPLOAD_BYTES:
             raise Forbidden(f"That upload is larger than {MAX_UPLOAD_BYTES // (1024 * 1024)} MB.", 413)
         form = await ctx.request.form(max_files=4, max_fields=200)
+        ctx.raw_form = form
         for key, value in form.multi_items():
             if isinstance(value, UploadFile):
                 ctx.files[key] = value

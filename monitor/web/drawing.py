@@ -88,7 +88,7 @@ def reserve_map(sites: Mapping[str, Mapping], stations: Sequence[Mapping], *, wi
 
 def series_chart(points: Sequence[tuple[int, float]], *, width: float = 320.0, height: float = 120.0) -> dict:
     """A small line chart of one series over the years: polyline points, dots, and axis labels."""
-    pad_left, pad_right, pad_top, pad_bottom = 40.0, 10.0, 10.0, 22.0
+    pad_left, pad_right, pad_top, pad_bottom = 40.0, 22.0, 10.0, 22.0
     pts = [(int(y), float(v)) for y, v in points if v is not None and math.isfinite(float(v))]
     if not pts:
         return {"width": width, "height": height, "line": "", "dots": [], "x_labels": [], "y_labels": []}

@@ -35,7 +35,9 @@ def number_text(value: Any) -> str:
     except (TypeError, ValueError):
         pass
     if isinstance(value, float):
-        return str(int(value)) if value.is_integer() else f"{value:.4g}"
+        if value.is_integer():
+            return str(int(value))
+        return f"{value:.10g}" if abs(value) >= 1000 else f"{value:.4g}"
     if isinstance(value, dt.datetime):
         return value.strftime("%Y-%m-%d %H:%M")
     if isinstance(value, dt.date):
