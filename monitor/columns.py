@@ -11,6 +11,7 @@ PROGRAMME = "programme"      # programme code
 SITE = "site"                # site code
 STRATUM = "stratum"          # stratum code within a site (optional)
 STATION = "station"          # permanent quadrat code, unique in a programme
+LINEAGE = "lineage"          # first station of a relocation chain: a moved quadrat continues its series
 TRANSECT = "transect"        # transect code (stations laid along a line)
 SPECIES = "species"          # species code
 MEASURE = "measure"          # one of MEASURES below

@@ -1,7 +1,7 @@
 """People who sign in to the browser workspace (``monitor serve``) of a shared programme.
 
 Revision ID: 0006
-Revises: 0002
+Revises: 0004
 Create Date: 2026-12-02
 """
 
@@ -12,7 +12,7 @@ import sqlmodel
 from alembic import op
 
 revision = "0006"
-down_revision = "0002"
+down_revision = "0004"
 branch_labels = None
 depends_on = None
 

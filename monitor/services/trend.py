@@ -17,6 +17,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DataError, Diagnostic, InputError, InputProblem
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 from monitor.trend import TrendModel, TrendResult, default_family
 
 
@@ -46,9 +47,16 @@ def presence_value(frame: pd.DataFrame) -> pd.Series:
 def analysis_frame(long: pd.DataFrame, measure: str) -> tuple[pd.DataFrame, list[Diagnostic]]:
     """The model's input for one species and measure, and the notes about what was left out and why."""
     notes: list[Diagnostic] = []
-    present_at = set(long.loc[presence_value(long), C.STATION])
-    dropped = long[C.STATION].nunique() - len(present_at)
-    frame = long[long[C.STATION].isin(present_at)]
+    # a relocated quadrat continues its lineage: presence, counts and the station effect go by lineage
+    key = C.LINEAGE if C.LINEAGE in long.columns else C.STATION
+    present_at = set(long.loc[presence_value(long), key])
+    dropped = long[key].nunique() - len(present_at)
+    frame = long[long[key].isin(present_at)]
+    moved = frame[C.STATION].nunique() - frame[key].nunique()
+    if moved:
+        notes.append(Diagnostic("relocated_stations",
+                                f"{moved} relocated station(s) continue the series of the station they replaced "
+                                "(one station effect per chain).", "info"))
     if dropped:
         notes.append(Diagnostic("stations_never_present",
                                 f"{dropped} stations where the species was never recorded are left out of the model.",
@@ -117,7 +125,7 @@ MEASURE_BY_COLUMNS = [
 ]
 
 
-def fit_table(path: Path, *, measure: str | None = None, family: str | None = None, margin: float = 0.02,
+def fit_table(path: Path, *, measure: str | None = None, family: str | None = None, margin: float = DEFAULT_CHANGE_MARGIN,
               observer_effect: bool = False) -> SpeciesTrend:
     """Fit a plain long table brought from elsewhere: station, year, optional site, and the measure's columns."""
     path = Path(path)
