@@ -8,6 +8,7 @@ import click
 
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
+from monitor.cli.tables import trend_number_rows, write_workbook, xlsx_option
 from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 
 
@@ -45,9 +46,10 @@ def trend_rows(trends) -> list[dict]:
 @click.option("--margin", type=float, default=None,
               help=f"Margin of change that matters, fraction a year (with --table; default {DEFAULT_CHANGE_MARGIN:g}).")
 @format_option
+@xlsx_option
 @click.pass_obj
 def trend_command(ctx: Context, species, sites, first_year, last_year, family, observer_effect, table, margin,
-                  as_json: bool, as_csv: bool) -> None:
+                  as_json: bool, as_csv: bool, xlsx: Path | None) -> None:
     """Fit mixed models across years: annual change with 95% intervals and the call for each species."""
     from monitor.services import trend
 
@@ -64,8 +66,11 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
             trends = trend.fit_programme(ctx.db, programme_code=ctx.programme, species=list(species) or None,
                                          sites=list(sites) or None, first_year=first_year, last_year=last_year,
                                          family=family, observer_effect=observer_effect, progress=tick)
+    write_workbook(xlsx, {"trends": trend_number_rows(trends)})
     if fmt == "json":
         emit([t.to_dict() for t in trends], fmt)
+    elif fmt == "csv":  # numbers in columns of their own, for spreadsheets
+        emit(trend_number_rows(trends), fmt)
     else:
         emit(trend_rows(trends), fmt)
 
@@ -77,13 +82,16 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
 @click.option("--precision", type=float, default=0.2, show_default=True,
               help="Target relative precision for the quadrats-needed column (0.2 = +/-20%).")
 @format_option
+@xlsx_option
 @click.pass_obj
-def estimate_command(ctx: Context, year: int, species, sites, precision: float, as_json: bool, as_csv: bool) -> None:
+def estimate_command(ctx: Context, year: int, species, sites, precision: float, as_json: bool, as_csv: bool,
+                     xlsx: Path | None) -> None:
     """This season's estimates per site and species: density and total with intervals, cover, frequency."""
     from monitor.services import estimate
 
     table = estimate.season_table(ctx.db, year, programme_code=ctx.programme, species=list(species) or None,
                                   sites=list(sites) or None, precision=precision)
+    write_workbook(xlsx, {f"estimates {year}": table})
     fmt = chosen_format(as_json, as_csv)
     if fmt != "table":
         emit(table, fmt)

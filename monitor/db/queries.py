@@ -292,6 +292,18 @@ def planned_visits(store: Store, programme_id: int, year: int) -> pd.DataFrame:
     )
 
 
+def relocations(store: Store, programme_id: int) -> pd.DataFrame:
+    """Every recorded relocation: from_station, to_station (which continues it), date, reason, lost,
+    distance_m, recorded_by, recorded_at (oldest first)."""
+    return store.frame(
+        """
+        SELECT a.code AS from_station, b.code AS to_station, r.date, r.reason, r.lost, r.distance_m,
+               r.recorded_by, r.recorded_at
+        FROM station_relocation r JOIN station a ON a.id = r.from_station_id JOIN station b ON b.id = r.to_station_id
+        WHERE r.programme_id = :p ORDER BY r.date, a.code
+        """, p=programme_id)
+
+
 def season_plan_record(store: Store, programme_id: int, year: int) -> dict | None:
     """A stored plan's own record (seed, routing, summary), its teams and its team-days; None when absent."""
     plan = store.frame(

@@ -36,6 +36,7 @@ from monitor import schedule as S
 from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.errors import DataError, DesignError, InputError, InputProblem, LockedError
+from monitor.io.sheets import entry_workbook
 from monitor.schedule import fieldpack
 from monitor.schedule.planner import ARRIVAL, ORDER, TEAM
 from monitor.schedule.season import (
@@ -47,6 +48,7 @@ from monitor.schedule.season import (
     WINDOW_END,
     WINDOW_START,
 )
+from monitor.services import relocation
 from monitor.services.design import StoredPanels, as_date, default_first_year, fresh_seed
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
@@ -639,9 +641,10 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
 
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
     relocation notes, quadrat size, the last two visits' values, empty boxes and the safety
-    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into), ``route.gpx``
-    (GPX 1.1 waypoints and route), ``phone_sheet.html`` (the offline sheet for a phone: checks as typed,
-    keeps the work in the browser, exports the entry CSV).  In ``folder``: ``season_<year>.ics`` with one event per
+    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into) and ``entry_sheet.xlsx`` (the
+    same with drop-down lists for status and observers), ``route.gpx`` (GPX 1.1 waypoints and route),
+    ``phone_sheet.html`` (the offline sheet for a phone: checks as typed, keeps the work in the browser,
+    exports the entry CSV).  In ``folder``: ``season_<year>.ics`` with one event per
     team-day written.
     """
     now = now or dt.datetime.now(dt.UTC)
@@ -659,6 +662,9 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         protocols = store.frame("SELECT code, effective_from FROM protocol_version WHERE programme_id = :p "
                                 "ORDER BY effective_from", p=programme.id)
         species = queries.species(store, programme.id)
+        observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
+                                                       p=programme.id)["code"]]
+        lineage_notes = relocation.lineage_notes(store, programme.id)
     finally:
         store.dispose()
     species = species[species[C.MEASURE].notna()]
@@ -667,9 +673,10 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     units = _settings(programme).get("covariate_units") or {}
     covariates = [(str(k), str(v)) for k, v in sorted(units.items())] if isinstance(units, dict) else []
     stations = stations.rename(columns={"relocation_notes": fieldpack.RELOCATION})
+    # a relocated quadrat's sheet says which station it continues, how far it moved and when
     stations[fieldpack.RELOCATION] = [
-        "; ".join(x for x in (str(m or ""), str(r or "")) if x and x != "nan")
-        for m, r in zip(stations["marker"], stations[fieldpack.RELOCATION], strict=True)]
+        "; ".join(x for x in (lineage_notes.get(c, ""), str(m or ""), str(r or "")) if x and x != "nan")
+        for c, m, r in zip(stations[C.STATION], stations["marker"], stations[fieldpack.RELOCATION], strict=True)]
     visits[C.DATE] = [as_date(v) for v in visits[C.DATE]]
     observations[C.DATE] = [as_date(v) for v in observations[C.DATE]]
     folder = Path(folder)
@@ -683,8 +690,10 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
             plan, td.team, td.date, stations, crs=programme.crs_epsg, targets=targets, covariates=covariates,
             visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now)
         (out / "field_sheet.html").write_text(fieldpack.render_field_sheet(context), encoding="utf-8")
-        fieldpack.field_sheet_frame(context).to_csv(out / "entry_sheet.csv", index=False)
-        (out / PHONE_SHEET).write_text(fieldpack.render_phone_sheet(context, targets, covariates), encoding="utf-8")
+    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into) and ``entry_sheet.xlsx`` (the
+    same with drop-down lists for status and observers), ``route.gpx`` (GPX 1.1 waypoints and route),
+    ``phone_sheet.html`` (the offline sheet for a phone: checks as typed, keeps the work in the browser,
+    exports the entry CSV).  In ``folder``: ``season_<year>.ics`` with one event per
         (out / "route.gpx").write_text(fieldpack.team_day_gpx(plan, td.team, td.date, stations,
                                                               crs=programme.crs_epsg), encoding="utf-8")
         written.append({"team": td.team, "date": td.date.isoformat(), "site": td.site, "stations": len(td.stations),
@@ -692,7 +701,9 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     calendar = folder / f"season_{year}.ics"
     sub = dataclasses.replace(plan, team_days=tuple(chosen))
     calendar.write_text(fieldpack.team_day_calendar(sub, crs=programme.crs_epsg, dtstamp=now,
-                                                    programme=programme.code), encoding="utf-8", newline="")
+                                                    programme=programme.code,
+                                                    time_zone=_settings(programme).get("time_zone") or "UTC"),
+                        encoding="utf-8", newline="")
     return PackResult(folder=folder, calendar=calendar, team_days=written)
 
 
