@@ -690,10 +690,13 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
             plan, td.team, td.date, stations, crs=programme.crs_epsg, targets=targets, covariates=covariates,
             visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now)
         (out / "field_sheet.html").write_text(fieldpack.render_field_sheet(context), encoding="utf-8")
-    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into) and ``entry_sheet.xlsx`` (the
-    same with drop-down lists for status and observers), ``route.gpx`` (GPX 1.1 waypoints and route),
-    ``phone_sheet.html`` (the offline sheet for a phone: checks as typed, keeps the work in the browser,
-    exports the entry CSV).  In ``folder``: ``season_<year>.ics`` with one event per
+        entry = fieldpack.field_sheet_frame(context)
+        entry.to_csv(out / "entry_sheet.csv", index=False)
+        value_columns = [h for h in entry.columns if ":" in h]
+        entry_workbook(out / "entry_sheet.xlsx", entry.drop(columns=value_columns), statuses=C.VISIT_STATUSES,
+                       observers=observer_codes, value_columns=value_columns,
+                       title=f"{programme.name}: {td.site}, team {td.team}, {td.date.isoformat()}")
+        (out / PHONE_SHEET).write_text(fieldpack.render_phone_sheet(context, targets, covariates), encoding="utf-8")
         (out / "route.gpx").write_text(fieldpack.team_day_gpx(plan, td.team, td.date, stations,
                                                               crs=programme.crs_epsg), encoding="utf-8")
         written.append({"team": td.team, "date": td.date.isoformat(), "site": td.site, "stations": len(td.stations),
