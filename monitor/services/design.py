@@ -22,7 +22,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import shapely
-from shapely.geometry import MultiPolygon, Point, Polygon, mapping, shape
+from shapely.geometry import LineString, MultiLineString, MultiPolygon, Point, Polygon, mapping, shape
 from shapely.geometry.base import BaseGeometry
 
 from monitor import columns as C
@@ -169,6 +169,47 @@ def read_polygons(path: Path, epsg: int, *, code_field: str | None = None) -> li
     return out
 
 
+def read_lines(path: Path, epsg: int) -> list[tuple[str, LineString]]:
+    """LineStrings of a GeoJSON file in the programme CRS: (code, name or feature number, line) per feature."""
+    path = Path(path)
+    file = path.name
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8-sig"))
+    except OSError as exc:
+        raise InputError(InputProblem(file, None, None, None, f"a readable file ({exc.strerror})")) from None
+    except (json.JSONDecodeError, UnicodeDecodeError):
+        raise InputError(InputProblem(file, None, None, None, "a GeoJSON file (valid UTF-8 JSON)")) from None
+    if isinstance(doc, dict) and doc.get("type") == "FeatureCollection":
+        features = doc.get("features") or []
+    elif isinstance(doc, dict) and doc.get("type") == "Feature":
+        features = [doc]
+    elif isinstance(doc, dict) and doc.get("type") in ("LineString", "MultiLineString"):
+        features = [{"type": "Feature", "geometry": doc, "properties": {}}]
+    else:
+        raise InputError(InputProblem(file, None, "type", None, "a GeoJSON FeatureCollection of LineStrings"))
+    crs_name = ((doc.get("crs") or {}).get("properties") or {}).get("name", "")
+    if crs_name:
+        m = re.search(r"EPSG:+(\d+)$", str(crs_name))
+        if m and int(m.group(1)) != int(epsg):
+            raise InputError(InputProblem(file, None, "crs", crs_name, f"the programme's CRS EPSG:{epsg}"))
+    if not features:
+        raise InputError(InputProblem(file, None, "features", None, "at least one LineString"))
+    out = []
+    for i, feature in enumerate(features, start=1):
+        try:
+            geometry = shape(feature.get("geometry"))
+        except (ValueError, TypeError, AttributeError, KeyError):
+            raise InputError(InputProblem(file, i, "geometry", None, "a GeoJSON LineString")) from None
+        parts = list(geometry.geoms) if isinstance(geometry, MultiLineString) else [geometry]
+        for part in parts:
+            if not isinstance(part, LineString) or part.is_empty or part.length <= 0:
+                raise InputError(InputProblem(file, i, "geometry", geometry.geom_type,
+                                              "a LineString with at least two distinct points"))
+            props = feature.get("properties") or {}
+            out.append((str(props.get("code") or props.get("name") or i), part))
+    return out
+
+
 # --- placing stations -------------------------------------------------------------------------------------
 
 
@@ -228,6 +269,8 @@ def place_stations(
     prefix: str | None = None,
     panel: str | None = None,
     strata: Path | None = None,
+    line: Path | None = None,
+    kind: str = "belt",
     allocation: str = "proportional",
     pilot_sd: dict[str, float] | None = None,
     established: dt.date | None = None,
@@ -247,9 +290,12 @@ def place_stations(
         raise InputError(InputProblem("--n", None, None, None, f"the number of stations for {method} placement"))
     if method in (C.PLACEMENT_SYSTEMATIC, C.PLACEMENT_TRANSECT) and not spacing:
         raise InputError(InputProblem("--spacing", None, None, None, f"a spacing [m] for {method} placement"))
-    if method == C.PLACEMENT_TRANSECT and (start is None or bearing is None or length is None):
+    if method == C.PLACEMENT_TRANSECT and line is None and (start is None or bearing is None or length is None):
         raise InputError(InputProblem("--start/--bearing/--length", None, None, None,
-                                      "a start point, bearing and length for a transect"))
+                                      "a drawn line (--line FILE.geojson) or a start point, bearing and length for a "
+                                      "transect"))
+    if line is not None and method != C.PLACEMENT_TRANSECT:
+        raise InputError(InputProblem("--line", None, None, str(line), "--method transect with a drawn line"))
     if min_separation < 0:
         raise InputError(InputProblem("--min-separation", None, None, min_separation, "a distance >= 0 [m]"))
     if quadrat is not None and (quadrat[0] <= 0 or quadrat[1] <= 0):
@@ -262,7 +308,7 @@ def place_stations(
             result = _place(session, programme, site, method, n=n, seed=seed, min_separation=min_separation,
                             exclude=exclude, spacing=spacing, start=start, bearing=bearing, length=length,
                             layout=layout, quadrat=quadrat, prefix=prefix, panel=panel, strata=strata,
-                            allocation=allocation, pilot_sd=pilot_sd,
+                            allocation=allocation, pilot_sd=pilot_sd, line=line, kind=kind,
                             established=established or dt.date.today(), dry_run=dry_run)
             if dry_run:
                 session.rollback()
@@ -273,7 +319,7 @@ def place_stations(
 
 def _place(session: Session, programme: M.Programme, site_code: str, method: str, *, n, seed, min_separation,
            exclude, spacing, start, bearing, length, layout, quadrat, prefix, panel, strata, allocation,
-           pilot_sd, established, dry_run) -> PlaceResult:
+           pilot_sd, established, dry_run, line=None, kind="belt") -> PlaceResult:
     pid = programme.id
     site, geometry = site_geometry(session, pid, site_code)
     panel_id = None
@@ -297,8 +343,14 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
     stratum_ids: dict[str, int] = {}
     if method == C.PLACEMENT_TRANSECT:
         code = prefix or _free_transect_code(site_code, existing)
+        drawn = None
+        if line is not None:
+            lines = read_lines(line, programme.crs_epsg)
+            if len(lines) != 1:
+                raise InputError(InputProblem(Path(line).name, None, "features", len(lines), "exactly one LineString"))
+            drawn = lines[0][1]
         placement = D.transect(geometry, rng, spacing=float(spacing), start=start, bearing=bearing,
-                               length=length, layout=layout, kind="belt", width=float(width),
+                               length=length, line=drawn, layout=layout, kind=kind, width=float(width),
                                quadrat_length=float(qlength) if layout == "interrupted" else None,
                                exclusions=exclusions, code=code)
     else:
