@@ -388,6 +388,7 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
         ))
     session.add_all(rows)
     session.flush()
+    _store_run(session, pid, site.id, placement, exclusions, min_separation, None)
     shown = frame.copy()
     shown.insert(1, C.SITE, site_code)
     if panel is not None:
@@ -395,6 +396,126 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
     return PlaceResult(site=site_code, method=placement.method, seed=placement.seed, stations=shown,
                        diagnostics=placement.diagnostics, stored=not dry_run, strata_added=strata_added,
                        params={**placement.params, "first_season": first_season})
+
+
+#: what a placement run keeps of each of its stations, to be extended later
+RUN_STATION_FIELDS = (C.STATION, C.STRATUM, "order", "halton_index")
+
+
+def _store_run(session: Session, programme_id: int, site_id: int, placement: D.Placement,
+               exclusions: list[BaseGeometry], min_separation: float, extends: int | None) -> M.PlacementRun:
+    """Record the run: method, seed, inputs (exclusions as GeoJSON) and its stations in order."""
+    members = [{k: rec.get(k) for k in RUN_STATION_FIELDS if k in rec}
+               for rec in placement.stations.to_dict(orient="records")]
+    prefix = placement.params.get("prefix") or re.sub(r"\d+$", "", str(members[0][C.STATION])) if members else ""
+    params = {**_jsonable(placement.params), "prefix": prefix, "min_separation": float(min_separation),
+              "exclusions": [mapping(g) for g in exclusions], "stations": _jsonable(members)}
+    run = M.PlacementRun(programme_id=programme_id, site_id=site_id, method=placement.method, seed=int(placement.seed),
+                         extends_id=extends, n_stations=len(members), params_json=json.dumps(params, default=list))
+    session.add(run)
+    session.flush()
+    return run
+
+
+EXTENDABLE = (C.PLACEMENT_BALANCED, C.PLACEMENT_STRATIFIED, C.PLACEMENT_RANDOM)
+
+
+def extend_stations(db: str | None, site: str, n: int, *, seed: int | None = None, run: int | None = None,
+                    panel: str | None = None, established: dt.date | None = None, dry_run: bool = False,
+                    programme_code: str | None = None) -> PlaceResult:
+    """Add ``n`` stations to the latest balanced, stratified or random placement of ``site`` (or run ``run``).
+
+    Balanced: the stored random-start Halton order continues (no new draws; the seed stays the first
+    run's). Stratified: the total is allocated again by the placement's own rule and each stratum gets
+    its shortfall, drawn at random. Random: new draws. Both draw with a new seed, stored with the new
+    stations. Exclusions and the minimum separation are the first placement's; new stations also keep
+    that separation from every station in service in the site.
+    """
+    if n is None or n < 1:
+        raise InputError(InputProblem("--n", None, None, n, "the number of stations to add (at least 1)"))
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            result = _extend(session, programme, site, int(n), seed, run, panel, established or dt.date.today())
+            if dry_run:
+                session.rollback()
+                result.stored = False
+        return result
+    finally:
+        store.dispose()
+
+
+def _extend(session: Session, programme: M.Programme, site_code: str, n: int, seed: int | None, run_id: int | None,
+            panel: str | None, established: dt.date) -> PlaceResult:
+    pid = programme.id
+    site, geometry = site_geometry(session, pid, site_code)
+    runs = session.exec(select(M.PlacementRun).where(M.PlacementRun.site_id == site.id)
+                        .order_by(M.PlacementRun.id)).all()
+    runs = [r for r in runs if r.method in EXTENDABLE]
+    if run_id is not None:
+        runs = [r for r in runs if r.id == run_id]
+    if not runs:
+        raise DataError(f"site {site_code} has no stored balanced, stratified or random placement to extend"
+                        + (f" with run {run_id}" if run_id is not None else "")
+                        + " (placements are stored from this version on; place with `monitor design place`)")
+    head = runs[-1]
+    chain = [head]
+    while chain[-1].extends_id is not None:
+        chain.append(session.get(M.PlacementRun, chain[-1].extends_id))
+    chain.reverse()
+    first_params = json.loads(chain[0].params_json)
+    exclusions = [shape(g) for g in first_params.get("exclusions", [])]
+    members = [m for r in chain for m in json.loads(r.params_json)["stations"]]
+    stations = {s.code: s for s in session.exec(select(M.Station).where(M.Station.programme_id == pid)).all()}
+    old = pd.DataFrame([{**m, C.X: stations[m[C.STATION]].x, C.Y: stations[m[C.STATION]].y,
+                         C.QUADRAT_WIDTH: stations[m[C.STATION]].quadrat_width_m,
+                         C.QUADRAT_LENGTH: stations[m[C.STATION]].quadrat_length_m} for m in members])
+    own = set(old[C.STATION])
+    avoid = [(s.x, s.y) for s in stations.values()
+             if s.site_id == site.id and s.state == "in_service" and s.code not in own]
+    params = dict(first_params)
+    params.pop("stations", None)
+    placement = D.Placement(chain[0].method, chain[0].seed, old, params)
+    prefix = params.get("prefix") or f"{site_code}-{METHOD_LETTER[chain[0].method]}"
+    first = _next_number(list(stations), prefix)
+    if chain[0].method == C.PLACEMENT_BALANCED:
+        grown = D.extend_balanced(placement, geometry, n, exclusions=exclusions, avoid=avoid, prefix=prefix,
+                                  first_number=first)
+        new = grown.stations.iloc[len(old):].reset_index(drop=True)
+        added = D.Placement(C.PLACEMENT_BALANCED, chain[0].seed, new, grown.params, grown.diagnostics)
+    elif chain[0].method == C.PLACEMENT_RANDOM:
+        added = D.extend_random(placement, geometry, n, fresh_seed(seed), exclusions=exclusions, avoid=avoid,
+                                prefix=prefix, first_number=first)
+    else:
+        strata, _ids, _added = _strata(session, programme, site, geometry, None)
+        added = D.extend_stratified(placement, strata, n, fresh_seed(seed), exclusions=exclusions, avoid=avoid,
+                                    prefix=prefix, first_number=first)
+    frame = added.stations
+    if frame.empty:
+        raise DesignError(f"no station could be added to site {site_code}: the usable area is full at this separation")
+    stratum_ids = {r.code: r.id for r in session.exec(select(M.Stratum).where(M.Stratum.site_id == site.id)).all()}
+    panel_id = None
+    if panel is not None:
+        row = session.exec(select(M.Panel).where(M.Panel.programme_id == pid, M.Panel.code == panel)).first()
+        if row is None:
+            raise DataError(f"no panel '{panel}' in the programme")
+        panel_id = row.id
+    rows = [M.Station(programme_id=pid, code=rec[C.STATION], site_id=site.id,
+                      stratum_id=stratum_ids.get(rec.get(C.STRATUM)) if rec.get(C.STRATUM) else None,
+                      panel_id=panel_id, placement=added.method, placement_seed=added.seed, x=float(rec[C.X]),
+                      y=float(rec[C.Y]), crs_epsg=programme.crs_epsg, fix_method=FIX_PLANNED,
+                      quadrat_width_m=float(rec[C.QUADRAT_WIDTH]), quadrat_length_m=float(rec[C.QUADRAT_LENGTH]),
+                      established=established) for rec in frame.to_dict(orient="records")]
+    session.add_all(rows)
+    session.flush()
+    run = _store_run(session, pid, site.id, added, exclusions, float(params.get("min_separation") or 0.0), head.id)
+    shown = frame.copy()
+    shown.insert(1, C.SITE, site_code)
+    return PlaceResult(site=site_code, method=added.method, seed=added.seed, stations=shown,
+                       diagnostics=added.diagnostics, stored=True,
+                       params={"run": run.id, "extends": head.id, "stations_before": len(old),
+                               "stations_after": len(old) + len(frame)})
 
 
 def _free_transect_code(site_code: str, existing: list[M.Station]) -> str:
