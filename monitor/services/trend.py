@@ -15,7 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, Diagnostic, InputError, InputProblem
 from monitor.settings import DEFAULT_CHANGE_MARGIN
 from monitor.trend import TrendModel, TrendResult, default_family
@@ -80,6 +80,7 @@ def fit_one(data: pd.DataFrame, measure: str, *, family: str | None = None, marg
     return model.fit(profile=profile, indices=indices)
 
 
+@one_snapshot
 def fit_programme(db: str | None, *, programme_code: str | None = None, species: list[str] | None = None,
                   sites: list[str] | None = None, first_year: int | None = None, last_year: int | None = None,
                   family: str | None = None, observer_effect: bool = False, keep_data: bool = False,
