@@ -8,6 +8,7 @@ import click
 
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
+from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 
 
 def _pct(x: float | None) -> str:
@@ -42,7 +43,7 @@ def trend_rows(trends) -> list[dict]:
               help="Fit a long table from elsewhere (station, year, optional site, and count / cover_pct / "
                    "occupied+cells / hits+pins / present) instead of the database.")
 @click.option("--margin", type=float, default=None,
-              help="Margin of change that matters, fraction a year (with --table; default 0.02).")
+              help=f"Margin of change that matters, fraction a year (with --table; default {DEFAULT_CHANGE_MARGIN:g}).")
 @format_option
 @click.pass_obj
 def trend_command(ctx: Context, species, sites, first_year, last_year, family, observer_effect, table, margin,
@@ -52,7 +53,7 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
 
     fmt = chosen_format(as_json, as_csv)
     if table is not None:
-        trends = [trend.fit_table(table, family=family, margin=margin if margin is not None else 0.02,
+        trends = [trend.fit_table(table, family=family, margin=change_margin(margin),
                                   observer_effect=observer_effect)]
     else:
         with progress(1, "fitting") as bar:

@@ -17,6 +17,7 @@ from sqlalchemy import CheckConstraint, Column, ForeignKey, Index, Integer, Meta
 from sqlmodel import Field, SQLModel
 
 from monitor import columns as C
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 NAMING_CONVENTION = {
     "ix": "ix_%(column_0_label)s",
@@ -63,7 +64,7 @@ class Programme(SQLModel, table=True):
     default_quadrat_length_m: float = 1.0
     blanks_mean_zero: bool = False
     allow_lone_working: bool = False
-    change_margin: float = Field(default=0.02, description="margin of change that matters [fraction a year]")
+    change_margin: float = Field(default=DEFAULT_CHANGE_MARGIN, description="margin of change that matters [fraction a year]")
     settings_json: str = Field(default="{}", description="further settings as JSON (effort, units, ...)")
     created_at: dt.datetime = Field(default_factory=lambda: utcnow())
 

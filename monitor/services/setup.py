@@ -22,6 +22,7 @@ from monitor.errors import InputError, InputProblem
 from monitor.io import headers as H
 from monitor.io import programme as readers
 from monitor.io.settings import read_programme_json
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 #: start year stored for an every-year panel given without one: it is due in every season on record
 ALWAYS_SINCE = 1900
@@ -102,7 +103,7 @@ def create_programme(session: Session, path: Path) -> M.Programme:
         default_quadrat_length_m=meta.get("default_quadrat_length_m", 1.0),
         blanks_mean_zero=meta.get("blanks_mean_zero", False),
         allow_lone_working=meta.get("allow_lone_working", False),
-        change_margin=meta.get("change_margin", 0.02),
+        change_margin=meta.get("change_margin", DEFAULT_CHANGE_MARGIN),
         settings_json=json.dumps(meta.get("settings", {}), sort_keys=True),
     )
     session.add(programme)

@@ -17,6 +17,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DataError, Diagnostic, InputError, InputProblem
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 from monitor.trend import TrendModel, TrendResult, default_family
 
 
@@ -124,7 +125,7 @@ MEASURE_BY_COLUMNS = [
 ]
 
 
-def fit_table(path: Path, *, measure: str | None = None, family: str | None = None, margin: float = 0.02,
+def fit_table(path: Path, *, measure: str | None = None, family: str | None = None, margin: float = DEFAULT_CHANGE_MARGIN,
               observer_effect: bool = False) -> SpeciesTrend:
     """Fit a plain long table brought from elsewhere: station, year, optional site, and the measure's columns."""
     path = Path(path)
