@@ -763,8 +763,10 @@ class TrendModel:
         if indices or self.year_effect == "factor":
             fit_fac, spec_fac = self._fit_factor(olre, diags)
         natural = _NaturalScale(self, eps)
-        yearly, idx_df = self._yearly(spec_fac, fit_fac, natural)
-        line, fitted, level = self._line(spec_lin, fit_lin, spec_fac, fit_fac, q, natural)
+        # one averaging variance (the trend model's) for points and line: one baseline on both scales
+        s2 = natural.marginal_variance(fit_lin)
+        yearly, idx_df = self._yearly(spec_fac, fit_fac, natural, s2)
+        line, fitted, level = self._line(spec_lin, fit_lin, spec_fac, fit_fac, q, natural, s2)
         primary, pspec = (fit_fac, spec_fac) if (self.year_effect == "factor" and fit_fac is not None) \
             else (fit_lin, spec_lin)
         params = pd.Series(primary.beta, index=pspec.x_names, name="estimate")
@@ -841,14 +843,14 @@ class TrendModel:
         return fit_fac, spec_fac
 
     # ------------------------------------------------------------------ yearly estimates and the line
-    def _yearly(self, spec, fit, natural: _NaturalScale) -> tuple[pd.DataFrame | None, pd.DataFrame]:
-        """Yearly estimates on the natural scale and as indices relative to the base year."""
+    def _yearly(self, spec, fit, natural: _NaturalScale, s2: float) -> tuple[pd.DataFrame | None, pd.DataFrame]:
+        """Yearly estimates on the natural scale (averaged over the trend model's variance s2) and as
+        indices relative to the base year."""
         empty = pd.DataFrame({"year": pd.Series([], dtype=int), "index": pd.Series([], dtype=float),
                               "lower": pd.Series([], dtype=float), "upper": pd.Series([], dtype=float)})
         if fit is None:
             return None, empty
         z = norm.ppf(0.975)
-        s2 = natural.marginal_variance(fit)
         per_year = self.data.groupby(C.YEAR)["_station_key"].nunique()
         nat, rel = [], []
         k0 = spec.x_names.index(INTERCEPT)
@@ -878,7 +880,7 @@ class TrendModel:
         yearly["n_stations"] = yearly["year"].map(per_year).astype(int)
         return yearly, pd.DataFrame(rel, columns=["year", "index", "lower", "upper"])
 
-    def _line(self, spec, fit, spec_fac, fit_fac, q: float, natural: _NaturalScale):
+    def _line(self, spec, fit, spec_fac, fit_fac, q: float, natural: _NaturalScale, s2: float):
         """The fitted trend: natural scale, relative to the base of the indices, and first against last year."""
         k0, k1 = spec.x_names.index(INTERCEPT), spec.x_names.index(SLOPE)
         V = fit.vcov[np.ix_([k0, k1], [k0, k1])]
@@ -887,7 +889,6 @@ class TrendModel:
         tt = yrs - self.centre
         eta = b[0] + b[1] * tt
         se = np.sqrt(V[0, 0] + 2 * tt * V[0, 1] + tt * tt * V[1, 1])
-        s2 = natural.marginal_variance(fit)
         line = pd.DataFrame({"year": yrs, "fit": natural.value(eta, s2), "lower": natural.value(eta - q * se, s2),
                              "upper": natural.value(eta + q * se, s2)})
         if fit_fac is not None:
