@@ -194,6 +194,9 @@ def history_command(ctx: Context, code: str, as_json: bool) -> None:
     emit(history["photos"], title="\nPhotos")
     emit(history["quality_flags"], columns=["id", "kind", "species", "year", "state", "detail"],
          title="\nQuality flags")
+    if len(history["lineage"]):
+        emit(history["lineage"], title="\nLineage (relocations of this quadrat's series; the new station continues "
+                                       "the old one)")
 
 
 @cli.group("quality", invoke_without_command=True)

@@ -69,6 +69,18 @@ for _kind, _what in (
     _one_kind(_kind, _what)
 
 
+@setup_group.command("blank")
+@click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
+def setup_blank(folder: Path) -> None:
+    """Write blank set-up files into FOLDER: each with its headers and one example row, ready to fill in
+    (docs/files.md describes every column). Nothing is overwritten."""
+    from monitor.io.blank import write_blank_setup
+
+    for path in write_blank_setup(folder):
+        say(f"wrote {path}")
+    say(f"fill them in, then: monitor setup all {folder}")
+
+
 @cli.command("summary")
 @format_option
 @click.pass_obj

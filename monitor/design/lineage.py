@@ -90,11 +90,17 @@ class Relocation:
         """Straight-line distance moved [m] (projected coordinates)."""
         return float(math.hypot(self.new_xy[0] - self.old_xy[0], self.new_xy[1] - self.old_xy[1]))
 
+    @property
+    def bearing_deg(self) -> float:
+        """Grid bearing from the old position to the new one [degrees clockwise from grid north]."""
+        dx, dy = self.new_xy[0] - self.old_xy[0], self.new_xy[1] - self.old_xy[1]
+        return float(math.degrees(math.atan2(dx, dy)) % 360.0)
+
     def note(self) -> str:
-        """The line written into the new station's relocation notes."""
+        """The line written into the new station's relocation notes (how to find it from the old one)."""
         why = "marker lost" if self.lost else "moved"
-        return (f"continues {self.old} ({why} {self.date}: {self.reason}); "
-                f"{self.distance_m:.1f} m from the old position")
+        return (f"continues {self.old} ({why} {self.date}); {self.distance_m:.1f} m at grid bearing "
+                f"{self.bearing_deg:03.0f} from the old position")
 
 
 def lineage_table(stations: pd.DataFrame) -> pd.DataFrame:

@@ -26,6 +26,7 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.errors import InputError, InputProblem
+from monitor.io import filespec as FS
 from monitor.io import headers as H
 from monitor.io._tables import (
     _COV_RE,
@@ -48,9 +49,11 @@ VISIT_COLUMNS = [C.STATION, C.DATE, C.YEAR, H.OBSERVERS, C.VISIT_STATUS, H.REPEA
 OBSERVATION_COLUMNS = [C.STATION, C.DATE, C.SPECIES, C.MEASURE, H.VALUE, H.N, H.SOURCE_ROW, H.SOURCE_FIELD]
 COVARIATE_COLUMNS = [C.STATION, C.DATE, "name", H.UNIT, H.VALUE, H.SOURCE_ROW]
 
-VISIT_REQUIRED = [C.STATION, C.DATE, C.VISIT_STATUS]
-VISIT_OPTIONAL = [H.OBSERVERS, H.REPEAT, C.PROTOCOL, H.NOTES]
-LONG_REQUIRED = VISIT_REQUIRED + [C.SPECIES, C.MEASURE, H.VALUE]
+# the visit columns, from the one definition of the file (docs/files.md is made from it); the value and
+# covariate columns are patterns (SPECIES:measure, cov:NAME[UNIT]) recognised by their form
+VISIT_REQUIRED = FS.RECORDS.required()
+VISIT_OPTIONAL = [f.name for f in FS.RECORDS.fields if not f.required and ":" not in f.name]
+LONG_REQUIRED = VISIT_REQUIRED + list(FS.RECORDS_LONG_EXTRA)
 LONG_OPTIONAL = VISIT_OPTIONAL + [H.N]
 
 _VALUE_HEADER = re.compile(r"^\s*([^:\s]+)\s*:\s*([A-Za-z_ ]+?)\s*(?:/\s*(\S+))?\s*$")

@@ -877,10 +877,13 @@ def retire_station(db: str | None, code: str, *, reason: str | None, replaced_by
 
 def station_history(db: str | None, code: str, *, programme_code: str | None = None) -> dict:
     """A station's full history: the station, every visit with its observers and values, corrections
-    (change log), management events at the station or its site, photos, and quality flags.
+    (change log), management events at the station or its site, photos, quality flags, and the
+    relocations of the chain it belongs to (lineage).
 
     Values are keyed ``SPECIES:measure``; a missed or inaccessible visit has none (missing, not zero).
     """
+    from monitor.services.relocation import lineage_history
+
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
@@ -909,6 +912,7 @@ def station_history(db: str | None, code: str, *, programme_code: str | None = N
             "events": queries.station_events(store, st.id),
             "photos": queries.station_photos(store, st.id),
             "quality_flags": flags.reset_index(drop=True),
+            "lineage": lineage_history(store, programme.id, code),
         }
     finally:
         store.dispose()

@@ -104,7 +104,9 @@ def create_programme(session: Session, path: Path) -> M.Programme:
         blanks_mean_zero=meta.get("blanks_mean_zero", False),
         allow_lone_working=meta.get("allow_lone_working", False),
         change_margin=meta.get("change_margin", DEFAULT_CHANGE_MARGIN),
-        settings_json=json.dumps(meta.get("settings", {}), sort_keys=True),
+        settings_json=json.dumps({**meta.get("settings", {}),
+                                  **({"time_zone": meta["time_zone"]} if meta.get("time_zone") else {})},
+                                 sort_keys=True),
     )
     session.add(programme)
     session.flush()
@@ -198,7 +200,7 @@ def load_stations(session: Session, programme: M.Programme, path: Path, report: 
         if repl is not None and repl not in in_file and repl not in existing:
             problems.append(InputProblem(file, n, "replaced_by", repl, "the code of a station in this file or the programme"))
         if _none(row.get(C.STRATUM)) is not None:
-            problems.append(InputProblem(file, n, "stratum", row[C.STRATUM], "no stratum (strata are set by `monitor design`)"))
+            problems.append(InputProblem(file, n, "stratum", row[C.STRATUM], "no stratum (strata are set by `monitor design place SITE --method stratified`)"))
     if problems:
         raise InputError(problems)
     objects: dict[str, M.Station] = {}

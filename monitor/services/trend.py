@@ -126,6 +126,9 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                 raise InputError(InputProblem("--species", None, None, ", ".join(unknown),
                                               f"a target species code ({', '.join(targets[C.SPECIES])})"))
             targets = targets[targets[C.SPECIES].isin(species)]
+        from monitor.services.relocation import lineage
+
+        chains = lineage(store, programme.id)
         out = []
         for i, target in enumerate(targets.to_dict(orient="records")):
             if progress:
@@ -135,6 +138,7 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                                              last_year=last_year)
             if long.empty:
                 raise DataError(f"no stored values for {target[C.SPECIES]} ({target[C.MEASURE]}) in the years asked")
+            long[C.LINEAGE] = long[C.STATION].map(chains)
             data, notes = analysis_frame(long, target[C.MEASURE])
             try:
                 result = fit_one(data, target[C.MEASURE], margin=change_margin(programme.change_margin),

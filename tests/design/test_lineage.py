@@ -35,3 +35,5 @@ def test_relocation_note():
     r = Relocation("CB-14", "CB-14R", "2020-04-20", "marker lost", True, (0.0, 0.0), (6.0, 8.0))
     assert r.distance_m == 10.0
     assert "continues CB-14" in r.note() and "10.0 m" in r.note()
+    # atan2(6, 8) = 36.87 degrees east of grid north
+    assert round(r.bearing_deg, 2) == 36.87 and "bearing 037" in r.note()
