@@ -342,7 +342,8 @@ class TrendResult:
             f"{self.years[0]}-{self.years[1]}",
             f"  {self.n_obs} visits, {self.n_stations} stations, {self.n_sites} sites, {self.n_years} years",
             f"  year effect: {self.year_random}{'; site-by-year effect' if self.site_by_year else ''}; "
-            f"estimator: {self.estimator}; intervals: {self.df_method}",
+            f"estimator: {self.estimator}; intervals: {self.interval_label}"
+            + ("" if self.df_method == "z" else f" ({self.df_method})"),
             f"  {self.change_label}: {100 * ac.estimate:+.1f} % a year (95 % CI {100 * ac.lower:+.1f} to "
             f"{100 * ac.upper:+.1f}, Wald, {self.interval_label})",
         ]
@@ -668,9 +669,11 @@ class TrendModel:
                                   "(a covariate is constant or duplicates another)")
         return X, list(cols.keys()), t
 
-    def _spec(self, year_effect: str, olre: bool, d: pd.DataFrame | None = None
+    def _spec(self, year_effect: str, olre: bool | None = None, d: pd.DataFrame | None = None
               ) -> tuple[GlmmSpec, np.ndarray, float | None]:
         d = self.data if d is None else d
+        if olre is None:   # the family's own observation-level effect, or the one asked for
+            olre = self.family == "poisson-lognormal" or bool(self.observation_effect)
         fam, eps = self._response(d)
         X, names, t = self._design(d, year_effect)
         st = pd.factorize(d["_station_key"])[0]
@@ -996,7 +999,7 @@ def _reference(fit: GlmmFit, j: int) -> tuple[float, float, str]:
     coef_df = getattr(fit, "coef_df", None)
     df = math.inf if coef_df is None else float(coef_df[j])
     if not math.isfinite(df):
-        return float(norm.ppf(0.975)), math.inf, "normal (z) reference: no year effect in the model"
+        return float(norm.ppf(0.975)), math.inf, str(getattr(fit, "df_method", "z"))
     return float(t_dist.ppf(0.975, df)), df, str(getattr(fit, "df_method", f"t, {df:g} df"))
 
 
