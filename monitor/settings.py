@@ -13,6 +13,10 @@ exists, overrides the default through :func:`change_margin`.
 ``MIN_TREND_YEARS``, ``MIN_TREND_STATIONS``
     Below these a trend call is "unclear" by rule, and fewer stations than this are warned about
     when stations are placed (common practice minimums).
+``MIN_YEAR_EFFECT_YEARS``
+    From this many years with data the trend engine fits a year random effect by default (with an
+    intercept and a slope at the year level, 5 years leave 3 df for the year-to-year variance);
+    the power study's approximation follows the same rule.
 
 References
 ----------
@@ -27,6 +31,7 @@ import math
 DEFAULT_CHANGE_MARGIN = 0.02  # fraction per year; common practice
 MIN_TREND_YEARS = 5           # common practice minimum for a trend call
 MIN_TREND_STATIONS = 10       # common practice minimum for a trend call and for a placement
+MIN_YEAR_EFFECT_YEARS = 5     # a year random effect is fitted by default from this many years with data
 
 
 def change_margin(programme_value: float | None = None) -> float:
@@ -36,4 +41,4 @@ def change_margin(programme_value: float | None = None) -> float:
     return float(programme_value)
 
 
-__all__ = ["DEFAULT_CHANGE_MARGIN", "MIN_TREND_STATIONS", "MIN_TREND_YEARS", "change_margin"]
+__all__ = ["DEFAULT_CHANGE_MARGIN", "MIN_TREND_STATIONS", "MIN_TREND_YEARS", "MIN_YEAR_EFFECT_YEARS", "change_margin"]

@@ -11,7 +11,7 @@ from __future__ import annotations
 import click
 
 from monitor import __version__
-from monitor.errors import InputError, MonitorError
+from monitor.errors import MAX_LISTED, InputError, MonitorError
 
 
 class Context:
@@ -99,8 +99,10 @@ def main(argv: list[str] | None = None) -> int:
         exc.show()
         return exc.exit_code
     except InputError as exc:
-        for problem in exc.problems:
+        for problem in exc.problems[:MAX_LISTED]:
             click.echo(f"{'error' if problem.severity == 'error' else 'refused'}: {problem.line()}", err=True)
+        if exc.unlisted > 0:
+            click.echo(f"error: ... and {exc.unlisted:,} more not listed; {exc.summary()}", err=True)
         return exc.exit_code
     except MonitorError as exc:
         click.echo(f"error: {exc}", err=True)

@@ -36,6 +36,7 @@ from monitor import schedule as S
 from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.errors import DataError, DesignError, InputError, InputProblem, LockedError
+from monitor.io.sheets import entry_workbook
 from monitor.schedule import fieldpack
 from monitor.schedule.planner import ARRIVAL, ORDER, TEAM
 from monitor.schedule.season import (
@@ -636,7 +637,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
 
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
     relocation notes, quadrat size, the last two visits' values, empty boxes and the safety
-    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into), ``route.gpx``
+    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into) and ``entry_sheet.xlsx`` (the
+    same with drop-down lists for status and observers), ``route.gpx``
     (GPX 1.1 waypoints and route).  In ``folder``: ``season_<year>.ics`` with one event per
     team-day written.
     """
@@ -655,6 +657,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         protocols = store.frame("SELECT code, effective_from FROM protocol_version WHERE programme_id = :p "
                                 "ORDER BY effective_from", p=programme.id)
         species = queries.species(store, programme.id)
+        observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
+                                                       p=programme.id)["code"]]
         lineage_notes = relocation.lineage_notes(store, programme.id)
     finally:
         store.dispose()
@@ -681,7 +685,12 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
             plan, td.team, td.date, stations, crs=programme.crs_epsg, targets=targets, covariates=covariates,
             visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now)
         (out / "field_sheet.html").write_text(fieldpack.render_field_sheet(context), encoding="utf-8")
-        fieldpack.field_sheet_frame(context).to_csv(out / "entry_sheet.csv", index=False)
+        entry = fieldpack.field_sheet_frame(context)
+        entry.to_csv(out / "entry_sheet.csv", index=False)
+        value_columns = [h for h in entry.columns if ":" in h]
+        entry_workbook(out / "entry_sheet.xlsx", entry.drop(columns=value_columns), statuses=C.VISIT_STATUSES,
+                       observers=observer_codes, value_columns=value_columns,
+                       title=f"{programme.name}: {td.site}, team {td.team}, {td.date.isoformat()}")
         (out / "route.gpx").write_text(fieldpack.team_day_gpx(plan, td.team, td.date, stations,
                                                               crs=programme.crs_epsg), encoding="utf-8")
         written.append({"team": td.team, "date": td.date.isoformat(), "site": td.site, "stations": len(td.stations),
@@ -689,7 +698,9 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     calendar = folder / f"season_{year}.ics"
     sub = dataclasses.replace(plan, team_days=tuple(chosen))
     calendar.write_text(fieldpack.team_day_calendar(sub, crs=programme.crs_epsg, dtstamp=now,
-                                                    programme=programme.code), encoding="utf-8", newline="")
+                                                    programme=programme.code,
+                                                    time_zone=_settings(programme).get("time_zone") or "UTC"),
+                        encoding="utf-8", newline="")
     return PackResult(folder=folder, calendar=calendar, team_days=written)
 
 

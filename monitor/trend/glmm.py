@@ -83,6 +83,7 @@ from scipy.linalg import lapack
 from scipy.optimize import minimize
 
 from monitor.errors import Diagnostic
+from monitor.settings import MIN_YEAR_EFFECT_YEARS as YEAR_EFFECT_MIN_YEARS
 
 from .families import Family, Gaussian
 
@@ -119,11 +120,10 @@ class Term:
             raise ValueError(f"random-effect structure must be one of {TERM_STRUCTURES} (got {self.structure!r})")
 
 
-# The year effect is on by default when the series has at least this many years with data:
-# with an intercept and a slope at the year level, 5 years leave 3 df for the year-to-year
-# variance, the fewest with which its estimate means anything; with fewer years the trend
-# call is 'unclear' by rule anyway (monitor.trend.call).
-YEAR_EFFECT_MIN_YEARS = 5
+# The year effect is on by default when the series has at least YEAR_EFFECT_MIN_YEARS years with
+# data (monitor/settings.py): with an intercept and a slope at the year level, 5 years leave 3 df
+# for the year-to-year variance, the fewest with which its estimate means anything; with fewer
+# years the trend call is 'unclear' by rule anyway (monitor.trend.call).
 
 
 def default_year_effect(n_years_with_data: int) -> bool:
