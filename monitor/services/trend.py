@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, Diagnostic, EstimationError, InputError, InputProblem
 from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 from monitor.trend import TrendModel, TrendResult
@@ -103,6 +103,7 @@ def fit_one(data: pd.DataFrame, measure: str, *, margin: float, choices: ModelCh
     return model.fit(profile=profile, indices=indices, fast=False)
 
 
+@one_snapshot
 def fit_programme(db: str | None, *, programme_code: str | None = None, species: list[str] | None = None,
                   sites: list[str] | None = None, first_year: int | None = None, last_year: int | None = None,
                   family: str | None = None, observer_effect: bool = False, keep_data: bool = False,
