@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DesignError, EstimationError, InputError, InputProblem
 from monitor.power import (
     Design,
@@ -84,6 +84,7 @@ class PowerStudy:
                 "figure": None if self.figure is None else str(self.figure)}
 
 
+@one_snapshot
 def components_for(db: str | None, species: str, *, programme_code: str | None = None) -> tuple[VarianceComponents, str]:
     """The population model of a stored species: its fitted trend, and its grid or frame from the programme."""
     fitted = trend.fit_programme(db, programme_code=programme_code, species=[species], keep_data=True)

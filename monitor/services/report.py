@@ -14,7 +14,7 @@ import pandas as pd
 
 from monitor import __version__
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
 from monitor.report.render import report_files_in
@@ -148,6 +148,7 @@ def _sites_geometry(store: Store, programme_id: int) -> dict[str, dict]:
             if r["boundary_geojson"]}
 
 
+@one_snapshot
 def write_report(db: str | None, year: int, out_dir: Path | None = None, *, programme_code: str | None = None,
                  previous: Path | None = None, power: pd.DataFrame | None = None,
                  progress=None) -> Path:
