@@ -67,6 +67,8 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
                                          sites=list(sites) or None, first_year=first_year, last_year=last_year,
                                          family=family, observer_effect=observer_effect, progress=tick)
     write_workbook(xlsx, {"trends": trend_number_rows(trends)})
+    for short in getattr(trends, "not_called", ()):  # said, not fatal: the other species stand
+        say(short.line())
     if fmt == "json":
         emit([t.to_dict() for t in trends], fmt)
     elif fmt == "csv":  # numbers in columns of their own, for spreadsheets

@@ -16,9 +16,38 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.db import Store, one_snapshot, queries
-from monitor.errors import DataError, Diagnostic, InputError, InputProblem
+from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.settings import DEFAULT_CHANGE_MARGIN
 from monitor.trend import TrendModel, TrendResult, default_family
+
+
+@dataclass(frozen=True)
+class NotCalled:
+    """A target species whose trend cannot be called from the data (too short a series, too few stations)."""
+
+    species: str
+    common_name: str
+    measure: str
+    reason: str
+    years: tuple[int, ...] = ()
+
+    def line(self) -> str:
+        seasons = (f"data from {len(self.years)} season{'s' if len(self.years) != 1 else ''}"
+                   f" ({', '.join(map(str, self.years))})" if self.years else "no data")
+        return f"{self.species} ({self.measure}): too short to call: {seasons}; {self.reason}"
+
+    def to_dict(self) -> dict:
+        return {"species": self.species, "common_name": self.common_name, "measure": self.measure,
+                "call": "too short to call", "reason": self.reason, "years": list(self.years)}
+
+
+class TrendRun(list):
+    """The fitted trends (a list of :class:`SpeciesTrend`) and, in ``not_called``, the species that could not
+    be fitted, each with its reason."""
+
+    def __init__(self, *args):
+        super().__init__(*args)
+        self.not_called: list[NotCalled] = []
 
 
 @dataclass(frozen=True)
@@ -85,7 +114,11 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                   sites: list[str] | None = None, first_year: int | None = None, last_year: int | None = None,
                   family: str | None = None, observer_effect: bool = False, keep_data: bool = False,
                   progress: Callable[[int, int, str], None] | None = None) -> list[SpeciesTrend]:
-    """Fit every target species and measure of the programme (or those named)."""
+    """Fit every target species and measure of the programme (or those named).
+
+    A species whose trend cannot be fitted (one season of data, too few stations, no values) does not stop
+    the others: it is listed in the returned list's ``not_called`` as too short to call, with the reason.
+    """
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
@@ -99,7 +132,7 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
         from monitor.services.relocation import lineage
 
         chains = lineage(store, programme.id)
-        out = []
+        out = TrendRun()
         for i, target in enumerate(targets.to_dict(orient="records")):
             if progress:
                 progress(i, len(targets), target[C.SPECIES])
@@ -107,11 +140,19 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                                              measure=target[C.MEASURE], sites=sites, first_year=first_year,
                                              last_year=last_year)
             if long.empty:
-                raise DataError(f"no stored values for {target[C.SPECIES]} ({target[C.MEASURE]}) in the years asked")
+                out.not_called.append(NotCalled(target[C.SPECIES], target["common_name"] or "", target[C.MEASURE],
+                                                "no stored values in the years asked", ()))
+                continue
             long[C.LINEAGE] = long[C.STATION].map(chains)
             data, notes = analysis_frame(long, target[C.MEASURE])
-            result = fit_one(data, target[C.MEASURE], family=family, margin=programme.change_margin,
-                             observer_effect=observer_effect)
+            try:
+                result = fit_one(data, target[C.MEASURE], family=family, margin=programme.change_margin,
+                                 observer_effect=observer_effect)
+            except EstimationError as exc:  # this species cannot be called; the others still are
+                years = tuple(sorted(int(y) for y in set(data[C.YEAR]))) if C.YEAR in data else ()
+                out.not_called.append(NotCalled(target[C.SPECIES], target["common_name"] or "", target[C.MEASURE],
+                                                str(exc), years))
+                continue
             out.append(SpeciesTrend(target[C.SPECIES], target["common_name"] or "", target[C.MEASURE], result,
                                     tuple(notes), data if keep_data else None))
         if progress:
