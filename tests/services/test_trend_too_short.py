@@ -41,8 +41,9 @@ def test_a_one_season_species_is_too_short_to_call_and_the_rest_stand(db_url, tm
     capsys.readouterr()
     assert main(["--db", db_url, "trend", "--json"]) == 0
     captured = capsys.readouterr()
-    assert len(json.loads(captured.out)) == 5
-    assert "NEWSP (count): too short to call" in captured.err
+    rows = json.loads(captured.out)
+    assert len(rows) == 6 and [r["species"] for r in rows if r["call"] is None] == ["NEWSP"]
+    assert "NEWSP (count): not fitted: too short to call: data from 1 season (2024)" in captured.err
     # the report: written, with the five species and NEWSP said to be too short to call
     folder = report.write_report(db_url, 2024, tmp_path / "report")
     doc = json.loads((folder / "report.json").read_text())
