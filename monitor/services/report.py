@@ -6,6 +6,8 @@ The report folder is written to a temporary sibling and moved into place at the 
 
 from __future__ import annotations
 
+import dataclasses
+
 import datetime as dt
 import json
 from pathlib import Path
@@ -232,9 +234,11 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
                                           f"a species code of the programme ({', '.join(sorted(known_species))})"))
     trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True,
                                  sites=[site] if site else None, species=[species] if species else None)
+    not_called = list(getattr(trends, "not_called", []))
     if not trends:
+        reasons = "; ".join(n.line() for n in not_called)
         raise DataError("no target species to report" + (f" for site {site}" if site else "")
-                        + (f" for species {species}" if species else ""))
+                        + (f" for species {species}" if species else "") + (f": {reasons}" if reasons else ""))
     if power is None:
         from monitor.services.power import detectable_changes
 
@@ -313,6 +317,9 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
         )
     finally:
         store.dispose()
+    if not_called:  # species too short to call are said so; the rest of the report stands
+        context = dataclasses.replace(context, cautions=(*context.cautions, *(n.line() for n in not_called)),
+                                      not_called=tuple(n.to_dict() for n in not_called))
     try:
         return render_report(context, out_dir, progress=progress, pdf=pdf)
     except OSError as exc:
