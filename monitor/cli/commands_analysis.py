@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from pathlib import Path
 
 import click
@@ -11,7 +12,7 @@ from monitor.cli.output import chosen_format, emit, format_option, progress, say
 
 
 def _pct(x: float | None) -> str:
-    return "" if x is None else f"{100 * x:+.1f}"
+    return "" if x is None or x != x else f"{100 * x:+.1f}"
 
 
 def trend_rows(trends) -> list[dict]:
@@ -19,17 +20,38 @@ def trend_rows(trends) -> list[dict]:
     for t in trends:
         r = t.result
         ac = r.annual_change
-        rows.append({
-            "species": t.species, "measure": t.measure, "family": r.family, "stations": r.n_stations,
+        row = {"species": t.species, "measure": t.measure}
+        if any(x.area_kind != "all" for x in trends):
+            row["area"] = "all" if t.area_kind == "all" else f"{t.area_kind} {t.area}"
+        row.update({
+            "family": r.family, "stations": r.n_stations,
             "years": f"{r.years[0]}-{r.years[1]}",
             "annual change %": f"{_pct(ac.estimate)} ({_pct(ac.lower)} to {_pct(ac.upper)})",
             "over period %": f"{_pct(r.period_change.estimate)}",
             "call": r.call,
+            "fitted": _fitted(t),
         })
+        rows.append(row)
     return rows
 
 
-@cli.command("trend")
+def _fitted(t) -> str:
+    if t.fitted_at is None:
+        return ""
+    stamp = t.fitted_at.astimezone(dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
+    return f"{stamp} (stored)" if t.reused else stamp
+
+
+def parallel_options(func):
+    """``--workers`` and ``--cluster``: where the fits run."""
+    func = click.option("--cluster", default=None, metavar="tcp://HOST:PORT",
+                        help="Run the fits on this Dask scheduler's workers (results are stored here).")(func)
+    func = click.option("--workers", type=click.IntRange(min=1), default=None,
+                        help="Local processes fitting at once (default: the cores).")(func)
+    return func
+
+
+@cli.group("trend", invoke_without_command=True)
 @click.option("--species", "species", multiple=True, help="Species code (repeat for several; default all targets).")
 @click.option("--site", "sites", multiple=True, help="Only these sites (repeat for several).")
 @click.option("--from", "first_year", type=int, default=None, help="First season to use.")
@@ -38,18 +60,27 @@ def trend_rows(trends) -> list[dict]:
               default=None, help="Model family (default by measure: counts poisson-lognormal, k of n binomial, "
                                  "cover logit-normal).")
 @click.option("--observer-effect", is_flag=True, help="Add a random intercept for observer (crossed with station).")
+@click.option("--by", "by", type=click.Choice(["site", "stratum", "region"]), default=None,
+              help="Also a trend for each site, stratum or region (a site's region is set in sites.geojson).")
+@click.option("--refit", is_flag=True, help="Fit again even where a stored fit of the same data and model exists.")
+@parallel_options
 @click.option("--table", "table", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
               help="Fit a long table from elsewhere (station, year, optional site, and count / cover_pct / "
                    "occupied+cells / hits+pins / present) instead of the database.")
 @click.option("--margin", type=float, default=None,
               help="Margin of change that matters, fraction a year (with --table; default 0.02).")
 @format_option
-@click.pass_obj
-def trend_command(ctx: Context, species, sites, first_year, last_year, family, observer_effect, table, margin,
-                  as_json: bool, as_csv: bool) -> None:
-    """Fit mixed models across years: annual change with 95% intervals and the call for each species."""
+@click.pass_context
+def trend_command(click_ctx: click.Context, species, sites, first_year, last_year, family, observer_effect, by,
+                  refit, workers, cluster, table, margin, as_json: bool, as_csv: bool) -> None:
+    """Fit mixed models across years: annual change with 95% intervals and the call for each species.
+
+    Fits are stored and reused while the data, the model and the engine are unchanged."""
+    if click_ctx.invoked_subcommand is not None:
+        return
     from monitor.services import trend
 
+    ctx: Context = click_ctx.obj
     fmt = chosen_format(as_json, as_csv)
     if table is not None:
         trends = [trend.fit_table(table, family=family, margin=margin if margin is not None else 0.02,
@@ -62,11 +93,38 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
 
             trends = trend.fit_programme(ctx.db, programme_code=ctx.programme, species=list(species) or None,
                                          sites=list(sites) or None, first_year=first_year, last_year=last_year,
-                                         family=family, observer_effect=observer_effect, progress=tick)
+                                         family=family, observer_effect=observer_effect, by=by, refit=refit,
+                                         workers=workers, cluster=cluster, progress=tick)
+        reused = sum(t.reused for t in trends)
+        if reused:
+            say(f"{reused} of {len(trends)} fits reused from the stored fits (unchanged data, model and engine)")
     if fmt == "json":
         emit([t.to_dict() for t in trends], fmt)
     else:
         emit(trend_rows(trends), fmt)
+
+
+@trend_command.command("history")
+@click.argument("species")
+@click.option("--areas", is_flag=True, help="Also the calls by site, stratum or region.")
+@format_option
+@click.pass_obj
+def trend_history_command(ctx: Context, species: str, areas: bool, as_json: bool, as_csv: bool) -> None:
+    """The call each year's report gave a species, with its annual change and when the fit was made."""
+    from monitor.services import analyses
+
+    table = analyses.history(ctx.db, species, programme_code=ctx.programme, areas=areas)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt != "table":
+        emit(table, fmt)
+        return
+    if table.empty:
+        say(f"no report recorded for {species} yet (reports are recorded from `monitor report`)")
+        return
+    emit([{"report": r["report_year"], "species": r["species"], "measure": r["measure"], "area": r["area"],
+           "call": r["call"], "annual change %": f"{_pct(r['annual_change'])} ({_pct(r['lower'])} to "
+           f"{_pct(r['upper'])})", "years": r["years"], "fitted": r["fitted_at"], "reported": r["reported_at"]}
+          for r in table.to_dict(orient="records")])
 
 
 @cli.command("estimate")
@@ -197,13 +255,21 @@ def change_command(ctx: Context, species, first, second, site, figure, as_json, 
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path), default=None,
               help="Folder to write (default reports/YEAR); replaced as a whole, atomically.")
 @click.option("--previous", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
-              help="Last year's report.json (default: reports/YEAR-1/report.json next to --out, if present).")
+              help="Last year's report.json to compare with (default: the last report recorded in the database "
+                   "for YEAR-1, else reports/YEAR-1/report.json next to --out, if present).")
+@click.option("--by", "by", type=click.Choice(["site", "stratum", "region"]), default=None,
+              help="Add a table of trends by site, stratum or region.")
+@click.option("--refit", is_flag=True, help="Fit every trend again instead of reusing stored fits.")
+@parallel_options
 @click.pass_obj
-def report_command(ctx: Context, year: int, out_dir, previous) -> None:
-    """Write the annual trend summary for land managers: one self-contained HTML page, figures and numbers."""
+def report_command(ctx: Context, year: int, out_dir, previous, by, refit, workers, cluster) -> None:
+    """Write the annual trend summary for land managers: one self-contained HTML page, figures and numbers.
+
+    Stored fits of unchanged data are reused; the report says when each fit was made."""
     from monitor.services import report
 
-    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous)
+    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous, by=by,
+                                 refit=refit, workers=workers, cluster=cluster)
     say(f"report written: {folder / 'index.html'}")
 
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+from dataclasses import replace
 from pathlib import Path
 
 import pandas as pd
@@ -17,7 +18,9 @@ from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
-from monitor.services import estimate, trend
+from monitor.report.fits import FittedEntry, fit_rows, fits_note
+from monitor.services import analyses, estimate, trend
+from monitor.services.records import current_user
 from monitor.trend import station_changes
 
 REPORT_JSON = "report.json"
@@ -146,22 +149,49 @@ def _sites_geometry(store: Store, programme_id: int) -> dict[str, dict]:
             if r["boundary_geojson"]}
 
 
-def write_report(db: str | None, year: int, out_dir: Path | None = None, *, programme_code: str | None = None,
-                 previous: Path | None = None, power: pd.DataFrame | None = None,
-                 progress=None) -> Path:
-    """Fit every target species up to ``year`` and write the report folder; returns its path."""
-    out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
+def _read_previous(previous: Path | None) -> dict | None:
     if previous is None:
-        guess = out_dir.parent / str(year - 1) / REPORT_JSON
-        previous = guess if guess.is_file() else None
-    previous_doc = None
-    if previous is not None:
-        try:
-            previous_doc = json.loads(Path(previous).read_text(encoding="utf-8"))
-        except (OSError, json.JSONDecodeError) as exc:
-            raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
+        return None
+    try:
+        return json.loads(Path(previous).read_text(encoding="utf-8"))
+    except (OSError, json.JSONDecodeError) as exc:
+        raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
 
-    trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True)
+
+def _previous_from_database(db: str | None, year: int, programme_code: str | None) -> dict | None:
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        return analyses.previous_report(store, programme.id, year - 1)
+    finally:
+        store.dispose()
+
+
+def write_report(db: str | None, year: int, out_dir: Path | None = None, *, programme_code: str | None = None,
+                 previous: Path | None = None, power: pd.DataFrame | None = None, by: str | None = None,
+                 workers: int | None = 1, cluster: str | None = None, refit: bool = False,
+                 progress=None) -> Path:
+    """Write the report folder for ``year``; returns its path.
+
+    Trends come from the stored fits where the data, model and engine still match, and are fitted (by
+    ``workers`` local processes or on the Dask scheduler ``cluster``) and stored otherwise; ``by`` adds
+    trends by site, stratum or region.  Last year's calls are read from the database (the last report
+    recorded for ``year - 1``); ``previous`` names a report.json to compare with instead, and a report
+    folder of last year beside ``out_dir`` is read only when the database holds no report for that year.
+    The report and the fits it showed are recorded, so ``monitor trend history`` can tell what was said.
+    """
+    out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
+    previous_doc = _read_previous(previous)
+    if previous_doc is None:
+        previous_doc = _previous_from_database(db, year, programme_code)
+    if previous_doc is None:
+        guess = out_dir.parent / str(year - 1) / REPORT_JSON
+        previous_doc = _read_previous(guess if guess.is_file() else None)
+
+    fitted = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True, by=by,
+                                 workers=workers, cluster=cluster, refit=refit)
+    everything = fitted
+    trends = [t for t in fitted if t.area_kind == "all"]
     if not trends:
         raise DataError("no target species to report")
     if power is None:
@@ -221,11 +251,29 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             generated=dt.date.today().isoformat(),
             software={"monitor": __version__},
         )
+        entries = [FittedEntry(t.species, t.common_name, t.measure, t.area_kind, t.area, t.result, t.fitted_at,
+                               t.reused) for t in everything]
+        rows = fit_rows(entries)
+        context = replace(context, fits=rows, fits_note=fits_note(rows),
+                          areas=tuple(r for r in rows if r.area_kind != "all"), area_kind=by or "")
     finally:
         store.dispose()
     try:
-        return render_report(context, out_dir, progress=progress)
+        folder = render_report(context, out_dir, progress=progress)
     except OSError as exc:
         if exc.filename is None and exc.errno is not None:  # a failed write names no file (a full disk)
             raise OSError(exc.errno, exc.strerror, str(out_dir)) from exc
         raise
+    _record(db, programme_code, year, everything, folder)
+    return folder
+
+
+def _record(db: str | None, programme_code: str | None, year: int, trends, folder: Path) -> None:
+    """Record the report and the fits it showed (fits not stored, for a role that may not write, are not)."""
+    ids = [t.fit_id for t in trends if t.fit_id is not None]
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        analyses.record_report(store, programme.id, year, ids, folder=str(folder), who=current_user())
+    finally:
+        store.dispose()
