@@ -301,12 +301,15 @@ def _int_list(text: str) -> list[int]:
 @click.option("--replicates", type=int, default=200, show_default=True, help="Simulated data sets per design.")
 @click.option("--seed", type=int, default=1, show_default=True, help="Seed: the same seed gives the same answer.")
 @click.option("--workers", type=int, default=1, show_default=True, help="Processes to run in parallel.")
+@click.option("--cluster", default=None, metavar="tcp://HOST:PORT",
+              help="Run the replicates on this Dask scheduler's workers instead (the same answer).")
 @click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
               help="Save power against stations, one line per number of years.")
 @format_option
 @click.pass_obj
 def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, change, over_years, stations,
-                  years, revisit, missed, alpha, side, target, replicates, seed, workers, figure, as_json, as_csv):
+                  years, revisit, missed, alpha, side, target, replicates, seed, workers, cluster, figure, as_json,
+                  as_csv):
     """Can the design detect the change that matters? Simulated power per design, with the approximation beside it."""
     from monitor.power import VarianceComponents
     from monitor.services import power
@@ -324,7 +327,8 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
     with progress(total, "simulating") as bar:
         study = power.power_study(components, source, change=change, over_years=over_years, stations=station_list,
                                   years=year_list, revisit=revisit, missed_share=missed, alpha=alpha, side=side,
-                                  target=target, replicates=replicates, seed=seed, workers=workers, figure=figure,
+                                  target=target, replicates=replicates, seed=seed, workers=workers, cluster=cluster,
+                                  figure=figure,
                                   progress=lambda done, _n: bar.update(done - bar.pos))
     fmt = chosen_format(as_json, as_csv)
     if fmt == "json":

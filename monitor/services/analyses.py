@@ -156,7 +156,7 @@ def fit_tasks(store: Store, programme_id: int, tasks: list[FitTask], runner: Run
             except storage.StoredResultError:
                 continue  # written by code whose result no longer reads back: fit again
             if isinstance(result, TrendResult):
-                found[i] = (result, int(row["id"]), pd.Timestamp(row["fitted_at"]).to_pydatetime(), row["fitted_by"])
+                found[i] = (result, int(row["id"]), _utc(row["fitted_at"]), row["fitted_by"])
     todo = [i for i in range(len(tasks)) if i not in found]
     outcomes = runner.map(run_fit, [tasks[i] for i in todo], progress=progress)
     when = utcnow()
@@ -249,8 +249,12 @@ def history(db: str | None, species: str, *, programme_code: str | None = None,
     return out.reset_index(drop=True)
 
 
-def _stamp(value: object) -> str:
+def _utc(value: object) -> dt.datetime:
+    """A stored time as an aware UTC datetime (SQLite gives it back without its zone)."""
     stamp = pd.Timestamp(value)
-    if stamp.tzinfo is None:
-        stamp = stamp.tz_localize("UTC")
-    return stamp.tz_convert("UTC").strftime("%Y-%m-%d %H:%M UTC")
+    stamp = stamp.tz_localize("UTC") if stamp.tzinfo is None else stamp.tz_convert("UTC")
+    return stamp.to_pydatetime()
+
+
+def _stamp(value: object) -> str:
+    return _utc(value).strftime("%Y-%m-%d %H:%M UTC")

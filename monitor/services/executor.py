@@ -65,6 +65,12 @@ class Runner:
             return f"Dask cluster {self.cluster} ({n} worker{'s' if n != 1 else ''})"
         return f"{self.workers} local process{'es' if self.workers != 1 else ''}"
 
+    def cluster_workers(self) -> int:
+        """How many workers the cluster has now (0 without a cluster)."""
+        if self._client is None:
+            return 0
+        return len(self._client.scheduler_info().get("workers", {}))
+
     @property
     def executor(self) -> Executor | None:
         """A ``concurrent.futures.Executor`` for stages that take one (None: run in this process)."""
@@ -107,18 +113,16 @@ class Runner:
         return out
 
     def _map_dask(self, function, tasks, progress):
-        from distributed import as_completed
-
         client = self._client
         # the data go to the cluster once each, as scattered objects, not inside the task graph
         data = client.scatter(tasks)
         futures = client.map(function, data, pure=False)
-        done = 0
-        for _ in as_completed(futures):
-            done += 1
+        out = []
+        for i, future in enumerate(futures):
+            out.append(future.result())
             if progress:
-                progress(done, len(tasks))
-        return client.gather(futures)
+                progress(i + 1, len(tasks))
+        return out
 
     def close(self) -> None:
         if self._pool is not None:

@@ -29,6 +29,7 @@ from monitor.power import (
     smallest_design,
 )
 from monitor.services import trend
+from monitor.services.executor import open_runner
 
 
 @dataclass(frozen=True)
@@ -65,23 +66,31 @@ def power_study(components: VarianceComponents, source: str, *, change: float, o
                 stations: Sequence[int], years: Sequence[int], revisit: str = "[1-0]", missed_share: float = 0.0,
                 alpha: float = 0.05, side: str = "decline", margin: float = 0.02, target: float = 0.8,
                 replicates: int = 200, seed: int = 1, workers: int = 1, find_smallest: bool = True,
-                figure: Path | None = None, progress: Callable[[int, int], None] | None = None) -> PowerStudy:
-    """Simulated power of every stations x years design for a steady change of ``change`` over ``over_years``."""
+                figure: Path | None = None, progress: Callable[[int, int], None] | None = None,
+                cluster: str | None = None) -> PowerStudy:
+    """Simulated power of every stations x years design for a steady change of ``change`` over ``over_years``.
+
+    The replicates run in ``workers`` local processes, or on the Dask scheduler at ``cluster``; every
+    replicate is seeded from ``seed`` and its place, so the answer is the same wherever it runs."""
     if not stations or not years:
         raise InputError(InputProblem("--stations/--years", None, None, None, "at least one value each"))
     scenario = Scenario.from_change(change, over_years=over_years, alpha=alpha, side=side, margin=margin)
     designs = [Design(int(n), int(y), revisit=revisit, missed_share=missed_share) for y in years for n in stations]
     rng = np.random.default_rng(seed)
-    results = compare_designs(components, designs, scenario, rng=rng, n_replicates=replicates, n_workers=workers,
-                              progress=progress)
-    smallest = None
-    if find_smallest:
-        longest = max(years)
-        grid = sorted({*range(10, 201, 10), *stations})
-        smallest = smallest_design(components, scenario, Design(max(stations), longest, revisit=revisit,
-                                                                  missed_share=missed_share),
-                                   vary="n_stations", grid=grid, target=target,
-                                   rng=np.random.default_rng(seed + 1), n_replicates=replicates, n_workers=workers)
+    with open_runner(workers, cluster) as runner:
+        executor = runner.executor if cluster else None
+        n_workers = workers if not cluster else max(1, runner.cluster_workers())
+        results = compare_designs(components, designs, scenario, rng=rng, n_replicates=replicates,
+                                  n_workers=n_workers, progress=progress, executor=executor)
+        smallest = None
+        if find_smallest:
+            longest = max(years)
+            grid = sorted({*range(10, 201, 10), *stations})
+            smallest = smallest_design(components, scenario, Design(max(stations), longest, revisit=revisit,
+                                                                      missed_share=missed_share),
+                                       vary="n_stations", grid=grid, target=target,
+                                       rng=np.random.default_rng(seed + 1), n_replicates=replicates,
+                                       n_workers=n_workers, executor=executor)
     if figure is not None:
         import matplotlib.pyplot as plt
 
