@@ -106,6 +106,7 @@ def main() -> None:
         "default_quadrat_length_m": 1.0,
         "blanks_mean_zero": False,
         "allow_lone_working": False,
+        "time_zone": "Europe/London",
         "change_margin": 0.02,
         "settings": {"minutes_per_quadrat": {"count": 6, "cover": 4, "frequency": 8, "pin_hits": 6},
                      "setup_minutes": 5, "covariate_units": {"soil_moisture": "%"},

@@ -12,6 +12,7 @@ SITE = "site"                # site code
 STRATUM = "stratum"          # stratum code within a site (optional)
 REGION = "region"            # the programme's own grouping of sites (optional; a property of each site)
 STATION = "station"          # permanent quadrat code, unique in a programme
+LINEAGE = "lineage"          # first station of a relocation chain: a moved quadrat continues its series
 TRANSECT = "transect"        # transect code (stations laid along a line)
 SPECIES = "species"          # species code
 MEASURE = "measure"          # one of MEASURES below

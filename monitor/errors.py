@@ -27,6 +27,10 @@ class InputProblem:
     expected: str            # what was expected, in plain words
     severity: str = "error"  # "error" or "warning"
 
+    @property
+    def kind(self) -> str:
+        return problem_kind(self)
+
     def line(self) -> str:
         where = [self.file]
         if self.row is not None:
@@ -38,18 +42,104 @@ class InputProblem:
         return f"{', '.join(where)}{shown}; {label}expected {self.expected}"
 
 
-class InputError(MonitorError):
-    """A file (or option value) is wrong.  Carries every problem found, not just the first."""
+#: at most this many problems of one file are kept and listed; the rest are counted by kind, so that a
+#: million-row file of garbage costs neither gigabytes of memory nor millions of lines (common practice)
+MAX_LISTED = 100
 
-    def __init__(self, problems: list[InputProblem] | InputProblem | str):
+
+def problem_kind(problem: InputProblem) -> str:
+    """What a problem is about, without its row or value: its expected text up to any detail in brackets."""
+    text = problem.expected
+    for mark in (" (", "; ", " [", ": "):
+        cut = text.find(mark)
+        if cut > 0:
+            text = text[:cut]
+    return ("warning: " if problem.severity != "error" else "") + text
+
+
+class ProblemCounter:
+    """Keeps the first :data:`MAX_LISTED` problems in order of a key (row first) and counts all of them by kind.
+
+    Memory stays bounded however many problems a file has: a heap of the smallest keys, and one counter
+    per kind.
+    """
+
+    def __init__(self, limit: int = MAX_LISTED):
+        self.limit = limit
+        self._heap: list[tuple] = []          # (-key..., problem): a max-heap of the kept keys
+        self._seq = 0
+        self.counts: dict[str, int] = {}
+        self.total = 0
+        self.errors = 0
+
+    def add(self, problem: InputProblem, key: tuple | None = None, *, count: bool = True) -> None:
+        import heapq
+
+        if count:
+            self.total += 1
+            if problem.severity == "error":
+                self.errors += 1
+            kind = problem_kind(problem)
+            self.counts[kind] = self.counts.get(kind, 0) + 1
+        self._seq += 1
+        full = (*(key if key is not None else (self._seq,)), self._seq)
+        negated = tuple(-k for k in full)
+        if len(self._heap) < self.limit:
+            heapq.heappush(self._heap, (negated, problem))
+        elif negated > self._heap[0][0]:
+            heapq.heapreplace(self._heap, (negated, problem))
+
+    def merge(self, other: ProblemCounter) -> None:
+        """Add another collector's problems after this one's (its kept ones, and its counts of all)."""
+        for problem in other.kept():
+            self.add(problem, count=False)
+        for kind, n in other.counts.items():
+            self.counts[kind] = self.counts.get(kind, 0) + n
+        self.total += other.total
+        self.errors += other.errors
+
+    def merge_counts(self, other: ProblemCounter) -> None:
+        """Add another collector's counts (its problems already added with ``count=False``)."""
+        for kind, n in other.counts.items():
+            self.counts[kind] = self.counts.get(kind, 0) + n
+        self.total += other.total
+        self.errors += other.errors
+
+    def kept(self) -> list[InputProblem]:
+        return [problem for _key, problem in sorted(self._heap, key=lambda item: item[0], reverse=True)]
+
+
+class InputError(MonitorError):
+    """A file (or option value) is wrong.  Carries the problems found (every one, or the first
+    :data:`MAX_LISTED` with ``total`` and ``counts`` per kind of all of them)."""
+
+    def __init__(self, problems: list[InputProblem] | InputProblem | str, *, total: int | None = None,
+                 counts: dict[str, int] | None = None):
         if isinstance(problems, str):
             problems = [InputProblem(file="<input>", row=None, field=None, value=None, expected=problems)]
         elif isinstance(problems, InputProblem):
             problems = [problems]
         self.problems = list(problems)
+        self.total = max(total if total is not None else 0, len(self.problems))
+        if counts is None:
+            counts = {}
+            for problem in self.problems:
+                kind = problem_kind(problem)
+                counts[kind] = counts.get(kind, 0) + 1
+        self.counts = counts
         first = self.problems[0].line() if self.problems else "invalid input"
-        more = len(self.problems) - 1
+        more = self.total - 1
         super().__init__(first if more <= 0 else f"{first} (and {more} more problem{'s' if more > 1 else ''})")
+
+    @property
+    def unlisted(self) -> int:
+        """Problems counted but not listed (beyond the first :data:`MAX_LISTED`)."""
+        return self.total - min(len(self.problems), MAX_LISTED)
+
+    def summary(self) -> str:
+        """One line: how many problems of each kind, most frequent first."""
+        parts = [f"{n:,} x {kind}" for kind, n in sorted(self.counts.items(), key=lambda kv: (-kv[1], kv[0]))]
+        return f"{self.total:,} problems in all: " + "; ".join(parts)
 
 
 class DataError(MonitorError):

@@ -9,6 +9,8 @@ import click
 
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
+from monitor.cli.tables import trend_number_rows, write_workbook, xlsx_option
+from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 
 
 def _pct(x: float | None) -> str:
@@ -68,11 +70,12 @@ def parallel_options(func):
               help="Fit a long table from elsewhere (station, year, optional site, and count / cover_pct / "
                    "occupied+cells / hits+pins / present) instead of the database.")
 @click.option("--margin", type=float, default=None,
-              help="Margin of change that matters, fraction a year (with --table; default 0.02).")
+              help=f"Margin of change that matters, fraction a year (with --table; default {DEFAULT_CHANGE_MARGIN:g}).")
 @format_option
+@xlsx_option
 @click.pass_context
 def trend_command(click_ctx: click.Context, species, sites, first_year, last_year, family, observer_effect, by,
-                  refit, workers, cluster, table, margin, as_json: bool, as_csv: bool) -> None:
+                  refit, workers, cluster, table, margin, as_json: bool, as_csv: bool, xlsx: Path | None) -> None:
     """Fit mixed models across years: annual change with 95% intervals and the call for each species.
 
     Fits are stored and reused while the data, the model and the engine are unchanged."""
@@ -83,7 +86,7 @@ def trend_command(click_ctx: click.Context, species, sites, first_year, last_yea
     ctx: Context = click_ctx.obj
     fmt = chosen_format(as_json, as_csv)
     if table is not None:
-        trends = [trend.fit_table(table, family=family, margin=margin if margin is not None else 0.02,
+        trends = [trend.fit_table(table, family=family, margin=change_margin(margin),
                                   observer_effect=observer_effect)]
     else:
         with progress(1, "fitting") as bar:
@@ -98,8 +101,11 @@ def trend_command(click_ctx: click.Context, species, sites, first_year, last_yea
         reused = sum(t.reused for t in trends)
         if reused:
             say(f"{reused} of {len(trends)} fits reused from the stored fits (unchanged data, model and engine)")
+    write_workbook(xlsx, {"trends": trend_number_rows(trends)})
     if fmt == "json":
         emit([t.to_dict() for t in trends], fmt)
+    elif fmt == "csv":  # numbers in columns of their own, for spreadsheets
+        emit(trend_number_rows(trends), fmt)
     else:
         emit(trend_rows(trends), fmt)
 
@@ -134,13 +140,16 @@ def trend_history_command(ctx: Context, species: str, areas: bool, as_json: bool
 @click.option("--precision", type=float, default=0.2, show_default=True,
               help="Target relative precision for the quadrats-needed column (0.2 = +/-20%).")
 @format_option
+@xlsx_option
 @click.pass_obj
-def estimate_command(ctx: Context, year: int, species, sites, precision: float, as_json: bool, as_csv: bool) -> None:
+def estimate_command(ctx: Context, year: int, species, sites, precision: float, as_json: bool, as_csv: bool,
+                     xlsx: Path | None) -> None:
     """This season's estimates per site and species: density and total with intervals, cover, frequency."""
     from monitor.services import estimate
 
     table = estimate.season_table(ctx.db, year, programme_code=ctx.programme, species=list(species) or None,
                                   sites=list(sites) or None, precision=precision)
+    write_workbook(xlsx, {f"estimates {year}": table})
     fmt = chosen_format(as_json, as_csv)
     if fmt != "table":
         emit(table, fmt)

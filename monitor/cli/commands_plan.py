@@ -254,3 +254,38 @@ def season_pack(ctx: Context, year: int, folder: Path, team: str | None, day: st
     fmt = chosen_format(as_json, as_csv)
     emit(result if fmt == "json" else result.team_days, fmt)
     say(f"wrote {len(result.team_days)} field pack(s) and the calendar {result.calendar}")
+
+
+# --- station move ---------------------------------------------------------------------------------------------
+
+from monitor.cli.commands_records import station_group  # noqa: E402  (the station group lives with records)
+
+
+@station_group.command("move")
+@click.argument("code")
+@click.option("--to", "to", required=True, metavar="X,Y", help="New position in the programme's CRS [m].")
+@click.option("--reason", required=True, help="Why it moved (goes to the change log and the relocation record).")
+@click.option("--date", "when", required=True, metavar="YYYY-MM-DD", help="Date of the move; the new station starts then.")
+@click.option("--lost", is_flag=True, help="The marker was lost and the quadrat re-established (old station: lost).")
+@click.option("--new-code", default=None, help="Code of the new station (default: CODE with an R suffix).")
+@click.option("--fix", "fix_method", default="", help="How the new position was fixed, e.g. 'GNSS RTK'.")
+@click.option("--accuracy", type=float, default=None, help="Accuracy of the new fix [m].")
+@click.option("--marker", default=None, help="The new permanent marker (default: as the old one).")
+@click.option("--notes", default="", help="How to find the new marker (added to its relocation notes).")
+@format_option
+@click.pass_obj
+def station_move(ctx: Context, code: str, to: str, reason: str, when: str, lost: bool, new_code: str | None,
+                 fix_method: str, accuracy: float | None, marker: str | None, notes: str, as_json: bool,
+                 as_csv: bool) -> None:
+    """Record that station CODE moved (or lost its marker): a NEW station continues it; nothing is rewritten."""
+    from monitor.services import relocation
+
+    result = relocation.move_station(ctx.db, code, to=_pair(to, "--to"), reason=reason, date=_day(when), lost=lost,
+                                     new_code=new_code, fix_method=fix_method, accuracy_m=accuracy, marker=marker,
+                                     notes=notes, programme_code=ctx.programme)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt == "json":
+        emit(result, fmt)
+    elif fmt == "csv":
+        emit([result.to_dict()], fmt)
+    say(result.message())

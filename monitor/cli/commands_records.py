@@ -17,41 +17,58 @@ def records_group() -> None:
 
 @records_group.command("import")
 @click.argument("files", nargs=-1, required=True, type=click.Path(exists=True, dir_okay=False, path_type=Path))
-@click.option("--dry-run", is_flag=True, help="Check and show what would be added and changed; write nothing.")
+@click.option("--dry-run", is_flag=True,
+              help="Check and show what would be added and changed, each file against the stored records and the "
+                   "files before it; write nothing.")
 @click.option("--correct", is_flag=True, help="Allow the file to change values already stored (needs --reason).")
 @click.option("--reason", default=None, help="Why stored values are corrected (goes to the change log).")
 @click.option("--accept-warnings", is_flag=True,
               help="Import despite warnings (dates in the future or outside the season window).")
 @click.option("--day-first", is_flag=True, default=None, help="Read slash dates as DD/MM/YYYY.")
+@click.option("--sheet", default=None,
+              help="The workbook sheet to read (needed when several visible sheets hold data; a hidden sheet is "
+                   "read only when named).")
 @format_option
 @click.pass_obj
 def import_command(ctx: Context, files: tuple[Path, ...], dry_run: bool, correct: bool, reason: str | None,
-                   accept_warnings: bool, day_first: bool | None, as_json: bool, as_csv: bool) -> None:
-    """Import field records from FILES (CSV or .xlsx, field-sheet or long layout); each file is all or nothing."""
+                   accept_warnings: bool, day_first: bool | None, sheet: str | None, as_json: bool,
+                   as_csv: bool) -> None:
+    """Import field records from FILES (CSV or .xlsx, field-sheet or long layout); each file is all or nothing.
+
+    Files are imported in order; the first file refused stops the command (the files before it stay
+    imported; every file's outcome is reported, with --json too)."""
     from monitor.services import records
 
     fmt = chosen_format(as_json, as_csv)
-    reports = []
-    for path in files:
-        report = records.import_records(ctx.db, path, programme_code=ctx.programme, dry_run=dry_run,
-                                        correct=correct, reason=reason, accept_warnings=accept_warnings,
-                                        day_first=day_first)
-        reports.append(report)
-        if fmt == "table":
-            say(describe_import(report))
-    if fmt != "table":
-        emit([r.to_dict() for r in reports] if fmt == "json" else
-             [{k: v for k, v in r.to_dict().items() if k not in ("changes", "warnings")} for r in reports], fmt)
+    run = records.import_files(ctx.db, list(files), programme_code=ctx.programme, dry_run=dry_run,
+                               correct=correct, reason=reason, accept_warnings=accept_warnings,
+                               day_first=day_first, sheet=sheet)
+    if fmt == "table":
+        for report in run.reports:
+            if report.outcome not in (records.OUTCOME_REFUSED,):
+                say(describe_import(report))
+    else:
+        emit([r.to_dict() for r in run.reports] if fmt == "json" else
+             [{k: v for k, v in r.to_dict().items() if k not in ("changes", "warnings", "problems")}
+              for r in run.reports], fmt)
+    if run.error is not None:
+        raise run.error
 
 
 def describe_import(report) -> str:
+    from monitor.services import records
+
+    if report.outcome == records.OUTCOME_NOT_ATTEMPTED:
+        return f"{report.file}: not attempted (an earlier file was refused)"
     if report.already_imported:
         return f"{report.file}: already imported, nothing to do ({report.warnings[0]})"
+    sheet = f", sheet '{report.sheet}'" if report.sheet else ""
     verb = "would add" if report.dry_run else "added"
-    lines = [f"{report.file} ({report.layout} layout): {verb} {report.visits_added} visits, "
+    lines = [f"{report.file} ({report.layout} layout{sheet}): {verb} {report.visits_added} visits, "
              f"{report.observations_added} values, {report.covariates_added} covariate values; "
              f"{report.visits_unchanged} visits unchanged; "
-             f"{len(report.changes)} stored values {'would change' if report.dry_run else 'corrected'}"]
+             f"{len(report.changes)} stored values {'would change' if report.dry_run else 'corrected'}"
+             + ("; nothing to apply, nothing recorded" if report.outcome == records.OUTCOME_NOTHING else "")]
     lines += [f"  change: {c.line()}" for c in report.changes]
     lines += [f"  accepted warning: {w}" for w in report.warnings]
     return "\n".join(lines)
@@ -125,6 +142,36 @@ def set_command(ctx: Context, station: str, year: int, species: str, measure: st
         say(f"{change.station} {change.date}: {change.field} corrected {change.old:g} -> {change.new:g} (logged)")
 
 
+@records_group.command("set-visit")
+@click.argument("station")
+@click.argument("year", type=int)
+@click.option("--protocol", default=None, help="The protocol version the visit followed (a code of the programme).")
+@click.option("--covariate", "covariates", multiple=True, metavar="NAME=VALUE",
+              help="A covariate's value at the visit, e.g. soil_moisture=31.5 (NAME= removes it); repeatable.")
+@click.option("--reason", required=True, help="Why the visit is corrected (goes to the change log).")
+@click.option("--repeat-no", type=click.IntRange(min=0), default=0, show_default=True,
+              help="Which visit of the round: 0 the visit, 1, 2, ... marked repeats.")
+@click.pass_obj
+def set_visit_command(ctx: Context, station: str, year: int, protocol: str | None, covariates: tuple[str, ...],
+                      reason: str, repeat_no: int) -> None:
+    """Correct the protocol or covariates of STATION's visit in season YEAR, audited."""
+    from monitor.services import records
+
+    values = {}
+    for item in covariates:
+        name, sep, value = item.partition("=")
+        if not sep or not name.strip():
+            raise click.BadParameter(f"{item!r}: expected NAME=VALUE", param_hint="--covariate")
+        values[name.strip()] = value.strip()
+    changes = records.set_visit(ctx.db, station, year, reason=reason, protocol=protocol, covariates=values,
+                                repeat_no=repeat_no, programme_code=ctx.programme)
+    if not changes:
+        say(f"{station} {year}: nothing changed (already as given)")
+    for change in changes:
+        say(f"{change.station} {change.date}: {change.field} {change.old if change.old is not None else '(none)'} -> "
+            f"{change.new if change.new is not None else '(none)'} (logged)")
+
+
 @records_group.command("photo")
 @click.argument("station")
 @click.option("--path", "photo_path", required=True, help="The photo's file path (stored as given).")
@@ -194,6 +241,9 @@ def history_command(ctx: Context, code: str, as_json: bool) -> None:
     emit(history["photos"], title="\nPhotos")
     emit(history["quality_flags"], columns=["id", "kind", "species", "year", "state", "detail"],
          title="\nQuality flags")
+    if len(history["lineage"]):
+        emit(history["lineage"], title="\nLineage (relocations of this quadrat's series; the new station continues "
+                                       "the old one)")
 
 
 @cli.group("quality", invoke_without_command=True)

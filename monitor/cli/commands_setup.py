@@ -8,6 +8,7 @@ import click
 
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, say
+from monitor.cli.tables import write_workbook, xlsx_option
 
 
 @cli.command("init")
@@ -69,20 +70,37 @@ for _kind, _what in (
     _one_kind(_kind, _what)
 
 
+@setup_group.command("blank")
+@click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
+def setup_blank(folder: Path) -> None:
+    """Write blank set-up files into FOLDER: each with its headers and one example row, ready to fill in
+    (docs/files.md describes every column). Nothing is overwritten."""
+    from monitor.io.blank import write_blank_setup
+
+    for path in write_blank_setup(folder):
+        say(f"wrote {path}")
+    say(f"fill them in, then: monitor setup all {folder}")
+
+
 @cli.command("summary")
 @format_option
+@xlsx_option
 @click.pass_obj
-def summary_command(ctx: Context, as_json: bool, as_csv: bool) -> None:
-    """The programme at a glance: sites, stations in service and retired, species, visits per year."""
+def summary_command(ctx: Context, as_json: bool, as_csv: bool, xlsx: Path | None) -> None:
+    """The programme at a glance: sites, stations in service and retired, species, visits per year.
+    --csv writes the three tables as one CSV whose first column, table, names the table of each row."""
+    from monitor.io.sheets import tables_csv
     from monitor.services import summary
 
     result = summary.programme_summary(ctx.db, ctx.programme)
+    tables = {"sites": result["sites"], "species": result["species"], "visits_by_year": result["visits_by_year"]}
+    write_workbook(xlsx, tables)
     fmt = chosen_format(as_json, as_csv)
     if fmt == "json":
         emit(result, fmt)
         return
     if fmt == "csv":
-        emit(result["visits_by_year"], fmt)
+        click.echo(tables_csv(tables), nl=False)
         return
     p = result["programme"]
     click.echo(f"{p['name']} ({p['code']}), CRS EPSG:{p['crs_epsg']}")

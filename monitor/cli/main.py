@@ -11,7 +11,7 @@ from __future__ import annotations
 import click
 
 from monitor import __version__
-from monitor.errors import InputError, MonitorError
+from monitor.errors import MAX_LISTED, InputError, MonitorError
 
 
 class Context:
@@ -43,6 +43,7 @@ def _register() -> None:
     from monitor.cli import (  # noqa: F401
         commands_admin,
         commands_analysis,
+        commands_listings,
         commands_plan,
         commands_records,
         commands_setup,
@@ -50,6 +51,39 @@ def _register() -> None:
 
 
 _register()
+
+
+def _set_on_context(name: str):
+    def callback(click_ctx: click.Context, _param: click.Parameter, value: str | None) -> None:
+        obj = click_ctx.find_object(Context)  # None only when parsed without running (completion, checks)
+        if value is not None and obj is not None:
+            setattr(obj, name, value)
+    return callback
+
+
+def _accept_anywhere(group: click.Group) -> None:
+    """Let ``--db`` and ``--programme`` follow the subcommand too (``monitor init --db X``).
+
+    The group's own options are parsed (and its callback run) before a subcommand's, so a value given
+    after the subcommand overrides the one before it or from the environment.
+    """
+    for name, command in group.commands.items():
+        if name == "demo":  # builds a database of its own in --dir
+            continue
+        names = {p.name for p in command.params}
+        if "db" not in names:
+            command.params.append(click.Option(
+                ["--db"], expose_value=False, callback=_set_on_context("db"), is_eager=True,
+                help="Database: a file path (SQLite) or a postgresql+psycopg:// URL; before or after the command."))
+        if "programme" not in names:
+            command.params.append(click.Option(
+                ["--programme"], expose_value=False, callback=_set_on_context("programme"), is_eager=True,
+                help="Programme code, when the database holds more than one."))
+        if isinstance(command, click.Group):
+            _accept_anywhere(command)
+
+
+_accept_anywhere(cli)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -65,8 +99,10 @@ def main(argv: list[str] | None = None) -> int:
         exc.show()
         return exc.exit_code
     except InputError as exc:
-        for problem in exc.problems:
+        for problem in exc.problems[:MAX_LISTED]:
             click.echo(f"{'error' if problem.severity == 'error' else 'refused'}: {problem.line()}", err=True)
+        if exc.unlisted > 0:
+            click.echo(f"error: ... and {exc.unlisted:,} more not listed; {exc.summary()}", err=True)
         return exc.exit_code
     except MonitorError as exc:
         click.echo(f"error: {exc}", err=True)

@@ -60,7 +60,12 @@ def to_json(data: Any) -> str:
     return json.dumps(_plain(data), indent=2, ensure_ascii=False)
 
 
-def _cell(value: Any) -> str:
+# columns whose numbers are identifiers or coordinates: printed without thousands separators
+PLAIN_NUMBER_COLUMNS = frozenset({"x", "y", "year", "season", "crs_epsg", "epsg", "start_year", "base_x", "base_y",
+                                  "easting", "northing"})
+
+
+def _cell(value: Any, plain: bool = False) -> str:
     if isinstance(value, (bool, np.bool_)):
         return "yes" if value else "no"
     value = _plain(value)
@@ -68,7 +73,9 @@ def _cell(value: Any) -> str:
         return ""
     if isinstance(value, float):
         if value.is_integer() and abs(value) < 1e15:
-            return f"{int(value):,}" if abs(value) >= 10_000 else str(int(value))
+            return f"{int(value):,}" if abs(value) >= 10_000 and not plain else str(int(value))
+        if plain:
+            return f"{value:.2f}"
         return f"{value:,.1f}" if abs(value) >= 1000 else f"{value:.4g}"
     if isinstance(value, (list, dict)):
         return json.dumps(value, ensure_ascii=False)
@@ -86,7 +93,9 @@ def table_text(rows: Sequence[dict[str, Any]] | pd.DataFrame, columns: Sequence[
     if frame.empty:
         return "(none)"
     header = [str(c) for c in frame.columns]
-    body = [[_cell(v) for v in row] for row in frame.itertuples(index=False, name=None)]
+    plain = [str(c) in PLAIN_NUMBER_COLUMNS for c in frame.columns]
+    body = [[_cell(v, p) for v, p in zip(row, plain, strict=True)]
+            for row in frame.itertuples(index=False, name=None)]
     widths = [max(len(h), *(len(r[i]) for r in body)) for i, h in enumerate(header)]
     lines = ["  ".join(h.ljust(w) for h, w in zip(header, widths, strict=True)).rstrip()]
     lines.append("  ".join("-" * w for w in widths))

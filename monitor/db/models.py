@@ -17,6 +17,7 @@ from sqlalchemy import CheckConstraint, Column, ForeignKey, Index, Integer, Meta
 from sqlmodel import Field, SQLModel
 
 from monitor import columns as C
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 NAMING_CONVENTION = {
     "ix": "ix_%(column_0_label)s",
@@ -63,7 +64,7 @@ class Programme(SQLModel, table=True):
     default_quadrat_length_m: float = 1.0
     blanks_mean_zero: bool = False
     allow_lone_working: bool = False
-    change_margin: float = Field(default=0.02, description="margin of change that matters [fraction a year]")
+    change_margin: float = Field(default=DEFAULT_CHANGE_MARGIN, description="margin of change that matters [fraction a year]")
     settings_json: str = Field(default="{}", description="further settings as JSON (effort, units, ...)")
     created_at: dt.datetime = Field(default_factory=lambda: utcnow())
 
@@ -454,6 +455,130 @@ class QualityFlag(SQLModel, table=True):
     raised_at: dt.datetime = Field(default_factory=lambda: utcnow())
 
     __table_args__ = (CheckConstraint(_in("state", FLAG_STATES), name="state_known"),)
+
+
+# --- revision 0004: placement runs, station relocations, season plans as records ------------------------------
+
+
+class PlacementRun(SQLModel, table=True):
+    """One run of a design method in a site: its method, seed and everything needed to extend it.
+
+    ``params_json`` holds the method's inputs (bounds and Halton start of a balanced run, minimum
+    separation, exclusion polygons as GeoJSON, quadrat size, allocation) and its stations in
+    order with their Halton indices.  An extension is a run of its own pointing at the run it extends.
+    """
+
+    __tablename__ = "placement_run"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    site_id: int = Field(sa_column=_fk("site.id"))
+    method: str
+    seed: int
+    extends_id: int | None = Field(default=None, sa_column=_fk("placement_run.id", nullable=True))
+    n_stations: int
+    params_json: str = "{}"
+    created_at: dt.datetime = Field(default_factory=lambda: utcnow())
+
+    __table_args__ = (
+        CheckConstraint(_in("method", C.PLACEMENTS), name="method_known"),
+        CheckConstraint("n_stations >= 0", name="n_non_negative"),
+    )
+
+
+class StationRelocation(SQLModel, table=True):
+    """A quadrat moved, or re-marked after its marker was lost: the new station continues the old one."""
+
+    __tablename__ = "station_relocation"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    from_station_id: int = Field(sa_column=Column(Integer, ForeignKey("station.id", ondelete="RESTRICT"),
+                                                  nullable=False, unique=True))
+    to_station_id: int = Field(sa_column=Column(Integer, ForeignKey("station.id", ondelete="RESTRICT"),
+                                                nullable=False, unique=True))
+    date: dt.date
+    reason: str
+    lost: bool = Field(default=False, description="the marker was lost (position re-established) rather than moved")
+    distance_m: float = Field(description="straight-line distance from the old position [m]")
+    recorded_by: str = ""
+    recorded_at: dt.datetime = Field(default_factory=lambda: utcnow())
+
+    __table_args__ = (
+        CheckConstraint("length(reason) > 0", name="reason_given"),
+        CheckConstraint("distance_m >= 0", name="distance_non_negative"),
+        CheckConstraint("from_station_id <> to_station_id", name="two_stations"),
+    )
+
+
+class SeasonPlanRecord(SQLModel, table=True):
+    """A stored season plan: its seed, routing and summary (one per round)."""
+
+    __tablename__ = "season_plan"
+
+    id: int | None = Field(default=None, primary_key=True)
+    round_id: int = Field(sa_column=Column(Integer, ForeignKey("round.id", ondelete="RESTRICT"), nullable=False,
+                                           unique=True))
+    seed: int
+    summary: str = ""
+    extra_team_days: int = 0
+    randomise_site_order: bool = False
+    site_order: str = Field(default="", description="sites in planning order, ';'-joined")
+    day_start: str = Field(default="09:00", max_length=5, description="HH:MM")
+    path_factor: float = Field(default=1.0, description="winding factor on straight lines where no paths are given")
+    routing: str = Field(default="straight", description="straight (x winding factor) or paths (network)")
+    allow_lone_working: bool = False
+    details_json: str = Field(default="{}", description="start points, blocked dates, unplanned stations' reasons")
+    created_at: dt.datetime = Field(default_factory=lambda: utcnow())
+
+    __table_args__ = (
+        CheckConstraint("extra_team_days >= 0", name="extra_non_negative"),
+        CheckConstraint("path_factor >= 1", name="path_factor_at_least_one"),
+        CheckConstraint("routing IN ('straight', 'paths')", name="routing_known"),
+    )
+
+
+class SeasonPlanTeam(SQLModel, table=True):
+    """A team of a stored plan: members, hours, walking speed, working weekdays and blocked dates."""
+
+    __tablename__ = "season_plan_team"
+
+    id: int | None = Field(default=None, primary_key=True)
+    plan_id: int = Field(sa_column=_fk("season_plan.id"))
+    code: str = Field(max_length=40)
+    members: str = Field(description="member codes or names, ';'-joined")
+    hours_per_day: float
+    walking_speed_kmh: float
+    working_weekdays: str = Field(default="0;1;2;3;4", description="Monday = 0, ';'-joined")
+    blocked_dates: str = Field(default="", description="ISO dates, ';'-joined")
+
+    __table_args__ = (
+        UniqueConstraint("plan_id", "code", name="uq_season_plan_team_plan_code"),
+        CheckConstraint("hours_per_day > 0", name="hours_positive"),
+        CheckConstraint("walking_speed_kmh > 0", name="speed_positive"),
+    )
+
+
+class SeasonPlanTeamDay(SQLModel, table=True):
+    """One team's day of a stored plan: site, start point, route length and times."""
+
+    __tablename__ = "season_plan_team_day"
+
+    id: int | None = Field(default=None, primary_key=True)
+    plan_id: int = Field(sa_column=_fk("season_plan.id"))
+    team: str = Field(max_length=40)
+    date: dt.date
+    site: str = Field(max_length=40)
+    start_x: float
+    start_y: float
+    route_m: float
+    start_time: str = Field(max_length=5, description="HH:MM")
+    end_time: str = Field(max_length=5, description="HH:MM")
+
+    __table_args__ = (
+        UniqueConstraint("plan_id", "team", "date", name="uq_season_plan_team_day_plan_team_date"),
+        CheckConstraint("route_m >= 0", name="route_non_negative"),
+    )
 
 
 # --- revision 0003: stored fits, reports issued, regions of sites -----------------------------------------

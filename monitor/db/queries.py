@@ -292,6 +292,55 @@ def planned_visits(store: Store, programme_id: int, year: int) -> pd.DataFrame:
     )
 
 
+def relocations(store: Store, programme_id: int) -> pd.DataFrame:
+    """Every recorded relocation: from_station, to_station (which continues it), date, reason, lost,
+    distance_m, recorded_by, recorded_at (oldest first)."""
+    return store.frame(
+        """
+        SELECT a.code AS from_station, b.code AS to_station, r.date, r.reason, r.lost, r.distance_m,
+               r.recorded_by, r.recorded_at
+        FROM station_relocation r JOIN station a ON a.id = r.from_station_id JOIN station b ON b.id = r.to_station_id
+        WHERE r.programme_id = :p ORDER BY r.date, a.code
+        """, p=programme_id)
+
+
+def season_plan_record(store: Store, programme_id: int, year: int) -> dict | None:
+    """A stored plan's own record (seed, routing, summary), its teams and its team-days; None when absent."""
+    plan = store.frame(
+        """
+        SELECT sp.* FROM season_plan sp JOIN round r ON r.id = sp.round_id
+        WHERE r.programme_id = :p AND r.year = :y
+        """, p=programme_id, y=year)
+    if plan.empty:
+        return None
+    plan_id = int(plan["id"].iloc[0])
+    teams = store.frame("SELECT * FROM season_plan_team WHERE plan_id = :i ORDER BY id", i=plan_id)
+    days = store.frame("SELECT * FROM season_plan_team_day WHERE plan_id = :i ORDER BY date, team", i=plan_id)
+    return {"plan": plan.iloc[0].to_dict(), "teams": teams.to_dict(orient="records"),
+            "team_days": days.to_dict(orient="records")}
+
+
+def season_plans(store: Store, programme_id: int) -> pd.DataFrame:
+    """Every stored season plan, one row a season, for comparing years: teams, team-days, stations planned
+    and scheduled, route length, first and last field day, routing, seed."""
+    return store.frame(
+        f"""
+        SELECT r.year AS {C.YEAR}, sp.seed, sp.routing, sp.path_factor,
+               (SELECT count(*) FROM season_plan_team t WHERE t.plan_id = sp.id) AS teams,
+               (SELECT count(*) FROM season_plan_team_day d WHERE d.plan_id = sp.id) AS team_days,
+               (SELECT count(*) FROM planned_visit pv WHERE pv.round_id = r.id) AS stations_planned,
+               (SELECT count(*) FROM planned_visit pv WHERE pv.round_id = r.id AND pv.day IS NOT NULL)
+                   AS stations_scheduled,
+               (SELECT COALESCE(sum(d.route_m), 0) FROM season_plan_team_day d WHERE d.plan_id = sp.id) / 1000.0
+                   AS route_km,
+               (SELECT min(d.date) FROM season_plan_team_day d WHERE d.plan_id = sp.id) AS first_day,
+               (SELECT max(d.date) FROM season_plan_team_day d WHERE d.plan_id = sp.id) AS last_day,
+               sp.extra_team_days
+        FROM season_plan sp JOIN round r ON r.id = sp.round_id
+        WHERE r.programme_id = :p ORDER BY r.year
+        """, p=programme_id)
+
+
 # --- field records: bulk writes, retries, and the tables behind history, quality and exports ----------------
 # (added for the records, quality and export services; everything below stays inside one transaction that
 # the caller's ``Store.session()`` opens)

@@ -90,7 +90,7 @@ class Store:
             if not rows:
                 raise DataError(f"no programme with code '{code}' in this database")
         if not rows:
-            raise DataError("this database holds no programme yet; run `monitor setup` first")
+            raise DataError("this database holds no programme yet; run `monitor setup all FOLDER` first (a folder of set-up files; `monitor setup blank FOLDER` writes one to fill in)")
         if len(rows) > 1:
             codes = ", ".join(sorted(r.code for r in rows))
             raise DataError(f"this database holds several programmes ({codes}); name one with --programme")

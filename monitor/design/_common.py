@@ -16,9 +16,7 @@ from shapely.validation import explain_validity
 
 from monitor import columns as C
 from monitor.errors import DesignError, Diagnostic
-
-#: fewer stations than this draws a warning (common practice: a trend needs at least ~10 quadrats)
-MIN_STATIONS = 10
+from monitor.settings import MIN_TREND_STATIONS as MIN_STATIONS  # fewer draws a warning; monitor/settings.py
 
 RngLike = np.random.Generator | int
 

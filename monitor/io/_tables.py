@@ -4,9 +4,29 @@ Encoding rule (stated once, applied to every CSV the project reads):
 
 1. A UTF-8 byte-order mark means UTF-8 (the mark is dropped); a UTF-16 mark means UTF-16.
 2. Otherwise the bytes are decoded as strict UTF-8.
-3. If that fails, they are decoded as Windows-1252 (what spreadsheet programs on Windows write),
-   provided every byte is defined there.  Anything else is an error naming the first bad byte.
-4. A NUL byte in a file that is not UTF-16 means the file is not text: an error.
+3. If that fails, and the file holds no valid UTF-8 sequence of two or more bytes either, it is read as
+   Windows-1252 (what spreadsheet programs on Windows write), provided every byte is defined there.
+4. A file that is UTF-8 except for a few bytes (a character pasted from another program) is refused,
+   naming the row of the first bad byte: reading it whole as Windows-1252 would turn every accented
+   letter of the file into mojibake, and guessing byte by byte would be guessing.
+5. A NUL byte in a file that is not UTF-16 means the file is not text: an error.
+
+A file that is not a CSV or .xlsx at all is named for what it is: a web page (HTML) or an XML
+spreadsheet saved under a spreadsheet's name, an Excel 97-2003 .xls, an OpenDocument .ods.  A CSV
+separated by semicolons or tabs is refused with that said.
+
+Shape: every row of a CSV has as many cells as the header (RFC 4180 section 2.4: "Each line should
+contain the same number of fields throughout the file").  A row with more cells is the mark of a
+decimal comma (``12,5``) or a stray separator, which shifts every later value one column: refused,
+naming the row and the columns.  Trailing empty cells are accepted only when every data row carries
+the same ones (a writer that pads the whole file), so each row still lines up with the header.  A
+title row above the header is refused with that said.
+
+Workbooks (.xlsx): a hidden sheet is never read unless named; with more than one visible sheet that
+holds anything, the sheet must be named (``sheet=``).  A cell's number format is read: a percent
+format means a percent (a cell showing ``12.5 %`` holds 0.125 and is read as ``12.5%``), a date
+format a date.  A formula whose result was never calculated and stored (files written by scripts)
+is refused, naming the cell; so is a cell holding a spreadsheet error such as ``#DIV/0!``.
 
 CSV follows RFC 4180 (Shafranovich 2005): comma separated, fields optionally enclosed in double
 quotes, a doubled quote inside a quoted field; line ends CRLF or LF are both accepted.  Blank lines
@@ -28,7 +48,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from monitor.errors import InputError, InputProblem
+from monitor.errors import InputError, InputProblem, ProblemCounter
 from monitor.io.headers import canonical_header
 
 MAX_ABS_NUMBER = 1e12  # larger magnitudes are typing slips in field records, never real values (common practice)
@@ -44,12 +64,13 @@ class RawTable:
     headers: list[str]                      # canonical (see headers.HEADER_ALIASES), same order
     rows: list[tuple[int, list[str]]] = field(default_factory=list)  # (row number, cells as strings)
     header_row: int = 1
-    pending: list[InputProblem] = field(default_factory=list)  # shape problems found while reading
+    pending: ProblemCounter = field(default_factory=ProblemCounter)  # shape problems found while reading
+    sheet: str | None = None                # the workbook sheet read (None for a CSV)
 
     def problems(self) -> Problems:
         """A problem collector for this file, already holding the problems found while reading it."""
         collector = Problems(self.file)
-        collector.extend(self.pending)
+        collector.absorb(self.pending)
         return collector
 
     def raw_name(self, canonical: str) -> str:
@@ -58,26 +79,42 @@ class RawTable:
 
 
 class Problems:
-    """Collects InputProblem lines for one file and raises them all at once."""
+    """Collects InputProblem lines for one file and raises them all at once.
+
+    At most :data:`monitor.errors.MAX_LISTED` are kept (the first added); all are counted by kind.
+    """
 
     def __init__(self, file: str):
         self.file = file
-        self.items: list[InputProblem] = []
+        self.counter = ProblemCounter()
 
     def add(self, row: int | None, field_: str | None, value: object, expected: str,
             severity: str = "error") -> None:
-        self.items.append(InputProblem(self.file, row, field_, value, expected, severity))
+        self.counter.add(InputProblem(self.file, row, field_, value, expected, severity))
 
     def extend(self, problems: Iterable[InputProblem]) -> None:
-        self.items.extend(problems)
+        for problem in problems:
+            self.counter.add(problem)
+
+    def absorb(self, other: ProblemCounter) -> None:
+        """Take over another collector's problems (after this one's) and its counts of all."""
+        self.counter.merge(other)
+
+    @property
+    def items(self) -> list[InputProblem]:
+        return self.counter.kept()
 
     @property
     def errors(self) -> list[InputProblem]:
         return [p for p in self.items if p.severity == "error"]
 
+    @property
+    def has_errors(self) -> bool:
+        return self.counter.errors > 0
+
     def raise_if_any(self) -> None:
-        if self.errors:
-            raise InputError(self.items)
+        if self.counter.errors:
+            raise InputError(self.items, total=self.counter.total, counts=self.counter.counts)
 
 
 def file_label(path: str | os.PathLike[str]) -> str:
@@ -85,6 +122,35 @@ def file_label(path: str | os.PathLike[str]) -> str:
 
 
 # --- decoding ------------------------------------------------------------------------------------
+#: a valid UTF-8 sequence of two or more bytes (RFC 3629 section 4); Windows-1252 text practically never
+#: holds one (it would read as mojibake such as 'Ã©' in Windows-1252 itself)
+_UTF8_MULTIBYTE = re.compile(rb"[\xc2-\xdf][\x80-\xbf]|[\xe0-\xef][\x80-\xbf]{2}|[\xf0-\xf4][\x80-\xbf]{3}")
+
+
+def _line_of(data: bytes, offset: int) -> int:
+    """The physical line (1-based) holding byte ``offset``: what an editor shows as the row."""
+    newline = b"\n" if b"\n" in data else b"\r"
+    return data.count(newline, 0, offset) + 1
+
+
+def _field_at(data: bytes, offset: int, file: str) -> str | None:
+    """The header of the column holding byte ``offset`` (best effort, for the message)."""
+    line_start = max(data.rfind(b"\n", 0, offset), data.rfind(b"\r", 0, offset)) + 1
+    line_end = data.find(b"\n", offset)
+    line = data[line_start:line_end if line_end >= 0 else len(data)].decode("utf-8", errors="replace")
+    header_end = data.find(b"\n")
+    header = data[:header_end if header_end >= 0 else len(data)].decode("utf-8", errors="replace")
+    try:
+        cells = next(csv.reader([line]))
+        names = next(csv.reader([header]))
+    except (csv.Error, StopIteration):
+        return None
+    at = next((i for i, c in enumerate(cells) if "\ufffd" in c), None)
+    if at is None or line_start == 0:
+        return None
+    return names[at].strip() if at < len(names) else f"column {at + 1}"
+
+
 def decode_bytes(data: bytes, file: str) -> tuple[str, str]:
     """Decode per the module's encoding rule; return (text, encoding used)."""
     if data.startswith(codecs.BOM_UTF8):
@@ -103,12 +169,37 @@ def decode_bytes(data: bytes, file: str) -> tuple[str, str]:
         if encoding == "utf-16":
             raise InputError(InputProblem(file, None, None, f"byte offset {exc.start}",
                                           "valid UTF-16 text after the UTF-16 byte-order mark")) from None
+        first_bad = exc.start
+    bad = data[first_bad:first_bad + 1]
+    if encoding == "utf-8-sig" or _UTF8_MULTIBYTE.search(data):
+        raise InputError(InputProblem(
+            file, _line_of(data, first_bad), _field_at(data, first_bad, file), f"byte 0x{bad.hex().upper()}",
+            "one encoding throughout: the file is UTF-8 but this byte is not (a character pasted from "
+            "another program?); retype the character, or save the whole file again as UTF-8"))
     try:
         return data.decode("cp1252"), "cp1252"
     except UnicodeDecodeError as exc:
         bad = data[exc.start:exc.start + 1]
-        raise InputError(InputProblem(file, None, None, f"byte {bad!r} at offset {exc.start}",
+        raise InputError(InputProblem(file, _line_of(data, exc.start), None, f"byte 0x{bad.hex().upper()}",
                                       "text in UTF-8 or Windows-1252")) from None
+
+
+def _not_a_table(data: bytes, path: Path, file: str) -> None:
+    """Refuse, saying what it is, a file that is neither CSV nor .xlsx but carries a spreadsheet's name."""
+    head = data[:512].lstrip(codecs.BOM_UTF8).lstrip().lower()
+    if head.startswith((b"<!doctype html", b"<html", b"<table", b"<head", b"<body", b"<meta")):
+        what = "a web page (HTML) saved under a spreadsheet file name"
+    elif head.startswith(b"<?xml"):
+        what = "an XML file (an 'XML spreadsheet' or a web export)"
+    elif data.startswith(b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"):
+        what = "an Excel 97-2003 .xls workbook"
+    elif data.startswith(b"PK\x03\x04") and b"opendocument.spreadsheet" in data[:200]:
+        what = "an OpenDocument (.ods) spreadsheet"
+    else:
+        return
+    raise InputError(InputProblem(file, None, None, what,
+                                  "a CSV file or an Excel 2007+ .xlsx workbook: open it in a spreadsheet "
+                                  "program and save it as CSV (comma-separated, UTF-8) or .xlsx"))
 
 
 # --- CSV -----------------------------------------------------------------------------------------
@@ -116,6 +207,7 @@ def _csv_rows(text: str, file: str) -> list[tuple[int, list[str]]]:
     """Split CSV text (RFC 4180) into (line number, cells); blank lines dropped."""
     # csv.field_size_limit is process-global; we guard length ourselves instead of raising it.
     text = text.replace("\r\n", "\n").replace("\r", "\n")
+    _check_separator(text, file)
     reader = csv.reader(io.StringIO(text, newline=""), strict=True)
     out: list[tuple[int, list[str]]] = []
     start = 1
@@ -135,8 +227,45 @@ def _csv_rows(text: str, file: str) -> list[tuple[int, list[str]]]:
     return out
 
 
+def _check_separator(text: str, file: str) -> None:
+    """A file separated by semicolons or tabs (what spreadsheet programs write in some locales) is named so."""
+    lines = [line for line in text.split("\n", 20)[:20] if line.strip()]
+    if not lines:
+        return
+    header = lines[0]
+    commas = header.count(",")
+    for mark, name in ((";", "semicolons (';')"), ("\t", "tabs")):
+        if header.count(mark) > commas and all(line.count(mark) >= 1 for line in lines[:5]):
+            raise InputError(InputProblem(
+                file, 1, None, None,
+                f"comma-separated values; this file is separated by {name}, as spreadsheet programs write "
+                "where the decimal mark is a comma: save it as CSV with ',' between cells and '.' as the "
+                "decimal mark"))
+
+
 # --- xlsx ----------------------------------------------------------------------------------------
-def _cell_text(value: object) -> str:
+#: cell types of a spreadsheet error ('#DIV/0!', '#REF!', ...) and a formula (ECMA-376 Part 1, 18.18.11)
+_ERROR_TYPE, _FORMULA_TYPE = "e", "f"
+
+
+def _is_percent_format(number_format: str | None) -> bool:
+    """A number format showing a percent: a '%' outside quoted text and brackets (ECMA-376 Part 1, 18.8.31)."""
+    if not number_format or "%" not in number_format:
+        return False
+    plain = re.sub(r'"[^"]*"|\[[^\]]*\]|\\.', "", number_format)
+    return "%" in plain
+
+
+def _percent_text(value: float) -> str:
+    """0.125 -> '12.5%': the number the cell shows before its percent sign, without binary-float noise."""
+    from decimal import Decimal
+
+    shown = (Decimal(repr(value)) * 100).normalize()
+    text = format(shown, "f")
+    return text + "%"
+
+
+def _cell_text(value: object, number_format: str | None = None) -> str:
     if value is None:
         return ""
     if isinstance(value, bool):
@@ -147,6 +276,10 @@ def _cell_text(value: object) -> str:
         return value.isoformat()
     if isinstance(value, dt.date):
         return value.isoformat()
+    if isinstance(value, (int, float)) and _is_percent_format(number_format):
+        if isinstance(value, float) and not math.isfinite(value):
+            return repr(value)
+        return _percent_text(float(value))
     if isinstance(value, float):
         if math.isfinite(value) and value == int(value) and abs(value) < 1e15:
             return str(int(value))
@@ -154,23 +287,99 @@ def _cell_text(value: object) -> str:
     return str(value)
 
 
-def _xlsx_rows(path: Path, file: str) -> list[tuple[int, list[str]]]:
+@dataclass(frozen=True)
+class CellIssue:
+    """A cell that cannot be read as a value (a formula without a stored result, a spreadsheet error)."""
+
+    row: int
+    column: int          # 0-based
+    coordinate: str      # e.g. 'F7'
+    value: str
+    expected: str
+
+
+def _pick_sheet(workbook, sheet: str | None, file: str):
+    """The worksheet to read, by the workbook rule in the module docstring; returns (sheet, note)."""
+    sheets = list(workbook.worksheets)
+    names = [ws.title for ws in sheets]
+    hidden = [ws.title for ws in sheets if ws.sheet_state != "visible"]
+    if sheet is not None:
+        chosen = next((ws for ws in sheets if ws.title == sheet), None) or next(
+            (ws for ws in sheets if ws.title.strip().lower() == sheet.strip().lower()), None)
+        if chosen is None:
+            raise InputError(InputProblem(file, None, "--sheet", sheet,
+                                          f"the name of a sheet of the workbook: {', '.join(names)}"))
+        return chosen
+    visible = [ws for ws in sheets if ws.sheet_state == "visible"]
+    used = [ws for ws in visible if _sheet_has_cells(ws)]
+    if len(used) == 1:
+        return used[0]
+    if not used:
+        extra = f" (hidden sheets are read only when named with --sheet: {', '.join(hidden)})" if hidden else ""
+        raise InputError(InputProblem(file, None, None, None,
+                                      f"a visible sheet with a header row and data; the workbook has none{extra}"))
+    raise InputError(InputProblem(file, None, "--sheet", None,
+                                  f"one sheet named with --sheet NAME: the workbook has {len(used)} sheets "
+                                  f"holding data ({', '.join(repr(ws.title) for ws in used)}) and only one is "
+                                  "read"))
+
+
+def _sheet_has_cells(worksheet) -> bool:
+    worksheet.reset_dimensions()
+    for values in worksheet.iter_rows(values_only=True):
+        if any(v is not None and str(v).strip() for v in values):
+            return True
+    return False
+
+
+def _xlsx_rows(path: Path, file: str, sheet: str | None = None
+               ) -> tuple[list[tuple[int, list[str]]], list[CellIssue], str]:
+    """The chosen sheet's rows as text, the cells that hold no readable value, and the sheet's name.
+
+    The workbook is opened twice (both read-only, streaming): once for the values, with the results of
+    formulas as the spreadsheet program last stored them, and once for the formulas themselves, so that a
+    formula with no stored result is told apart from a blank cell.
+    """
     try:
         import openpyxl
     except ImportError:  # pragma: no cover - a declared dependency
         raise InputError(InputProblem(file, None, None, None, "openpyxl installed to read .xlsx")) from None
     out: list[tuple[int, list[str]]] = []
+    issues: list[CellIssue] = []
     try:
-        workbook = openpyxl.load_workbook(path, read_only=True, data_only=True)
+        values_book = openpyxl.load_workbook(path, read_only=True, data_only=True)
+        formula_book = openpyxl.load_workbook(path, read_only=True, data_only=False)
         try:
-            sheet = workbook.worksheets[0]
-            for number, values in enumerate(sheet.iter_rows(values_only=True), start=1):
-                cells = [_cell_text(v) for v in values]
-                if not any(c.strip() for c in cells):
+            values_sheet = _pick_sheet(values_book, sheet, file)
+            name = values_sheet.title
+            formula_sheet = formula_book[name]
+            values_sheet.reset_dimensions()
+            formula_sheet.reset_dimensions()
+            for number, (cells, formulas) in enumerate(zip(values_sheet.iter_rows(), formula_sheet.iter_rows(),
+                                                           strict=False), start=1):
+                texts = []
+                for k, cell in enumerate(cells):
+                    value = cell.value
+                    kind = getattr(cell, "data_type", None)
+                    if value is None and k < len(formulas) and getattr(formulas[k], "data_type", None) == _FORMULA_TYPE:
+                        issues.append(CellIssue(number, k, f"{_column_letter(k)}{number}", str(formulas[k].value),
+                                                "a value: the formula has no stored result (the file was written "
+                                                "by a program that does not calculate); open and save it in a "
+                                                "spreadsheet program, or type the value"))
+                        texts.append("")
+                        continue
+                    if kind == _ERROR_TYPE:
+                        issues.append(CellIssue(number, k, f"{_column_letter(k)}{number}", str(value),
+                                                "a value, not a spreadsheet error"))
+                        texts.append("")
+                        continue
+                    texts.append(_cell_text(value, getattr(cell, "number_format", None)))
+                if not any(c.strip() for c in texts) and not (issues and issues[-1].row == number):
                     continue
-                out.append((number, cells))
+                out.append((number, texts))
         finally:
-            workbook.close()
+            values_book.close()
+            formula_book.close()
     except InputError:
         raise
     except (zipfile.BadZipFile, KeyError, OSError, ValueError, IndexError, TypeError, EOFError,
@@ -181,15 +390,26 @@ def _xlsx_rows(path: Path, file: str) -> list[tuple[int, list[str]]]:
     except Exception as exc:  # noqa: BLE001 - any parser failure in a damaged workbook is the user's file
         raise InputError(InputProblem(file, None, None, type(exc).__name__,
                                       "a complete, readable .xlsx workbook")) from None
-    return out
+    return out, issues, name
+
+
+def _column_letter(index: int) -> str:
+    """0 -> 'A', 26 -> 'AA' (spreadsheet column names)."""
+    letters = ""
+    index += 1
+    while index:
+        index, rest = divmod(index - 1, 26)
+        letters = chr(65 + rest) + letters
+    return letters
 
 
 # --- table -----------------------------------------------------------------------------------------
-def read_raw_table(source: str | os.PathLike[str], *, file: str | None = None) -> RawTable:
-    """Read the first sheet of an .xlsx, or a CSV, into a :class:`RawTable`.
+def read_raw_table(source: str | os.PathLike[str], *, file: str | None = None, sheet: str | None = None) -> RawTable:
+    """Read a CSV, or one sheet of an .xlsx, into a :class:`RawTable` (rules in the module docstring).
 
     Raises InputError for an empty file, an unreadable file, a missing header, duplicated header
-    names (after case-folding and alias mapping), or a row with more cells than the header.
+    names (after case-folding and alias mapping), a row whose cells do not line up with the header,
+    a formula without a stored result, or a workbook whose sheet to read is not clear.
     """
     path = Path(source)
     label = file or file_label(path)
@@ -199,19 +419,56 @@ def read_raw_table(source: str | os.PathLike[str], *, file: str | None = None) -
         raise InputError(InputProblem(label, None, None, None, f"a readable file ({exc.strerror})")) from None
     if not data.strip():
         raise InputError(InputProblem(label, None, None, None, "a file with a header row and data; it is empty"))
-    if data[:4] == b"PK\x03\x04" or path.suffix.lower() in (".xlsx", ".xlsm"):
-        rows = _xlsx_rows(path, label)
-    else:
-        text, _ = decode_bytes(data, label)
-        rows = _csv_rows(text, label)
+    _not_a_table(data, path, label)
+    is_workbook = data[:4] == b"PK\x03\x04" or path.suffix.lower() in (".xlsx", ".xlsm")
+    if sheet is not None and not is_workbook:
+        raise InputError(InputProblem(label, None, "--sheet", sheet, "a workbook (.xlsx) when a sheet is named; "
+                                                                     "a CSV file has no sheets"))
+    if is_workbook:
+        del data
+        rows, issues, name = _xlsx_rows(path, label, sheet)
+        table = table_from_rows(rows, label, csv_shape=False, issues=issues)
+        table.sheet = name
+        return table
+    text, _ = decode_bytes(data, label)
+    del data
+    rows = _csv_rows(text, label)
+    del text
     return table_from_rows(rows, label)
 
 
-def table_from_rows(rows: list[tuple[int, list[str]]], file: str) -> RawTable:
-    problems = Problems(file)
+def _title_rows(rows: list[tuple[int, list[str]]], file: str) -> None:
+    """Refuse one-cell rows above the header (a sheet's title), saying so."""
+    first = 0
+    while first < len(rows) - 1 and sum(1 for c in rows[first][1] if c.strip()) == 1:
+        first += 1
+    if first == 0 or sum(1 for c in rows[first][1] if c.strip()) < 2:
+        return
+    number, cells = rows[0]
+    title = next(c for c in cells if c.strip()).strip()
+    raise InputError(InputProblem(file, number, None, title,
+                                  f"the header (column names) on the first row; row {number} looks like a title "
+                                  f"above the header on row {rows[first][0]}: delete the row"
+                                  f"{'s' if first > 1 else ''} above the header"))
+
+
+def _wide_key(name: str) -> str:
+    """'SP: count', 'sp:count ' and 'SP:Count' are one column: the key that tells them alike."""
+    return re.sub(r"\s+", "", name).lower()
+
+
+def table_from_rows(rows: list[tuple[int, list[str]]], file: str, *, csv_shape: bool = True,
+                    issues: list[CellIssue] | None = None) -> RawTable:
+    problems = ProblemCounter()
+
+    def add(row, field_, value, expected):
+        problems.add(InputProblem(file, row, field_, value, expected))
+
     if not rows:
         raise InputError(InputProblem(file, None, None, None, "a header row; the file has only blank lines"))
+    _title_rows(rows, file)
     header_row, header_cells = rows[0]
+    written_width = len(header_cells)
     # trailing empty header cells are common in spreadsheets; drop them when their column is empty
     while header_cells and not header_cells[-1].strip():
         header_cells = header_cells[:-1]
@@ -219,30 +476,83 @@ def table_from_rows(rows: list[tuple[int, list[str]]], file: str) -> RawTable:
     canonical = []
     for i, name in enumerate(raw):
         if not name:
-            problems.add(header_row, f"column {i + 1}", "", "a header name for every column")
+            add(header_row, f"column {i + 1}", "", "a header name for every column")
         canonical.append(canonical_header(name) if not _is_wide_header(name) else name)
     seen: dict[str, int] = {}
     for i, name in enumerate(canonical):
-        key = name.lower()
+        key = _wide_key(name) if _is_wide_header(name) else name.lower()
         if key in seen and name:
-            problems.add(header_row, raw[i], raw[i],
-                         f"each column once; it repeats column {seen[key] + 1} ('{raw[seen[key]]}')")
+            add(header_row, raw[i], raw[i], f"each column once; it repeats column {seen[key] + 1} ('{raw[seen[key]]}')")
         seen.setdefault(key, i)
     width = len(raw)
+    for issue in issues or ():
+        if issue.row == header_row:
+            add(issue.row, f"cell {issue.coordinate}", issue.value, issue.expected)
+    by_row: dict[int, list[CellIssue]] = {}
+    for issue in issues or ():
+        if issue.row != header_row:
+            by_row.setdefault(issue.row, []).append(issue)
     body: list[tuple[int, list[str]]] = []
     for number, cells in rows[1:]:
+        for issue in by_row.get(number, ()):
+            name = raw[issue.column] if issue.column < width else f"column {issue.column + 1}"
+            add(number, f"{name} (cell {issue.coordinate})", issue.value, issue.expected)
+        if csv_shape and not width <= len(cells) <= written_width:
+            # a row ending inside the header's own trailing empty cells still lines up; any other count not
+            add(number, _shape_field(raw, cells, width), None, _shape_expected(raw, cells, width, written_width))
+            continue
         extra = cells[width:]
         if any(c.strip() for c in extra):
-            problems.add(number, None, len(cells), f"at most {width} cells as in the header")
+            at = width + next(k for k, c in enumerate(extra) if c.strip())
+            add(number, f"column {_column_letter(at)}", cells[at].strip(),
+                f"cells only under a header; column {_column_letter(at)} has no header name")
             continue
         cells = [c.strip() for c in cells[:width]] + [""] * max(0, width - len(cells))
         long_cell = next((c for c in cells if len(c) > MAX_FIELD_CHARS), None)
         if long_cell is not None:
-            problems.add(number, None, long_cell[:20] + "...", f"cells of at most {MAX_FIELD_CHARS} characters")
+            add(number, None, long_cell[:20] + "...", f"cells of at most {MAX_FIELD_CHARS} characters")
             continue
         body.append((number, cells))
     return RawTable(file=file, raw_headers=raw, headers=canonical, rows=body, header_row=header_row,
-                    pending=list(problems.items))
+                    pending=problems)
+
+
+def _shape_field(raw: list[str], cells: list[str], width: int) -> str:
+    """Which columns a row of the wrong length touches, for the message."""
+    if len(cells) > width:
+        candidates = _decimal_comma_at(raw, cells)
+        if candidates is not None:
+            return f"{raw[candidates]} and every column after it"
+        return f"columns {raw[0]} to {raw[-1]}" if raw else "columns"
+    if len(cells) < width:
+        return f"columns {raw[len(cells)]} to {raw[-1]}"
+    return f"columns {raw[0]} to {raw[-1]}" if raw else "columns"
+
+
+def _decimal_comma_at(raw: list[str], cells: list[str]) -> int | None:
+    """The first column where two neighbouring cells read as one decimal number split by a comma ('12', '5')."""
+    for i in range(min(len(raw), len(cells) - 1)):
+        a, b = cells[i].strip(), cells[i + 1].strip()
+        if a.isdigit() and b.isdigit() and ":" in raw[i] and raw[i].lower().split(":", 1)[1].strip().startswith(
+                ("cover", "cov")):
+            return i
+    for i in range(min(len(raw), len(cells) - 1)):
+        a, b = cells[i].strip(), cells[i + 1].strip()
+        if a.isdigit() and b.isdigit() and ":" in raw[i]:
+            return i
+    return None
+
+
+def _shape_expected(raw: list[str], cells: list[str], width: int, written_width: int) -> str:
+    n = len(cells)
+    if n > width:
+        at = _decimal_comma_at(raw, cells)
+        hint = (f"; '{cells[at]},{cells[at + 1]}' under '{raw[at]}' looks like a decimal comma: write "
+                f"'{cells[at]}.{cells[at + 1]}' (or quote the cell)") if at is not None else \
+            "; a decimal comma or a stray ',' shifts every later value one column: write '.' as decimal mark"
+        return f"{written_width} cells as in the header, not {n}{hint}"
+    return (f"{written_width} cells as in the header, not {n} (a missing ',' or cells left off the end of the "
+            "row; write every cell, blank ones as nothing between two commas)")
 
 
 _WIDE_RE = re.compile(r"^\s*[^:\s]+\s*:\s*(count|cover|presence|frequency\s*/\s*\d+|pin_hits\s*/\s*\d+)\s*$",
@@ -297,6 +607,18 @@ def parse_number(text: str) -> float | None:
     if not math.isfinite(value) or abs(value) > MAX_ABS_NUMBER:
         return None
     return value
+
+
+def parse_percent(text: str) -> float | None:
+    """'12.5%' (typed, or a percent-formatted workbook cell) or '12.5' -> 12.5 (a percent); None if neither."""
+    text = text.strip()
+    if text.endswith("%"):
+        text = text[:-1].rstrip()
+    return parse_number(text)
+
+
+def is_percent(text: str) -> bool:
+    return text.rstrip().endswith("%")
 
 
 def parse_int(text: str) -> int | None:

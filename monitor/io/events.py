@@ -7,11 +7,11 @@ import os
 import pandas as pd
 
 from monitor import columns as C
+from monitor.io import filespec as FS
 from monitor.io._tables import Problems, check_columns, get, parse_date, read_raw_table
 
 EVENT_COLUMNS = [C.SITE, C.STATION, "kind", "start_date", "end_date", "notes", "source_row"]
-KNOWN_KINDS = ("grazing", "cutting", "mowing", "burning", "flooding", "drought", "scrub_clearance",
-               "herbicide", "trampling", "other")
+KNOWN_KINDS = FS.EVENT_KINDS
 
 
 def read_management_events_csv(source: str | os.PathLike[str], *, sites: set[str] | None = None,
@@ -23,7 +23,7 @@ def read_management_events_csv(source: str | os.PathLike[str], *, sites: set[str
     """
     table = read_raw_table(source)
     problems = Problems(table.file)
-    if check_columns(table, ["kind", "start_date"], [C.SITE, C.STATION, "end_date", "notes"], problems):
+    if check_columns(table, FS.EVENTS.required(), FS.EVENTS.optional(), problems):
         problems.raise_if_any()
     records = []
     for number, cells in table.rows:

@@ -49,6 +49,7 @@ VALUE = "value"                    # the recorded value in the measure's unit
 UNIT = "unit"                      # unit of a covariate
 SOURCE_ROW = "source_row"          # 1-based row in the file, header = row 1
 SOURCE_FIELD = "source_field"      # header as written in the file
+SOURCE_TEXT = "source_text"        # a value's cell as typed (echoed in messages: '11', not 11.0)
 
 SCOPE_PROGRAMME = "programme"
 

@@ -33,6 +33,7 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.errors import InputError, InputProblem
+from monitor.io import filespec as FS
 from monitor.io import headers as H
 from monitor.io._tables import (
     Problems,
@@ -290,9 +291,8 @@ def _date(table: RawTable, cells: list[str], number: int, name: str, problems: P
 
 
 # --- stations ------------------------------------------------------------------------------------------
-STATION_REQUIRED = [C.STATION, C.SITE, C.X, C.Y, C.QUADRAT_WIDTH, C.QUADRAT_LENGTH, H.PLACEMENT]
-STATION_OPTIONAL = [H.EPSG, H.FIX_METHOD, H.ACCURACY, C.TRANSECT, C.DISTANCE, C.PANEL, H.ESTABLISHED,
-                    H.MARKER, H.RELOCATION_NOTES, C.STRATUM, H.RETIRED, H.RETIRED_REASON, H.REPLACED_BY]
+STATION_REQUIRED = FS.STATIONS.required()   # the one definition of the file (docs/files.md is made from it)
+STATION_OPTIONAL = FS.STATIONS.optional()
 STATION_COLUMNS = STATION_REQUIRED[:4] + [H.EPSG, H.FIX_METHOD, H.ACCURACY, C.QUADRAT_WIDTH, C.QUADRAT_LENGTH,
                                           C.QUADRAT_AREA, H.PLACEMENT, C.TRANSECT, C.DISTANCE, C.PANEL,
                                           H.ESTABLISHED, H.MARKER, H.RELOCATION_NOTES, C.STRATUM, H.RETIRED,
@@ -410,8 +410,8 @@ def _closest(expected: str, value: str, choices) -> str:
 
 
 # --- species -------------------------------------------------------------------------------------------
-SPECIES_REQUIRED = [C.SPECIES, H.SCIENTIFIC_NAME, C.MEASURE]
-SPECIES_OPTIONAL = [H.COMMON_NAME, H.N, H.SENSITIVE, H.WINDOW_START, H.WINDOW_END]
+SPECIES_REQUIRED = FS.SPECIES.required()
+SPECIES_OPTIONAL = FS.SPECIES.optional()
 SPECIES_COLUMNS = [C.SPECIES, H.SCIENTIFIC_NAME, H.COMMON_NAME, C.MEASURE, H.N, H.SENSITIVE,
                    H.WINDOW_START, H.WINDOW_END, "source_row"]
 MEASURES_WITH_N = (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS)
@@ -518,7 +518,7 @@ def read_panels_csv(source: str | os.PathLike[str]) -> pd.DataFrame:
     """
     table, problems = _open(source)
     _register_key(table, C.PANEL)
-    if check_columns(table, [C.PANEL, H.RULE], [H.START_YEAR], problems):
+    if check_columns(table, FS.PANELS.required(), FS.PANELS.optional(), problems):
         problems.raise_if_any()
     _unique_codes(table, C.PANEL, problems)
     records = []
@@ -559,7 +559,7 @@ def read_season_windows_csv(source: str | os.PathLike[str], *, species: pd.DataF
     be known codes.  One window per scope and year (blank year = every year).
     """
     table, problems = _open(source)
-    if check_columns(table, [H.SCOPE, H.START, H.END], [C.YEAR], problems):
+    if check_columns(table, FS.WINDOWS.required(), FS.WINDOWS.optional(), problems):
         problems.raise_if_any()
     known = set(species[C.SPECIES]) if species is not None else None
     seen: dict[tuple[str, int | None], int] = {}
@@ -602,7 +602,7 @@ def read_observers_csv(source: str | os.PathLike[str]) -> pd.DataFrame:
     _register_key(table, C.OBSERVER)
     if C.OBSERVER not in table.headers and H.OBSERVERS in table.headers:
         table.headers[table.headers.index(H.OBSERVERS)] = C.OBSERVER
-    if check_columns(table, [C.OBSERVER, H.NAME], [H.TRAINED], problems):
+    if check_columns(table, FS.OBSERVERS.required(), FS.OBSERVERS.optional(), problems):
         problems.raise_if_any()
     _unique_codes(table, C.OBSERVER, problems)
     records = []

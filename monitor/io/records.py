@@ -26,6 +26,7 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.errors import InputError, InputProblem
+from monitor.io import filespec as FS
 from monitor.io import headers as H
 from monitor.io._tables import (
     _COV_RE,
@@ -33,24 +34,31 @@ from monitor.io._tables import (
     RawTable,
     check_columns,
     get,
+    is_percent,
     parse_bool,
     parse_date,
     parse_int,
     parse_number,
+    parse_percent,
     read_raw_table,
 )
+from monitor.errors import ProblemCounter
 
 WIDE = "wide"
 LONG = "long"
+NUMBER_EXPECTED = "a number with '.' as decimal mark, |x| <= 1e12"
 
 VISIT_COLUMNS = [C.STATION, C.DATE, C.YEAR, H.OBSERVERS, C.VISIT_STATUS, H.REPEAT, C.PROTOCOL, H.NOTES,
                  H.SOURCE_ROW]
-OBSERVATION_COLUMNS = [C.STATION, C.DATE, C.SPECIES, C.MEASURE, H.VALUE, H.N, H.SOURCE_ROW, H.SOURCE_FIELD]
+OBSERVATION_COLUMNS = [C.STATION, C.DATE, C.SPECIES, C.MEASURE, H.VALUE, H.N, H.SOURCE_ROW, H.SOURCE_FIELD,
+                       H.SOURCE_TEXT]
 COVARIATE_COLUMNS = [C.STATION, C.DATE, "name", H.UNIT, H.VALUE, H.SOURCE_ROW]
 
-VISIT_REQUIRED = [C.STATION, C.DATE, C.VISIT_STATUS]
-VISIT_OPTIONAL = [H.OBSERVERS, H.REPEAT, C.PROTOCOL, H.NOTES]
-LONG_REQUIRED = VISIT_REQUIRED + [C.SPECIES, C.MEASURE, H.VALUE]
+# the visit columns, from the one definition of the file (docs/files.md is made from it); the value and
+# covariate columns are patterns (SPECIES:measure, cov:NAME[UNIT]) recognised by their form
+VISIT_REQUIRED = FS.RECORDS.required()
+VISIT_OPTIONAL = [f.name for f in FS.RECORDS.fields if not f.required and ":" not in f.name]
+LONG_REQUIRED = VISIT_REQUIRED + list(FS.RECORDS_LONG_EXTRA)
 LONG_OPTIONAL = VISIT_OPTIONAL + [H.N]
 
 _VALUE_HEADER = re.compile(r"^\s*([^:\s]+)\s*:\s*([A-Za-z_ ]+?)\s*(?:/\s*(\S+))?\s*$")
@@ -65,6 +73,12 @@ class FieldRecords:
     visits: pd.DataFrame      # VISIT_COLUMNS
     observations: pd.DataFrame  # OBSERVATION_COLUMNS
     covariates: pd.DataFrame  # COVARIATE_COLUMNS
+    sheet: str | None = None  # the workbook sheet read (None for a CSV)
+    #: with ``keep_going=True``: the problems of the rows and cells that could not be read (the frames hold
+    #: the rest), so that the programme's checks can report theirs too, all in one listing
+    problems: ProblemCounter | None = None
+    #: the covariates the file has a column for (a blank cell there means "not recorded")
+    covariate_names: tuple[str, ...] = ()
 
 
 def parse_value_header(raw: str) -> tuple[str, str, int | None] | str:
@@ -107,8 +121,9 @@ def detect_layout(table: RawTable) -> str | None:
 
 
 def read_field_records(source: str | os.PathLike[str], *, layout: str | None = None,
-                       day_first: bool | None = None) -> FieldRecords:
-    """Read a season's field records from CSV or .xlsx (first sheet) into canonical frames.
+                       day_first: bool | None = None, sheet: str | None = None,
+                       keep_going: bool = False) -> FieldRecords:
+    """Read a season's field records from CSV or .xlsx into canonical frames.
 
     Parameters
     ----------
@@ -118,13 +133,19 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
         Force a layout; detected from the header when omitted.
     day_first : bool, optional
         How to read slash dates.  Default: only unambiguous DD/MM/YYYY dates are accepted.
+    sheet : str, optional
+        The workbook sheet to read; needed when more than one visible sheet holds data (hidden sheets are
+        read only when named).
+    keep_going : bool
+        Return what could be read, with the problems in ``FieldRecords.problems``, rather than raise for
+        problems of single rows and cells (a missing column or an unreadable file still raises).
 
     Raises
     ------
     InputError
         With every problem found (file, row, field, value, expected).
     """
-    table = read_raw_table(source)
+    table = read_raw_table(source, sheet=sheet)
     problems = table.problems()
     found = detect_layout(table)
     if layout is None:
@@ -165,7 +186,8 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
         reader.read_wide(value_columns)
     else:
         reader.read_long()
-    problems.raise_if_any()
+    if not keep_going:
+        problems.raise_if_any()
     visits = reader.visit_frame if reader.visit_frame is not None else pd.DataFrame(reader.visits,
                                                                                       columns=VISIT_COLUMNS)
     observations = (reader.observation_frame if reader.observation_frame is not None
@@ -176,28 +198,43 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
     covariates[H.VALUE] = covariates[H.VALUE].astype(float)
     for frame in (visits, observations, covariates):
         frame.attrs["file"] = table.file
-    return FieldRecords(table.file, layout, visits, observations, covariates)
+    return FieldRecords(table.file, layout, visits, observations, covariates, table.sheet,
+                        problems.counter if problems.has_errors else None,
+                        tuple(dict.fromkeys(name for name, _unit in cov_columns.values())))
+
+
+def covariate_number(text: str, unit: str | None, problems, row: int, field: str) -> float | None:
+    """A covariate cell's number; a percent (typed '40%' or a percent-formatted cell) only where the unit is %."""
+    if is_percent(text):
+        if (unit or "").strip() != "%":
+            problems.add(row, field, text, f"a plain number in [{unit or 'no unit'}], not a percent (the cell "
+                                           "shows a '%' or is formatted as a percent)")
+            return None
+        value = parse_percent(text)
+    else:
+        value = parse_number(text)
+    if value is None:
+        problems.add(row, field, text, NUMBER_EXPECTED)
+    return value
 
 
 class _KeyedProblems:
     """Collects problems with a sort key, so that reading column by column reports them row by row.
 
     The key is (row, phase, column position, arrival): phase 0 visit fields, 1 value cells, 2 covariate
-    cells, 3 a repeated station and date, as a row-by-row reading meets them.
+    cells, 3 a repeated station and date, as a row-by-row reading meets them.  Only the first
+    :data:`monitor.errors.MAX_LISTED` by key are kept; all are counted.
     """
 
     def __init__(self, file: str):
         self.file = file
         self.phase: tuple[int, int] = (0, 0)
-        self.items: list[tuple[tuple[int, int, int, int], InputProblem]] = []
+        self.counter = ProblemCounter()
 
     def add(self, row: int | None, field_: str | None, value: object, expected: str,
             severity: str = "error") -> None:
-        key = (-1 if row is None else row, *self.phase, len(self.items))
-        self.items.append((key, InputProblem(self.file, row, field_, value, expected, severity)))
-
-    def ordered(self) -> list[InputProblem]:
-        return [problem for _key, problem in sorted(self.items, key=lambda item: item[0])]
+        key = (-1 if row is None else row, *self.phase)
+        self.counter.add(InputProblem(self.file, row, field_, value, expected, severity), key)
 
 
 class _Reader:
@@ -258,10 +295,8 @@ class _Reader:
             text = cells[i]
             if not text:
                 continue
-            value = parse_number(text)
+            value = covariate_number(text, unit, self.problems, number, self.table.raw_headers[i])
             if value is None:
-                self.problems.add(number, self.table.raw_headers[i], text,
-                                  "a number with '.' as decimal mark, |x| <= 1e12")
                 continue
             if visit is not None:
                 out.append({C.STATION: visit[C.STATION], C.DATE: visit[C.DATE], "name": name, H.UNIT: unit,
@@ -275,9 +310,16 @@ class _Reader:
                 self.problems.add(number, field, text, "presence as 0/1 or yes/no")
                 return None
             return 1.0 if flag else 0.0
-        value = parse_number(text)
+        if is_percent(text):
+            if measure != C.MEASURE_COVER:
+                self.problems.add(number, field, text, f"a plain number for {measure}, not a percent (the cell "
+                                                       "shows a '%' or is formatted as a percent)")
+                return None
+            value = parse_percent(text)  # a percent cell means a percent: '12.5%' is 12.5 % cover
+        else:
+            value = parse_number(text)
         if value is None:
-            self.problems.add(number, field, text, "a number with '.' as decimal mark, |x| <= 1e12")
+            self.problems.add(number, field, text, NUMBER_EXPECTED)
         return value
 
     def new_visit(self, visit: dict) -> bool:
@@ -313,7 +355,7 @@ class _Reader:
             self._wide_covariates(numbers, columns, kept, keyed)
         finally:
             self.problems = collector
-        collector.extend(keyed.ordered())
+        collector.absorb(keyed.counter)
 
     def _wide_visit_fields(self, numbers: list[int], columns: list[tuple[str, ...]],
                            keyed: _KeyedProblems) -> dict[int, dict]:
@@ -408,6 +450,7 @@ class _Reader:
         at_row: list[int] = []
         at_column: list[int] = []
         values: list[float] = []
+        texts: list[str] = []
         for position, (i, (_species, measure, _n)) in enumerate(value_columns.items()):
             keyed.phase = (1, position)
             field = headers[i]
@@ -424,6 +467,7 @@ class _Reader:
                 at_row.append(r)
                 at_column.append(position)
                 values.append(value)
+                texts.append(text)
         if not values:
             return
         rows_ = np.asarray(at_row)
@@ -437,6 +481,7 @@ class _Reader:
             C.SPECIES: [specs[k][1][0] for k in positions], C.MEASURE: [specs[k][1][1] for k in positions],
             H.VALUE: np.asarray(values, dtype=float)[order], H.N: [specs[k][1][2] for k in positions],
             H.SOURCE_ROW: [numbers[r] for r in rows_], H.SOURCE_FIELD: [headers[specs[k][0]] for k in positions],
+            H.SOURCE_TEXT: np.asarray(texts, dtype=object)[order],
         }, columns=OBSERVATION_COLUMNS)
 
     def _wide_covariates(self, numbers: list[int], columns: list[tuple[str, ...]], kept: list[int],
@@ -452,10 +497,8 @@ class _Reader:
             for r, text in enumerate(columns[i]):
                 if not text:
                     continue
-                value = parse_number(text)
+                value = covariate_number(text, unit, keyed, numbers[r], self.table.raw_headers[i])
                 if value is None:
-                    keyed.add(numbers[r], self.table.raw_headers[i], text,
-                              "a number with '.' as decimal mark, |x| <= 1e12")
                     continue
                 if r in keep:
                     station, date = self.visits_by_index[r][:2]
@@ -529,4 +572,4 @@ class _Reader:
             obs_seen[okey] = number
             self.observations.append({C.STATION: visit[C.STATION], C.DATE: visit[C.DATE], C.SPECIES: species,
                                       C.MEASURE: measure, H.VALUE: value, H.N: n, H.SOURCE_ROW: number,
-                                      H.SOURCE_FIELD: self.raw(H.VALUE)})
+                                      H.SOURCE_FIELD: self.raw(H.VALUE), H.SOURCE_TEXT: value_text})

@@ -9,13 +9,12 @@ from pathlib import Path
 from typing import Any
 
 from monitor.errors import InputError, InputProblem
+from monitor.io import filespec as FS
 from monitor.io.programme import parse_epsg, projected_crs_problem
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
-REQUIRED = ("code", "name", "crs_epsg")
-OPTIONAL = (
-    "description", "organisation", "contact", "default_quadrat_width_m", "default_quadrat_length_m",
-    "blanks_mean_zero", "allow_lone_working", "change_margin", "settings", "protocols",
-)
+REQUIRED = tuple(FS.PROGRAMME.required())   # the one definition of the file (docs/files.md)
+OPTIONAL = tuple(FS.PROGRAMME.optional())
 
 
 def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
@@ -23,7 +22,7 @@ def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
 
     Keys: code, name, crs_epsg (a projected CRS in metres) required; description, organisation,
     contact, default_quadrat_width_m / _length_m (> 0, metres), blanks_mean_zero, allow_lone_working
-    (true/false), change_margin (margin of change that matters, fraction a year, >= 0), settings
+    (true/false), change_margin (margin of change that matters, fraction a year, > 0), settings
     (object), protocols (list of {code, description, effective_from ISO date}).
     """
     path = Path(source)
@@ -63,12 +62,14 @@ def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
             bad(key, doc[key], "a quadrat side in metres > 0")
     if "change_margin" in doc and not (
         isinstance(doc["change_margin"], (int, float)) and not isinstance(doc["change_margin"], bool)
-        and 0 <= doc["change_margin"] < 1
+        and 0 < doc["change_margin"] < 1
     ):
-        bad("change_margin", doc["change_margin"], "a fraction a year between 0 and 1 (e.g. 0.02)")
+        bad("change_margin", doc["change_margin"], f"a fraction a year above 0 and below 1 (e.g. {DEFAULT_CHANGE_MARGIN:g})")
     for key in ("blanks_mean_zero", "allow_lone_working"):
         if key in doc and not isinstance(doc[key], bool):
             bad(key, doc[key], "true or false")
+    if "time_zone" in doc:
+        out["time_zone"] = _time_zone(doc["time_zone"], bad)
     if "settings" in doc and not isinstance(doc["settings"], dict):
         bad("settings", type(doc["settings"]).__name__, "a JSON object")
     protocols = []
@@ -88,3 +89,17 @@ def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
     if problems:
         raise InputError(problems)
     return out
+
+
+def _time_zone(value: object, bad) -> str | None:
+    """An IANA time zone name (e.g. Europe/London), checked against the zone database."""
+    import zoneinfo
+
+    if isinstance(value, str) and value.strip():
+        try:
+            zoneinfo.ZoneInfo(value.strip())
+            return value.strip()
+        except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+            pass
+    bad("time_zone", value, "an IANA time zone name such as Europe/London or UTC")
+    return None

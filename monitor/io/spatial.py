@@ -236,6 +236,41 @@ def _fold(line: str) -> str:
     return "\r\n".join(out)
 
 
+def _icalendar_zoned(events: list[CalendarEvent], *, dtstamp: dt.datetime, prodid: str, name: str | None,
+                     time_zone: str) -> str:
+    import zoneinfo
+
+    import icalendar
+
+    try:
+        zone = zoneinfo.ZoneInfo(time_zone)
+    except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+        raise InputError(f"the programme's time zone '{time_zone}' is not in the time zone database") from None
+    calendar = icalendar.Calendar()
+    calendar.add("prodid", prodid)
+    calendar.add("version", "2.0")
+    calendar.add("calscale", "GREGORIAN")
+    if name:
+        calendar.add("x-wr-calname", name)
+    calendar.add("x-wr-timezone", time_zone)
+    for e in events:
+        event = icalendar.Event()
+        event.add("uid", e.uid)
+        event.add("dtstamp", dtstamp.astimezone(dt.UTC))
+        event.add("dtstart", e.start if e.start.tzinfo else e.start.replace(tzinfo=zone))
+        event.add("dtend", e.end if e.end.tzinfo else e.end.replace(tzinfo=zone))
+        event.add("summary", e.summary)
+        if e.description:
+            event.add("description", e.description)
+        if e.location:
+            event.add("location", e.location)
+        if e.geo is not None:
+            event.add("geo", (round(e.geo[0], 6), round(e.geo[1], 6)))
+        calendar.add_component(event)
+    calendar.add_missing_timezones()
+    return calendar.to_ical().decode("utf-8")
+
+
 def _ics_dt(v: dt.datetime) -> str:
     if v.tzinfo is not None:
         return v.astimezone(dt.UTC).strftime("%Y%m%dT%H%M%SZ")
@@ -243,14 +278,20 @@ def _ics_dt(v: dt.datetime) -> str:
 
 
 def icalendar_document(events: Iterable[CalendarEvent], *, dtstamp: dt.datetime,
-                       prodid: str = "-//monitor//field schedule//EN", name: str | None = None) -> str:
+                       prodid: str = "-//monitor//field schedule//EN", name: str | None = None,
+                       time_zone: str | None = None) -> str:
     """An RFC 5545 VCALENDAR with one VEVENT per event.
 
     ``dtstamp`` (timezone-aware) is the creation time written on every event (required by
-    RFC 5545 3.6.1 together with UID and, with no METHOD, DTSTART).
+    RFC 5545 3.6.1 together with UID and, with no METHOD, DTSTART).  With ``time_zone`` (an IANA
+    name), naive event times are local times in that zone: each DTSTART/DTEND carries its TZID and the
+    calendar a VTIMEZONE for it (RFC 5545 3.6.5), written by the icalendar library from the zone
+    database, so a phone in another zone shows the right hour.
     """
     if dtstamp.tzinfo is None:
         raise InputError("the calendar time stamp must be timezone-aware")
+    if time_zone:
+        return _icalendar_zoned(list(events), dtstamp=dtstamp, prodid=prodid, name=name, time_zone=time_zone)
     lines = ["BEGIN:VCALENDAR", "VERSION:2.0", f"PRODID:{prodid}", "CALSCALE:GREGORIAN"]
     if name:
         lines.append(f"X-WR-CALNAME:{_ics_escape(name)}")

@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
-from monitor.errors import InputError, InputProblem
+from monitor.errors import InputError, InputProblem, ProblemCounter
 from monitor.io import headers as H
 
 WARNING = "warning"
@@ -67,6 +67,14 @@ class Reference:
     observers: frozenset[str] | None = None
     covariate_units: Mapping[str, str | None] | None = None
     today: dt.date = field(default_factory=dt.date.today)
+
+
+def _plain(value: object) -> object:
+    """A value for a message: text as typed, or a whole float shown as a whole number (11, not 11.0)."""
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return int(value) if value.is_integer() and abs(value) < 1e15 else value
+    return value
 
 
 def _closest(value: str, choices: list[str]) -> str:
@@ -192,10 +200,11 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         Errors and warnings, in the order: visits, observations, covariates.
     """
     file = file or visits.attrs.get("file") or "<records>"
-    out: list[InputProblem] = []
+    counter = ProblemCounter()
 
     def add(row, field_, value, expected, severity="error"):
-        out.append(InputProblem(file, None if row is None else int(row), field_, value, expected, severity))
+        row = None if row is None else int(row)
+        counter.add(InputProblem(file, row, field_, value, expected, severity), (-1 if row is None else row,))
 
     station_codes = [str(s) for s in reference.stations[C.STATION]]
     retired = {}
@@ -288,6 +297,8 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         species = obs[C.SPECIES].astype(str).to_numpy()
         measures = obs[C.MEASURE].astype(str).to_numpy()
         values = obs[H.VALUE].astype(float).to_numpy()
+        # what the messages echo: the cell as typed where the reader kept it ('11', not 11.0)
+        shown = obs[H.SOURCE_TEXT].to_numpy(dtype=object) if H.SOURCE_TEXT in obs.columns else values
         ns = pd.to_numeric(obs[H.N], errors="coerce").to_numpy(dtype=float) if H.N in obs.columns \
             else np.full(len(obs), np.nan)
 
@@ -300,10 +311,10 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         statuses = np.append(visits[C.VISIT_STATUS].to_numpy(dtype=object)[first_of_key], None)
         visit_status = statuses[at]  # at = -1 (no visit in the file) picks the trailing None
         for i in np.flatnonzero(pd.isna(visit_status)):
-            add(rows[i], fields[i], values[i], f"a value belonging to a visit of {stations[i]} in this file")
+            add(rows[i], fields[i], _plain(shown[i]), f"a value belonging to a visit of {stations[i]} in this file")
         no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
         for i in np.flatnonzero(no_values):
-            add(rows[i], fields[i], values[i],
+            add(rows[i], fields[i], _plain(shown[i]),
                 f"a blank cell: a {visit_status[i]} visit carries no values (missing is not zero)")
 
         # species and their measures
@@ -328,19 +339,19 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         is_ = {m: measures == m for m in C.MEASURES}
         bad = is_[C.MEASURE_COUNT] & ((values < 0) | ~whole)
         for i in np.flatnonzero(bad):
-            add(rows[i], fields[i], values[i], "a count: a whole number >= 0")
+            add(rows[i], fields[i], _plain(shown[i]), "a count: a whole number >= 0")
         bad = is_[C.MEASURE_COVER] & ((values < 0) | (values > 100))
         for i in np.flatnonzero(bad):
-            add(rows[i], fields[i], values[i], "cover in percent, 0 to 100")
+            add(rows[i], fields[i], _plain(shown[i]), "cover in percent, 0 to 100")
         bad = is_[C.MEASURE_PRESENCE] & ~np.isin(values, [0.0, 1.0])
         for i in np.flatnonzero(bad):
-            add(rows[i], fields[i], values[i], "presence 0 or 1")
+            add(rows[i], fields[i], _plain(shown[i]), "presence 0 or 1")
         kn = is_[C.MEASURE_FREQUENCY] | is_[C.MEASURE_PIN_HITS]
         with np.errstate(invalid="ignore"):
             bad = kn & ((values < 0) | ~whole | (np.nan_to_num(ns, nan=np.inf) < values))
         for i in np.flatnonzero(bad):
             unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
-            add(rows[i], fields[i], values[i], f"a whole number of {unit} k with 0 <= k <= n = "
+            add(rows[i], fields[i], _plain(shown[i]), f"a whole number of {unit} k with 0 <= k <= n = "
                                                f"{'?' if np.isnan(ns[i]) else int(ns[i])}")
         distinct_n = np.array([registered.get(pair) for pair in distinct_pairs] or [None], dtype=object)
         programme_n = pd.to_numeric(pd.Series(distinct_n), errors="coerce").to_numpy(dtype=float)[pair_at]
@@ -395,16 +406,40 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                 elif (reference.covariate_units[c["name"]] or None) != (c.get(H.UNIT) or None):
                     add(row, shown_field, c.get(H.UNIT),
                         f"unit [{reference.covariate_units[c['name']]}] as the programme records {c['name']}")
-    out.sort(key=lambda p: (p.row if p.row is not None else -1))
-    return out
+    return ProblemList.of(counter)
+
+
+class ProblemList(list):
+    """The first :data:`monitor.errors.MAX_LISTED` problems in row order, with the count of all of them
+    (``total``) and per kind (``counts``): a bounded listing however many problems a file has."""
+
+    total: int = 0
+    counts: dict[str, int]
+
+    @classmethod
+    def of(cls, counter: ProblemCounter) -> ProblemList:
+        out = cls(counter.kept())
+        out.total = counter.total
+        out.counts = dict(counter.counts)
+        return out
 
 
 def raise_for_problems(problems: list[InputProblem], *, accept_warnings: bool = False) -> list[InputProblem]:
     """Raise InputError if there is any error, or any warning not accepted; return the accepted warnings."""
     errors = [p for p in problems if p.severity != WARNING]
     warnings = [p for p in problems if p.severity == WARNING]
-    if errors or (warnings and not accept_warnings):
-        raise InputError(errors + ([] if accept_warnings else warnings))
+    counts = getattr(problems, "counts", None)
+    n_errors = len(errors)
+    if counts is not None:
+        n_errors = sum(n for kind, n in counts.items() if not kind.startswith("warning: "))
+    if n_errors or (warnings and not accept_warnings):
+        listed = errors + ([] if accept_warnings else warnings)
+        if counts is None:
+            raise InputError(listed)
+        if accept_warnings:
+            counts = {k: n for k, n in counts.items() if not k.startswith("warning: ")}
+        raise InputError(sorted(listed, key=lambda p: -1 if p.row is None else p.row),
+                         total=sum(counts.values()), counts=counts)
     return warnings
 
 

@@ -3,8 +3,10 @@
 The population model is the one the trend engine fits (``monitor.trend``), written on the link
 scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey year):
 
-    eta_ijt = b0 + log(a) [counts only] + beta * t + u_i + v_j + e_ijt
+    eta_ijt = b0 + log(a) [counts only] + beta * t + u_i + v_j + w_t + g_jt + e_ijt
     u_i ~ N(0, (s_station * a**-b)^2),  v_j ~ N(0, s_site^2),  e_ijt ~ N(0, (s_obs * a**-b)^2)
+    w_t ~ N(0, s_year^2)       one fluctuation a year shared by every station (weather: good and bad years)
+    g_jt ~ N(0, s_site_year^2) a site's own fluctuation in year t
 
     poisson-lognormal  y ~ Poisson(exp(eta))
     poisson            y ~ Poisson(exp(eta))                      (no e)
@@ -15,7 +17,17 @@ scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey yea
 
 ``a`` is the quadrat area relative to the reference area at which the variance components were
 estimated, and ``b`` the user's exponent in ``SD proportional to area**-b``; beta = log(1 + r)
-for a steady annual change ``r``.
+for a steady annual change ``r``.  The year and site-by-year effects are shared by many quadrats,
+so quadrat area does not scale them.  Because stations in one year are not independent, the
+information about a trend comes from the number of years (Urquhart, Paulsen & Larsen 1998;
+Piepho & Ogutu 2002).
+
+References
+----------
+Urquhart, N. S., Paulsen, S. G. & Larsen, D. P. (1998) Monitoring for policy-relevant regional
+  trends over time. Ecological Applications 8(2), 246-257.
+Piepho, H.-P. & Ogutu, J. O. (2002) A simple mixed model for trend analysis in wildlife
+  populations. Journal of Agricultural, Biological, and Environmental Statistics 7(3), 350-360.
 """
 
 from __future__ import annotations
@@ -28,6 +40,7 @@ import pandas as pd
 from monitor import columns as col
 from monitor.errors import DesignError, EstimationError
 from monitor.power.panels import RevisitDesign, parse_revisit
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 FAMILIES = ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal", "lognormal")
 SIDES = ("two-sided", "decline", "rise")
@@ -58,6 +71,10 @@ class VarianceComponents:
         Observation-level random effect SD (overdispersion) for poisson-lognormal and binomial.
     residual_sd : float
         Residual SD for logit-normal and lognormal [link scale].
+    year_sd : float
+        SD of the year effect shared by every station (w_t) [link scale].
+    site_year_sd : float
+        SD of the site-by-year effect (g_jt) [link scale].
     theta : float or None
         NB2 size for negbin (variance = mu + mu^2/theta).
     trials : int
@@ -81,6 +98,8 @@ class VarianceComponents:
     site_sd: float = 0.0
     observation_sd: float = 0.0
     residual_sd: float = 0.0
+    year_sd: float = 0.0
+    site_year_sd: float = 0.0
     theta: float | None = None
     trials: int = 1
     measure: str | None = None
@@ -91,7 +110,7 @@ class VarianceComponents:
     def __post_init__(self) -> None:
         if self.family not in FAMILIES:
             raise DesignError(f"family {self.family!r}: expected one of {', '.join(FAMILIES)}")
-        for name in ("station_sd", "site_sd", "observation_sd", "residual_sd"):
+        for name in ("station_sd", "site_sd", "observation_sd", "residual_sd", "year_sd", "site_year_sd"):
             value = getattr(self, name)
             if not (value >= 0 and math.isfinite(value)):
                 raise DesignError(f"{name} must be a finite number >= 0, got {value!r}")
@@ -120,7 +139,7 @@ class VarianceComponents:
         (lognormal mean).  For binomial and logit-normal ``mean`` is the proportion (0-1) of a
         typical station, ``b0 = logit(mean)``.
         """
-        sd2 = sum(kwargs.get(k, 0.0) ** 2 for k in ("station_sd", "site_sd", "observation_sd"))
+        sd2 = sum(kwargs.get(k, 0.0) ** 2 for k in ("station_sd", "site_sd", "observation_sd", "year_sd", "site_year_sd"))
         if family in ("poisson", "poisson-lognormal", "negbin", "lognormal"):
             if mean <= 0:
                 raise DesignError("mean count must be positive")
@@ -210,7 +229,7 @@ class Scenario:
     annual_change: float
     alpha: float = 0.05
     side: str = "two-sided"
-    margin: float = 0.01
+    margin: float = DEFAULT_CHANGE_MARGIN
 
     def __post_init__(self) -> None:
         if not self.annual_change > -1:
@@ -369,6 +388,8 @@ def scaled_components(components: VarianceComponents, design: Design) -> dict[st
         "site_sd": components.site_sd,
         "observation_sd": components.observation_sd * sd_factor,
         "residual_sd": components.residual_sd * sd_factor,
+        "year_sd": components.year_sd,
+        "site_year_sd": components.site_year_sd,
         "theta": (theta * a ** (2 * design.area_exponent)) if theta is not None else float("nan"),
     }
 

@@ -43,6 +43,7 @@ from monitor.power.approximation import (
 from monitor.power.fitting import FITTERS, fit_one
 from monitor.power.model import Design, Scenario, VarianceComponents
 from monitor.power.simulate import simulate_dataset
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 Progress = Callable[[int, int], None] | None
 
@@ -446,7 +447,7 @@ class DetectableChange:
 
 def detectable_change(components: VarianceComponents, design: Design, *, alpha: float = 0.05,
                       side: str = "decline", power: float = 0.8, over_years: int | None = None,
-                      margin: float = 0.01, method: str = "approximation",
+                      margin: float = DEFAULT_CHANGE_MARGIN, method: str = "approximation",
                       rng: np.random.Generator | None = None, n_replicates: int = 200,
                       n_workers: int | None = 1, progress: Progress = None,
                       fitter: str = "trend") -> DetectableChange:

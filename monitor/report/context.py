@@ -29,6 +29,7 @@ from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
 from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 from monitor.report.wording import (
     CALL_LABEL,
     CALL_MARKER,
@@ -726,7 +727,7 @@ def build_report_context(
         period = Interval.from_any(_attr(result, "period_change"))
         first, last = (int(y) for y in _attr(result, "years"))
         call = str(_attr(result, "call", C.CALL_UNCLEAR))
-        margin = float(programme.margin if programme.margin is not None else _attr(result, "margin", 0.01))
+        margin = float(programme.margin if programme.margin is not None else _attr(result, "margin", DEFAULT_CHANGE_MARGIN))
         margins.add(margin)
         family = str(_attr(result, "family", ""))
         families.add(family)

@@ -314,8 +314,9 @@ def team_day_gpx(plan: SeasonPlan, team: str, date: dt.date, stations: pd.DataFr
 
 
 def team_day_calendar(plan: SeasonPlan, *, crs: int | str, dtstamp: dt.datetime, programme: str = "monitor",
-                      domain: str = "monitor.invalid") -> str:
-    """iCalendar (RFC 5545) with one event per team-day of the plan (floating local times)."""
+                      domain: str = "monitor.invalid", time_zone: str | None = None) -> str:
+    """iCalendar (RFC 5545) with one event per team-day of the plan, in the programme's time zone
+    (``time_zone``, IANA name; floating local times when it is not set)."""
     events = []
     if plan.team_days:
         sx = [td.start[0] for td in plan.team_days]
@@ -334,7 +335,7 @@ def team_day_calendar(plan: SeasonPlan, *, crs: int | str, dtstamp: dt.datetime,
             description="\n".join(lines),
             location=f"{td.site} start point ({td.start[0]:.0f} E, {td.start[1]:.0f} N)",
             geo=(float(lat[k]), float(lon[k]))))
-    return icalendar_document(events, dtstamp=dtstamp, name=f"{programme} {plan.year}")
+    return icalendar_document(events, dtstamp=dtstamp, name=f"{programme} {plan.year}", time_zone=time_zone)
 
 
 __all__ = [

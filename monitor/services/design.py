@@ -280,8 +280,8 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
     if panel is not None:
         row = session.exec(select(M.Panel).where(M.Panel.programme_id == pid, M.Panel.code == panel)).first()
         if row is None:
-            raise DataError(f"no panel '{panel}' in the programme; load it with `monitor setup panels` "
-                            "or use `monitor design assign-panels`")
+            raise DataError(f"no panel '{panel}' in the programme; load it with `monitor setup panels FILE` "
+                            "or use `monitor design assign-panels --design \"[1-0,1-3]\"`")
         panel_id = row.id
     width, qlength = quadrat or (programme.default_quadrat_width_m, programme.default_quadrat_length_m)
     exclusions = [g for _, g in read_polygons(exclude, programme.crs_epsg)] if exclude is not None else []

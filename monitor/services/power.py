@@ -30,6 +30,7 @@ from monitor.power import (
 )
 from monitor.services import trend
 from monitor.services.executor import open_runner
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 
 @dataclass(frozen=True)
@@ -64,7 +65,7 @@ def components_for(db: str | None, species: str, *, programme_code: str | None =
 
 def power_study(components: VarianceComponents, source: str, *, change: float, over_years: int,
                 stations: Sequence[int], years: Sequence[int], revisit: str = "[1-0]", missed_share: float = 0.0,
-                alpha: float = 0.05, side: str = "decline", margin: float = 0.02, target: float = 0.8,
+                alpha: float = 0.05, side: str = "decline", margin: float = DEFAULT_CHANGE_MARGIN, target: float = 0.8,
                 replicates: int = 200, seed: int = 1, workers: int = 1, find_smallest: bool = True,
                 figure: Path | None = None, progress: Callable[[int, int], None] | None = None,
                 cluster: str | None = None) -> PowerStudy:

@@ -32,7 +32,7 @@ from monitor import columns as C
 from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.db.models import utcnow
-from monitor.errors import DataError, InputError, InputProblem, LockedError, MonitorError
+from monitor.errors import MAX_LISTED, DataError, InputError, InputProblem, LockedError, MonitorError
 from monitor.io import headers as H
 from monitor.io.hashing import content_hash
 from monitor.io.records import FieldRecords, read_field_records
@@ -57,6 +57,14 @@ class Change:
         return f"{self.station} {self.date}: {self.field} {self.old!r} -> {self.new!r}"
 
 
+OUTCOME_IMPORTED = "imported"              # committed
+OUTCOME_WOULD_IMPORT = "would import"      # a dry run that found something to write
+OUTCOME_NOTHING = "nothing to apply"       # every visit and value already stored as in the file; no batch recorded
+OUTCOME_ALREADY = "already imported"       # these very bytes were imported before
+OUTCOME_REFUSED = "refused"                # a problem in the file (or the database refused it); nothing written
+OUTCOME_NOT_ATTEMPTED = "not attempted"    # an earlier file of the same command was refused
+
+
 @dataclass
 class ImportReport:
     file: str
@@ -70,10 +78,14 @@ class ImportReport:
     changes: list[Change] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     years: list[int] = field(default_factory=list)
+    sheet: str | None = None
+    outcome: str = ""
+    problems: list[str] = field(default_factory=list)
 
     def to_dict(self) -> dict:
         return {
-            "file": self.file, "layout": self.layout, "already_imported": self.already_imported,
+            "file": self.file, "outcome": self.outcome, "problems": self.problems, "sheet": self.sheet,
+            "layout": self.layout, "already_imported": self.already_imported,
             "dry_run": self.dry_run, "visits_added": self.visits_added,
             "observations_added": self.observations_added, "covariates_added": self.covariates_added,
             "visits_unchanged": self.visits_unchanged, "years": self.years,
@@ -190,62 +202,190 @@ def run_with_retries(work: Callable[[], T], *, attempts: int = ATTEMPTS, first_w
 
 def import_records(db: str | None, path: Path, *, programme_code: str | None = None, dry_run: bool = False,
                    correct: bool = False, reason: str | None = None, accept_warnings: bool = False,
-                   who: str | None = None, day_first: bool | None = None) -> ImportReport:
+                   who: str | None = None, day_first: bool | None = None,
+                   sheet: str | None = None) -> ImportReport:
     """Import a season's field records from CSV or .xlsx (wide field-sheet or long layout).
 
     The whole file is read and checked before anything is written, and everything is written in one
     transaction: a file with any error, or a process killed half-way, leaves the database as it was.
+    Every problem is listed at once: the cells that could not be read and what the programme's checks
+    find in the rest.  ``sheet`` names the workbook sheet to read (see :mod:`monitor.io._tables`).
     """
-    path = Path(path)
+    run = import_files(db, [Path(path)], programme_code=programme_code, dry_run=dry_run, correct=correct,
+                       reason=reason, accept_warnings=accept_warnings, who=who, day_first=day_first, sheet=sheet)
+    if run.error is not None:
+        raise run.error
+    return run.reports[0]
+
+
+@dataclass
+class ImportRun:
+    """The outcome of every file of one import command, in order, and the error that stopped it (if any)."""
+
+    reports: list[ImportReport]
+    error: MonitorError | None = None
+
+
+def import_files(db: str | None, paths: list[Path], *, programme_code: str | None = None, dry_run: bool = False,
+                 correct: bool = False, reason: str | None = None, accept_warnings: bool = False,
+                 who: str | None = None, day_first: bool | None = None, sheet: str | None = None) -> ImportRun:
+    """Import several files in order, each all or nothing; report every file's outcome.
+
+    A real run commits each file in its own transaction and stops at the first file refused: the files
+    before it stay imported (their outcome says so), the ones after it are "not attempted".  A dry run
+    checks every file against the stored records *and the files before it*: all of them are written in
+    one transaction that is then rolled back, so a conflict between two files shows as it would for real.
+    """
+    paths = [Path(p) for p in paths]
     if correct and not (reason and reason.strip()):
-        raise InputError(InputProblem(path.name, None, "--reason", None, "a reason for the correction"))
+        label = paths[0].name if paths else "records import"
+        raise InputError(InputProblem(label, None, "--reason", None, "a reason for the correction"))
+    who = who or current_user()
+    store = Store.open(db)
     try:
-        records = read_field_records(path, day_first=day_first)
-        digest = content_hash(path)
-        store = Store.open(db)
-        try:
-            programme = store.programme(programme_code)
-            return run_with_retries(lambda: _import(store, programme, records, path.name, digest, dry_run, correct,
-                                                    reason, accept_warnings, who or current_user()))
-        finally:
-            store.dispose()
+        programme = store.programme(programme_code)
+        if dry_run:
+            return run_with_retries(lambda: _dry_run_files(store, programme, paths, correct, reason, accept_warnings,
+                                                           who, day_first, sheet))
+        reports: list[ImportReport] = []
+        for k, path in enumerate(paths):
+            try:
+                records, digest = _read(path, day_first, sheet)
+                report = run_with_retries(lambda records=records, digest=digest: _import(
+                    store, programme, records, path.name, digest, False, correct, reason, accept_warnings, who))
+            except MonitorError as exc:
+                return _stopped(reports, paths, k, exc)
+            reports.append(report)
+        return ImportRun(reports)
+    finally:
+        store.dispose()
+
+
+def _read(path: Path, day_first: bool | None, sheet: str | None) -> tuple[FieldRecords, str]:
+    try:
+        return read_field_records(path, day_first=day_first, sheet=sheet, keep_going=True), content_hash(path)
     except InputError as exc:
-        raise InputError(plain_problems(exc.problems)) from exc
+        raise _plain_error(exc) from exc
+
+
+def _plain_error(exc: InputError) -> InputError:
+    return InputError(plain_problems(exc.problems), total=exc.total, counts=exc.counts)
+
+
+def _stopped(reports: list[ImportReport], paths: list[Path], k: int, exc: MonitorError) -> ImportRun:
+    """The run's outcome when file ``k`` was refused: earlier files as they went, this one refused, the rest not tried."""
+    if isinstance(exc, InputError):
+        exc = _plain_error(exc)
+        lines = [p.line() for p in exc.problems[:MAX_LISTED]]
+        if exc.unlisted > 0:
+            lines.append(f"... and {exc.unlisted:,} more not listed; {exc.summary()}")
+    else:
+        lines = [str(exc)]
+    reports.append(ImportReport(file=paths[k].name, outcome=OUTCOME_REFUSED, problems=lines))
+    reports += [ImportReport(file=p.name, outcome=OUTCOME_NOT_ATTEMPTED) for p in paths[k + 1:]]
+    return ImportRun(reports, exc)
+
+
+def _dry_run_files(store: Store, programme: M.Programme, paths: list[Path], correct: bool, reason: str | None,
+                   accept_warnings: bool, who: str, day_first: bool | None, sheet: str | None) -> ImportRun:
+    reports: list[ImportReport] = []
+    at = 0
+    try:
+        with store.session() as session:
+            for at, path in enumerate(paths):
+                records, digest = _read(path, day_first, sheet)
+                reports.append(_import_in(session, programme, records, path.name, digest, True, correct, reason,
+                                          accept_warnings, who))
+            session.rollback()  # a dry run: everything written above is undone
+    except MonitorError as exc:
+        if queries.retryable(exc):
+            raise
+        return _stopped(reports, paths, at, exc)
+    return ImportRun(reports)
 
 
 def _import(store: Store, programme: M.Programme, records: FieldRecords, file_name: str, digest: str,
             dry_run: bool, correct: bool, reason: str | None, accept_warnings: bool, who: str) -> ImportReport:
-    report = ImportReport(file=records.file, layout=records.layout, dry_run=dry_run)
     with store.session() as session:
-        batch = session.exec(select(M.ImportBatch).where(
-            M.ImportBatch.programme_id == programme.id, M.ImportBatch.kind == KIND_RECORDS,
-            M.ImportBatch.content_hash == digest)).first()
-        if batch is not None:
-            report.already_imported = True
-            report.warnings.append(f"this file's content was imported on {batch.imported_at:%Y-%m-%d %H:%M} "
-                                   f"as {batch.file_name}; nothing to do")
-            return report
-        visits = records.visits
-        years = sorted({int(y) for y in visits[C.YEAR]})
-        report.years = years
-        reference = build_reference(session, programme, years)
-        problems = validate_records(visits, records.observations, records.covariates, reference, file=records.file)
-        problems += _protocol_problems(session, programme.id, visits, records.file)
-        accepted = raise_for_problems(problems, accept_warnings=accept_warnings)
-        report.warnings.extend(p.line() for p in accepted)
-        observations = fill_blank_targets(visits, records.observations, reference)
-        plan = _plan(session, programme, records.file, visits, observations, records.covariates, report)
-        if plan.changes and not correct:
-            raise InputError([InputProblem(records.file, ch_row, ch.field, ch.new,
-                                           f"the stored value {ch.old!r} (this file changes a stored value; "
-                                           "use --correct --reason \"...\" to correct it)")
-                              for ch, ch_row in plan.changes])
-        report.changes = [c for c, _row in plan.changes]
+        report = _import_in(session, programme, records, file_name, digest, dry_run, correct, reason,
+                            accept_warnings, who)
         if dry_run:
             session.rollback()
-            return report
-        _write(session, programme, file_name, digest, len(visits), plan, reason, who)
     return report
+
+
+def _import_in(session: Session, programme: M.Programme, records: FieldRecords, file_name: str, digest: str,
+               dry_run: bool, correct: bool, reason: str | None, accept_warnings: bool, who: str) -> ImportReport:
+    """Check one file and write it inside the caller's transaction (a dry run is rolled back by the caller)."""
+    report = ImportReport(file=records.file, layout=records.layout, dry_run=dry_run, sheet=records.sheet)
+    batch = session.exec(select(M.ImportBatch).where(
+        M.ImportBatch.programme_id == programme.id, M.ImportBatch.kind == KIND_RECORDS,
+        M.ImportBatch.content_hash == digest)).first()
+    if batch is not None and records.problems is None:
+        report.already_imported = True
+        report.outcome = OUTCOME_ALREADY
+        report.warnings.append(f"this file's content was imported on {batch.imported_at:%Y-%m-%d %H:%M} "
+                               f"as {batch.file_name}; nothing to do")
+        return report
+    visits = records.visits
+    years = sorted({int(y) for y in visits[C.YEAR]})
+    report.years = years
+    reference = build_reference(session, programme, years)
+    problems = validate_records(visits, records.observations, records.covariates, reference, file=records.file)
+    problems = with_reader_problems(records, problems, _protocol_problems(session, programme.id, visits,
+                                                                          records.file))
+    accepted = raise_for_problems(problems, accept_warnings=accept_warnings)
+    report.warnings.extend(p.line() for p in accepted)
+    observations = fill_blank_targets(visits, records.observations, reference)
+    plan = _plan(session, programme, records.file, visits, observations, records.covariates, report,
+                 records.covariate_names)
+    if plan.changes and not correct:
+        raise InputError([InputProblem(records.file, ch_row, ch.field, ch.new,
+                                       f"the stored value {ch.old!r} (this file changes a stored value; "
+                                       "use --correct --reason \"...\" to correct it)")
+                          for ch, ch_row in plan.changes])
+    report.changes = [c for c, _row in plan.changes]
+    applied = _write(session, programme, file_name, digest, len(visits), plan, reason, who)
+    if dry_run:
+        report.outcome = OUTCOME_WOULD_IMPORT if applied else OUTCOME_NOTHING
+    else:
+        report.outcome = OUTCOME_IMPORTED if applied else OUTCOME_NOTHING
+    return report
+
+
+def with_reader_problems(records: FieldRecords, problems: list[InputProblem],
+                         more: list[InputProblem]) -> list[InputProblem]:
+    """The reader's problems (cells that could not be read) with the checks' problems, in row order.
+
+    A check's complaint about a cell the reader already refused (a target "missing" because its cell was
+    not a number) is left out: the reader's line says it.
+    """
+    from monitor.errors import ProblemCounter
+    from monitor.io.validate import ProblemList
+
+    reader = records.problems
+    if reader is None and not more:
+        return problems
+    counter = ProblemCounter()
+    refused: set[tuple] = set()
+    if reader is not None:
+        for problem in reader.kept():
+            refused.add((problem.row, problem.field))
+            counter.add(problem, (-1 if problem.row is None else problem.row, 0), count=False)
+        counter.merge_counts(reader)
+    for problem in [*problems, *more]:
+        if (problem.row, problem.field) in refused:
+            continue
+        counter.add(problem, (-1 if problem.row is None else problem.row, 1))
+    extra = getattr(problems, "total", len(problems)) - len(problems)
+    if extra > 0:  # the checks counted more than they listed
+        for kind, n in problems.counts.items():
+            listed = sum(1 for p in problems if p.kind == kind)
+            counter.counts[kind] = counter.counts.get(kind, 0) + n - listed
+            counter.total += n - listed
+            if not kind.startswith("warning: "):
+                counter.errors += n - listed
+    return ProblemList.of(counter)
 
 
 def _protocol_problems(session: Session, programme_id: int, visits: pd.DataFrame, file: str) -> list[InputProblem]:
@@ -274,7 +414,7 @@ class _Plan:
 
 
 def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFrame, observations: pd.DataFrame,
-          covariates: pd.DataFrame, report: ImportReport) -> _Plan:
+          covariates: pd.DataFrame, report: ImportReport, covariate_names: tuple[str, ...] = ()) -> _Plan:
     """Sort the file's visits into new ones (written in bulk) and stored ones (compared value by value)."""
     pid = programme.id
     station_ids = dict(session.exec(select(M.Station.code, M.Station.id).where(M.Station.programme_id == pid)).all())
@@ -374,7 +514,8 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
 
     matched_rows = v[~is_new]
     if len(matched_rows):
-        _plan_stored(session, matched_rows, observations, covariates, species_ids, observer_ids, rounds, plan, report)
+        _plan_stored(session, matched_rows, observations, covariates, species_ids, observer_ids, protocol_ids, rounds,
+                     plan, report, covariate_names, visits)
     if plan.locked_years:
         years_text = ", ".join(str(y) for y in sorted(plan.locked_years))
         raise LockedError(f"{file}: season {years_text} is certified (locked); "
@@ -406,23 +547,32 @@ def _visit_positions(visits: pd.DataFrame, rows: pd.DataFrame) -> np.ndarray:
 
 
 def _plan_stored(session: Session, matched: pd.DataFrame, observations: pd.DataFrame, covariates: pd.DataFrame,
-                 species_ids: dict, observer_ids: dict, rounds: dict, plan: _Plan, report: ImportReport) -> None:
-    """Compare the file's version of visits already stored with what is stored."""
+                 species_ids: dict, observer_ids: dict, protocol_ids: dict, rounds: dict, plan: _Plan,
+                 report: ImportReport, covariate_names: tuple[str, ...], visits: pd.DataFrame) -> None:
+    """Compare the file's version of visits already stored with what is stored: values, covariates, date,
+    status, protocol, observers and notes alike."""
     obs_by_visit = {k: g for k, g in observations.groupby([C.STATION, C.DATE], sort=False)} if len(observations) else {}
-    for r in matched.to_dict(orient="records"):
+    cov_by_visit = {k: g for k, g in covariates.groupby([C.STATION, C.DATE], sort=False)} if len(covariates) else {}
+    stated_protocol = [bool(_text(code)) for code in visits[C.PROTOCOL]]  # by position, as matched's index
+    for index, r in zip(matched.index, matched.to_dict(orient="records"), strict=True):
         station, date, year = r[C.STATION], r[C.DATE], int(r[C.YEAR])
         rows_obs = obs_by_visit.get((station, date))
+        rows_cov = cov_by_visit.get((station, date))
         row = {
             "station": station, "station_id": r["station_id"], "year": year, "date": date, "status": r["status"],
             "repeat": bool(r["repeat"]), "notes": r["notes"], "protocol_id": r["protocol_id"],
+            "protocol_stated": stated_protocol[int(index)],
             "observer_ids": r["observer_ids"], "source_row": int(r["source_row"]),
             "observations": [] if rows_obs is None else [
                 {"species_id": species_ids[o[C.SPECIES]], "species": o[C.SPECIES], "measure": o[C.MEASURE],
                  "value": float(o[H.VALUE]), "n": None if pd.isna(o[H.N]) else int(o[H.N])}
                 for o in rows_obs.to_dict(orient="records")],
+            "covariates": {} if rows_cov is None else {
+                c["name"]: (float(c[H.VALUE]), _text(c[H.UNIT])) for c in rows_cov.to_dict(orient="records")},
+            "covariate_names": set(covariate_names),
         }
         existing = session.get(M.Visit, int(r["existing_id"]))
-        changes = _compare(session, existing, row, species_ids, observer_ids)
+        changes = _compare(session, existing, row, species_ids, observer_ids, protocol_ids)
         if not changes:
             report.visits_unchanged += 1
             continue
@@ -449,8 +599,31 @@ def _default_protocol(session: Session, programme_id: int) -> dict[int, int]:
     return _ByYear()
 
 
-def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, observer_ids: dict) -> list[Change]:
-    """The differences between a stored visit (with its values) and the same visit in a file."""
+def _stored_covariates(session: Session, visit_id: int) -> dict[str, M.Covariate]:
+    return {c.name: c for c in session.exec(select(M.Covariate).where(M.Covariate.visit_id == visit_id)).all()}
+
+
+def _covariate_changes(stored: dict[str, M.Covariate], row: dict) -> list[tuple[str, object, object, str]]:
+    """(name, old, new, new unit) for each covariate the file states differently from what is stored.
+
+    Only covariates the file has a column for are compared: a file without the column says nothing about
+    them; a blank cell in the column means "not recorded" and removes a stored value (a change, as for values).
+    """
+    out = []
+    for name in sorted(set(row["covariates"]) | (set(stored) & row["covariate_names"])):
+        old, new = stored.get(name), row["covariates"].get(name)
+        if old is None:
+            out.append((name, None, new[0], new[1]))
+        elif new is None:
+            out.append((name, old.value, None, old.unit))
+        elif old.value != new[0] or (old.unit or "") != (new[1] or ""):
+            out.append((name, old.value, new[0], new[1]))
+    return out
+
+
+def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, observer_ids: dict,
+             protocol_ids: dict) -> list[Change]:
+    """The differences between a stored visit (with its values and covariates) and the same visit in a file."""
     out = []
     key = (row["station"], row["year"], visit.date.isoformat())
 
@@ -463,6 +636,9 @@ def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, obs
         change("status", visit.status, row["status"])
     if (visit.notes or "") != row["notes"]:
         change("notes", visit.notes, row["notes"])
+    if row["protocol_stated"] and visit.protocol_id != row["protocol_id"]:
+        code = {v: k for k, v in protocol_ids.items()}
+        change("protocol", code.get(visit.protocol_id), code.get(row["protocol_id"]))
     stored_obs = {(o.species_id, o.measure): o for o in session.exec(
         select(M.Observation).where(M.Observation.visit_id == visit.id)).all()}
     species_code = {v: k for k, v in species_ids.items()}
@@ -477,6 +653,8 @@ def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, obs
             change(label, old.value, None)
         elif old.value != new["value"] or (old.n or None) != (new["n"] or None):
             change(label, old.value, new["value"])
+    for name, old, new, _unit in _covariate_changes(_stored_covariates(session, visit.id), row):
+        change(f"cov:{name}", old, new)
     stored_observers = set(session.exec(select(M.VisitObserver.observer_id)
                                         .where(M.VisitObserver.visit_id == visit.id)).all())
     if stored_observers != set(row["observer_ids"]):
@@ -487,7 +665,10 @@ def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, obs
 
 
 def _write(session: Session, programme: M.Programme, file_name: str, digest: str, n_rows: int, plan: _Plan,
-           reason: str | None, who: str) -> None:
+           reason: str | None, who: str) -> bool:
+    """Write the plan; False (and no import batch recorded) when there is nothing to apply."""
+    if not len(plan.new) and not plan.updates:
+        return False
     now = utcnow()
     batch = M.ImportBatch(programme_id=programme.id, kind=KIND_RECORDS, file_name=file_name, content_hash=digest,
                           row_count=n_rows, imported_by=who, imported_at=now)
@@ -535,6 +716,7 @@ def _write(session: Session, programme: M.Programme, file_name: str, digest: str
         _pause_hook(f"{len(plan.updates)} visits corrected")
     new_years = {int(y) for y in plan.new[C.YEAR].unique()} if len(plan.new) else set()
     _refresh_planned_outcomes(session, programme.id, sorted(new_years | {int(r["year"]) for _i, r in plan.updates}))
+    return True
 
 
 def _refresh_planned_outcomes(session: Session, programme_id: int, years: list[int]) -> None:
@@ -574,6 +756,23 @@ def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict,
         if (old or "") != (new or ""):
             log("visit", visit.id, field_, old, new)
             setattr(visit, field_, new)
+    if row.get("protocol_stated") and visit.protocol_id != row["protocol_id"]:
+        codes = dict(session.exec(select(M.ProtocolVersion.id, M.ProtocolVersion.code)).all())
+        log("visit", visit.id, "protocol", codes.get(visit.protocol_id), codes.get(row["protocol_id"]))
+        visit.protocol_id = row["protocol_id"]
+    stored_cov = _stored_covariates(session, visit.id)
+    for name, old, new, unit in _covariate_changes(stored_cov, row):
+        if old is None:
+            added = M.Covariate(station_id=visit.station_id, visit_id=visit.id, name=name, unit=unit or "", value=new)
+            session.add(added)
+            session.flush()
+            log("covariate", added.id, f"cov:{name}", None, new)
+        elif new is None:
+            log("covariate", stored_cov[name].id, f"cov:{name}", old, None)
+            session.delete(stored_cov[name])
+        else:
+            log("covariate", stored_cov[name].id, f"cov:{name}", old, new)
+            stored_cov[name].value, stored_cov[name].unit = new, unit or ""
     stored = {(o.species_id, o.measure): o for o in session.exec(
         select(M.Observation).where(M.Observation.visit_id == visit.id)).all()}
     new_obs = {(o["species_id"], o["measure"]): o for o in row["observations"]}
@@ -761,6 +960,103 @@ def _set_value(store: Store, programme: M.Programme, label: str, station: str, y
         return change
 
 
+def set_visit(db: str | None, station: str, year: int, *, reason: str | None, protocol: str | None = None,
+              covariates: dict[str, str] | None = None, repeat_no: int = 0, who: str | None = None,
+              programme_code: str | None = None) -> list[Change]:
+    """Correct a stored visit's protocol and covariates (``{"soil_moisture": "31.5"}``; ``""`` removes one),
+    each change logged with the reason.  The season must not be certified.  Returns the changes made."""
+    from monitor.io.records import covariate_number
+
+    label = "records set-visit"
+    reason = _need_reason(label, reason, "a reason for the change (it goes to the change log)")
+    covariates = dict(covariates or {})
+    if protocol is None and not covariates:
+        raise InputError(InputProblem(label, None, "--protocol/--covariate", None,
+                                      "something to change: --protocol CODE or --covariate NAME=VALUE"))
+    who = who or current_user()
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        return run_with_retries(lambda: _set_visit(store, programme, label, station, year, protocol, covariates,
+                                                   reason, repeat_no, who, covariate_number))
+    finally:
+        store.dispose()
+
+
+def _set_visit(store: Store, programme: M.Programme, label: str, station: str, year: int, protocol: str | None,
+               covariates: dict[str, str], reason: str, repeat_no: int, who: str, covariate_number) -> list[Change]:
+    from monitor.io._tables import Problems
+
+    with store.session() as session:
+        st = _station(session, programme.id, station, label)
+        rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
+        visit = None if rnd is None else session.exec(select(M.Visit).where(
+            M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
+        if visit is None:
+            raise DataError(f"no visit of {station} in the {year} round"
+                            + (f" with repeat number {repeat_no}" if repeat_no else "")
+                            + "; import the visit from its field sheet first")
+        if rnd.status == "certified":
+            raise LockedError(f"season {year} is certified (locked); unlock it first with "
+                              f"`monitor records unlock {year} --reason \"...\"`")
+        now = utcnow()
+        changes: list[Change] = []
+        when = visit.date.isoformat()
+        if protocol is not None:
+            codes = dict(session.exec(select(M.ProtocolVersion.code, M.ProtocolVersion.id)
+                                      .where(M.ProtocolVersion.programme_id == programme.id)).all())
+            if protocol not in codes:
+                raise InputError(InputProblem(label, None, "--protocol", protocol,
+                                              f"a protocol version of the programme ({', '.join(sorted(codes)) or 'none'})"))
+            old_code = next((c for c, i in codes.items() if i == visit.protocol_id), None)
+            if old_code != protocol:
+                _log(session, programme.id, "visit", visit.id, "protocol", old_code, protocol, reason, who, now)
+                visit.protocol_id = codes[protocol]
+                changes.append(Change(station, year, when, "protocol", old_code, protocol))
+        if covariates:
+            if visit.status not in C.STATUSES_WITH_VALUES:
+                raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
+                                "(missing is not zero); correct its status from the field sheet first")
+            stored = _stored_covariates(session, visit.id)
+            units = _settings(programme).get("covariate_units")
+            units = units if isinstance(units, dict) else {}
+            problems = Problems(label)
+            for name, text in covariates.items():
+                known = name in stored or name in units
+                if not known:
+                    problems.add(None, f"cov:{name}", name, "a covariate of the programme"
+                                 + _closest(name, sorted(set(units) | set(stored))))
+                    continue
+                unit = stored[name].unit if name in stored else (units.get(name) or "")
+                if not text.strip():
+                    if name in stored:
+                        old = stored[name].value
+                        _log(session, programme.id, "covariate", stored[name].id, f"cov:{name}", old, None, reason,
+                             who, now)
+                        session.delete(stored[name])
+                        changes.append(Change(station, year, when, f"cov:{name}", old, None))
+                    continue
+                value = covariate_number(text, unit, problems, None, f"cov:{name}")
+                if value is None:
+                    continue
+                if name in stored:
+                    old = stored[name].value
+                    if old != value:
+                        _log(session, programme.id, "covariate", stored[name].id, f"cov:{name}", old, value, reason,
+                             who, now)
+                        stored[name].value = value
+                        changes.append(Change(station, year, when, f"cov:{name}", old, value))
+                else:
+                    added = M.Covariate(station_id=st.id, visit_id=visit.id, name=name, unit=unit or "", value=value)
+                    session.add(added)
+                    session.flush()
+                    _log(session, programme.id, "covariate", added.id, f"cov:{name}", None, value, reason, who, now)
+                    changes.append(Change(station, year, when, f"cov:{name}", None, value))
+            problems.raise_if_any()
+        session.flush()
+        return changes
+
+
 def _check_range(label: str, field_: str, station: str, visit: M.Visit, species: str, measure: str, value: float,
                  n: int | None) -> None:
     """The import's own range rules (monitor.io.validate) applied to one value."""
@@ -877,10 +1173,13 @@ def retire_station(db: str | None, code: str, *, reason: str | None, replaced_by
 
 def station_history(db: str | None, code: str, *, programme_code: str | None = None) -> dict:
     """A station's full history: the station, every visit with its observers and values, corrections
-    (change log), management events at the station or its site, photos, and quality flags.
+    (change log), management events at the station or its site, photos, quality flags, and the
+    relocations of the chain it belongs to (lineage).
 
     Values are keyed ``SPECIES:measure``; a missed or inaccessible visit has none (missing, not zero).
     """
+    from monitor.services.relocation import lineage_history
+
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
@@ -909,6 +1208,7 @@ def station_history(db: str | None, code: str, *, programme_code: str | None = N
             "events": queries.station_events(store, st.id),
             "photos": queries.station_photos(store, st.id),
             "quality_flags": flags.reset_index(drop=True),
+            "lineage": lineage_history(store, programme.id, code),
         }
     finally:
         store.dispose()

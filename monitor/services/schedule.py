@@ -4,8 +4,9 @@
   inaccessible, or not visited in a round held when they were due), from the stored visits.
 * :func:`plan_season` plans the season with :mod:`monitor.schedule` and stores it in
   ``planned_visit`` inside one transaction; an earlier plan for the same year is replaced only
-  when asked.  The crew (teams, members, start points) and each team-day's times are kept under
-  ``season_plans`` in the programme's settings so the field packs can be written later.
+  when asked.  The crew (teams, members, hours) and each team-day's site, start point, route and times
+  are records of their own (``season_plan``, ``season_plan_team``, ``season_plan_team_day``), so the
+  field packs can be written later and plans compared between years.
 * :func:`write_field_packs` writes, per team-day, the printable field sheet (whose entry table is
   the wide layout the records importer reads), GPX 1.1 waypoints and route, a blank entry sheet
   (CSV), and one iCalendar file with an event per team-day.
@@ -35,6 +36,7 @@ from monitor import schedule as S
 from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.errors import DataError, DesignError, InputError, InputProblem, LockedError
+from monitor.io.sheets import entry_workbook
 from monitor.schedule import fieldpack
 from monitor.schedule.planner import ARRIVAL, ORDER, TEAM
 from monitor.schedule.season import (
@@ -46,12 +48,12 @@ from monitor.schedule.season import (
     WINDOW_END,
     WINDOW_START,
 )
+from monitor.services import relocation
 from monitor.services.design import StoredPanels, as_date, default_first_year, fresh_seed
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
 #: reserve [m] (common practice: parking at the reserve's edge)
 START_TOLERANCE_M = 250.0
-SETTINGS_PLANS = "season_plans"
 REASON_DUE = "due"
 REASON_OVERDUE = "overdue"
 WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
@@ -269,10 +271,20 @@ def read_crews_file(path: Path) -> dict[str, Any]:
         raise InputError(InputProblem(file, None, None, None, "a crews file in JSON")) from None
     if not isinstance(doc, dict) or not isinstance(doc.get("teams"), list):
         raise _crew_problem(file, "teams", None, "a list of teams")
+    from monitor.io import filespec as FS  # the one definition of the file (docs/files.md)
+
+    known = [f.name for f in FS.CREWS.fields]
+    for key in doc:
+        if key not in known:
+            raise _crew_problem(file, key, None, f"a known key ({', '.join(known)})")
+    known_team = [f.name for f in FS.CREW_TEAM.fields]
     teams = []
     for i, t in enumerate(doc["teams"], start=1):
         if not isinstance(t, dict) or not str(t.get("code") or "").strip():
             raise _crew_problem(file, f"teams[{i}].code", None, "a team code")
+        for key in t:
+            if key not in known_team:
+                raise _crew_problem(file, f"teams[{i}].{key}", None, f"a known key ({', '.join(known_team)})")
         members = t.get("members")
         if not isinstance(members, list) or not all(isinstance(m, str) and m.strip() for m in members):
             raise _crew_problem(file, f"teams[{i}].members", members, "a list of member codes or names")
@@ -476,19 +488,49 @@ def _store_plan(session: Session, programme: M.Programme, inputs: SeasonInputs, 
         rows.append(M.PlannedVisit(round_id=rnd.id, station_id=ids[v[C.STATION]], reason=reason(v[C.STATION]),
                                    outcome="planned", seed=plan.seed))
     session.add_all(rows)
-    stored = session.get(M.Programme, pid)
-    settings = _settings(stored)
-    plans = settings.get(SETTINGS_PLANS) if isinstance(settings.get(SETTINGS_PLANS), dict) else {}
-    plans[str(plan.year)] = {
-        "seed": plan.seed, "summary": plan.summary(), "crews": plan.params.get("crews"),
-        "team_days": [{k: v for k, v in td.to_dict().items() if k != "stations"} for td in plan.team_days],
-        "unplanned": plan.unplanned.to_dict(orient="records"), "extra_team_days": plan.extra_team_days,
-        "site_order": list(plan.site_order), "randomise_site_order": plan.params.get("randomise_site_order"),
-    }
-    settings[SETTINGS_PLANS] = plans
-    stored.settings_json = json.dumps(settings, sort_keys=True)
+    _store_plan_record(session, rnd.id, plan)
     session.flush()
     return len(old)
+
+
+def _store_plan_record(session: Session, round_id: int, plan: S.SeasonPlan) -> None:
+    """The plan's crews and team-days as rows of their own (``season_plan``, ``..._team``, ``..._team_day``)."""
+    previous = session.exec(select(M.SeasonPlanRecord).where(M.SeasonPlanRecord.round_id == round_id)).first()
+    if previous is not None:
+        for model in (M.SeasonPlanTeam, M.SeasonPlanTeamDay):
+            for row in session.exec(select(model).where(model.plan_id == previous.id)).all():
+                session.delete(row)
+        session.flush()
+        session.delete(previous)
+        session.flush()
+    crews = plan.params.get("crews") or {}
+    details = {"start_points": crews.get("start_points") or {}, "blocked_dates": crews.get("blocked_dates") or [],
+               "unplanned": plan.unplanned.to_dict(orient="records")}
+    if plan.params.get("paths"):
+        details["paths"] = plan.params["paths"]
+    record = M.SeasonPlanRecord(
+        round_id=round_id, seed=plan.seed, summary=plan.summary(), extra_team_days=plan.extra_team_days,
+        randomise_site_order=bool(plan.params.get("randomise_site_order")), site_order=";".join(plan.site_order),
+        day_start=_hhmm(crews.get("day_start") or "09:00"), path_factor=float(crews.get("path_factor") or 1.0),
+        routing="paths" if plan.params.get("paths") else "straight",
+        allow_lone_working=bool(crews.get("allow_lone_working")), details_json=json.dumps(details, sort_keys=True))
+    session.add(record)
+    session.flush()
+    for team in crews.get("teams") or []:
+        session.add(M.SeasonPlanTeam(
+            plan_id=record.id, code=team["code"], members=";".join(team["members"]),
+            hours_per_day=float(team["hours_per_day"]), walking_speed_kmh=float(team["walking_speed_kmh"]),
+            working_weekdays=";".join(str(int(d)) for d in team["working_weekdays"]),
+            blocked_dates=";".join(team["blocked_dates"])))
+    for td in plan.team_days:
+        session.add(M.SeasonPlanTeamDay(
+            plan_id=record.id, team=td.team, date=td.date, site=td.site, start_x=float(td.start[0]),
+            start_y=float(td.start[1]), route_m=float(td.route_m), start_time=td.start_time.strftime("%H:%M"),
+            end_time=td.end_time.strftime("%H:%M")))
+
+
+def _hhmm(text: str) -> str:
+    return dt.time.fromisoformat(str(text)).strftime("%H:%M")
 
 
 def refresh_outcomes(session: Session, programme_id: int, years: list[int] | None = None) -> int:
@@ -535,10 +577,10 @@ def update_outcomes(db: str | None, years: list[int] | None = None, *, programme
 def stored_plan(store: Store, programme: M.Programme, year: int) -> S.SeasonPlan:
     """Rebuild a stored season plan (team-days with their stations in route order)."""
     rows = queries.planned_visits(store, programme.id, year)
-    meta = (_settings(programme).get(SETTINGS_PLANS) or {}).get(str(year))
     if rows.empty:
         raise DataError(f"no plan is stored for {year}; run `monitor season plan {year}` first")
-    if not meta:
+    record = queries.season_plan_record(store, programme.id, year)
+    if record is None:
         raise DataError(f"the plan for {year} has no stored crew details; plan it again with --replace")
     rows["day"] = [as_date(v) for v in rows["day"]]
     scheduled = rows[rows["team"].notna()].copy()
@@ -550,22 +592,24 @@ def stored_plan(store: Store, programme: M.Programme, year: int) -> S.SeasonPlan
         C.X: scheduled[C.X].astype(float).to_numpy(), C.Y: scheduled[C.Y].astype(float).to_numpy(),
         ARRIVAL: [dt.time.fromisoformat(a) if a else None for a in scheduled["arrival"]],
     })
+    members = {t["code"]: tuple(m for m in str(t["members"]).split(";") if m) for t in record["teams"]}
     team_days = []
-    for td in meta.get("team_days", []):
-        day = dt.date.fromisoformat(td["date"])
+    for td in record["team_days"]:
+        day = as_date(td["date"])
         here = visits[(visits[TEAM] == td["team"]) & (visits[C.DATE] == day)]
         if here.empty:
             continue
-        team_days.append(S.TeamDay(team=td["team"], date=day, site=td["site"], members=tuple(td["members"]),
-                                   start=(float(td["start"][0]), float(td["start"][1])),
+        team_days.append(S.TeamDay(team=td["team"], date=day, site=td["site"], members=members.get(td["team"], ()),
+                                   start=(float(td["start_x"]), float(td["start_y"])),
                                    stations=tuple(here[C.STATION]), route_m=float(td["route_m"]),
                                    start_time=dt.time.fromisoformat(td["start_time"]),
                                    end_time=dt.time.fromisoformat(td["end_time"])))
+    plan = record["plan"]
     empty = pd.DataFrame(columns=[C.STATION, C.SITE, "reason"])
-    return S.SeasonPlan(year=int(year), seed=int(meta.get("seed") or 0), visits=visits, team_days=tuple(team_days),
-                        held_back=empty, unplanned=empty, extra_team_days=int(meta.get("extra_team_days") or 0),
-                        site_order=tuple(meta.get("site_order") or ()),
-                        params={"crews": meta.get("crews") or {}})
+    return S.SeasonPlan(year=int(year), seed=int(plan["seed"]), visits=visits, team_days=tuple(team_days),
+                        held_back=empty, unplanned=empty, extra_team_days=int(plan["extra_team_days"]),
+                        site_order=tuple(s for s in str(plan["site_order"]).split(";") if s),
+                        params={"crews": {"path_factor": float(plan["path_factor"])}, "routing": plan["routing"]})
 
 
 @dataclass
@@ -593,7 +637,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
 
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
     relocation notes, quadrat size, the last two visits' values, empty boxes and the safety
-    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into), ``route.gpx``
+    caution), ``entry_sheet.csv`` (the blank wide-layout table to key into) and ``entry_sheet.xlsx`` (the
+    same with drop-down lists for status and observers), ``route.gpx``
     (GPX 1.1 waypoints and route).  In ``folder``: ``season_<year>.ics`` with one event per
     team-day written.
     """
@@ -612,6 +657,9 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         protocols = store.frame("SELECT code, effective_from FROM protocol_version WHERE programme_id = :p "
                                 "ORDER BY effective_from", p=programme.id)
         species = queries.species(store, programme.id)
+        observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
+                                                       p=programme.id)["code"]]
+        lineage_notes = relocation.lineage_notes(store, programme.id)
     finally:
         store.dispose()
     species = species[species[C.MEASURE].notna()]
@@ -620,9 +668,10 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     units = _settings(programme).get("covariate_units") or {}
     covariates = [(str(k), str(v)) for k, v in sorted(units.items())] if isinstance(units, dict) else []
     stations = stations.rename(columns={"relocation_notes": fieldpack.RELOCATION})
+    # a relocated quadrat's sheet says which station it continues, how far it moved and when
     stations[fieldpack.RELOCATION] = [
-        "; ".join(x for x in (str(m or ""), str(r or "")) if x and x != "nan")
-        for m, r in zip(stations["marker"], stations[fieldpack.RELOCATION], strict=True)]
+        "; ".join(x for x in (lineage_notes.get(c, ""), str(m or ""), str(r or "")) if x and x != "nan")
+        for c, m, r in zip(stations[C.STATION], stations["marker"], stations[fieldpack.RELOCATION], strict=True)]
     visits[C.DATE] = [as_date(v) for v in visits[C.DATE]]
     observations[C.DATE] = [as_date(v) for v in observations[C.DATE]]
     folder = Path(folder)
@@ -636,7 +685,12 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
             plan, td.team, td.date, stations, crs=programme.crs_epsg, targets=targets, covariates=covariates,
             visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now)
         (out / "field_sheet.html").write_text(fieldpack.render_field_sheet(context), encoding="utf-8")
-        fieldpack.field_sheet_frame(context).to_csv(out / "entry_sheet.csv", index=False)
+        entry = fieldpack.field_sheet_frame(context)
+        entry.to_csv(out / "entry_sheet.csv", index=False)
+        value_columns = [h for h in entry.columns if ":" in h]
+        entry_workbook(out / "entry_sheet.xlsx", entry.drop(columns=value_columns), statuses=C.VISIT_STATUSES,
+                       observers=observer_codes, value_columns=value_columns,
+                       title=f"{programme.name}: {td.site}, team {td.team}, {td.date.isoformat()}")
         (out / "route.gpx").write_text(fieldpack.team_day_gpx(plan, td.team, td.date, stations,
                                                               crs=programme.crs_epsg), encoding="utf-8")
         written.append({"team": td.team, "date": td.date.isoformat(), "site": td.site, "stations": len(td.stations),
@@ -644,7 +698,9 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     calendar = folder / f"season_{year}.ics"
     sub = dataclasses.replace(plan, team_days=tuple(chosen))
     calendar.write_text(fieldpack.team_day_calendar(sub, crs=programme.crs_epsg, dtstamp=now,
-                                                    programme=programme.code), encoding="utf-8", newline="")
+                                                    programme=programme.code,
+                                                    time_zone=_settings(programme).get("time_zone") or "UTC"),
+                        encoding="utf-8", newline="")
     return PackResult(folder=folder, calendar=calendar, team_days=written)
 
 

@@ -22,6 +22,7 @@ from monitor.errors import InputError, InputProblem
 from monitor.io import headers as H
 from monitor.io import programme as readers
 from monitor.io.settings import read_programme_json
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 #: start year stored for an every-year panel given without one: it is due in every season on record
 ALWAYS_SINCE = 1900
@@ -102,8 +103,10 @@ def create_programme(session: Session, path: Path) -> M.Programme:
         default_quadrat_length_m=meta.get("default_quadrat_length_m", 1.0),
         blanks_mean_zero=meta.get("blanks_mean_zero", False),
         allow_lone_working=meta.get("allow_lone_working", False),
-        change_margin=meta.get("change_margin", 0.02),
-        settings_json=json.dumps(meta.get("settings", {}), sort_keys=True),
+        change_margin=meta.get("change_margin", DEFAULT_CHANGE_MARGIN),
+        settings_json=json.dumps({**meta.get("settings", {}),
+                                  **({"time_zone": meta["time_zone"]} if meta.get("time_zone") else {})},
+                                 sort_keys=True),
     )
     session.add(programme)
     session.flush()
@@ -201,7 +204,7 @@ def load_stations(session: Session, programme: M.Programme, path: Path, report: 
         if repl is not None and repl not in in_file and repl not in existing:
             problems.append(InputProblem(file, n, "replaced_by", repl, "the code of a station in this file or the programme"))
         if _none(row.get(C.STRATUM)) is not None:
-            problems.append(InputProblem(file, n, "stratum", row[C.STRATUM], "no stratum (strata are set by `monitor design`)"))
+            problems.append(InputProblem(file, n, "stratum", row[C.STRATUM], "no stratum (strata are set by `monitor design place SITE --method stratified`)"))
     if problems:
         raise InputError(problems)
     objects: dict[str, M.Station] = {}

@@ -23,6 +23,7 @@ from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
 from monitor.services.executor import open_runner
 from monitor.services.records import current_user
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 from monitor.trend import TrendModel, TrendResult, default_family
 
 
@@ -60,9 +61,16 @@ def presence_value(frame: pd.DataFrame) -> pd.Series:
 def analysis_frame(long: pd.DataFrame, measure: str) -> tuple[pd.DataFrame, list[Diagnostic]]:
     """The model's input for one species and measure, and the notes about what was left out and why."""
     notes: list[Diagnostic] = []
-    present_at = set(long.loc[presence_value(long), C.STATION])
-    dropped = long[C.STATION].nunique() - len(present_at)
-    frame = long[long[C.STATION].isin(present_at)]
+    # a relocated quadrat continues its lineage: presence, counts and the station effect go by lineage
+    key = C.LINEAGE if C.LINEAGE in long.columns else C.STATION
+    present_at = set(long.loc[presence_value(long), key])
+    dropped = long[key].nunique() - len(present_at)
+    frame = long[long[key].isin(present_at)]
+    moved = frame[C.STATION].nunique() - frame[key].nunique()
+    if moved:
+        notes.append(Diagnostic("relocated_stations",
+                                f"{moved} relocated station(s) continue the series of the station they replaced "
+                                "(one station effect per chain).", "info"))
     if dropped:
         notes.append(Diagnostic("stations_never_present",
                                 f"{dropped} stations where the species was never recorded are left out of the model.",
@@ -140,6 +148,9 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
         programme = store.programme(programme_code)
         targets = _targets(store, programme.id, species)
         areas = fit_store.area_of_stations(store, programme.id).set_index(C.STATION)[by] if by else None
+        from monitor.services.relocation import lineage
+
+        chains = lineage(store, programme.id)
         tasks: list[FitTask] = []
         notes: dict[tuple[str, str], list[Diagnostic]] = {}
         names = {}
@@ -150,6 +161,7 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                                              first_year=first_year, last_year=last_year)
             if long.empty:
                 raise DataError(f"no stored values for {sp} ({measure}) in the years asked")
+            long[C.LINEAGE] = long[C.STATION].map(chains)
             data, species_notes = analysis_frame(long, measure)
             options = fit_options(data, measure, family=family, margin=programme.change_margin,
                                   observer_effect=observer_effect)
@@ -201,7 +213,7 @@ MEASURE_BY_COLUMNS = [
 ]
 
 
-def fit_table(path: Path, *, measure: str | None = None, family: str | None = None, margin: float = 0.02,
+def fit_table(path: Path, *, measure: str | None = None, family: str | None = None, margin: float = DEFAULT_CHANGE_MARGIN,
               observer_effect: bool = False) -> SpeciesTrend:
     """Fit a plain long table brought from elsewhere: station, year, optional site, and the measure's columns."""
     path = Path(path)

@@ -30,10 +30,9 @@ import math
 
 from monitor.columns import CALL_DECLINING, CALL_RISING, CALL_STABLE, CALL_UNCLEAR
 from monitor.errors import InputError
-
-MIN_STATIONS = 10   # common practice minimum for a trend call
-MIN_YEARS = 5       # common practice minimum for a trend call
-DEFAULT_MARGIN = 0.01  # 1 % a year: common practice default for the change that matters
+from monitor.settings import DEFAULT_CHANGE_MARGIN as DEFAULT_MARGIN  # one source: monitor/settings.py
+from monitor.settings import MIN_TREND_STATIONS as MIN_STATIONS
+from monitor.settings import MIN_TREND_YEARS as MIN_YEARS
 
 
 def _pct(x: float) -> str:

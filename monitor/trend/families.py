@@ -5,7 +5,10 @@ Each family gives, for a linear predictor ``eta`` on the link scale,
 * ``loglik(eta)``  the log density of every observation, constants included
   (so the total is comparable with R's ``logLik`` for glmer / glmmTMB / lmer);
 * ``derivs(eta)``  ``(d, w)`` with ``d = dl/deta`` and ``w = -d2l/deta2`` (the
-  observed information, positive for all four families here).
+  observed information, positive for all four families here);
+* ``pearson_sq(eta)``  squared Pearson residuals (y - E y)^2 / Var y, whose sum over the
+  observations divided by the residual df is the usual overdispersion ratio
+  (McCullagh & Nelder 1989, sec. 4.5).
 
 Families
 --------
@@ -50,6 +53,9 @@ class Family:
     def derivs(self, eta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:  # pragma: no cover
         raise NotImplementedError
 
+    def pearson_sq(self, eta: np.ndarray) -> np.ndarray:  # pragma: no cover - abstract
+        raise NotImplementedError
+
     def glm_start(self) -> np.ndarray:
         """A starting linear predictor for the GLM fit."""
         raise NotImplementedError  # pragma: no cover
@@ -69,6 +75,10 @@ class Poisson(Family):
         mu = np.exp(np.minimum(eta, _ETA_MAX))
         return self.y - mu, mu
 
+    def pearson_sq(self, eta):
+        mu = np.exp(np.minimum(eta, _ETA_MAX))
+        return (self.y - mu) ** 2 / np.maximum(mu, 1e-300)
+
     def glm_start(self):
         return np.log(self.y + 0.5)
 
@@ -87,6 +97,10 @@ class Binomial(Family):
         p = expit(eta)
         return self.y - self.trials * p, self.trials * p * (1.0 - p)
 
+    def pearson_sq(self, eta):
+        p = expit(eta)
+        return (self.y - self.trials * p) ** 2 / np.maximum(self.trials * p * (1.0 - p), 1e-300)
+
     def glm_start(self):
         p = (self.y + 0.5) / (self.trials + 1.0)
         return np.log(p / (1.0 - p))
@@ -102,7 +116,6 @@ class NegativeBinomial(Family):
     def loglik(self, eta):
         th = self.dispersion
         eta = np.minimum(eta, _ETA_MAX)
-        np.exp(eta)
         log_tm = np.logaddexp(np.log(th), eta)  # log(theta + mu)
         return (gammaln(self.y + th) - gammaln(th) + self._const
                 + th * (np.log(th) - log_tm) + self.y * (eta - log_tm))
@@ -114,6 +127,10 @@ class NegativeBinomial(Family):
         d = th * (self.y - mu) / tm
         w = (self.y + th) * mu * th / (tm * tm)
         return d, w
+
+    def pearson_sq(self, eta):
+        mu = np.exp(np.minimum(eta, _ETA_MAX))
+        return (self.y - mu) ** 2 / np.maximum(mu + mu * mu / self.dispersion, 1e-300)
 
     def glm_start(self):
         return np.log(self.y + 0.5)
@@ -131,6 +148,9 @@ class Gaussian(Family):
     def derivs(self, eta):
         s2 = self.dispersion ** 2
         return (self.y - eta) / s2, np.full_like(self.y, 1.0 / s2)
+
+    def pearson_sq(self, eta):
+        return (self.y - eta) ** 2 / self.dispersion ** 2
 
     def glm_start(self):
         return self.y.copy()

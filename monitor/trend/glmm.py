@@ -88,17 +88,75 @@ from .families import Family, Gaussian
 
 LOG_SD_MIN = np.log(1e-5)   # lower bound of every log-SD (an SD of 1e-5 is "zero" on the link scale)
 LOG_SD_MAX = np.log(50.0)
+ATANH_RHO_MAX = 3.8         # |rho| <= tanh(3.8) = 0.999 for an AR(1) correlation (searched as atanh(rho))
 LOG_DISP_BOUNDS = {"negbin": (np.log(1e-3), np.log(1e7)), "gaussian": (np.log(1e-8), np.log(1e8))}
+
+
+TERM_STRUCTURES = ("iid", "ar1")
 
 
 @dataclass
 class Term:
-    """A random effect other than the station intercept: one column per level, value z."""
+    """A random effect other than the station intercept: one column per level, value z.
+
+    ``structure`` "iid": the levels' effects are independent N(0, sd^2); "ar1": the
+    levels are consecutive times (level k is time k) and the effects follow a stationary
+    order-1 autoregression with marginal SD sd and correlation rho between neighbours,
+    corr(w_k, w_l) = rho^|k - l| (precision matrix tridiagonal).  ``kind`` "year" marks
+    the year effect, whose number of levels with data sets the t reference's degrees of
+    freedom (see ``coefficient_df``).
+    """
 
     name: str
     index: np.ndarray          # level of each observation, 0..n_levels-1
     n_levels: int
     z: np.ndarray | None = None  # None means 1 (an intercept)
+    structure: str = "iid"
+    kind: str = ""
+
+    def __post_init__(self):
+        if self.structure not in TERM_STRUCTURES:
+            raise ValueError(f"random-effect structure must be one of {TERM_STRUCTURES} (got {self.structure!r})")
+
+
+# The year effect is on by default when the series has at least this many years with data:
+# with an intercept and a slope at the year level, 5 years leave 3 df for the year-to-year
+# variance, the fewest with which its estimate means anything; with fewer years the trend
+# call is 'unclear' by rule anyway (monitor.trend.call).
+YEAR_EFFECT_MIN_YEARS = 5
+
+
+def default_year_effect(n_years_with_data: int) -> bool:
+    """Whether a series gets the year random effect by default (YEAR_EFFECT_MIN_YEARS)."""
+    return int(n_years_with_data) >= YEAR_EFFECT_MIN_YEARS
+
+
+def year_terms(year_index: np.ndarray, n_years: int, structure: str = "iid",
+               site: np.ndarray | None = None) -> list[Term]:
+    """The year random effect (and optionally a site-by-year effect) as engine terms.
+
+    Parameters
+    ----------
+    year_index : int array
+        Year of each observation as 0..n_years-1, consecutive calendar years (year minus
+        the first year), so that an AR(1) structure links neighbouring years and a year
+        without data is a level without observations.
+    n_years : int
+        Calendar years spanned (last - first + 1).
+    structure : {"iid", "ar1"}
+        Independent year effects, or a stationary AR(1) over consecutive years.
+    site : int array, optional
+        Site of each observation: adds "site_year", an iid intercept for each site-year
+        cell with data (nested in site and in year, crossed with station), by which sites
+        fluctuate apart from the shared year effect.
+    """
+    year_index = np.asarray(year_index, dtype=np.int64)
+    terms = [Term("year", year_index, int(n_years), structure=structure, kind="year")]
+    if site is not None:
+        cell = np.asarray(site, dtype=np.int64) * int(n_years) + year_index
+        _, code = np.unique(cell, return_inverse=True)
+        terms.append(Term("site_year", code.astype(np.int64), int(code.max()) + 1, kind="site_year"))
+    return terms
 
 
 @dataclass
@@ -126,6 +184,10 @@ class GlmmSpec:
             names.append("observation")
         return names
 
+    def rho_names(self) -> list[str]:
+        """The terms with an AR(1) correlation parameter, in the order of the parameter vector."""
+        return [t.name for t in self.terms if t.structure == "ar1"]
+
 
 @dataclass
 class GlmmFit:
@@ -146,7 +208,36 @@ class GlmmFit:
     eta: np.ndarray
     n_evaluations: int
     vcov_method: str
+    rho: dict[str, float] = field(default_factory=dict)   # AR(1) correlations, by term name
+    coef_df: np.ndarray | None = None    # reference df of each fixed effect (inf: normal reference)
+    df_method: str = "z"                 # how coef_df was chosen (see coefficient_df)
+    estimator: str = "ml-laplace"        # see ESTIMATORS
+    pearson_chi2: float | None = None    # sum of squared Pearson residuals (see pearson_statistic)
+    resid_df: int = 0                    # n - number of parameters
+    max_gradient: float = 0.0            # largest scaled gradient at the estimate (see _gradient_check)
 
+    @property
+    def is_ml(self) -> bool:
+        """True when beta is a maximum likelihood (or REML) estimate, False for the joint-mode fast path."""
+        return self.estimator != "joint-mode"
+
+    def quantile(self, j: int, level: float = 0.95) -> float:
+        """The two-sided reference quantile for fixed effect j: t with coef_df[j] df, or normal."""
+        from scipy.stats import norm, t
+
+        q = 0.5 + level / 2
+        df = np.inf if self.coef_df is None else float(self.coef_df[j])
+        return float(norm.ppf(q) if not np.isfinite(df) else t.ppf(q, df))
+
+
+ESTIMATORS = {
+    "ml-laplace": "maximum likelihood, Laplace approximation; standard errors from the Hessian",
+    "ml-agq": "maximum likelihood, adaptive Gauss-Hermite quadrature; standard errors from the Hessian",
+    "ml-exact": "maximum likelihood (Gaussian: exact); standard errors (X' V^-1 X)^-1",
+    "reml-exact": "restricted maximum likelihood (Gaussian: exact); standard errors (X' V^-1 X)^-1",
+    "joint-mode": "fixed effects at the joint penalised mode given the ML variances, conditional "
+                  "standard errors (X' V^-1 X)^-1; NOT a maximum likelihood estimate (the fast path)",
+}
 
 
 def _xv(A, v):
@@ -255,6 +346,22 @@ def _gram_rows(XT, w):
     return M
 
 
+def _ar1_precision_mv(v, rho):
+    """Q v for the precision Q of a stationary AR(1) with unit variance and correlation rho.
+
+    Q = (1 - rho^2)^-1 * tridiag(-rho; 1, 1 + rho^2, ..., 1 + rho^2, 1; -rho).
+    """
+    if len(v) == 1:
+        return v.copy()
+    c = 1.0 / (1.0 - rho * rho)
+    out = (1.0 + rho * rho) * v
+    out[0] = v[0]
+    out[-1] = v[-1]
+    out[1:] -= rho * v[:-1]
+    out[:-1] -= rho * v[1:]
+    return c * out
+
+
 def _bincount2(index, n_levels, values):
     """Per-level column sums of a 2-d array: out[g, k] = sum_{i: index_i = g} values[i, k]."""
     k = values.shape[1]
@@ -289,9 +396,13 @@ class LaplaceEngine:
         self.t_z = [np.ones(n) if t.z is None else np.asarray(t.z, float) for t in spec.terms]
         self.t_nl = [int(t.n_levels) for t in spec.terms]
         self.m_re = int(sum(self.t_nl))
+        self._off = np.r_[0, np.cumsum(self.t_nl)].astype(int)
         self.n_sd = len(spec.sd_names())
+        self.ar1 = [a for a, t in enumerate(spec.terms) if t.structure == "ar1"]
+        self.n_rho = len(self.ar1)
+        self.rho = np.zeros(len(spec.terms))   # current AR(1) correlation of each term (0: iid)
         self.has_disp = self.fam.has_dispersion
-        self.n_phi = self.n_sd + (1 if self.has_disp else 0)
+        self.n_phi = self.n_sd + self.n_rho + (1 if self.has_disp else 0)
         # warm-start state
         self.u_st = np.zeros(self.n_st)
         self.u_re = np.zeros(self.m_re)
@@ -318,15 +429,48 @@ class LaplaceEngine:
         if self.spec.olre:
             s_o = float(np.exp(phi[k]))
             k += 1
+        for a in self.ar1:
+            self.rho[a] = float(np.tanh(phi[k]))
+            k += 1
         if self.has_disp:
             self.fam.dispersion = float(np.exp(phi[k]))
         return s_st, s_terms, s_o
 
     def bounds(self) -> list[tuple[float, float]]:
-        b = [(LOG_SD_MIN, LOG_SD_MAX)] * self.n_sd
+        b = [(LOG_SD_MIN, LOG_SD_MAX)] * self.n_sd + [(-ATANH_RHO_MAX, ATANH_RHO_MAX)] * self.n_rho
         if self.has_disp:
             b.append(LOG_DISP_BOUNDS[self.fam.name])
         return b
+
+    # ------------------------------------------------------------------ prior of the dense-block effects
+    def _prior_mv(self, v_re):
+        """P v: the prior precision of the spherical dense-block effects times v (identity for iid)."""
+        out = v_re.copy()
+        for a in self.ar1:
+            o0, o1 = self._off[a], self._off[a + 1]
+            out[o0:o1] = _ar1_precision_mv(v_re[o0:o1], self.rho[a])
+        return out
+
+    def _prior_add(self, M):
+        """Add the prior precision to the random-effect part of the dense Newton matrix; return -log det P."""
+        r = np.arange(self.m_re)
+        M[r, r] += 1.0
+        neg_logdet = 0.0
+        for a in self.ar1:
+            o0, o1 = self._off[a], self._off[a + 1]
+            rho, k = self.rho[a], o1 - o0
+            c = 1.0 / (1.0 - rho * rho)
+            d = np.full(k, (1.0 + rho * rho) * c)
+            d[0] = d[-1] = c
+            if k == 1:
+                d[0] = 1.0
+            i = np.arange(o0, o1)
+            M[i, i] += d - 1.0
+            M[i[1:], i[:-1]] -= rho * c
+            M[i[:-1], i[1:]] -= rho * c
+            # det of the AR(1) correlation matrix: (1 - rho^2)^(k - 1)
+            neg_logdet += (k - 1) * np.log1p(-rho * rho)
+        return neg_logdet
 
     # ------------------------------------------------------------------ linear algebra
     def _design(self, s_terms, full: bool) -> _DenseDesign:
@@ -348,7 +492,7 @@ class LaplaceEngine:
             f.C = C
             if s_st > 0:
                 M -= np.einsum("ij,ik->jk", C, C / f.A[:, None])
-            M[np.arange(self.m_re), np.arange(self.m_re)] += 1.0
+            logdet += self._prior_add(M)
             f.L, info = _potrf(M)
             if info != 0:
                 # fixed effects not identified at this point: regularise slightly, flag it
@@ -417,7 +561,7 @@ class LaplaceEngine:
             return e
 
         def h_of(eta, u_st, v, u_o):
-            pen = _dot(u_st, u_st) + _dot(v[:self.m_re], v[:self.m_re])
+            pen = _dot(u_st, u_st) + _dot(v[:self.m_re], self._prior_mv(v[:self.m_re]))
             if u_o is not None:
                 pen += _dot(u_o, u_o)
             return float(np.sum(self.fam.loglik(eta)) - 0.5 * pen)
@@ -439,7 +583,7 @@ class LaplaceEngine:
             f = self._factor(w, s_st, s_o, D)
             g_st = s_st * np.bincount(self.st, weights=d1, minlength=self.n_st) - u_st
             g_v = D.rmatvec(d1) if v.size else np.zeros(0)
-            g_v[:self.m_re] -= v[:self.m_re]
+            g_v[:self.m_re] -= self._prior_mv(v[:self.m_re])
             g_o = s_o * d1 - u_o if u_o is not None else None
             x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
             decrement = _dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
@@ -606,7 +750,7 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
     x = np.clip(np.asarray(x0, float), lo, hi)
     f0 = fun(x)
     msg, ok = "iteration limit", False
-    H = g = None
+    H = g = hess_at = None
     active = np.zeros(len(x), bool)
     decrement = np.inf
     for _it in range(max_iter):
@@ -614,6 +758,7 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
         fresh = H is None or not (quasi or decrement < reuse_below)
         if fresh:
             f0, g, H = num_hessian(fun, x, h, f0=f0)
+            hess_at = x.copy()
         elif g is None:
             g = _num_gradient(fun, x, h, f0)
         # a variance parameter drifting down a flat likelihood towards zero: put it on its
@@ -678,6 +823,7 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 H = None
     res = _Result(x, f0, ok, msg, _it + 1)
     res.hess = H
+    res.hess_at = hess_at
     res.active = active
     return res
 
@@ -762,9 +908,9 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         eta_glm = eng.offset + spec.X @ beta0
         if gaussian:
             sig = float(np.std(fam.y - eta_glm)) or 1.0
-            phi0 = np.r_[np.full(eng.n_sd, np.log(0.5 * sig)), np.log(0.7 * sig)]
+            phi0 = np.r_[np.full(eng.n_sd, np.log(0.5 * sig)), np.zeros(eng.n_rho), np.log(0.7 * sig)]
         else:
-            phi0 = np.full(eng.n_sd, np.log(0.5))
+            phi0 = np.r_[np.full(eng.n_sd, np.log(0.5)), np.zeros(eng.n_rho)]
             if fam.has_dispersion:  # NB2: moment estimate of the size from the GLM
                 mu = np.exp(eta_glm)
                 excess = np.mean((fam.y - mu) ** 2 - mu)
@@ -789,20 +935,38 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     phi = np.asarray(res1.x)
     ll = eng.loglik_profiled(phi)
     beta = eng.beta.copy()
-    ok1 = res1.success or "REL_REDUCTION" in str(res1.message)
-    converged = bool(ok1)
-    if not ok1:
-        diags.append(Diagnostic("not_converged", f"The search over the variance parameters stopped early ({res1.message})."))
     do_stage2 = (not gaussian) and (stage2 or n_agq > 1)
     names = spec.sd_names()
     vcov = _conditional_vcov(eng.last_factor, eng)
     vcov_method = "conditional"
+    lo_b = np.array([b[0] for b in bounds])
+    hi_b = np.array([b[1] for b in bounds])
+    max_grad = 0.0
+    converged = True
     if do_stage2:
         phi, beta, ll, H_info, ok2, msg = _stage2(eng, phi, beta, vcov, hessian)
         if not ok2:
+            # the search's own stopping rule was not met: judge the point by its gradient
+            se = np.sqrt(np.maximum(np.diag(_conditional_vcov_at(eng, phi, beta)), 1e-16))
+            fun2 = lambda xx: -eng.loglik_beta(xx[:eng.n_phi], xx[eng.n_phi:])  # noqa: E731
+            max_grad, worst = _gradient_check(fun2, np.r_[phi, beta], np.r_[np.ones(eng.n_phi), se],
+                                              np.r_[lo_b, np.full(eng.p, -np.inf)],
+                                              np.r_[hi_b, np.full(eng.p, np.inf)], eng.n_sd)
+            if max_grad > GRADIENT_TOL:
+                converged = False
+                par = (names + spec.rho_names() + ["dispersion"] + list(spec.x_names))[worst] \
+                    if worst < eng.n_phi else spec.x_names[worst - eng.n_phi]
+                diags.append(Diagnostic("not_converged", "The joint search over fixed effects and variances "
+                                        f"stopped ({msg}) where the log-likelihood still changes by {max_grad:.2g} "
+                                        f"per standard error of '{par}'."))
+    elif not res1.success:
+        max_grad, worst = _gradient_check(obj1, phi, np.ones(eng.n_phi), lo_b, hi_b, eng.n_sd)
+        if max_grad > GRADIENT_TOL:
             converged = False
-            diags.append(Diagnostic("not_converged", "The joint search over fixed effects and variances "
-                                    f"did not converge ({msg})."))
+            par = (names + spec.rho_names() + ["dispersion"])[worst]
+            diags.append(Diagnostic("not_converged", "The search over the variance parameters stopped where the "
+                                    f"log-likelihood still changes by {max_grad:.2g} per unit of log '{par}'."))
+        ll = eng.loglik_profiled(phi)
     at_bound = [i for i in range(eng.n_sd) if phi[i] <= LOG_SD_MIN + 0.5]
     for i in at_bound:
         diags.append(Diagnostic("variance_at_bound",
@@ -836,16 +1000,110 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     if eng.pirls_failures:
         diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
                                 f"reach full precision {eng.pirls_failures} time(s).", "info"))
-    eng.unpack(phi)
+    s_st, s_terms, s_o = eng.unpack(phi)
     # an SD held on its lower bound is reported as 0 (as lme4 reports a singular fit)
     sd = {nm: (0.0 if i in at_bound else float(np.exp(v)))
           for i, (nm, v) in enumerate(zip(names, phi[:eng.n_sd], strict=True))}
+    rho = {spec.terms[a].name: float(eng.rho[a]) for a in eng.ar1}
     n_par = eng.p + eng.n_phi
+    eta_fam = eta if eng.u_o is None or s_o == 0 else eta - s_o * eng.u_o
+    coef_df, df_method = coefficient_df(spec)
+    if gaussian:
+        estimator = "reml-exact" if reml else "ml-exact"
+    elif do_stage2:
+        estimator = "ml-agq" if n_agq > 1 else "ml-laplace"
+    else:
+        estimator = "joint-mode"
     return GlmmFit(beta=beta, vcov=vcov, x_names=list(spec.x_names), sd=sd,
                    dispersion=(float(fam.dispersion) if fam.has_dispersion else None),
                    loglik=float(ll if not reml else reml_ll), reml_criterion=reml_ll, df=n_par,
                    converged=converged, diagnostics=diags, phi=phi, u_station=u_station, eta=eta,
-                   n_evaluations=eng.n_eval, vcov_method=vcov_method)
+                   n_evaluations=eng.n_eval, vcov_method=vcov_method, rho=rho, coef_df=coef_df,
+                   df_method=df_method, estimator=estimator,
+                   pearson_chi2=float(np.sum(fam.pearson_sq(eta_fam))), resid_df=int(spec.n - n_par),
+                   max_gradient=float(max_grad))
+
+
+# A fit counts as converged when its search met its own stopping rule or, failing that,
+# when no parameter's scaled gradient exceeds GRADIENT_TOL at the end: the change of the
+# log-likelihood per unit of a log-SD (or atanh rho, log dispersion), or per standard
+# error of a fixed effect.  Near a maximum a scaled gradient g puts the estimate about g
+# standard errors from it, so 1e-3 is far below anything reported.  SDs on (or within
+# 0.5 of) their lower bound are left out: their likelihood is flat there, and an SD
+# creeping towards zero is an answer (reported as 0), not a failure.
+GRADIENT_TOL = 1e-3
+
+
+def _gradient_check(fun, x, scale, lo, hi, n_sd, h=1e-4):
+    """Largest |d fun / d x_i| * scale_i over the free parameters (projected at bounds).
+
+    Returns (value, index of the worst parameter).
+    """
+    x = np.asarray(x, float)
+    f0 = fun(x)
+    worst, gmax = 0, 0.0
+    for i in range(len(x)):
+        if i < n_sd and x[i] <= LOG_SD_MIN + 0.5:
+            continue
+        hi_ = h * scale[i]
+        up = min(hi_, hi[i] - x[i])
+        dn = min(hi_, x[i] - lo[i])
+        if up <= 0 and dn <= 0:
+            continue
+        xp, xm = x.copy(), x.copy()
+        xp[i] += up
+        xm[i] -= dn
+        fp = fun(xp) if up > 0 else f0
+        fm = fun(xm) if dn > 0 else f0
+        g = (fp - fm) / (up + dn)
+        if (dn <= 0 and g > 0) or (up <= 0 and g < 0):
+            continue  # on a bound, pointing outwards: that is the constrained optimum
+        if abs(g) * scale[i] > gmax:
+            gmax, worst = abs(g) * scale[i], i
+    fun(x)  # leave the engine's warm-start state at x
+    return gmax, worst
+
+
+def coefficient_df(spec: GlmmSpec) -> tuple[np.ndarray, str]:
+    r"""Reference degrees of freedom for each fixed effect, and the name of the rule.
+
+    Without a year effect every fixed effect has a normal reference (df = inf, "z").
+    With a year effect (the term of kind "year") the fixed effects that are constant
+    within each year (the intercept, the slope of year, any year-level covariate) are
+    estimated, in effect, from the yearly values: their reference is t with
+
+        df = n_years - rank(year-level fixed effects),
+
+    n_years the number of year levels with data: the "containment" df (SAS PROC MIXED's
+    DDFM=CONTAIN, from memory), which is the between-year df of a split-plot analysis
+    and the df Piepho & Ogutu (2002, JABES 7:350-360) use for trends across years.  For a linear trend
+    with an intercept this is n_years - 2, the df of the regression of yearly means.
+    Fixed effects that vary within years keep the normal reference.  The rule depends on
+    the model, not on the estimates: a year SD estimated at zero keeps the t reference
+    (the conservative choice; the data cannot show the year variation to be absent).
+    """
+    X = np.asarray(spec.X, float)
+    p = X.shape[1]
+    year = next((t for t in spec.terms if t.kind == "year"), None)
+    if year is None:
+        return np.full(p, np.inf), "z"
+    idx = np.asarray(year.index, dtype=np.int64)
+    cnt = np.bincount(idx, minlength=year.n_levels).astype(float)
+    has = cnt > 0
+    G = int(has.sum())
+    const = np.zeros(p, bool)
+    means = np.zeros((G, p))
+    for k in range(p):
+        m = np.bincount(idx, weights=X[:, k], minlength=year.n_levels)[has] / cnt[has]
+        full = np.zeros(year.n_levels)
+        full[has] = m
+        const[k] = np.allclose(X[:, k], full[idx], rtol=0, atol=1e-10 * (1 + np.max(np.abs(X[:, k]))))
+        means[:, k] = m
+    r = int(np.linalg.matrix_rank(means[:, const])) if const.any() else 0
+    df = max(G - r, 1)
+    out = np.full(p, np.inf)
+    out[const] = df
+    return out, f"t, between-year (containment) df = {G} years - {r} year-level fixed effects = {df}"
 
 
 NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 goes block-wise
@@ -882,6 +1140,10 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
     x[free] = xs
     vb = None
     H = res.hess
+    if want_hessian and H is not None and not np.array_equal(res.hess_at, xs):
+        # the search reuses its Hessian near the optimum (or updates it by BFGS): the
+        # standard errors need it at the estimate itself
+        _, _, H = num_hessian(fun, xs, step_h, f0=f0)
     if want_hessian and H is not None:
         # the variance parameters held on a bound are fixed; the rest are profiled out
         keep = ~np.asarray(res.active)

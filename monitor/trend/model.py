@@ -48,14 +48,14 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
-from scipy.stats import chi2, norm
+from scipy.stats import norm
 
 from monitor import columns as C
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 
-from .call import DEFAULT_MARGIN, MIN_STATIONS, classify_call
+from .call import DEFAULT_MARGIN, MIN_STATIONS, MIN_YEARS, classify_call
 from .families import Binomial, Gaussian, NegativeBinomial, Poisson
-from .glmm import GlmmFit, GlmmSpec, Term, fit_glmm
+from .glmm import GlmmFit, GlmmSpec, Term, default_year_effect, fit_glmm, year_terms
 
 FAMILIES = ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal")
 _FAMILIES_FOR = {
@@ -141,6 +141,10 @@ class TrendResult:
     year_centre: float = 0.0
     cover_eps: float | None = None
     vcov: pd.DataFrame | None = field(default=None, repr=False)
+    year_random: str = "none"      # the year random effect: "iid", "ar1" or "none"
+    slope_df: float = math.inf     # reference df of the slope's interval (inf: normal)
+    df_method: str = "z"           # how slope_df was chosen (monitor.trend.glmm.coefficient_df)
+    estimator: str = "ml-laplace"  # of the slope: see monitor.trend.glmm.ESTIMATORS ("joint-mode" is not ML)
 
     def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
         """Wald intervals of the fixed effects (link scale): columns lower, upper."""
@@ -175,6 +179,10 @@ class TrendResult:
             "call_reason": self.call_reason,
             "margin": _num(self.margin),
             "converged": bool(self.converged),
+            "year_random": self.year_random,
+            "slope_df": _num(self.slope_df),
+            "df_method": self.df_method,
+            "estimator": self.estimator,
             "indices": [{"year": int(r.year), "index": _num(r.index), "lower": _num(r.lower), "upper": _num(r.upper)}
                         for r in self.indices.itertuples(index=False)],
             "diagnostics": [{"code": d.code, "message": d.message, "severity": d.severity} for d in self.diagnostics],
@@ -217,7 +225,9 @@ class TrendModel:
     data : DataFrame
         Long table, one row per (station, visit) with a value (missing visits absent):
         ``station``, ``year`` [int], optional ``site``, ``observer``, covariates, and the
-        measure's value columns (monitor.columns.MEASURE_COLUMNS).
+        measure's value columns (monitor.columns.MEASURE_COLUMNS).  An optional ``lineage``
+        column names the first station of a relocation chain: the stations of one chain
+        share one station effect (a moved quadrat continues its series).
     measure : str
         count, cover, frequency, pin_hits or presence.
     family : str, optional
@@ -233,6 +243,16 @@ class TrendModel:
         a ';'-joined crew is one level).
     site_slope : bool
         Random slope of year by site, uncorrelated with the site intercept.
+    year_random : {None, "iid", "ar1", "none"}
+        Random year intercept crossed with station and site (the year-to-year variation
+        that all stations share): independent ("iid") or an order-1 autoregression over
+        consecutive years ("ar1"), or none.  Default (None): "iid" when the series has at
+        least ``YEAR_EFFECT_MIN_YEARS`` (5) years with data and the method is Laplace,
+        else "none".  With a year effect the slope's interval uses a t reference with
+        between-year df (monitor.trend.glmm.coefficient_df).  Not used in the year-factor
+        model, where the year fixed effects take its place.
+    site_by_year : bool
+        Also a random site-by-year intercept (sites fluctuating apart from each other).
     covariates : sequence of str
         Extra fixed-effect columns; non-numeric columns enter as treatment contrasts.
     method : {"laplace", "agq"}
@@ -263,7 +283,7 @@ class TrendModel:
                  year_effect: str = "linear", site_effect: bool = True, observer_effect: bool = False,
                  site_slope: bool = False, covariates=(), method: str = "laplace", n_agq: int = 7,
                  reml: bool = False, cover_adjust: float | None = None, margin: float = DEFAULT_MARGIN,
-                 base_year: int | None = None):
+                 base_year: int | None = None, year_random: str | None = None, site_by_year: bool = False):
         if measure not in C.MEASURES:
             raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
         family = default_family(measure) if family is None else family
@@ -303,7 +323,17 @@ class TrendModel:
         if method == "agq" and (self.has_site or self.observer_effect or family == "poisson-lognormal"):
             raise InputError("adaptive Gauss-Hermite quadrature needs a single grouping factor: "
                              "use site_effect=False, no observer effect and a family without an observation-level effect")
+        if year_random not in (None, "iid", "ar1", "none"):
+            raise InputError(f"year_random must be 'iid', 'ar1' or 'none' (got {year_random!r})")
         self.years = np.sort(d[C.YEAR].unique())
+        if year_random is None:
+            year_random = "iid" if default_year_effect(len(self.years)) and method != "agq" else "none"
+        if method == "agq" and (year_random != "none" or site_by_year):
+            raise InputError("adaptive Gauss-Hermite quadrature needs a single grouping factor: "
+                             "use year_random='none' and no site-by-year effect")
+        if site_by_year and not self.has_site:
+            raise InputError("a site-by-year effect needs a 'site' column with at least 2 sites")
+        self.year_random, self.site_by_year = year_random, bool(site_by_year)
         self.first, self.last = int(self.years[0]), int(self.years[-1])
         self.centre = (self.first + self.last) / 2.0
         if base_year is None:
@@ -361,11 +391,13 @@ class TrendModel:
         for c in value_cols:
             d[c] = v[c]
         # a station is identified within its site (codes are unique in a programme, but a
-        # table brought from elsewhere may reuse a code in two sites)
+        # table brought from elsewhere may reuse a code in two sites); a relocated quadrat
+        # carries the first station of its chain in ``lineage`` and shares that station's effect
+        station = d[C.LINEAGE].fillna(d[C.STATION]) if C.LINEAGE in d.columns else d[C.STATION]
         if C.SITE in d.columns:
-            d["_station_key"] = d[C.SITE].astype(str) + "\x1f" + d[C.STATION].astype(str)
+            d["_station_key"] = d[C.SITE].astype(str) + "\x1f" + station.astype(str)
         else:
-            d["_station_key"] = d[C.STATION].astype(str)
+            d["_station_key"] = station.astype(str)
         return d.reset_index(drop=True)
 
     # ------------------------------------------------------------------ design
@@ -423,6 +455,12 @@ class TrendModel:
         if self.observer_effect:
             ob = pd.factorize(d[C.OBSERVER].astype(str))[0]
             terms.append(Term("observer", ob, int(ob.max()) + 1))
+        yi = d[C.YEAR].to_numpy() - self.first
+        si = pd.factorize(d[C.SITE])[0] if self.site_by_year else None
+        if year_effect == "linear" and self.year_random != "none":
+            terms += year_terms(yi, self.last - self.first + 1, self.year_random, site=si)
+        elif si is not None:  # year factor: the site-by-year effect only
+            terms += year_terms(yi, self.last - self.first + 1, site=si)[1:]
         spec = GlmmSpec(family=fam, X=X, x_names=names, station=st, n_station=int(st.max()) + 1, terms=terms,
                         olre=(self.family == "poisson-lognormal"))
         return spec, t, eps
@@ -469,7 +507,7 @@ class TrendModel:
         j = spec_lin.x_names.index(SLOPE)
         slope = float(fit_lin.beta[j])
         slope_se = float(math.sqrt(fit_lin.vcov[j, j]))
-        z = norm.ppf(0.975)
+        z = fit_lin.quantile(j)  # t with between-year df when there is a year effect, else normal
         lo, hi = slope - z * slope_se, slope + z * slope_se
         annual = Interval(math.expm1(slope), math.expm1(lo), math.expm1(hi))
         span = self.last - self.first
@@ -500,7 +538,7 @@ class TrendModel:
         call, reason = classify_call(lo_c, hi_c, self.margin, n_st, n_years)
         if n_st < MIN_STATIONS:
             diags.append(Diagnostic("few_stations", f"Only {n_st} stations: the call is 'unclear' by rule."))
-        if n_years < 5:
+        if n_years < MIN_YEARS:
             diags.append(Diagnostic("few_years", f"Only {n_years} years with data: the call is 'unclear' by rule."))
         b = self.base_year
         yrs = np.arange(self.first, self.last + 1)
@@ -516,7 +554,8 @@ class TrendModel:
             df=primary.df, indices=idx_df, fitted_trend=fitted, diagnostics=tuple(_dedupe(diags)), call=call,
             call_reason=reason, margin=self.margin, converged=bool(fit_lin.converged and (fit_fac is None or fit_fac.converged)),
             year_effect=self.year_effect, method=self.method, reml=self.reml, year_centre=self.centre,
-            cover_eps=eps, vcov=vcov)
+            cover_eps=eps, vcov=vcov, year_random=self.year_random, slope_df=float(fit_lin.coef_df[j]),
+            df_method=fit_lin.df_method, estimator=fit_lin.estimator)
 
     def _indices(self, spec, fit) -> pd.DataFrame:
         if fit is None:
@@ -548,7 +587,9 @@ class TrendModel:
             ll_hat, beta_hat, phi_hat = ml.loglik, ml.beta, ml.phi
         else:
             ll_hat, beta_hat, phi_hat = fit.loglik, fit.beta, fit.phi
-        target = math.sqrt(chi2.ppf(0.95, 1))
+        # the signed root of the deviance is compared with the slope's reference quantile:
+        # normal (sqrt of chi2(1)) without a year effect, t with between-year df with one
+        target = fit.quantile(j)
         start = {"phi": phi_hat, "beta": beta_hat[keep]}
 
         def signed_root(b):

@@ -199,3 +199,23 @@ def test_calendar_one_event_per_team_day(plan):
     assert events[0].decoded("DTEND") == dt.datetime.combine(td.date, td.end_time)
     for prop in ("UID", "DTSTAMP", "DTSTART"):
         assert all(e.get(prop) is not None for e in events)
+
+
+def test_calendar_in_the_programmes_time_zone(plan):
+    """RFC 5545 3.6.5: zoned times carry a TZID with a VTIMEZONE; read back with the icalendar library the
+    start is the planned local time in Europe/London (BST in June: UTC+1, from the IANA zone database)."""
+    import zoneinfo
+
+    text = team_day_calendar(plan, crs=EPSG, dtstamp=dt.datetime(2026, 5, 1, 8, tzinfo=dt.UTC),
+                             programme="Heath quadrats", time_zone="Europe/London")
+    cal = icalendar.Calendar.from_ical(text)
+    zones = cal.walk("VTIMEZONE")
+    assert [str(z["TZID"]) for z in zones] == ["Europe/London"]
+    event = cal.walk("VEVENT")[0]
+    assert event["DTSTART"].params["TZID"] == "Europe/London"
+    td = plan.team_days[0]
+    start = event.decoded("DTSTART")
+    assert start.replace(tzinfo=None) == dt.datetime.combine(td.date, td.start_time)
+    assert start.utcoffset() == dt.datetime.combine(td.date, td.start_time,
+                                                    zoneinfo.ZoneInfo("Europe/London")).utcoffset()
+    assert "TZID=Europe/London" in text and "BEGIN:VTIMEZONE" in text

@@ -8,6 +8,7 @@ import shutil
 
 import pandas as pd
 import pytest
+from sqlalchemy import text
 
 from monitor.db import Store
 from monitor.power import VarianceComponents
@@ -23,6 +24,13 @@ def demo_copy(demo_db, tmp_path) -> str:
     """A private copy of the demo database (the tests store fits in it)."""
     path = tmp_path / "demo.sqlite"
     shutil.copyfile(demo_db, path)
+    store = Store.open(str(path))
+    try:
+        with store.session() as session:  # fits other tests stored in the shared demo
+            for table in ("report_fit", "report_issue", "stored_fit"):
+                session.execute(text(f"DELETE FROM {table}"))
+    finally:
+        store.dispose()
     return str(path)
 
 
@@ -54,7 +62,7 @@ def test_the_runner_keeps_the_order_of_the_tasks():
 def test_a_dask_cluster_gives_the_local_numbers_and_the_submitter_stores_them(demo_copy, cluster):
     local = trend.fit_programme(demo_copy, species=SPECIES, by="site", workers=1, save=False)
     remote = trend.fit_programme(demo_copy, species=SPECIES, by="site", cluster=cluster)
-    for a, b in zip(local, remote, strict=True, ):
+    for a, b in zip(local, remote, strict=True):
         _same(a, b)
     assert all(t.fit_id is not None and not t.reused for t in remote)
     store = Store.open(demo_copy)

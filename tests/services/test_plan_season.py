@@ -262,3 +262,41 @@ def test_field_pack_gpx_and_calendar_follow_their_standards(season_db, tmp_path)
     starts = sorted(e.decoded("DTSTART").date() for e in events)
     assert starts == sorted(td.date for td in plan.plan.team_days)
     assert all(e.get("UID") and e.get("DTSTAMP") for e in events)
+    # the programme's time zone (programme.json time_zone, Europe/London in the demo): TZID and VTIMEZONE
+    assert [str(z["TZID"]) for z in calendar.walk("VTIMEZONE")] == ["Europe/London"]
+    assert all(e["DTSTART"].params["TZID"] == "Europe/London" for e in events)
+
+
+def test_xlsx_entry_sheet_has_drop_downs_and_is_read_back(season_db, tmp_path):
+    """The .xlsx entry sheet: openpyxl data validation of type list (ECMA-376 dataValidation) for status
+    and observers; filled in as a person would (openpyxl writing cells) it imports like the CSV."""
+    import openpyxl
+
+    schedule.plan_season(season_db, 2027, teams=2, seed=5)
+    pack = schedule.write_field_packs(season_db, 2027, tmp_path / "packs")
+    day = pack.team_days[0]
+    path = tmp_path / "packs" / day["folder"].rsplit("/", 1)[1] / "entry_sheet.xlsx"
+    book = openpyxl.load_workbook(path)
+    sheet = book["records"]
+    header = [c.value for c in sheet[1]]
+    lists = {dv.type: dv for dv in sheet.data_validations.dataValidation if dv.type == "list"}
+    assert len([dv for dv in sheet.data_validations.dataValidation if dv.type == "list"]) == 2
+    status_col = openpyxl.utils.get_column_letter(header.index("status") + 1)
+    status_dv = next(dv for dv in sheet.data_validations.dataValidation
+                     if dv.type == "list" and f"{status_col}2" in str(dv.sqref).split(":")[0])
+    assert status_dv.formula1 == "=lists!$A$2:$A$5" and lists
+    assert [book["lists"][f"A{i}"].value for i in range(2, 6)] == ["done", "partial", "missed", "inaccessible"]
+    assert [book["lists"][f"B{i}"].value for i in range(2, 4)] == ["OBS01", "OBS02"]
+    # fill in every station as done on the planned day, two observers, 1 in every value column (a valid
+    # count, cover %, frequency, pin hits and presence alike) and 30 in the covariate columns
+    for r in range(2, 2 + day["stations"]):
+        sheet.cell(r, header.index("date") + 1, day["date"])
+        sheet.cell(r, header.index("observers") + 1, "OBS01;OBS02")
+        sheet.cell(r, header.index("status") + 1, "done")
+        for name in header:
+            if ":" in name:
+                sheet.cell(r, header.index(name) + 1, 30 if name.startswith("cov:") else 1)
+    book.save(path)
+    # the plan is for a season still to come, so dates "after today" are warnings to accept
+    report = records.import_records(season_db, path, accept_warnings=True)
+    assert report.visits_added == day["stations"]

@@ -130,7 +130,7 @@ def test_trends_by_site_and_region_beside_the_overall_trend(filled_db):
     store = Store.open(filled_db)
     try:
         with store.session() as session:
-            from sqlalchemy import text  # noqa: TID251 - a test may set a column directly
+            from sqlalchemy import text
 
             session.execute(text("UPDATE site SET region = 'north' WHERE code IN ('CB', 'HH')"))
             session.execute(text("UPDATE site SET region = 'south' WHERE code NOT IN ('CB', 'HH')"))

@@ -43,7 +43,7 @@ def test_fixture_versions(reference):
 
 def test_poisson_matches_glmer(glmm_data, reference):
     # lme4 1.1-31 glmer(count ~ t + (1|site) + (1|station), poisson), Laplace
-    r = TrendModel(glmm_data, "count", family="poisson").fit(profile=True, indices=False)
+    r = TrendModel(glmm_data, "count", family="poisson", year_random="none").fit(profile=True, indices=False)
     check(r, reference["poisson"], {"station": "station", "site": "site"})
     # lme4 1.1-31 confint(m, parm = "t", method = "profile")
     lo, hi = np.log1p(r.annual_change_profile.lower), np.log1p(r.annual_change_profile.upper)
@@ -52,7 +52,7 @@ def test_poisson_matches_glmer(glmm_data, reference):
 
 
 def test_poisson_lognormal_matches_glmer_and_glmmtmb(glmm_data, reference):
-    r = TrendModel(glmm_data, "count", family="poisson-lognormal").fit(profile=False, indices=False, fast=False)
+    r = TrendModel(glmm_data, "count", family="poisson-lognormal", year_random="none").fit(profile=False, indices=False, fast=False)
     # lme4 1.1-31 glmer(count ~ t + (1|site) + (1|station) + (1|obs_id), poisson)
     check(r, reference["poisson_lognormal"], {"station": "station", "site": "site", "observation": "obs_id"})
     # glmmTMB 1.1.5, same model, family = poisson
@@ -61,7 +61,7 @@ def test_poisson_lognormal_matches_glmer_and_glmmtmb(glmm_data, reference):
 
 def test_negbin_matches_glmmtmb(glmm_data, reference):
     d = glmm_data.drop(columns="count").rename(columns={"count_nb": "count"})
-    r = TrendModel(d, "count", family="negbin").fit(profile=False, indices=False, fast=False)
+    r = TrendModel(d, "count", family="negbin", year_random="none").fit(profile=False, indices=False, fast=False)
     ref = reference["negbin"]
     # glmmTMB 1.1.5 glmmTMB(count_nb ~ t + (1|site) + (1|station), family = nbinom2)
     check(r, ref, {"station": "station", "site": "site"})
@@ -69,14 +69,14 @@ def test_negbin_matches_glmmtmb(glmm_data, reference):
 
 
 def test_binomial_matches_glmer(glmm_data, reference):
-    r = TrendModel(glmm_data, "frequency").fit(profile=False, indices=False, fast=False)
+    r = TrendModel(glmm_data, "frequency", year_random="none").fit(profile=False, indices=False, fast=False)
     # lme4 1.1-31 glmer(cbind(occupied, cells - occupied) ~ t + (1|site) + (1|station), binomial)
     check(r, reference["binomial"], {"station": "station", "site": "site"})
 
 
 @pytest.mark.parametrize("reml,key", [(False, "cover_ml"), (True, "cover_reml")])
 def test_cover_matches_lmer(glmm_data, reference, reml, key):
-    r = TrendModel(glmm_data, "cover", reml=reml).fit(profile=not reml, indices=False)
+    r = TrendModel(glmm_data, "cover", reml=reml, year_random="none").fit(profile=not reml, indices=False)
     ref = reference[key]
     # lme4 1.1-31 lmer(logit_cover ~ t + (1|site) + (1|station), REML = reml), with the
     # cover adjustment computed independently in R (eps = smallest non-zero p and 1 - p)
@@ -92,7 +92,7 @@ def test_cover_matches_lmer(glmm_data, reference, reml, key):
 
 def test_year_factor_matches_glmer(glmm_data, reference):
     ref = reference["poisson_factor"]
-    r = TrendModel(glmm_data, "count", family="poisson", year_effect="factor").fit(profile=False, indices=True)
+    r = TrendModel(glmm_data, "count", family="poisson", year_random="none", year_effect="factor").fit(profile=False, indices=True)
     names = {"(Intercept)": "(Intercept)"}
     names.update({f"year[{y}]": f"fyear{y}" for y in range(2012, 2019)})
     # lme4 1.1-31 glmer(count ~ factor(year) + (1|site) + (1|station), poisson)
@@ -105,21 +105,21 @@ def test_year_factor_matches_glmer(glmm_data, reference):
 
 def test_crossed_observer_matches_glmer(glmm_data, reference):
     d = glmm_data.drop(columns="count").rename(columns={"count_b": "count"})
-    r = TrendModel(d, "count", family="poisson", observer_effect=True).fit(profile=False, indices=False, fast=False)
+    r = TrendModel(d, "count", family="poisson", year_random="none", observer_effect=True).fit(profile=False, indices=False, fast=False)
     # lme4 1.1-31 glmer(count_b ~ t + (1|site) + (1|station) + (1|observer), poisson)
     check(r, reference["poisson_observer"], {"station": "station", "site": "site", "observer": "observer"})
 
 
 def test_site_slope_matches_glmer(glmm_data, reference):
     d = glmm_data.drop(columns="count").rename(columns={"count_b": "count"})
-    r = TrendModel(d, "count", family="poisson", site_slope=True).fit(profile=False, indices=False, fast=False)
+    r = TrendModel(d, "count", family="poisson", year_random="none", site_slope=True).fit(profile=False, indices=False, fast=False)
     # lme4 1.1-31 glmer(count_b ~ t + (1|station) + (1|site) + (0 + t|site), poisson)
     check(r, reference["poisson_site_slope"], {"station": "station", "site": "site", "site_slope": "site.1:t"})
 
 
 def test_agq_matches_glmer_nagq7(glmm_data, reference):
     ref = reference["poisson_station_agq7"]
-    r = TrendModel(glmm_data, "count", family="poisson", site_effect=False, method="agq", n_agq=7).fit(
+    r = TrendModel(glmm_data, "count", family="poisson", year_random="none", site_effect=False, method="agq", n_agq=7).fit(
         profile=False, indices=False, fast=False)
     # lme4 1.1-31 glmer(count ~ t + (1|station), poisson, nAGQ = 7).  With nAGQ > 1 glmer
     # builds its log-likelihood from deviance residuals, i.e. relative to the saturated
@@ -138,7 +138,7 @@ def test_agq_matches_glmer_nagq7(glmm_data, reference):
     # and AGQ differs from the Laplace fit on the same model (lme4 1.1-31, nAGQ = 1)
     lap = reference["poisson_station_laplace"]
     assert abs(ref["sd"]["station"] - lap["sd"]["station"]) > 5e-4
-    r1 = TrendModel(glmm_data, "count", family="poisson", site_effect=False).fit(profile=False, indices=False, fast=False)
+    r1 = TrendModel(glmm_data, "count", family="poisson", year_random="none", site_effect=False).fit(profile=False, indices=False, fast=False)
     check(r1, lap, {"station": "station"})
 
 
@@ -163,7 +163,7 @@ def test_many_fixed_effects_search_matches_glmer(glmm_data, reference, monkeypat
 
     monkeypatch.setattr(engine, "NEWTON_MAX_DIM", 4)
     ref = reference["poisson_factor"]
-    r = TrendModel(glmm_data, "count", family="poisson", year_effect="factor").fit(profile=False, indices=True)
+    r = TrendModel(glmm_data, "count", family="poisson", year_random="none", year_effect="factor").fit(profile=False, indices=True)
     names = {"(Intercept)": "(Intercept)"}
     names.update({f"year[{y}]": f"fyear{y}" for y in range(2012, 2019)})
     # lme4 1.1-31 glmer(count ~ factor(year) + (1|site) + (1|station), poisson); the standard

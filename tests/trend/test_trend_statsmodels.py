@@ -76,7 +76,7 @@ def test_trend_model_goes_to_glm_when_no_station_variation():
     yr = np.tile(np.arange(2001, 2009), 30)
     y = rng.poisson(np.exp(1.0 - 0.05 * (yr - 2004.5)))
     d = pd.DataFrame({"station": st, "year": yr, "count": y})
-    r = TrendModel(d, "count", family="poisson").fit(profile=False, indices=False, fast=False)
+    r = TrendModel(d, "count", family="poisson", year_random="none").fit(profile=False, indices=False, fast=False)
     glm = sm.GLM(y.astype(float), np.c_[np.ones(len(y)), yr - 2004.5], family=sm.families.Poisson()).fit()
     # the station SD goes to its bound, is reported as 0 (as lme4 reports a singular
     # fit) and flagged, and the fit is then statsmodels' GLM: slope, SE and log-likelihood
@@ -99,7 +99,7 @@ def test_cover_model_matches_mixedlm(glmm_data, reml):
         warnings.simplefilter("ignore")
         f = smf.mixedlm("z ~ t", d, groups="site", re_formula="1",
                         vc_formula={"station": "0 + C(station)"}).fit(reml=reml, method=["lbfgs"])
-    r = TrendModel(d, "cover", reml=reml).fit(profile=False, indices=False)
+    r = TrendModel(d, "cover", reml=reml, year_random="none").fit(profile=False, indices=False)
     np.testing.assert_allclose(r.params.to_numpy(), f.fe_params.to_numpy(), atol=1e-5)
     np.testing.assert_allclose(r.bse.to_numpy(), f.bse_fe.to_numpy(), rtol=1e-3)
     assert r.random_sd["site"] == pytest.approx(float(np.sqrt(f.cov_re.iloc[0, 0])), rel=1e-3)

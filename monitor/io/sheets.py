@@ -1,0 +1,142 @@
+"""Tables for spreadsheets: .xlsx workbooks of result tables, several tables in one CSV, and the .xlsx
+entry sheet with drop-down lists that the records importer reads back.
+
+Workbooks are written with openpyxl (Office Open XML, ECMA-376); drop-down lists are its data
+validation of type "list" (ECMA-376 Part 1, 18.3.1.32 dataValidation).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+SHEET_NAME_LIMIT = 31  # Excel's limit on a sheet name (common practice)
+
+
+def _cell_value(value: object) -> object:
+    if value is None or value is pd.NA or value is pd.NaT:
+        return None
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (np.floating, float)):
+        f = float(value)
+        return None if math.isnan(f) or math.isinf(f) else f
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, pd.Timestamp):
+        return value.to_pydatetime()
+    if isinstance(value, (list, tuple, set, dict)):
+        return ", ".join(str(v) for v in value) if not isinstance(value, dict) else str(value)
+    return value
+
+
+def write_xlsx(path: str | Path, sheets: Mapping[str, pd.DataFrame]) -> Path:
+    """Write each table to a sheet of its own: a bold header row, numbers as numbers, columns sized."""
+    from openpyxl import Workbook
+    from openpyxl.styles import Font
+    from openpyxl.utils import get_column_letter
+
+    path = Path(path)
+    book = Workbook()
+    book.remove(book.active)
+    for name, frame in sheets.items():
+        sheet = book.create_sheet(str(name)[:SHEET_NAME_LIMIT])
+        columns = [str(c) for c in frame.columns]
+        sheet.append(columns)
+        for cell in sheet[1]:
+            cell.font = Font(bold=True)
+        for row in frame.itertuples(index=False, name=None):
+            sheet.append([_cell_value(v) for v in row])
+        for i, column in enumerate(columns, start=1):
+            width = max([len(column)] + [len(str(v)) for v in frame.iloc[:, i - 1].head(200).tolist()])
+            sheet.column_dimensions[get_column_letter(i)].width = min(max(width + 2, 8), 60)
+        sheet.freeze_panes = "A2"
+    path.parent.mkdir(parents=True, exist_ok=True)
+    book.save(path)
+    return path
+
+
+def tables_csv(sheets: Mapping[str, pd.DataFrame]) -> str:
+    """Several tables in one CSV: a first column ``table`` names the table each row belongs to; the other
+    columns are the union of the tables' columns in first-seen order (blank where a table has none)."""
+    frames = []
+    for name, frame in sheets.items():
+        f = frame.copy()
+        f.insert(0, "table", name)
+        frames.append(f)
+    columns: list[str] = []
+    for f in frames:
+        columns += [c for c in f.columns if c not in columns]
+    return pd.concat([f.reindex(columns=columns) for f in frames], ignore_index=True).to_csv(index=False)
+
+
+# --- the entry sheet ---------------------------------------------------------------------------------------
+ENTRY_SHEET = "records"
+LISTS_SHEET = "lists"
+
+
+def entry_workbook(path: str | Path, rows: pd.DataFrame, *, statuses: Sequence[str], observers: Sequence[str],
+                   value_columns: Sequence[str], title: str | None = None) -> Path:
+    """An .xlsx entry sheet: one row per planned visit, drop-down lists for the visit status and the
+    observers, whole or decimal numbers >= 0 in the value columns.
+
+    ``rows`` holds the visit columns already filled in (station, planned date, ...); the value columns
+    are left blank to fill in.  The lists live on a sheet of their own (``lists``), so a list longer
+    than the 255 characters of an inline list still works.  The importer reads the first sheet.
+    """
+    from openpyxl import Workbook
+    from openpyxl.styles import Font
+    from openpyxl.utils import get_column_letter
+    from openpyxl.worksheet.datavalidation import DataValidation
+
+    path = Path(path)
+    book = Workbook()
+    sheet = book.active
+    sheet.title = ENTRY_SHEET
+    columns = list(rows.columns) + [c for c in value_columns if c not in rows.columns]
+    sheet.append(columns)
+    for cell in sheet[1]:
+        cell.font = Font(bold=True)
+    for record in rows.itertuples(index=False, name=None):
+        values = [_cell_value(v) for v in record]
+        values = [v.isoformat() if isinstance(v, (dt.date, dt.datetime)) else v for v in values]
+        sheet.append(values + [None] * (len(columns) - len(values)))
+    last = max(sheet.max_row, 2) + 20  # room for visits added on the day
+    lists = book.create_sheet(LISTS_SHEET)
+    lists.append(["status", "observer"])
+    for i in range(max(len(statuses), len(observers))):
+        lists.append([statuses[i] if i < len(statuses) else None, observers[i] if i < len(observers) else None])
+
+    def column_of(name: str) -> str:
+        return get_column_letter(columns.index(name) + 1)
+
+    status = DataValidation(type="list", formula1=f"={LISTS_SHEET}!$A$2:$A${len(statuses) + 1}", allow_blank=False,
+                            showErrorMessage=True, errorTitle="status",
+                            error=f"Choose one of: {', '.join(statuses)}")
+    status.add(f"{column_of('status')}2:{column_of('status')}{last}")
+    sheet.add_data_validation(status)
+    if "observers" in columns and observers:
+        # one observer per cell from the list; a second observer is typed after a ';' (so no error stop)
+        observer = DataValidation(type="list", formula1=f"={LISTS_SHEET}!$B$2:$B${len(observers) + 1}",
+                                  allow_blank=True, showErrorMessage=False,
+                                  prompt="Choose an observer; add a second after ';'", showInputMessage=True)
+        observer.add(f"{column_of('observers')}2:{column_of('observers')}{last}")
+        sheet.add_data_validation(observer)
+    for name in value_columns:
+        number = DataValidation(type="decimal", operator="greaterThanOrEqual", formula1="0", allow_blank=True,
+                                showErrorMessage=True, errorTitle=name, error="A number of 0 or more")
+        number.add(f"{column_of(name)}2:{column_of(name)}{last}")
+        sheet.add_data_validation(number)
+    for i, column in enumerate(columns, start=1):
+        sheet.column_dimensions[get_column_letter(i)].width = max(len(column) + 2, 12)
+    sheet.freeze_panes = "B2"
+    if title:
+        book.properties.title = title
+    path.parent.mkdir(parents=True, exist_ok=True)
+    book.save(path)
+    return path

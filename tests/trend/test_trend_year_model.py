@@ -1,0 +1,143 @@
+"""The year effect through TrendModel: default rule, t reference, profile, estimator labels, convergence flag."""
+
+import json
+import math
+import sys
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy.stats import norm, t
+
+import monitor.trend.glmm as engine
+from monitor.trend import TrendModel
+from monitor.trend.glmm import YEAR_EFFECT_MIN_YEARS, fit_glmm
+
+sys.path.insert(0, str(Path(__file__).parent))
+from yearfit_helpers import spec_from_frame  # noqa: E402
+
+FIXTURES = Path(__file__).resolve().parents[1] / "fixtures" / "trend"
+REF = json.loads((FIXTURES / "reference_year_values.json").read_text())
+YEAR = pd.read_csv(FIXTURES / "glmm_year_data.csv")
+
+
+def nb_frame():
+    return YEAR.drop(columns="count").rename(columns={"count_nb": "count"})
+
+
+def test_default_year_effect_rule():
+    assert YEAR_EFFECT_MIN_YEARS == 5
+    d = nb_frame()
+    assert TrendModel(d, "count", family="negbin").year_random == "iid"          # 12 years
+    short = d[d["year"] <= 2013]                                                 # 4 years
+    assert TrendModel(short, "count", family="negbin").year_random == "none"
+    assert TrendModel(d[d["year"] <= 2014], "count", family="negbin").year_random == "iid"  # 5 years
+    assert TrendModel(d, "count", family="negbin", year_random="none").year_random == "none"
+
+
+def test_trend_with_year_effect_uses_t_reference():
+    r = TrendModel(nb_frame(), "count", family="negbin").fit(profile=False, indices=False, fast=False)
+    ref = REF["negbin_year"]
+    # glmmTMB 1.1.5 glmmTMB(count_nb ~ t + (1|site) + (1|station) + (1|fyear), nbinom2)
+    assert r.slope == pytest.approx(ref["fixef"]["t"], abs=1e-4)
+    assert r.slope_se == pytest.approx(ref["se"]["t"], rel=1e-3)
+    assert r.random_sd["year"] == pytest.approx(ref["sd"]["fyear"], rel=1e-3)
+    assert r.slope_df == 10 and "containment" in r.df_method and r.estimator == "ml-laplace"
+    q = t.ppf(0.975, 10)   # scipy.stats.t
+    assert r.annual_change.lower == pytest.approx(math.expm1(r.slope - q * r.slope_se), rel=1e-12)
+    assert r.annual_change.upper == pytest.approx(math.expm1(r.slope + q * r.slope_se), rel=1e-12)
+    out = r.to_dict()
+    assert out["slope_df"] == 10 and out["year_random"] == "iid" and out["estimator"] == "ml-laplace"
+    # without the year effect the reference is normal
+    r0 = TrendModel(nb_frame(), "count", family="negbin", year_random="none").fit(profile=False, indices=False,
+                                                                                   fast=False)
+    assert math.isinf(r0.slope_df) and r0.df_method == "z"
+    assert r0.annual_change.upper == pytest.approx(math.expm1(r0.slope + norm.ppf(0.975) * r0.slope_se), rel=1e-12)
+    # ignoring the year effect understates the slope's SE on these data (simulated with one)
+    assert r.slope_se > 1.5 * r0.slope_se
+
+
+def test_profile_interval_uses_t_quantile():
+    m = TrendModel(YEAR, "frequency")   # occupied of 20 cells, binomial with a year effect
+    r = m.fit(profile=True, indices=False)
+    q = t.ppf(0.975, r.slope_df)
+    lo, hi = np.log1p(r.annual_change_profile.lower), np.log1p(r.annual_change_profile.upper)
+    # independent check: refit with the slope fixed at each bound (as an offset); the
+    # likelihood-ratio statistic there is the square of the t quantile
+    spec, _, _ = m._spec("linear")
+    full = fit_glmm(spec)
+    j = spec.x_names.index("year")
+    for b in (lo, hi):
+        sp = replace(spec, family=m._response()[0], X=spec.X[:, [0]], x_names=["(Intercept)"], offset=b * spec.X[:, j])
+        dev = 2 * (full.loglik - fit_glmm(sp).loglik)
+        assert math.sqrt(dev) == pytest.approx(q, abs=5e-4)
+    assert lo < r.slope < hi
+
+
+def test_fast_path_is_labelled_joint_mode():
+    fast = TrendModel(nb_frame(), "count", family="negbin").fit(profile=False, indices=False)
+    full = TrendModel(nb_frame(), "count", family="negbin").fit(profile=False, indices=False, fast=False)
+    assert fast.estimator == "joint-mode" and full.estimator == "ml-laplace"
+    cover = TrendModel(YEAR.assign(cover_pct=100 / (1 + np.exp(-YEAR["z"]))), "cover").fit(profile=False, indices=False)
+    assert cover.estimator == "ml-exact"   # the Gaussian model is exact ML on either path
+
+
+def test_ar1_and_site_by_year_through_the_model():
+    d = YEAR.drop(columns="count").rename(columns={"count_sy": "count"})
+    r = TrendModel(d, "count", family="negbin", site_by_year=True).fit(profile=False, indices=False, fast=False)
+    ref = REF["negbin_site_year"]
+    # glmmTMB 1.1.5 (count_sy ~ t + (1|site) + (1|station) + (1|fyear) + (1|site:fyear), nbinom2)
+    assert r.slope == pytest.approx(ref["fixef"]["t"], abs=1e-4)
+    assert r.random_sd["site_year"] == pytest.approx(ref["sd"]["site:fyear"], rel=1e-3)
+    r = TrendModel(nb_frame(), "count", family="negbin", year_random="ar1").fit(profile=False, indices=False,
+                                                                                 fast=False)
+    # glmmTMB 1.1.5 (count_nb ~ t + (1|site) + (1|station) + ar1(fyear + 0 | one), nbinom2)
+    assert r.slope == pytest.approx(REF["negbin_year_ar1"]["fixef"]["t"], abs=1e-4)
+    assert r.random_sd["year"] == pytest.approx(REF["negbin_year_ar1"]["sd"]["one"], rel=1e-3)
+
+
+def test_year_factor_model_has_no_random_year():
+    m = TrendModel(nb_frame(), "count", family="negbin")
+    spec, _, _ = m._spec("factor")
+    assert "year" not in spec.sd_names()
+
+
+# ---------------------------------------------------------------- convergence flag
+def _stopping_early(monkeypatch, max_iter):
+    real = engine._newton_bounded
+
+    def capped(*a, **kw):
+        kw["max_iter"] = min(kw.get("max_iter", 60), max_iter)
+        res = real(*a, **kw)
+        res.success, res.message = False, "iteration limit"
+        return res
+
+    monkeypatch.setattr(engine, "_newton_bounded", capped)
+
+
+def test_converged_judged_by_gradient_not_by_message(monkeypatch):
+    # cbpp (lme4 1.1-31) with period crossed: the period SD sits on zero at the optimum.
+    # Even when the search reports "iteration limit" at the optimum, the flag is set from the
+    # gradient there.
+    cb = pd.read_csv(FIXTURES / "cbpp.csv").assign(t=lambda x: x["period"] - 2.5)
+    spec = spec_from_frame(cb, "binomial", "incidence", ["t"], "herd", year="period", trials="size")
+    ok = fit_glmm(spec)
+    assert ok.converged and ok.sd["year"] == 0.0
+    _stopping_early(monkeypatch, 60)
+    f = fit_glmm(spec_from_frame(cb, "binomial", "incidence", ["t"], "herd", year="period", trials="size"))
+    assert f.converged
+    assert f.max_gradient < engine.GRADIENT_TOL
+    assert "not_converged" not in {x.code for x in f.diagnostics}
+    assert f.beta[1] == pytest.approx(ok.beta[1], abs=1e-6)
+
+
+def test_not_converged_when_the_gradient_is_large(monkeypatch):
+    _stopping_early(monkeypatch, 1)
+    spec = spec_from_frame(YEAR, "negbin", "count_nb", ["t"], "station", site="site", year="year")
+    f = fit_glmm(spec)
+    assert not f.converged
+    assert f.max_gradient > engine.GRADIENT_TOL
+    msg = [x.message for x in f.diagnostics if x.code == "not_converged"][0]
+    assert "still changes by" in msg and "iteration limit" in msg
