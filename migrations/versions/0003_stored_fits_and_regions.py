@@ -2,7 +2,7 @@
 the fits they showed (the history of calls), and a region for each site (trends by region).
 
 Revision ID: 0003
-Revises: 0004
+Revises: 0006
 Create Date: 2026-12-02
 """
 
@@ -13,7 +13,7 @@ import sqlmodel
 from alembic import op
 
 revision = "0003"
-down_revision = "0004"
+down_revision = "0006"
 branch_labels = None
 depends_on = None
 

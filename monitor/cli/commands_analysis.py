@@ -298,6 +298,13 @@ def _int_list(text: str) -> list[int]:
 @click.option("--site-sd", type=float, default=0.0, show_default=True, help="Without --species: site SD.")
 @click.option("--obs-sd", type=float, default=0.3, show_default=True,
               help="Without --species: observation-level SD (overdispersion), or residual SD for cover.")
+@click.option("--sd-year", type=float, default=None,
+              help="SD of the year-to-year fluctuation shared by every station (link scale, e.g. 0.15); "
+                   "without --species the default is 0, with it the fitted value, which this replaces.")
+@click.option("--sd-site-year", type=float, default=None,
+              help="SD of each site's own year-to-year fluctuation (link scale); default 0, or the fitted value.")
+@click.option("--trials", type=int, default=None,
+              help="Without --species, family binomial: cells in the grid or pins in the frame (1: presence).")
 @click.option("--change", type=float, required=True, help="Total change over --over years, e.g. -0.5 for a 50% fall.")
 @click.option("--over", "over_years", type=int, default=10, show_default=True, help="Years the change happens over.")
 @click.option("--stations", default="20,40,60", show_default=True, help="Numbers of stations to compare.")
@@ -306,70 +313,114 @@ def _int_list(text: str) -> list[int]:
 @click.option("--missed", type=float, default=0.0, show_default=True, help="Expected share of missed visits.")
 @click.option("--alpha", type=float, default=0.05, show_default=True, help="Significance level.")
 @click.option("--side", type=click.Choice(["decline", "rise", "two-sided"]), default="decline", show_default=True)
-@click.option("--target", type=float, default=0.8, show_default=True, help="Target power for the smallest design.")
+@click.option("--target", type=float, default=0.8, show_default=True,
+              help="Target power for the smallest number of stations and of years.")
 @click.option("--replicates", type=int, default=200, show_default=True, help="Simulated data sets per design.")
 @click.option("--seed", type=int, default=1, show_default=True, help="Seed: the same seed gives the same answer.")
 @click.option("--workers", type=int, default=1, show_default=True, help="Processes to run in parallel.")
 @click.option("--cluster", default=None, metavar="tcp://HOST:PORT",
               help="Run the replicates on this Dask scheduler's workers instead (the same answer).")
 @click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
-              help="Save power against stations, one line per number of years.")
+              help="Save power against stations, one line per number of years, with the unlimited-stations ceiling.")
 @format_option
 @click.pass_obj
-def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, change, over_years, stations,
-                  years, revisit, missed, alpha, side, target, replicates, seed, workers, cluster, figure, as_json,
-                  as_csv):
+def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, sd_year, sd_site_year, trials,
+                  change, over_years, stations, years, revisit, missed, alpha, side, target, replicates, seed,
+                  workers, cluster, figure, as_json, as_csv):
     """Can the design detect the change that matters? Simulated power per design, with the approximation beside it."""
+    from dataclasses import replace
+
     from monitor.power import VarianceComponents
     from monitor.services import power
 
+    for name, value in (("--sd-year", sd_year), ("--sd-site-year", sd_site_year)):
+        if value is not None and not value >= 0:
+            raise click.BadParameter(f"{value}: expected an SD of 0 or more", param_hint=name)
+    if trials is not None and trials < 1:
+        raise click.BadParameter(f"{trials}: expected a whole number of cells or pins, 1 or more",
+                                 param_hint="--trials")
     if species:
         components, source = power.components_for(ctx.db, species, programme_code=ctx.programme)
+        changed = {k: v for k, v in (("year_sd", sd_year), ("site_year_sd", sd_site_year)) if v is not None}
+        if changed:
+            components = replace(components, **changed)
+            source += " (year-to-year SDs as given)"
     else:
         if mean is None:
             raise click.UsageError("give --species (fitted to the programme) or --mean with the SDs")
-        sds = {"station_sd": station_sd, "site_sd": site_sd}
+        sds = {"station_sd": station_sd, "site_sd": site_sd, "year_sd": sd_year or 0.0,
+               "site_year_sd": sd_site_year or 0.0}
         sds["residual_sd" if family == "logit-normal" else "observation_sd"] = obs_sd
+        if family == "binomial":
+            sds["trials"] = trials if trials is not None else 1
         components, source = VarianceComponents.from_mean(family, mean, **sds), "values given"
     station_list, year_list = _int_list(stations), _int_list(years)
-    total = len(station_list) * len(year_list) * replicates
-    with progress(total, "simulating") as bar:
+    with progress(1, "simulating") as bar:
+        def tick(done: int, total: int) -> None:
+            bar.length = max(total, 1)
+            bar.update(done - bar.pos)
+
         study = power.power_study(components, source, change=change, over_years=over_years, stations=station_list,
                                   years=year_list, revisit=revisit, missed_share=missed, alpha=alpha, side=side,
                                   target=target, replicates=replicates, seed=seed, workers=workers, cluster=cluster,
-                                  figure=figure,
-                                  progress=lambda done, _n: bar.update(done - bar.pos))
+                                  figure=figure, progress=tick)
     fmt = chosen_format(as_json, as_csv)
     if fmt == "json":
         emit(study.to_dict(), fmt)
         return
     emit(power_rows(study), fmt)
     if fmt == "table":
-        say(power_sentence(study))
+        for line in power_sentences(study):
+            say(line)
         if figure:
-            say(f"figure: {figure}")
+            say(f"figure: {figure} (error bars: +/- 2 Monte-Carlo SE)")
+
+
+POWER_COLUMN = "power (simulated, +/- 1 MC SE)"
 
 
 def power_rows(study) -> list[dict]:
     rows = []
     for r in study.results:
         approx = r.approximation.power if r.approximation is not None else None
+        ceiling = r.approximation.ceiling if r.approximation is not None else None
         rows.append({"stations": r.design.n_stations, "seasons": r.design.n_years,
-                     "power (simulated)": f"{r.power:.2f} +/- {r.power_se:.2f}",
-                     "approximation (Gerrodette)": "" if approx is None else f"{approx:.2f}",
+                     POWER_COLUMN: f"{r.power:.2f} +/- {r.power_se:.2f}" if r.power == r.power else "not computed",
+                     "approximation": "" if approx is None else f"{approx:.2f}",
+                     "ceiling (unlimited stations)": "" if ceiling is None else f"{ceiling:.2f}",
                      "median CI width % a year": f"{100 * r.median_interval_width:.1f}",
                      "right call": f"{r.share_right_call:.2f}" if r.share_right_call == r.share_right_call else ""})
     return rows
 
 
-def power_sentence(study) -> str:
+def power_sentences(study) -> list[str]:
+    """The study's answers in plain words: how many stations, how many years, and what stations cannot buy."""
+    lines = ["Power is the share of simulated data sets in which the decline was detected; "
+             "the table shows +/- 1 Monte-Carlo SE, the figure +/- 2."]
+    pct = f"{100 * study.target:.0f}%"
+    for n_years, ceiling in sorted(study.ceilings().items()):
+        if ceiling < study.target:
+            lines.append(f"Over {n_years} seasons no number of stations reaches {pct} power: the good and bad years "
+                         f"all stations share cap it at about {ceiling:.2f} (approximation); only more years help.")
     s = study.smallest
-    if s is None:
-        return ""
-    if s.value is None:
-        return (f"No design on the grid up to 200 stations reaches {100 * study.target:.0f}% power "
-                f"over {s.result.design.n_years if s.result else 'the'} seasons.")
-    r = s.result
-    return (f"Smallest number of stations reaching {100 * study.target:.0f}% power over {r.design.n_years} seasons: "
-            f"{s.value} (simulated power {r.power:.2f} +/- {r.power_se:.2f}; the approximation suggested "
-            f"{s.approximate_value}).")
+    if s is not None:
+        if s.value is None:
+            lines.append(f"No design on the grid up to {max(r.design.n_stations for r in s.evaluated)} stations "
+                         f"reaches {pct} power over {s.evaluated[0].design.n_years if s.evaluated else 'the'} seasons.")
+        else:
+            r = s.result
+            lines.append(f"Smallest number of stations reaching {pct} power over {r.design.n_years} seasons: "
+                         f"{s.value} (simulated power {r.power:.2f} +/- {r.power_se:.2f}; the approximation suggested "
+                         f"{s.approximate_value}).")
+    y = study.years
+    if y is not None and y.evaluated:
+        stations_here = y.evaluated[0].design.n_stations
+        if y.value is None:
+            lines.append(f"With {stations_here} stations no series up to {max(r.design.n_years for r in y.evaluated)} "
+                         f"seasons reaches {pct} power.")
+        else:
+            r = y.result
+            lines.append(f"How many years: with {stations_here} stations, {y.value} consecutive seasons reach {pct} "
+                         f"power (simulated power {r.power:.2f} +/- {r.power_se:.2f}; the approximation suggested "
+                         f"{y.approximate_value}).")
+    return lines

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 
 from monitor import columns as C
 from monitor.io import headers as H
+from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 # the vocabulary of management events (the events reader refuses any other kind)
 EVENT_KINDS = ("grazing", "cutting", "mowing", "burning", "flooding", "drought", "scrub_clearance",
@@ -84,7 +85,7 @@ PROGRAMME = FileSpec(
           "Whether a blank value cell on a field sheet means zero (otherwise: not recorded)."),
         F("allow_lone_working", "true/false", False, "false",
           "Whether a team of one may be planned (follow your organisation's lone-working policy)."),
-        F("change_margin", "fraction a year, 0 to < 1", False, "0.02",
+        F("change_margin", "fraction a year, above 0, below 1", False, f"{DEFAULT_CHANGE_MARGIN:g}",
           "The margin of annual change that matters to management (a trend inside it is 'stable').",
           "fraction a year"),
         F("settings", "object", False, '{"minutes_per_quadrat": {"count": 6}, "triggers": [...]}',

@@ -29,6 +29,8 @@ from monitor.power.approximation import (
     approximate_detectable_change,
     approximate_power,
     gerrodette_exponential_power,
+    index_variance,
+    years_needed,
     gerrodette_linear_power,
     variance_factor,
     yearly_index_sd,
@@ -40,6 +42,7 @@ from monitor.power.model import (
     Scenario,
     VarianceComponents,
     components_from_trend,
+    trials_from_data,
 )
 from monitor.power.panels import PanelMember, RevisitDesign, parse_revisit
 from monitor.power.plot import plot_power
@@ -63,5 +66,5 @@ __all__ = [
     "approximate_power", "compare_designs", "components_from_trend", "design_grid", "detectable_change",
     "gerrodette_exponential_power", "gerrodette_linear_power", "parse_revisit", "plot_power",
     "reject_null", "results_frame", "simulate_dataset", "simulate_power", "smallest_design",
-    "variance_factor", "yearly_index_sd",
+    "variance_factor", "yearly_index_sd", "index_variance", "years_needed", "trials_from_data",
 ]

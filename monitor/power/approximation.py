@@ -153,17 +153,24 @@ def _check(n_surveys: int, cv: float) -> None:
 
 @dataclass(frozen=True)
 class Approximation:
-    """Gerrodette-type approximate power for a monitoring design (APPROXIMATION)."""
+    """Approximate power for a monitoring design (APPROXIMATION; the simulation is the reference)."""
 
     power: float              # approximate power
     cv_year: float            # CV of a year's programme-wide index implied by the design
     visits_per_year: float    # expected visits made per year
     sd_per_visit: float       # effective link-scale noise SD of one visit
+    sd_index: float = math.nan       # link-scale SD of a year's index, year effects included
+    df: float = math.inf             # degrees of freedom of the test (inf: normal)
+    ceiling: float = 1.0             # power with unlimited stations over the same years
     label: str = "approximation (Gerrodette 1987, exponential change, regression on the log scale)"
+
+    def to_dict(self) -> dict:
+        return {"power": self.power, "ceiling": self.ceiling, "sd_index": self.sd_index,
+                "df": None if math.isinf(self.df) else self.df, "label": self.label}
 
 
 def yearly_index_sd(components: VarianceComponents, design: Design, annual_change: float = 0.0) -> tuple[float, float, float]:
-    """Link-scale SD of one year's programme index: (sd_year, sd_per_visit, visits_per_year).
+    """Link-scale SD of one year's programme index from the stations alone: (sd, sd_per_visit, visits_per_year).
 
     Notes
     -----
@@ -176,7 +183,7 @@ def yearly_index_sd(components: VarianceComponents, design: Design, annual_chang
     (Gauss-Hermite, 40 nodes).  With every station visited every year the station and site
     intercepts cancel out of the trend; under rotating panels the station variance is added
     (a conservative simplification).  A year's index variance is that over the expected
-    visits per year.
+    visits per year.  The year and site-by-year effects are added by :func:`index_variance`.
     """
     s = scaled_components(components, design)
     family = components.family
@@ -202,26 +209,120 @@ def yearly_index_sd(components: VarianceComponents, design: Design, annual_chang
     return math.sqrt(per_visit / visits), math.sqrt(per_visit), visits
 
 
-def approximate_power(components: VarianceComponents, design: Design, scenario: Scenario) -> Approximation:
-    """Approximate power of a design by Gerrodette's exponential-change formula (APPROXIMATION).
+def has_year_variation(components: VarianceComponents) -> bool:
+    """Whether the population model carries a year or site-by-year effect."""
+    return components.year_sd > 0 or components.site_year_sd > 0
 
-    The programme's yearly index is treated as one survey per year with log-scale variance
-    ``sd_year^2 = ln(1 + CV^2)`` from :func:`yearly_index_sd`; then
-    ``power = Phi(|ln(1 + r)| sqrt(N (N^2 - 1) / 12) / sd_year - z_alpha)`` for N survey years.
+
+def index_variance(components: VarianceComponents, design: Design, annual_change: float = 0.0, *,
+                   unlimited_stations: bool = False) -> float:
+    """Link-scale variance of a year's programme index (Urquhart, Paulsen & Larsen 1998).
+
+    Notes
+    -----
+    ``var(index_t) = s_year^2 + s_site_year^2 / J + w / m`` with ``J`` sites, ``m`` expected visits
+    a year and ``w`` the effective per-visit variance of :func:`yearly_index_sd`, so that
+
+        var(b1) = [s_year^2 + s_site_year^2 / J + w / m] / sum_t (t - tbar)^2,
+
+    Urquhart et al.'s (1998) ``[sd_year^2 + (sd_site_year^2 + sd_e^2) / m] / sum (t - tbar)^2``
+    with their sites as our stations (one station a site).  With ``unlimited_stations`` the limit as
+    ``m -> inf``: the stations' part vanishes, and so does the site-by-year part when the design lets
+    the number of sites grow with the stations (``design.n_sites`` not given); only more years can
+    lower what is left.
+
+    References
+    ----------
+    Urquhart, N. S., Paulsen, S. G. & Larsen, D. P. (1998) Monitoring for policy-relevant regional
+    trends over time. Ecological Applications 8(2), 246-257.
+    """
+    s = scaled_components(components, design)
+    if unlimited_stations:
+        site_year = s["site_year_sd"] ** 2 / design.n_sites if design.n_sites is not None else 0.0
+        return s["year_sd"] ** 2 + site_year
+    sd_stations, _per_visit, _visits = yearly_index_sd(components, design, annual_change)
+    return s["year_sd"] ** 2 + s["site_year_sd"] ** 2 / design.sites_for(components) + sd_stations**2
+
+
+def _t_power(ncp: float, df: float, alpha: float, side: str) -> float:
+    """Power of a t test on ``df`` degrees of freedom with noncentrality ``ncp`` (scipy.stats.nct)."""
+    if side == "two-sided":
+        q = float(stats.t.isf(alpha / 2, df))
+        return float(stats.nct.sf(q, df, ncp) + stats.nct.cdf(-q, df, ncp))
+    q = float(stats.t.isf(alpha, df))
+    if side == "decline":
+        return float(stats.nct.cdf(-q, df, ncp))
+    if side == "rise":
+        return float(stats.nct.sf(q, df, ncp))
+    raise DesignError(f"test side {side!r}: expected two-sided, decline or rise")
+
+
+def _power_from_sd(slope: float, sd: float, n_years: int, df: float, alpha: float, side: str) -> float:
+    if sd <= 0:
+        return 1.0 if _signed(slope, side) > 0 else float(alpha)
+    ncp = slope * math.sqrt(n_years * (n_years - 1) * (n_years + 1) / 12) / sd
+    if math.isinf(df):
+        # Gerrodette's exponential case with ln(1 + CV^2) = sd^2, written on the log scale directly
+        return float(stats.norm.cdf(_signed(ncp, side) - _z_alpha(alpha, side)))
+    return _t_power(ncp, df, alpha, side)
+
+
+def approximate_power(components: VarianceComponents, design: Design, scenario: Scenario, *,
+                      df: float | None = None) -> Approximation:
+    """Approximate power of a design (APPROXIMATION).
+
+    Parameters
+    ----------
+    components, design, scenario
+        Population model, design and the change to detect.
+    df : float or None
+        Degrees of freedom of the test.  By default ``n_years - 2`` (the regression of yearly
+        indices, a t test) when the model carries year-to-year variation, else infinite (normal,
+        Gerrodette's form).
+
+    Notes
+    -----
+    The programme's yearly index is treated as one survey a year with link-scale variance
+    ``sd^2`` from :func:`index_variance` (year effect, site-by-year effect and the stations'
+    noise).  Without year variation ``power = Phi(|ln(1 + r)| sqrt(N (N^2 - 1) / 12) / sd - z_alpha)``
+    for N survey years (Gerrodette 1987).  With it the test is the t test of the regression of the
+    yearly indices on year: ``T ~ t'(N - 2, ncp = ln(1 + r) sqrt(S_xx) / sd)`` (noncentral t;
+    scipy.stats.nct), exact for a balanced design when the station noise is normal on the link
+    scale.  ``ceiling`` is the same power with unlimited stations (:func:`index_variance`).
 
     References
     ----------
     Gerrodette, T. (1987). A power analysis for detecting trends. Ecology 68:1364-1372.
+    Urquhart, N. S., Paulsen, S. G. & Larsen, D. P. (1998). Ecological Applications 8:246-257.
     """
-    sd_year, sd_visit, visits = yearly_index_sd(components, design, scenario.annual_change)
     n = design.n_years
     if n < 3:
         raise DesignError("a regression trend test needs at least three survey years")
-    # Gerrodette's exponential case with ln(1 + CV^2) = sd_year^2, written on the log scale directly
-    delta = scenario.slope * math.sqrt(n * (n - 1) * (n + 1) / 12) / sd_year
-    power = float(stats.norm.cdf(_signed(delta, scenario.side) - _z_alpha(scenario.alpha, scenario.side)))
-    cv = math.sqrt(math.expm1(sd_year**2)) if sd_year < 25 else math.inf
-    return Approximation(power=power, cv_year=cv, visits_per_year=visits, sd_per_visit=sd_visit)
+    sd_stations, sd_visit, visits = yearly_index_sd(components, design, scenario.annual_change)
+    yearly = has_year_variation(components)
+    if df is None:
+        df = float(n - 2) if yearly else math.inf
+    sd = math.sqrt(index_variance(components, design, scenario.annual_change))
+    power = _power_from_sd(scenario.slope, sd, n, df, scenario.alpha, scenario.side)
+    sd_limit = math.sqrt(index_variance(components, design, scenario.annual_change, unlimited_stations=True))
+    ceiling = _power_from_sd(scenario.slope, sd_limit, n, df, scenario.alpha, scenario.side)
+    cv = math.sqrt(math.expm1(sd**2)) if sd < 25 else math.inf
+    label = ("approximation (Urquhart et al. 1998 variance, noncentral t on n_years - 2 df)" if not math.isinf(df)
+             else "approximation (Gerrodette 1987, exponential change, regression on the log scale)")
+    return Approximation(power=power, cv_year=cv, visits_per_year=visits, sd_per_visit=sd_visit, sd_index=sd,
+                         df=df, ceiling=ceiling, label=label)
+
+
+def years_needed(components: VarianceComponents, design: Design, scenario: Scenario, *, target: float = 0.8,
+                 max_years: int = 100) -> int | None:
+    """Smallest number of consecutive survey years whose approximate power reaches ``target`` (APPROXIMATION).
+
+    The design's stations are kept; None when even ``max_years`` do not reach it.
+    """
+    for n in range(3, max_years + 1):
+        if approximate_power(components, design.with_(n_years=n), scenario).power >= target:
+            return n
+    return None
 
 
 def approximate_detectable_change(components: VarianceComponents, design: Design, *, alpha: float = 0.05,

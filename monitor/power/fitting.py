@@ -4,11 +4,19 @@ Two fitters:
 
 ``"trend"``    the trend engine's fast path, ``monitor.trend.TrendModel(...).fit(profile=False,
                indices=False)``: the same model family and random effects a programme's own
-               analysis would use.  Wald z test of the slope.
+               analysis would use, the year effect included where the engine puts it by default
+               (and a site-by-year effect where the population model has one).  Wald test of the
+               slope against t on the engine's between-year df (``slope_df``; normal without a
+               year effect).
+``"trend-no-year"`` the same without a year effect (a reference where the truth has none).
 ``"ols-log"``  ordinary least squares of the log (counts) or logit (cover) value on year, no random
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
                noncentral-t check, and only valid for data with no station, site or
                overdispersion effects.
+``"yearly-means"`` least squares of the yearly means of the log (counts) or logit (cover) values on
+               year, t test with n_years - 2 degrees of freedom: the analysis whose power is exactly
+               noncentral t when stations are balanced and the noise is normal on that scale
+               (Urquhart, Paulsen & Larsen 1998), whatever the year-to-year variation.  A reference.
 """
 
 from __future__ import annotations
@@ -44,10 +52,12 @@ class FitOutcome:
 FAILED = FitOutcome(math.nan, math.nan, math.inf, math.nan, math.nan, None, False, True, False)
 
 
-def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:
+def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario, *,
+                     year_random: str | None = None) -> FitOutcome:
     """Fit with the trend engine's fast path (no profile intervals, no yearly indices)."""
     from monitor.trend import TrendModel  # imported here: monitor.power works without a fitted engine
 
+    sites = col.SITE in data.columns and data[col.SITE].nunique() >= 2
     model = TrendModel(
         data,
         measure=components.measure,
@@ -55,13 +65,17 @@ def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenari
         year_effect="linear",
         site_effect=col.SITE in data.columns,
         margin=scenario.margin,
+        # the year effect as the programme's own analysis fits it (the engine's default: on wherever
+        # the series is long enough), and a site-by-year effect where the population model has one
+        year_random=year_random,
+        site_by_year=bool(components.site_year_sd > 0 and sites and year_random != "none"),
     )
     result = model.fit(profile=False, indices=False)
     change = result.annual_change
     return FitOutcome(
         slope=float(result.slope),
         slope_se=float(result.slope_se),
-        df=math.inf,
+        df=float(getattr(result, "slope_df", math.inf)),
         lower=float(change.lower),
         upper=float(change.upper),
         call=str(result.call),
@@ -101,6 +115,45 @@ def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Sc
     return FitOutcome(b, se, float(df), lower, upper, _call(lower, upper, scenario.margin, n_stations, n_years))
 
 
+def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:
+    """Least-squares slope of the yearly mean log (or logit) value on year, t on n_years - 2 df.
+
+    Notes
+    -----
+    ``ybar_t = a + b t + d_t``, ``d_t ~ N(0, s_year^2 + s_e^2 / m)`` independent across years for a
+    balanced design; ``se(b) = s / sqrt(sum (t - tbar)^2)`` with ``s^2`` the residual mean square
+    of the yearly means on ``n_years - 2`` degrees of freedom.
+    """
+    y = _link_values(data, components)
+    if y is None:
+        return FAILED
+    means = pd.Series(y).groupby(data[col.YEAR].to_numpy()).mean()
+    x = means.index.to_numpy(float)
+    ybar = means.to_numpy(float)
+    n = ybar.size
+    if n < 3:
+        return FAILED
+    xc = x - x.mean()
+    sxx = float(xc @ xc)
+    b = float(xc @ (ybar - ybar.mean())) / sxx
+    resid = ybar - ybar.mean() - b * xc
+    df = n - 2
+    se = math.sqrt(float(resid @ resid) / df / sxx)
+    q = float(stats.t.isf(0.025, df))
+    lower, upper = math.expm1(b - q * se), math.expm1(b + q * se)
+    return FitOutcome(b, se, float(df), lower, upper,
+                      _call(lower, upper, scenario.margin, data[col.STATION].nunique(), n))
+
+
+def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
+    if components.measure == col.MEASURE_COVER:
+        p = data[col.COVER].to_numpy(float) / 100.0
+        y = np.log(p / (1 - p))
+    else:
+        y = np.log(data[col.COUNT].to_numpy(float))
+    return y if y.size and np.all(np.isfinite(y)) else None
+
+
 def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: int) -> str | None:
     try:
         from monitor.trend import classify_call
@@ -109,7 +162,13 @@ def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: i
     return str(classify_call(lower, upper, margin, n_stations, n_years)[0])
 
 
-FITTERS = {"trend": fit_trend_engine, "ols-log": fit_ols_log}
+def fit_trend_engine_without_year(data: pd.DataFrame, components: VarianceComponents,
+                                  scenario: Scenario) -> FitOutcome:
+    """The engine's fast path with no year effect (a reference for models without year variation)."""
+    return fit_trend_engine(data, components, scenario, year_random="none")
+
+
+FITTERS = {"trend": fit_trend_engine, "trend-no-year": fit_trend_engine_without_year, "ols-log": fit_ols_log, "yearly-means": fit_yearly_means}
 
 
 def fit_one(fitter: str, data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:

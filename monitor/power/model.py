@@ -153,14 +153,19 @@ class VarianceComponents:
         return cls(family=family, intercept=b0, **kwargs)
 
 
-def components_from_trend(result: object, *, trials: int | None = None,
+def components_from_trend(result: object, *, trials: int | None = None, data: pd.DataFrame | None = None,
                           quadrat_area: float | None = None) -> VarianceComponents:
     """Variance components and mean level taken from a fitted ``monitor.trend.TrendResult``.
 
     Uses ``result.family``, ``result.measure``, ``result.random_sd`` (keys ``station``, ``site``,
-    ``observation``), ``result.dispersion`` (NB2 size or logit-normal residual SD), and the
-    fitted level in the first year from ``result.fitted_trend`` when present, else from the
-    intercept and slope in ``result.params``.
+    ``observation``, and ``year`` and ``site_year`` where the model carried a year effect),
+    ``result.dispersion`` (NB2 size or logit-normal residual SD), and the fitted level in the first
+    year from ``result.fitted_trend`` when present, else from the intercept and slope in
+    ``result.params``.
+
+    For frequency and pin hits the number of cells or pins is ``trials`` when given, else the
+    programme's own grid or frame as its records show it (:func:`trials_from_data` of ``data``);
+    there is no default, since a 25-cell grid and a 100-cell grid give very different power.
     """
     family = result.family
     measure = result.measure
@@ -169,12 +174,19 @@ def components_from_trend(result: object, *, trials: int | None = None,
     intercept = _first_year_level(result)
     n_sites = getattr(result, "n_sites", 0) or 0
     n_stations = getattr(result, "n_stations", 0) or 0
+
+    def sd(key: str) -> float:
+        value = random_sd.get(key, 0.0)
+        return float(value) if value is not None and math.isfinite(float(value)) else 0.0
+
     kwargs: dict = dict(
         family=family,
         intercept=intercept,
-        station_sd=float(random_sd.get("station", 0.0) or 0.0),
-        site_sd=float(random_sd.get("site", 0.0) or 0.0),
-        observation_sd=float(random_sd.get("observation", 0.0) or 0.0),
+        station_sd=sd("station"),
+        site_sd=sd("site"),
+        observation_sd=sd("observation"),
+        year_sd=sd("year"),
+        site_year_sd=sd("site_year"),
         measure=measure,
         quadrat_area=quadrat_area,
         stations_per_site=(n_stations / n_sites) if n_sites else max(1.0, float(n_stations)),
@@ -184,10 +196,32 @@ def components_from_trend(result: object, *, trials: int | None = None,
     if family == "logit-normal":
         kwargs["residual_sd"] = float(dispersion)
     if family == "binomial":
+        if measure == col.MEASURE_PRESENCE:
+            trials = 1
+        elif trials is None and data is not None:
+            trials = trials_from_data(data, measure)
         if trials is None:
-            trials = {col.MEASURE_PRESENCE: 1, col.MEASURE_PIN_HITS: 10, col.MEASURE_FREQUENCY: 25}.get(measure, 1)
+            raise EstimationError(f"the number of cells or pins of the {measure} records is not known: "
+                                  "give it (trials)")
         kwargs["trials"] = int(trials)
     return VarianceComponents(**kwargs)
+
+
+def trials_from_data(data: pd.DataFrame, measure: str) -> int | None:
+    """The grid's cells (or the frame's pins) a programme records now: the commonest n in its last year.
+
+    None when the table carries no n column for the measure or no value in it.
+    """
+    column = {col.MEASURE_FREQUENCY: col.CELLS, col.MEASURE_PIN_HITS: col.PINS}.get(measure)
+    if column is None:
+        return 1 if measure == col.MEASURE_PRESENCE else None
+    if column not in data.columns or col.YEAR not in data.columns:
+        return None
+    known = data.dropna(subset=[column])
+    if known.empty:
+        return None
+    last = known[known[col.YEAR] == known[col.YEAR].max()]
+    return int(last[column].mode().iloc[0])
 
 
 def _first_year_level(result: object) -> float:
@@ -407,5 +441,6 @@ __all__ = [
     "Design",
     "components_from_trend",
     "scaled_components",
+    "trials_from_data",
     "mean_share_visited",
 ]

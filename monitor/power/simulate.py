@@ -33,8 +33,10 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
 
     Notes
     -----
-    ``eta_ijt = b0 + log(a) + beta*t + u_i + v_j + e_ijt`` with the family's response; see
-    ``monitor.power.model``.  Stations are listed site by site (station k in site
+    ``eta_ijt = b0 + log(a) + beta*t + u_i + v_j + w_t + g_jt + e_ijt`` with the family's response;
+    see ``monitor.power.model``.  The year effects ``w_t``, the station, site and site-by-year
+    effects, the missed visits and the observation noise each come from a stream of their own
+    spawned from ``rng``, so two designs simulated from the same seed share their year effects.  Stations are listed site by site (station k in site
     ``floor(k * n_sites / n_stations)``), and panels are dealt along that list so every site
     holds every panel.  Each due visit is missed independently with probability
     ``design.missed_share``.
@@ -43,23 +45,30 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
     n_st, n_yr = design.n_stations, design.n_years
     n_sites = design.sites_for(components)
     due = design.panels.visit_matrix(n_st, n_yr)
+    # one stream per kind of draw, so designs that share seeds share their draws as far as they
+    # overlap (common random numbers: the same good and bad years whatever the number of stations)
+    years_rng, stations_rng, sites_rng, missed_rng, noise_rng = rng.spawn(5)
 
-    station_effect = rng.normal(0.0, 1.0, n_st) * s["station_sd"]
-    site_effect = rng.normal(0.0, 1.0, n_sites) * s["site_sd"]
+    year_effect = years_rng.normal(0.0, 1.0, n_yr) * s["year_sd"]
+    station_effect = stations_rng.normal(0.0, 1.0, n_st) * s["station_sd"]
+    site_effect = sites_rng.normal(0.0, 1.0, n_sites) * s["site_sd"]
+    site_year_effect = sites_rng.normal(0.0, 1.0, (n_sites, n_yr)) * s["site_year_sd"]
     site_of = (np.arange(n_st) * n_sites) // n_st
 
     station_idx, year_idx = np.nonzero(due)
     if design.missed_share > 0:
-        keep = rng.random(station_idx.size) >= design.missed_share
+        keep = missed_rng.random(station_idx.size) >= design.missed_share
         station_idx, year_idx = station_idx[keep], year_idx[keep]
     n = station_idx.size
-    eta = (s["intercept"] + scenario.slope * year_idx
-           + station_effect[station_idx] + site_effect[site_of[station_idx]])
+    site_idx = site_of[station_idx]
+    eta = (s["intercept"] + scenario.slope * year_idx + year_effect[year_idx]
+           + station_effect[station_idx] + site_effect[site_idx] + site_year_effect[site_idx, year_idx])
+    rng = noise_rng  # the observation-level noise and the response draws below
 
     family = components.family
     frame: dict[str, object] = {col.STATION: np.array([f"Q{i:04d}" for i in range(n_st)], dtype=object)[station_idx]}
     if s["site_sd"] > 0 or n_sites > 1:
-        frame[col.SITE] = np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_of[station_idx]]
+        frame[col.SITE] = np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_idx]
     frame[col.YEAR] = design.first_year + year_idx
     if family in ("poisson", "poisson-lognormal"):
         if family == "poisson-lognormal":

@@ -11,9 +11,12 @@ and the test of no trend is made at level alpha on the stated side:
 with ``T = slope / se(slope)`` and q the normal (or t) quantile.  Power is the share of fits that
 reject, with Monte-Carlo standard error ``sqrt(p (1 - p) / R)``.
 
-Reproducibility: the caller's ``rng`` gives one root entropy; replicate i of design k draws from
-``SeedSequence(entropy, spawn_key=(k,)).spawn(R)[i]``, so the answer does not depend on how many
-processes run the replicates or in which order they finish.
+Reproducibility and common random numbers: the caller's ``rng`` gives one root entropy; replicate
+i of every design draws from ``SeedSequence(entropy, spawn_key=(0,)).spawn(R)[i]``, so the answer
+does not depend on how many processes run the replicates or in which order they finish, and the
+designs compared share their random draws as far as they overlap (the same good and bad years, the
+same first stations: see ``monitor.power.simulate``).  Differences between designs are then not
+masked by independent Monte-Carlo noise in each.
 
 References
 ----------
@@ -43,7 +46,7 @@ from monitor.power.approximation import (
 from monitor.power.fitting import FITTERS, fit_one
 from monitor.power.model import Design, Scenario, VarianceComponents
 from monitor.power.simulate import simulate_dataset
-from monitor.settings import DEFAULT_CHANGE_MARGIN
+from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_YEAR_EFFECT_YEARS
 
 Progress = Callable[[int, int], None] | None
 
@@ -92,6 +95,7 @@ class PowerResult:
             "median_interval_width": _num(self.median_interval_width),
             "share_right_call": _num(self.share_right_call),
             "approximate_power": None if self.approximation is None else self.approximation.power,
+            "power_ceiling": None if self.approximation is None else self.approximation.ceiling,
             "approximation": None if self.approximation is None else self.approximation.label,
             "seed_entropy": self.seed_entropy,
             "diagnostics": [{"code": g.code, "message": g.message, "severity": g.severity} for g in self.diagnostics],
@@ -112,6 +116,7 @@ def results_frame(results: Sequence[PowerResult]) -> pd.DataFrame:
             "quadrat_area_m2": d.quadrat_area, "missed_share": d.missed_share,
             "annual_change": r.scenario.annual_change, "power": r.power, "power_se": r.power_se,
             "approximate_power": None if r.approximation is None else r.approximation.power,
+            "power_ceiling": None if r.approximation is None else r.approximation.ceiling,
             "median_interval_width": r.median_interval_width, "share_right_call": r.share_right_call,
             "n_fitted": r.n_fitted, "n_failed": r.n_failed,
         })
@@ -125,7 +130,10 @@ def _run_chunk(components: VarianceComponents, design: Design, scenario: Scenari
     """Simulate and fit a run of replicates; top level so worker processes can import it."""
     out = []
     for seed in seeds:
-        data = simulate_dataset(components, design, scenario, np.random.default_rng(seed))
+        # a fresh copy of the seed: spawning streams from a generator advances its seed sequence, and
+        # the same seeds serve every design (common random numbers)
+        fresh = np.random.SeedSequence(seed.entropy, spawn_key=seed.spawn_key, pool_size=seed.pool_size)
+        data = simulate_dataset(components, design, scenario, np.random.default_rng(fresh))
         outcome = fit_one(fitter, data, components, scenario)
         out.append(tuple(getattr(outcome, name) for name in _OUTCOME_FIELDS))
     return out
@@ -146,10 +154,10 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
     (any ``concurrent.futures.Executor``, e.g. a Dask client's; ``n_workers`` then sets the chunking)."""
     if fitter not in FITTERS:
         raise DesignError(f"fitter {fitter!r}: expected one of {', '.join(FITTERS)}")
-    if fitter == "trend" and components.family == "lognormal":
+    if fitter.startswith("trend") and components.family == "lognormal":
         raise DesignError("the trend engine has no lognormal family; use fitter 'ols-log' for it")
-    if fitter == "ols-log" and components.family not in ("lognormal", "logit-normal"):
-        raise DesignError("fitter 'ols-log' regresses log or logit values: use it with the lognormal or "
+    if fitter in ("ols-log", "yearly-means") and components.family not in ("lognormal", "logit-normal"):
+        raise DesignError(f"fitter '{fitter}' regresses log or logit values: use it with the lognormal or "
                           "logit-normal family only")
     if n_replicates < 1:
         raise DesignError("at least one replicate is needed")
@@ -157,7 +165,9 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
     if workers < 1:
         raise DesignError("n_workers must be at least 1")
     total = progress_total if progress_total is not None else len(jobs) * n_replicates
-    seeds = {job.key: np.random.SeedSequence(entropy, spawn_key=(job.key,)).spawn(n_replicates) for job in jobs}
+    # every job shares one list of replicate seeds: common random numbers across designs
+    shared = np.random.SeedSequence(entropy, spawn_key=(0,)).spawn(n_replicates)
+    seeds = {job.key: shared for job in jobs}
     results: list[list[tuple | None]] = [[None] * n_replicates for _ in jobs]
     done = progress_offset
     if progress is not None:
@@ -233,7 +243,7 @@ def _summarise(components: VarianceComponents, job: _Job, fitter: str, rows: lis
     approx = None
     if approximation:
         try:
-            approx = approximate_power(components, job.design, scenario)
+            approx = approximate_power(components, job.design, scenario, df=analysis_df(fitter, job.design, components))
         except DesignError:
             approx = None
     return PowerResult(
@@ -242,6 +252,20 @@ def _summarise(components: VarianceComponents, job: _Job, fitter: str, rows: lis
         power=power, power_se=power_se, median_interval_width=width, share_right_call=share_right,
         approximation=approx, seed_entropy=entropy, replicates=table, diagnostics=tuple(diagnostics),
     )
+
+
+def analysis_df(fitter: str, design: Design, components: VarianceComponents) -> float | None:
+    """Degrees of freedom of the test the fitter makes, for the approximation beside it.
+
+    The engine puts a year effect in the model wherever the series is long enough
+    (``MIN_YEAR_EFFECT_YEARS``) and then judges the slope on t with n_years - 2 df; the yearly-means
+    reference always does; the others use a normal reference.  None: the approximation's own rule.
+    """
+    if fitter == "yearly-means" or (fitter == "trend" and design.n_years >= MIN_YEAR_EFFECT_YEARS):
+        return float(design.n_years - 2)
+    if fitter in ("trend", "trend-no-year", "ols-log"):
+        return math.inf
+    return None
 
 
 def reject_null(slope: np.ndarray, slope_se: np.ndarray, df: np.ndarray, alpha: float, side: str) -> np.ndarray:
@@ -311,10 +335,11 @@ def compare_designs(components: VarianceComponents, designs: Sequence[Design], s
                     approximation: bool = True, executor: Executor | None = None) -> list[PowerResult]:
     """Simulated power of several designs side by side (see :func:`simulate_power`).
 
-    Design k's replicates are seeded from ``SeedSequence(entropy, spawn_key=(k,))``.  Use
-    :func:`results_frame` for a table and :func:`monitor.power.plot_power` for the figure.
-    ``executor`` (any ``concurrent.futures.Executor``, such as a Dask client's) runs the replicates
-    instead of a local pool of ``n_workers``; the answer is the same.
+    Every design's replicates are seeded from ``SeedSequence(entropy, spawn_key=(0,))`` (common
+    random numbers, see the module docstring).  Use :func:`results_frame` for a table and
+    :func:`monitor.power.plot_power` for the figure.  ``executor`` (any ``concurrent.futures.Executor``,
+    such as a Dask client's) runs the replicates instead of a local pool of ``n_workers``; the answer is
+    the same.
     """
     designs = list(designs)
     if not designs:
@@ -361,8 +386,9 @@ def smallest_design(components: VarianceComponents, scenario: Scenario, design: 
 
     The approximation's answer on the grid is simulated first; then a bisection over the grid,
     assuming power grows with the varied quantity, narrows to the smallest value whose
-    simulated power is at least ``target``.  Grid value at index j is seeded with spawn key
-    (j,), so the answer does not depend on the order of evaluation or the number of processes.
+    simulated power is at least ``target``.  Every grid value shares the same replicate seeds
+    (common random numbers), so the answer does not depend on the order of evaluation or the
+    number of processes, and neighbouring grid values differ by the design, not by the draws.
     Simulated powers carry Monte-Carlo error; values near the target are worth re-running with
     more replicates.
     """

@@ -11,13 +11,15 @@ stored by this process in one transaction.  Workers never touch the database.
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import datetime as dt
 import hashlib
 import inspect
 import json
 import math
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -68,6 +70,60 @@ class StoredOutcome:
     fitted_by: str
     reused: bool
     stored: bool
+    key: tuple | None = None   # (species, measure, area_kind, area, spec_hash, engine_version, data_fingerprint)
+
+
+class _Saved:
+    """Fits written when a ``saving_after`` block ends: their ids by identity."""
+
+    def __init__(self) -> None:
+        self.pending: list[tuple[str, int, list[dict]]] = []   # (database URL, programme id, rows)
+        self.ids: dict[tuple, int] = {}
+
+    def fit_id(self, trend: object) -> int | None:
+        """The stored id of a fitted trend (``SpeciesTrend``), once written; None if it was not stored."""
+        known = getattr(trend, "fit_id", None)
+        if known is not None:
+            return known
+        key = getattr(trend, "fit_key", None)
+        return self.ids.get(key) if key is not None else None
+
+
+_SAVES: contextvars.ContextVar[_Saved | None] = contextvars.ContextVar("monitor_fit_saves", default=None)
+
+
+@contextlib.contextmanager
+def saving_after() -> Iterator[_Saved]:
+    """Fits made inside the block while a read snapshot is open are written when the block ends.
+
+    A snapshot holds a read transaction; on SQLite a write from the same process would wait for it to end,
+    so the new fits are kept until then and written in one transaction each per database.  Nested blocks
+    write with the outermost.  A block that fails writes nothing.
+    """
+    outer = _SAVES.get()
+    if outer is not None:
+        yield outer
+        return
+    saved = _Saved()
+    token = _SAVES.set(saved)
+    try:
+        yield saved
+    finally:
+        _SAVES.reset(token)
+    for url, programme_id, rows in saved.pending:
+        store = Store.open(url)
+        try:
+            ids = fit_store.save_fits(store, programme_id, rows)
+        except (AccessError, MonitorError):
+            continue  # a reader's role, or a read-only file: the results stand, unstored
+        finally:
+            store.dispose()
+        saved.ids.update({_identity(row): i for row, i in zip(rows, ids, strict=True)})
+
+
+def _identity(row: dict) -> tuple:
+    return (row["species"], row["measure"], row["area_kind"], row["area"], row["spec_hash"], row["engine_version"],
+            row["data_fingerprint"])
 
 
 def run_fit(task: FitTask) -> FitOutcome:
@@ -163,24 +219,34 @@ def fit_tasks(store: Store, programme_id: int, tasks: list[FitTask], runner: Run
     fresh = [(i, o) for i, o in zip(todo, outcomes, strict=True) if o.result is not None]
     ids: dict[int, int] = {}
     stored = False
-    if save and fresh:
-        rows = [_row(tasks[i], o, spec_texts[i], digests[i], engine, prints[i], who, when) for i, o in fresh]
-        try:
-            ids = dict(zip([i for i, _ in fresh], fit_store.save_fits(store, programme_id, rows), strict=True))
-            stored = True
-        except (AccessError, MonitorError):
-            # a reader's role, or a read-only file: the results stand, unstored (and say so)
-            stored = False
+    rows = [_row(tasks[i], o, spec_texts[i], digests[i], engine, prints[i], who, when) for i, o in fresh]
+    keys = {i: _identity(r) for (i, _), r in zip(fresh, rows, strict=True)}
+    if save and rows:
+        saves = _SAVES.get()
+        if store.connection is not None:
+            # inside a read snapshot: written when it ends (by the enclosing ``saving_after``), never through it
+            if saves is not None:
+                saves.pending.append((store.engine.url.render_as_string(hide_password=False), programme_id, rows))
+                stored = True
+        else:
+            try:
+                ids = dict(zip([i for i, _ in fresh], fit_store.save_fits(store, programme_id, rows), strict=True))
+                stored = True
+            except (AccessError, MonitorError):
+                # a reader's role, or a read-only file: the results stand, unstored (and say so)
+                stored = False
     by_index = dict(zip(todo, outcomes, strict=True))
     out = []
     for i, task in enumerate(tasks):
         if i in found:
             result, fit_id, fitted_at, fitted_by = found[i]
-            out.append(StoredOutcome(task, result, None, fit_id, fitted_at, fitted_by, reused=True, stored=True))
+            out.append(StoredOutcome(task, result, None, fit_id, fitted_at, fitted_by, reused=True, stored=True,
+                                     key=(task.species, task.measure, task.area_kind, task.area, digests[i], engine,
+                                          prints[i])))
         else:
             o = by_index[i]
             out.append(StoredOutcome(task, o.result, o.error, ids.get(i), when if o.result is not None else None,
-                                     who, reused=False, stored=stored and o.result is not None))
+                                     who, reused=False, stored=stored and o.result is not None, key=keys.get(i)))
     return out
 
 

@@ -15,9 +15,11 @@ import pandas as pd
 
 from monitor import __version__
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
+from monitor.report.render import report_files_in
+from monitor.services.exports import generalise_m_of, generalised_positions
 from monitor.report.fits import FittedEntry, fit_rows, fits_note
 from monitor.services import analyses, estimate, trend
 from monitor.services.records import current_user
@@ -173,14 +175,28 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
                  progress=None) -> Path:
     """Write the report folder for ``year``; returns its path.
 
-    Trends come from the stored fits where the data, model and engine still match, and are fitted (by
-    ``workers`` local processes or on the Dask scheduler ``cluster``) and stored otherwise; ``by`` adds
-    trends by site, stratum or region.  Last year's calls are read from the database (the last report
-    recorded for ``year - 1``); ``previous`` names a report.json to compare with instead, and a report
-    folder of last year beside ``out_dir`` is read only when the database holds no report for that year.
-    The report and the fits it showed are recorded, so ``monitor trend history`` can tell what was said.
+    Everything the report reads comes from one snapshot of the database.  Trends come from the stored
+    fits where the data, model and engine still match, and are fitted (by ``workers`` local processes or
+    on the Dask scheduler ``cluster``) otherwise; ``by`` adds trends by site, stratum or region.  Last
+    year's calls are read from the database (the last report recorded for ``year - 1``); ``previous``
+    names a report.json to compare with instead, and a report folder of last year beside ``out_dir`` is
+    read only when the database holds no report for that year.  After the snapshot, the new fits are
+    stored and the report is recorded with the fits it showed (``monitor trend history``).
     """
+    with analyses.saving_after() as saved:
+        folder, shown = _write_report(db, year, out_dir, programme_code=programme_code, previous=previous,
+                                      power=power, by=by, workers=workers, cluster=cluster, refit=refit,
+                                      progress=progress)
+    _record(db, programme_code, year, [saved.fit_id(t) for t in shown], folder)
+    return folder
+
+
+@one_snapshot
+def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_code: str | None,
+                  previous: Path | None, power: pd.DataFrame | None, by: str | None, workers: int | None,
+                  cluster: str | None, refit: bool, progress) -> tuple[Path, list]:
     out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
+    report_files_in(out_dir)  # refuse a folder we did not write now, not after the fits
     previous_doc = _read_previous(previous)
     if previous_doc is None:
         previous_doc = _previous_from_database(db, year, programme_code)
@@ -240,7 +256,11 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             events=_events(store, programme.id),
             previous=previous_doc,
             power=power,
-            stations=stations[stations["state"] == "in_service"][[C.STATION, C.X, C.Y, C.SITE, "placement"]],
+            # positions as every export gives them: sensitive species' stations generalised
+            stations=generalised_positions(store, programme.id,
+                                           stations[stations["state"] == "in_service"][[C.STATION, C.X, C.Y, C.SITE,
+                                                                                          "placement"]],
+                                           generalise_m_of(programme)),
             sites=_sites_geometry(store, programme.id),
             station_changes={(t.species, t.measure): station_changes(t.data, t.measure)
                              for t in trends if t.data is not None},
@@ -259,21 +279,19 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
     finally:
         store.dispose()
     try:
-        folder = render_report(context, out_dir, progress=progress)
+        return render_report(context, out_dir, progress=progress), everything
     except OSError as exc:
         if exc.filename is None and exc.errno is not None:  # a failed write names no file (a full disk)
             raise OSError(exc.errno, exc.strerror, str(out_dir)) from exc
         raise
-    _record(db, programme_code, year, everything, folder)
-    return folder
 
 
-def _record(db: str | None, programme_code: str | None, year: int, trends, folder: Path) -> None:
+def _record(db: str | None, programme_code: str | None, year: int, fit_ids: list[int | None], folder: Path) -> None:
     """Record the report and the fits it showed (fits not stored, for a role that may not write, are not)."""
-    ids = [t.fit_id for t in trends if t.fit_id is not None]
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
-        analyses.record_report(store, programme.id, year, ids, folder=str(folder), who=current_user())
+        analyses.record_report(store, programme.id, year, [i for i in fit_ids if i is not None],
+                               folder=str(folder), who=current_user())
     finally:
         store.dispose()

@@ -50,6 +50,7 @@ from monitor.schedule.season import (
 )
 from monitor.services import relocation
 from monitor.services.design import StoredPanels, as_date, default_first_year, fresh_seed
+from monitor.settings import FIELD_PACKS_OUTSIDE
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
 #: reserve [m] (common practice: parking at the reserve's edge)
@@ -612,6 +613,10 @@ def stored_plan(store: Store, programme: M.Programme, year: int) -> S.SeasonPlan
                         params={"crews": {"path_factor": float(plan["path_factor"])}, "routing": plan["routing"]})
 
 
+#: the offline phone field sheet in each team-day's pack
+PHONE_SHEET = "phone_sheet.html"
+
+
 @dataclass
 class PackResult:
     folder: Path
@@ -632,15 +637,20 @@ def _protocol_on(session_rows: pd.DataFrame, day: dt.date) -> str:
 
 def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | None = None,
                       day: dt.date | None = None, programme_code: str | None = None,
-                      now: dt.datetime | None = None) -> PackResult:
+                      now: dt.datetime | None = None, generalise_sensitive: bool | None = None) -> PackResult:
     """Write a field pack per planned team-day (optionally one team and/or one day) into ``folder``.
 
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
     relocation notes, quadrat size, the last two visits' values, empty boxes and the safety
     caution), ``entry_sheet.csv`` (the blank wide-layout table to key into) and ``entry_sheet.xlsx`` (the
-    same with drop-down lists for status and observers), ``route.gpx``
-    (GPX 1.1 waypoints and route).  In ``folder``: ``season_<year>.ics`` with one event per
+    same with drop-down lists for status and observers), ``route.gpx`` (GPX 1.1 waypoints and route),
+    ``phone_sheet.html`` (the offline sheet for a phone: checks as typed, keeps the work in the browser,
+    exports the entry CSV).  In ``folder``: ``season_<year>.ics`` with one event per
     team-day written.
+
+    ``generalise_sensitive`` (default: the programme setting ``field_packs_for_outside_crews``) moves the
+    stations where a sensitive species has been recorded to the centre of their grid cell on every sheet,
+    route and waypoint, as exports do: for packs handed to people outside the programme.
     """
     now = now or dt.datetime.now(dt.UTC)
     store = Store.open(db)
@@ -660,6 +670,12 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
                                                        p=programme.id)["code"]]
         lineage_notes = relocation.lineage_notes(store, programme.id)
+        if generalise_sensitive is None:
+            generalise_sensitive = _settings(programme).get(FIELD_PACKS_OUTSIDE) is True
+        if generalise_sensitive:  # packs for crews outside the programme: positions as every export gives them
+            from monitor.services.exports import generalise_m_of, generalised_positions
+
+            stations = generalised_positions(store, programme.id, stations, generalise_m_of(programme))
     finally:
         store.dispose()
     species = species[species[C.MEASURE].notna()]
@@ -691,6 +707,7 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         entry_workbook(out / "entry_sheet.xlsx", entry.drop(columns=value_columns), statuses=C.VISIT_STATUSES,
                        observers=observer_codes, value_columns=value_columns,
                        title=f"{programme.name}: {td.site}, team {td.team}, {td.date.isoformat()}")
+        (out / PHONE_SHEET).write_text(fieldpack.render_phone_sheet(context, targets, covariates), encoding="utf-8")
         (out / "route.gpx").write_text(fieldpack.team_day_gpx(plan, td.team, td.date, stations,
                                                               crs=programme.crs_epsg), encoding="utf-8")
         written.append({"team": td.team, "date": td.date.isoformat(), "site": td.site, "stations": len(td.stations),

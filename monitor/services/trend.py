@@ -16,7 +16,7 @@ from pathlib import Path
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.db import fits as fit_store
 from monitor.errors import DataError, Diagnostic, InputError, InputProblem
 from monitor.services import analyses
@@ -42,6 +42,7 @@ class SpeciesTrend:
     fitted_at: dt.datetime | None = None
     reused: bool = False               # read back from the stored fits, not fitted by this run
     fit_id: int | None = None          # the stored fit (None when not stored)
+    fit_key: tuple | None = field(default=None, repr=False, compare=False)  # identity of the fit in the store
 
     def to_dict(self) -> dict:
         out = {"species": self.species, "common_name": self.common_name, "area_kind": self.area_kind,
@@ -139,8 +140,24 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
     Stored fits whose data, specification and engine still match are reused (``refit`` fits everything
     again); the rest are fitted by ``workers`` local processes (None: the cores) or on the Dask scheduler
     at ``cluster``, and stored by this process.  Results come in target order: each species' overall
-    trend, then its areas in code order.
+    trend, then its areas in code order.  Everything is read from one snapshot of the database; the new
+    fits are stored when it ends.
     """
+    with analyses.saving_after() as saved:
+        trends = _fit_programme(db, programme_code=programme_code, species=species, sites=sites,
+                                first_year=first_year, last_year=last_year, family=family,
+                                observer_effect=observer_effect, keep_data=keep_data, by=by, workers=workers,
+                                cluster=cluster, refit=refit, save=save, progress=progress)
+    return [t if t.fit_id is not None else replace(t, fit_id=saved.fit_id(t)) for t in trends]
+
+
+@one_snapshot
+def _fit_programme(db: str | None, *, programme_code: str | None, species: list[str] | None,
+                   sites: list[str] | None, first_year: int | None, last_year: int | None, family: str | None,
+                   observer_effect: bool, keep_data: bool, by: str | None, workers: int | None,
+                   cluster: str | None, refit: bool, save: bool,
+                   progress: Callable[[int, int, str], None] | None) -> list[SpeciesTrend]:
+    """The reading and fitting of ``fit_programme``, in one snapshot (the new fits are stored after it)."""
     if by is not None and by not in AREA_KINDS:
         raise InputError(InputProblem("--by", None, None, by, f"one of {', '.join(AREA_KINDS)}"))
     store = Store.open(db)
@@ -199,7 +216,7 @@ def _species_trends(outcomes, notes, names, keep_data: bool) -> list[SpeciesTren
         out.append(SpeciesTrend(t.species, names.get(t.species, ""), t.measure, o.result,
                                 tuple(notes[key]) if t.area_kind == AREA_ALL else (),
                                 t.data if keep_data else None, area_kind=t.area_kind, area=t.area,
-                                fitted_at=o.fitted_at, reused=o.reused, fit_id=o.fit_id))
+                                fitted_at=o.fitted_at, reused=o.reused, fit_id=o.fit_id, fit_key=o.key))
     # area notes found after the overall entry was made: rebuild it with every note
     return [replace(s, notes=tuple(notes[(s.species, s.measure)])) if s.area_kind == AREA_ALL else s for s in out]
 

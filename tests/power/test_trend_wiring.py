@@ -22,7 +22,9 @@ from monitor.power import (
     components_from_trend,
     simulate_dataset,
     simulate_power,
+    trials_from_data,
 )
+from monitor.errors import EstimationError
 from monitor.trend import TrendModel
 
 TRUTH = VarianceComponents(family="poisson-lognormal", intercept=1.2, station_sd=0.7, site_sd=0.0,
@@ -74,8 +76,9 @@ def test_engine_power_matches_exact_t_power_of_within_station_regression():
     nc = scenario.slope * math.sqrt(stations * years * (years**2 - 1) / 12) / sd
     tc = stats.t.isf(0.025, df)
     exact = stats.nct.sf(tc, df, nc) + stats.nct.cdf(-tc, df, nc)
+    # the truth has no year variation, so the reference is the engine without a year effect
     result = simulate_power(components, Design(stations, years), scenario, rng=np.random.default_rng(77),
-                            n_replicates=1000, n_workers=2)
+                            n_replicates=1000, n_workers=2, fitter="trend-no-year")
     assert result.n_failed == 0
     # Wald z against exact t on 59 df adds at most ~0.01 to the power here; allow it beside 3.5 MC SE
     assert abs(result.power - exact) < 3.5 * result.power_se + 0.01
@@ -109,8 +112,25 @@ def test_components_from_trend_for_each_family(truth, check):
     # Warton & Hui 2011) would shrink the logits; a negligible constant keeps the model unadjusted
     extra = {"cover_adjust": 1e-9} if truth.family == "logit-normal" else {}
     result = TrendModel(data, measure=truth.measure, family=truth.family, **extra).fit(profile=False, indices=False)
-    got = components_from_trend(result)
+    got = components_from_trend(result, data=data)
     assert got.family == truth.family and got.measure == truth.measure
     assert got.station_sd == pytest.approx(truth.station_sd, rel=0.2)
     assert got.intercept == pytest.approx(truth.intercept, abs=0.2)
     assert check(got)
+
+
+def test_cells_or_pins_come_from_the_programmes_own_grid_never_a_fixed_table():
+    # a 40-cell grid (not the 25 a fixed table assumed), and a frame re-strung from 10 to 20 pins:
+    # the last year's n is the programme's grid now
+    truth = VarianceComponents(family="binomial", intercept=-0.5, station_sd=0.5, trials=40, stations_per_site=1000)
+    data = simulate_dataset(truth, Design(60, 5), Scenario(0.0), np.random.default_rng(8))
+    result = TrendModel(data, measure=truth.measure, family="binomial").fit(profile=False, indices=False)
+    assert components_from_trend(result, data=data).trials == 40
+    assert components_from_trend(result, trials=12).trials == 12
+    with pytest.raises(EstimationError, match="cells or pins"):
+        components_from_trend(result)
+    pins = data.rename(columns={"occupied": "hits", "cells": "pins"})
+    pins.loc[pins["year"] < pins["year"].max(), "pins"] = 10
+    assert trials_from_data(pins, "pin_hits") == 40
+    assert trials_from_data(pins.drop(columns="pins"), "pin_hits") is None
+    assert trials_from_data(pins, "presence") == 1
