@@ -17,23 +17,40 @@ def _pct(x: float | None) -> str:
     return "" if x is None or x != x else f"{100 * x:+.1f}"
 
 
-def trend_rows(trends) -> list[dict]:
+def _sig(x: float | None) -> str:
+    return "" if x is None else f"{x:.3g}"
+
+
+def trend_rows(trends, skipped=()) -> list[dict]:
+    """One row per species: the annual change labelled with what it changes (count, odds, odds of cover),
+    the fitted trend on the measure's own scale (first -> last year, difference with interval), the
+    interval's reference and the call."""
     rows = []
+    by_area = any(x.area_kind != "all" for x in trends)
     for t in trends:
         r = t.result
         ac = r.annual_change
-        row = {"species": t.species, "measure": t.measure}
-        if any(x.area_kind != "all" for x in trends):
-            row["area"] = "all" if t.area_kind == "all" else f"{t.area_kind} {t.area}"
-        row.update({
-            "family": r.family, "stations": r.n_stations,
-            "years": f"{r.years[0]}-{r.years[1]}",
+        lc = r.level_change
+        own = diff = ""
+        if lc is not None:
+            own = f"{_sig(lc.first.estimate)} -> {_sig(lc.last.estimate)} {lc.unit}"
+            d = lc.difference
+            diff = f"{d.estimate:+.3g} ({d.lower:+.3g} to {d.upper:+.3g})"
+        area = {"area": "all" if t.area_kind == "all" else f"{t.area_kind} {t.area}"} if by_area else {}
+        rows.append({
+            "species": t.species, "measure": t.measure, **area, "model": r.model_label, "stations": r.n_stations,
+            "years": f"{r.years[0]}-{r.years[1]}", "year effect": r.year_random,
+            "change of": r.change_scale,
             "annual change %": f"{_pct(ac.estimate)} ({_pct(ac.lower)} to {_pct(ac.upper)})",
             "over period %": f"{_pct(r.period_change.estimate)}",
-            "call": r.call,
-            "fitted": _fitted(t),
+            "fitted, first -> last": own, "difference (95% CI)": diff,
+            "interval": r.interval_label, "call": r.call, "fitted": _fitted(t),
         })
-        rows.append(row)
+    for s in skipped:
+        rows.append({"species": s["species"], "measure": s["measure"], "model": "", "stations": "", "years": "",
+                     "year effect": "", "change of": "", "annual change %": "", "over period %": "",
+                     "fitted, first -> last": "", "difference (95% CI)": "", "interval": "",
+                     "call": f"not fitted: {s['reason']}", "fitted": ""})
     return rows
 
 
@@ -61,7 +78,19 @@ def parallel_options(func):
 @click.option("--family", type=click.Choice(["poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal"]),
               default=None, help="Model family (default by measure: counts poisson-lognormal, k of n binomial, "
                                  "cover logit-normal).")
-@click.option("--observer-effect", is_flag=True, help="Add a random intercept for observer (crossed with station).")
+@click.option("--year-effect", "year_effect", type=click.Choice(["iid", "ar1"]), default=None,
+              help="Form of the random year effect shared by all stations: independent years (iid) or an "
+                   "order-1 autoregression, consecutive years alike (ar1). Default: iid from 5 years with data.")
+@click.option("--no-year-effect", "no_year_effect", is_flag=True,
+              help="Leave out the random year effect (intervals then ignore good and bad years shared by the "
+                   "stations, and are too narrow when there are such years).")
+@click.option("--site-year", "site_year", is_flag=True,
+              help="Add a random site-by-year effect (sites fluctuating apart from each other).")
+@click.option("--observation-effect/--no-observation-effect", "observation_effect", default=None,
+              help="k-of-n data: a visit-level effect for extra variation (default: added when the data are "
+                   "overdispersed).")
+@click.option("--observer-effect", is_flag=True, help="Add a random intercept for observer (crossed with station); "
+                                                      "visits with no observer form a level of their own.")
 @click.option("--by", "by", type=click.Choice(["site", "stratum", "region"]), default=None,
               help="Also a trend for each site, stratum or region (a site's region is set in sites.geojson).")
 @click.option("--refit", is_flag=True, help="Fit again even where a stored fit of the same data and model exists.")
@@ -74,8 +103,9 @@ def parallel_options(func):
 @format_option
 @xlsx_option
 @click.pass_context
-def trend_command(click_ctx: click.Context, species, sites, first_year, last_year, family, observer_effect, by,
-                  refit, workers, cluster, table, margin, as_json: bool, as_csv: bool, xlsx: Path | None) -> None:
+def trend_command(click_ctx: click.Context, species, sites, first_year, last_year, family, year_effect, no_year_effect,
+                  site_year, observation_effect, observer_effect, by, refit, workers, cluster, table, margin,
+                  as_json: bool, as_csv: bool, xlsx: Path | None) -> None:
     """Fit mixed models across years: annual change with 95% intervals and the call for each species.
 
     Fits are stored and reused while the data, the model and the engine are unchanged."""
@@ -84,10 +114,15 @@ def trend_command(click_ctx: click.Context, species, sites, first_year, last_yea
     from monitor.services import trend
 
     ctx: Context = click_ctx.obj
+    if no_year_effect and year_effect:
+        raise click.UsageError("--no-year-effect and --year-effect exclude each other")
+    choices = trend.ModelChoices(family=family, year_random="none" if no_year_effect else year_effect,
+                                 site_by_year=site_year, observer_effect=observer_effect,
+                                 observation_effect=observation_effect)
     fmt = chosen_format(as_json, as_csv)
+    skipped: list[dict] = []
     if table is not None:
-        trends = [trend.fit_table(table, family=family, margin=change_margin(margin),
-                                  observer_effect=observer_effect)]
+        trends = [trend.fit_table(table, margin=change_margin(margin), choices=choices)]
     else:
         with progress(1, "fitting") as bar:
             def tick(i: int, n: int, _name: str) -> None:
@@ -96,18 +131,20 @@ def trend_command(click_ctx: click.Context, species, sites, first_year, last_yea
 
             trends = trend.fit_programme(ctx.db, programme_code=ctx.programme, species=list(species) or None,
                                          sites=list(sites) or None, first_year=first_year, last_year=last_year,
-                                         family=family, observer_effect=observer_effect, by=by, refit=refit,
-                                         workers=workers, cluster=cluster, progress=tick)
+                                         choices=choices, skipped=skipped, by=by, refit=refit, workers=workers,
+                                         cluster=cluster, progress=tick)
         reused = sum(t.reused for t in trends)
         if reused:
             say(f"{reused} of {len(trends)} fits reused from the stored fits (unchanged data, model and engine)")
+    for s in skipped:
+        say(f"{s['species']} ({s['measure']}): not fitted: {s['reason']}")
     write_workbook(xlsx, {"trends": trend_number_rows(trends)})
     if fmt == "json":
-        emit([t.to_dict() for t in trends], fmt)
+        emit([t.to_dict() for t in trends] + [{**s, "call": None} for s in skipped], fmt)
     elif fmt == "csv":  # numbers in columns of their own, for spreadsheets
         emit(trend_number_rows(trends), fmt)
     else:
-        emit(trend_rows(trends), fmt)
+        emit(trend_rows(trends, skipped), fmt)
 
 
 @trend_command.command("history")

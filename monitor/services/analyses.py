@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
+import dataclasses
 import datetime as dt
 import hashlib
 import inspect
@@ -148,7 +149,19 @@ def specification(measure: str, options: dict) -> dict:
 
     bound = inspect.signature(fit_one).bind(None, measure, **options)
     bound.apply_defaults()
-    return {k: v for k, v in bound.arguments.items() if k != "data"}
+    return {k: _plain(v) for k, v in bound.arguments.items() if k != "data"}
+
+
+def _plain(value: object) -> object:
+    """An option as JSON-ready values: an options object (``ModelChoices``) as its class and every field."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {"__class__": type(value).__qualname__,
+                **{f.name: _plain(getattr(value, f.name)) for f in dataclasses.fields(value)}}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    return value
 
 
 def engine_version() -> str:

@@ -8,23 +8,25 @@ Missed and inaccessible visits are absent from the data, never zeros.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from monitor import columns as C
 from monitor.db import Store, one_snapshot, queries
 from monitor.db import fits as fit_store
-from monitor.errors import DataError, Diagnostic, InputError, InputProblem
+from monitor.errors import DataError, Diagnostic, EstimationError, InputError, InputProblem
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
 from monitor.services.executor import open_runner
 from monitor.services.records import current_user
-from monitor.settings import DEFAULT_CHANGE_MARGIN
-from monitor.trend import TrendModel, TrendResult, default_family
+from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
+from monitor.trend import TrendModel, TrendResult
 
 
 @dataclass(frozen=True)
@@ -88,18 +90,33 @@ def analysis_frame(long: pd.DataFrame, measure: str) -> tuple[pd.DataFrame, list
     return queries.to_measure_columns(frame, measure), notes
 
 
-def fit_options(data: pd.DataFrame, measure: str, *, family: str | None = None, margin: float,
-                observer_effect: bool = False) -> dict:
-    """The options of ``fit_one`` for this table, resolved (JSON-ready: they identify a stored fit)."""
-    return {"family": family or default_family(measure), "margin": float(margin),
-            "observer_effect": bool(observer_effect and C.OBSERVER in data and data[C.OBSERVER].notna().all())}
+@dataclass(frozen=True)
+class ModelChoices:
+    """How the trend models are built (the CLI's options): see ``monitor.trend.TrendModel``.
+
+    ``year_random`` None follows the engine's rule (a year effect from 5 years with data);
+    ``observation_effect`` None lets the overdispersion test decide for k-of-n data.
+    """
+
+    family: str | None = None
+    year_random: str | None = None
+    site_by_year: bool = False
+    observer_effect: bool = False
+    observation_effect: bool | None = None
 
 
-def fit_one(data: pd.DataFrame, measure: str, *, family: str | None = None, margin: float,
-            observer_effect: bool = False, profile: bool = True, indices: bool = True) -> TrendResult:
-    model = TrendModel(data, measure=measure, family=family or default_family(measure), margin=margin,
-                       observer_effect=observer_effect and C.OBSERVER in data and data[C.OBSERVER].notna().all())
-    return model.fit(profile=profile, indices=indices)
+def fit_one(data: pd.DataFrame, measure: str, *, margin: float, choices: ModelChoices = ModelChoices(),
+            profile: bool = True, indices: bool = True) -> TrendResult:
+    """The full maximum likelihood fit of one species and measure (never the fast path: people read it).
+
+    With ``choices.observer_effect`` visits without an observer form a level of their own
+    (the result says how many); they are never dropped.
+    """
+    model = TrendModel(data, measure=measure, family=choices.family, margin=margin,
+                       observer_effect=choices.observer_effect, year_random=choices.year_random,
+                       site_by_year=choices.site_by_year,
+                       observation_effect=choices.observation_effect if choices.family in (None, "binomial") else None)
+    return model.fit(profile=profile, indices=indices, fast=False)
 
 
 def _targets(store: Store, programme_id: int, species: list[str] | None) -> pd.DataFrame:
@@ -132,10 +149,16 @@ def _area_tasks(task: FitTask, by: str, areas: pd.Series) -> tuple[list[FitTask]
 def fit_programme(db: str | None, *, programme_code: str | None = None, species: list[str] | None = None,
                   sites: list[str] | None = None, first_year: int | None = None, last_year: int | None = None,
                   family: str | None = None, observer_effect: bool = False, keep_data: bool = False,
+                  choices: ModelChoices | None = None, skipped: list[dict] | None = None,
                   by: str | None = None, workers: int | None = 1, cluster: str | None = None,
                   refit: bool = False, save: bool = True,
                   progress: Callable[[int, int, str], None] | None = None) -> list[SpeciesTrend]:
     """Fit every target species and measure of the programme (or those named), and by area with ``by``.
+
+    ``skipped``: when a list is given, a species whose model cannot be fitted at all (an
+    EstimationError: e.g. every stored value the same) is appended to it as
+    {species, measure, reason} and the other species go on; otherwise the error is raised.  An area
+    that cannot be fitted is noted on the species' overall trend.
 
     Stored fits whose data, specification and engine still match are reused (``refit`` fits everything
     again); the rest are fitted by ``workers`` local processes (None: the cores) or on the Dask scheduler
@@ -144,17 +167,20 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
     fits are stored when it ends.
     """
     with analyses.saving_after() as saved:
+        if choices is None:
+            choices = ModelChoices(family=family, observer_effect=observer_effect)
         trends = _fit_programme(db, programme_code=programme_code, species=species, sites=sites,
-                                first_year=first_year, last_year=last_year, family=family,
-                                observer_effect=observer_effect, keep_data=keep_data, by=by, workers=workers,
-                                cluster=cluster, refit=refit, save=save, progress=progress)
+                                first_year=first_year, last_year=last_year, choices=choices, skipped=skipped,
+                                keep_data=keep_data, by=by, workers=workers, cluster=cluster, refit=refit,
+                                save=save, progress=progress)
     return [t if t.fit_id is not None else replace(t, fit_id=saved.fit_id(t)) for t in trends]
 
 
 @one_snapshot
 def _fit_programme(db: str | None, *, programme_code: str | None, species: list[str] | None,
-                   sites: list[str] | None, first_year: int | None, last_year: int | None, family: str | None,
-                   observer_effect: bool, keep_data: bool, by: str | None, workers: int | None,
+                   sites: list[str] | None, first_year: int | None, last_year: int | None,
+                   choices: ModelChoices, skipped: list[dict] | None, keep_data: bool, by: str | None,
+                   workers: int | None,
                    cluster: str | None, refit: bool, save: bool,
                    progress: Callable[[int, int, str], None] | None) -> list[SpeciesTrend]:
     """The reading and fitting of ``fit_programme``, in one snapshot (the new fits are stored after it)."""
@@ -180,8 +206,7 @@ def _fit_programme(db: str | None, *, programme_code: str | None, species: list[
                 raise DataError(f"no stored values for {sp} ({measure}) in the years asked")
             long[C.LINEAGE] = long[C.STATION].map(chains)
             data, species_notes = analysis_frame(long, measure)
-            options = fit_options(data, measure, family=family, margin=programme.change_margin,
-                                  observer_effect=observer_effect)
+            options = {"margin": change_margin(programme.change_margin), "choices": choices}
             overall = FitTask(sp, measure, AREA_ALL, "", options, data)
             tasks.append(overall)
             notes[(sp, measure)] = species_notes
@@ -199,17 +224,24 @@ def _fit_programme(db: str | None, *, programme_code: str | None, species: list[
                                           save=save, progress=tick)
     finally:
         store.dispose()
-    return _species_trends(outcomes, notes, names, keep_data)
+    return _species_trends(outcomes, notes, names, keep_data, skipped)
 
 
-def _species_trends(outcomes, notes, names, keep_data: bool) -> list[SpeciesTrend]:
+def _species_trends(outcomes, notes, names, keep_data: bool, skipped: list[dict] | None) -> list[SpeciesTrend]:
     out = []
+    dropped = set()
     for o in outcomes:
         t = o.task
         key = (t.species, t.measure)
+        if key in dropped:
+            continue
         if o.error is not None:
             if t.area_kind == AREA_ALL:
-                raise o.error
+                if skipped is None or not isinstance(o.error, EstimationError):
+                    raise o.error
+                skipped.append({C.SPECIES: t.species, C.MEASURE: t.measure, "reason": str(o.error)})
+                dropped.add(key)
+                continue
             notes[key].append(Diagnostic(f"{t.area_kind}_not_fitted",
                                          f"{t.area_kind.capitalize()} {t.area}: no trend ({o.error}).", "info"))
             continue
@@ -230,15 +262,26 @@ MEASURE_BY_COLUMNS = [
 ]
 
 
-def fit_table(path: Path, *, measure: str | None = None, family: str | None = None, margin: float = DEFAULT_CHANGE_MARGIN,
-              observer_effect: bool = False) -> SpeciesTrend:
-    """Fit a plain long table brought from elsewhere: station, year, optional site, and the measure's columns."""
+def fit_table(path: Path, *, measure: str | None = None, family: str | None = None,
+              margin: float = DEFAULT_CHANGE_MARGIN, observer_effect: bool = False,
+              choices: ModelChoices | None = None) -> SpeciesTrend:
+    """Fit a plain long table brought from elsewhere: station, year, optional site, and the measure's columns.
+
+    Every cell is checked as written (a blank, "n/a" or a negative count is refused with its
+    file, row and field); nothing is fitted unless the whole table is right.
+    """
     path = Path(path)
+    if choices is None:
+        choices = ModelChoices(family=family, observer_effect=observer_effect)
     try:
-        table = pd.read_csv(path) if path.suffix.lower() != ".xlsx" else pd.read_excel(path)
+        if path.suffix.lower() == ".xlsx":
+            table = pd.read_excel(path, dtype=str, keep_default_na=False)
+        else:
+            table = pd.read_csv(path, dtype=str, keep_default_na=False)
     except (OSError, ValueError, UnicodeDecodeError) as exc:
         raise InputError(InputProblem(path.name, None, None, None, f"a readable CSV or .xlsx table ({exc})")) from None
     table.columns = [str(c).strip().lower() for c in table.columns]
+    table = table.fillna("").astype(str)
     if measure is None:
         found = [m for cols, m in MEASURE_BY_COLUMNS if all(c in table.columns for c in cols)]
         if not found:
@@ -246,23 +289,68 @@ def fit_table(path: Path, *, measure: str | None = None, family: str | None = No
                                           "columns station, year and one of: count; cover_pct; occupied+cells; "
                                           "hits+pins; present"))
         measure = found[0]
-    for column in (C.STATION, C.YEAR):
-        if column not in table.columns:
-            raise InputError(InputProblem(path.name, 1, column, None, f"a column '{column}'"))
-    years = pd.to_numeric(table[C.YEAR], errors="coerce")
-    bad = years.isna() | (years != years.round())
-    if bad.any():
-        row = int(bad.to_numpy().argmax()) + 2
-        raise InputError(InputProblem(path.name, row, C.YEAR, table[C.YEAR].iloc[row - 2], "a whole year"))
-    table[C.YEAR] = years.astype(int)
-    for column in C.MEASURE_COLUMNS[measure]:
-        values = pd.to_numeric(table[column], errors="coerce")
-        if values.isna().any():
-            row = int(values.isna().to_numpy().argmax()) + 2
-            raise InputError(InputProblem(path.name, row, column, table[column].iloc[row - 2], "a number"))
-        table[column] = values
-    table[C.STATION] = table[C.STATION].astype(str)
-    if C.SITE in table:
-        table[C.SITE] = table[C.SITE].astype(str)
-    result = fit_one(table, measure, family=family, margin=margin, observer_effect=observer_effect)
+    missing = [InputProblem(path.name, 1, column, None, f"a column '{column}'")
+               for column in (C.STATION, C.YEAR, *C.MEASURE_COLUMNS[measure]) if column not in table.columns]
+    if missing:
+        raise InputError(missing)
+    table, problems = _checked_table(table, measure, path.name)
+    if problems:
+        raise InputError(problems)
+    result = fit_one(table, measure, margin=margin, choices=choices)
     return SpeciesTrend(path.stem, "", measure, result, (), None)
+
+
+# what each value column must hold: (lowest, highest or None, whole numbers only, words)
+_VALUE_RULES = {
+    C.COUNT: (0, None, True, "a whole count of 0 or more"),
+    C.COVER: (0, 100, False, "a cover between 0 and 100 (%)"),
+    C.OCCUPIED: (0, None, True, "a whole number of occupied cells, 0 or more"),
+    C.CELLS: (1, None, True, "a whole number of cells, 1 or more"),
+    C.HITS: (0, None, True, "a whole number of pin hits, 0 or more"),
+    C.PINS: (1, None, True, "a whole number of pins, 1 or more"),
+    C.PRESENT: (0, 1, True, "0 (absent) or 1 (present)"),
+}
+
+
+def _checked_table(table: pd.DataFrame, measure: str, name: str) -> tuple[pd.DataFrame, list[InputProblem]]:
+    """Numbers from the text of a --table file, and every cell that is not what its column needs."""
+    problems: list[InputProblem] = []
+
+    def numbers(column: str, expected: str, low=None, high=None, whole=False) -> pd.Series:
+        text = table[column].str.strip()
+        values = pd.to_numeric(text, errors="coerce")
+        ok = values.notna() & np.isfinite(values.to_numpy(float, na_value=np.nan))
+        if whole:
+            ok &= values == values.round()
+        if low is not None:
+            ok &= values >= low
+        if high is not None:
+            ok &= values <= high
+        for i in np.flatnonzero(~ok.to_numpy()):
+            raw = text.iloc[i]
+            problems.append(InputProblem(name, int(i) + 2, column, raw if raw else None,
+                                         expected + ("" if raw else " (the cell is blank)")))
+        return values
+
+    station = table[C.STATION].str.strip()
+    for i in np.flatnonzero((station == "").to_numpy()):
+        problems.append(InputProblem(name, int(i) + 2, C.STATION, None, "a station code (the cell is blank)"))
+    out = table.copy()
+    out[C.STATION] = station
+    out[C.YEAR] = numbers(C.YEAR, "a whole year", whole=True)
+    for column in C.MEASURE_COLUMNS[measure]:
+        low, high, whole, expected = _VALUE_RULES[column]
+        out[column] = numbers(column, expected, low, high, whole)
+    if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS) and not problems:
+        k, n = C.MEASURE_COLUMNS[measure]
+        for i in np.flatnonzero((out[k] > out[n]).to_numpy()):
+            problems.append(InputProblem(name, int(i) + 2, k, table[k].iloc[i],
+                                         f"at most the number in '{n}' ({table[n].iloc[i]})"))
+    if problems:
+        return out, problems
+    out[C.YEAR] = out[C.YEAR].astype(int)
+    if C.SITE in out:
+        out[C.SITE] = out[C.SITE].str.strip()
+    if C.QUADRAT_AREA in out:
+        out[C.QUADRAT_AREA] = pd.to_numeric(out[C.QUADRAT_AREA], errors="coerce")
+    return out, problems

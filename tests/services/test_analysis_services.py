@@ -38,9 +38,18 @@ def test_intervals_cover_the_built_in_trends(trends):
 
 
 def test_calls_follow_the_built_in_direction(trends):
-    expected = {s: ("rising" if t["annual_change"] > 0 else "declining" if t["annual_change"] < 0 else "stable")
-                for s, t in TRUTH.items() if not s.startswith("_")}
-    assert {s: t.result.call for s, t in trends.items()} == expected
+    # a rising or declining truth must be called so; a stable truth stable, or unclear where the
+    # year-based t interval (12 years: 10 df) is wider than the margin; never rising or declining
+    for s, t in TRUTH.items():
+        if s.startswith("_"):
+            continue
+        call = trends[s].result.call
+        if t["annual_change"] > 0:
+            assert call == "rising", s
+        elif t["annual_change"] < 0:
+            assert call == "declining", s
+        else:
+            assert call in ("stable", "unclear"), s
 
 
 def test_species_left_out_where_never_recorded_and_protocol_change_flagged(trends):

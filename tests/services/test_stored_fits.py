@@ -92,12 +92,15 @@ def test_another_option_is_another_fit(filled_db):
 
 
 def test_specification_holds_every_option_of_the_fit_with_defaults():
-    spec = analyses.specification("count", {"family": "poisson", "margin": 0.02, "observer_effect": False})
     import inspect
 
-    wanted = set(inspect.signature(trend.fit_one).parameters) - {"data"}
-    assert set(spec) == wanted
-    assert spec["measure"] == "count" and spec["family"] == "poisson"
+    spec = analyses.specification("count", {"margin": 0.02, "choices": trend.ModelChoices(family="poisson")})
+    assert set(spec) == set(inspect.signature(trend.fit_one).parameters) - {"data"}
+    assert spec["measure"] == "count" and spec["margin"] == 0.02
+    # every field of the model choices, defaults included, so an option added later enters by itself
+    fields = {f.name for f in dataclasses.fields(trend.ModelChoices)}
+    assert set(spec["choices"]) == fields | {"__class__"} and spec["choices"]["family"] == "poisson"
+    json.dumps(spec)  # JSON-ready
 
 
 def test_history_and_last_years_calls_come_from_the_database(filled_db):
