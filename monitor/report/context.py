@@ -434,6 +434,8 @@ class ReportContext:
     cautions: tuple[str, ...]
     sites: Mapping[str, object] = field(default_factory=dict)
     names: Mapping[str, str] = field(default_factory=dict)
+    #: target species whose trend could not be called (one season of data, ...), as dicts with the reason
+    not_called: tuple[dict, ...] = ()
     fits: tuple[FitRow, ...] = ()        # every fit shown (overall and by area), when it was made
     fits_note: str = ""
     areas: tuple[FitRow, ...] = ()       # trends by site, stratum or region, beside the overall ones
@@ -462,6 +464,7 @@ class ReportContext:
             "coverage": coverage,
             "power": [p.to_dict() for p in self.power],
             "comparison": None if self.comparison is None else [c.to_dict() for c in self.comparison],
+            "not_called": [dict(n) for n in self.not_called],
             "software": dict(self.methods.software),
             "areas": [a.to_dict() for a in self.areas],
             "fits": [f.to_dict() for f in self.fits],

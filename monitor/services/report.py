@@ -6,6 +6,8 @@ The report folder is written to a temporary sibling and moved into place at the 
 
 from __future__ import annotations
 
+import dataclasses
+
 import datetime as dt
 import json
 from dataclasses import replace
@@ -206,10 +208,12 @@ def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_
 
     fitted = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True, by=by,
                                  workers=workers, cluster=cluster, refit=refit)
-    everything = fitted
+    not_called = list(getattr(fitted, "not_called", []))
+    everything = list(fitted)
     trends = [t for t in fitted if t.area_kind == "all"]
     if not trends:
-        raise DataError("no target species to report")
+        reasons = "; ".join(n.line() for n in not_called)
+        raise DataError("no target species to report" + (f": {reasons}" if reasons else ""))
     if power is None:
         from monitor.services.power import detectable_changes
 
@@ -278,6 +282,9 @@ def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_
                           areas=tuple(r for r in rows if r.area_kind != "all"), area_kind=by or "")
     finally:
         store.dispose()
+    if not_called:  # species too short to call are said so; the rest of the report stands
+        context = dataclasses.replace(context, cautions=(*context.cautions, *(n.line() for n in not_called)),
+                                      not_called=tuple(n.to_dict() for n in not_called))
     try:
         return render_report(context, out_dir, progress=progress), everything
     except OSError as exc:

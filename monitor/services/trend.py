@@ -20,13 +20,45 @@ import pandas as pd
 from monitor import columns as C
 from monitor.db import Store, one_snapshot, queries
 from monitor.db import fits as fit_store
-from monitor.errors import DataError, Diagnostic, EstimationError, InputError, InputProblem
+from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
 from monitor.services.executor import open_runner
 from monitor.services.records import current_user
 from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 from monitor.trend import TrendModel, TrendResult
+
+
+@dataclass(frozen=True)
+class NotCalled:
+    """A target species whose trend cannot be called from the data (too short a series, too few stations)."""
+
+    species: str
+    common_name: str
+    measure: str
+    reason: str
+    years: tuple[int, ...] = ()
+
+    def why(self) -> str:
+        seasons = (f"data from {len(self.years)} season{'s' if len(self.years) != 1 else ''}"
+                   f" ({', '.join(map(str, self.years))})" if self.years else "no data")
+        return f"too short to call: {seasons}; {self.reason}"
+
+    def line(self) -> str:
+        return f"{self.species} ({self.measure}): {self.why()}"
+
+    def to_dict(self) -> dict:
+        return {"species": self.species, "common_name": self.common_name, "measure": self.measure,
+                "call": "too short to call", "reason": self.reason, "years": list(self.years)}
+
+
+class TrendRun(list):
+    """The fitted trends (a list of :class:`SpeciesTrend`) and, in ``not_called``, the species that could not
+    be fitted, each with its reason."""
+
+    def __init__(self, *args):
+        super().__init__(*args)
+        self.not_called: list[NotCalled] = []
 
 
 @dataclass(frozen=True)
@@ -155,10 +187,10 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                   progress: Callable[[int, int, str], None] | None = None) -> list[SpeciesTrend]:
     """Fit every target species and measure of the programme (or those named), and by area with ``by``.
 
-    ``skipped``: when a list is given, a species whose model cannot be fitted at all (an
-    EstimationError: e.g. every stored value the same) is appended to it as
-    {species, measure, reason} and the other species go on; otherwise the error is raised.  An area
-    that cannot be fitted is noted on the species' overall trend.
+    A species whose trend cannot be fitted (one season of data, too few stations, no values, every value
+    the same) does not stop the others: it is listed in the returned list's ``not_called`` as too short to
+    call, with the reason, and, when ``skipped`` is a list, appended to it as {species, measure, reason}.
+    An area that cannot be fitted is noted on the species' overall trend.
 
     Stored fits whose data, specification and engine still match are reused (``refit`` fits everything
     again); the rest are fitted by ``workers`` local processes (None: the cores) or on the Dask scheduler
@@ -173,7 +205,9 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                                 first_year=first_year, last_year=last_year, choices=choices, skipped=skipped,
                                 keep_data=keep_data, by=by, workers=workers, cluster=cluster, refit=refit,
                                 save=save, progress=progress)
-    return [t if t.fit_id is not None else replace(t, fit_id=saved.fit_id(t)) for t in trends]
+    out = TrendRun(t if t.fit_id is not None else replace(t, fit_id=saved.fit_id(t)) for t in trends)
+    out.not_called = trends.not_called
+    return out
 
 
 @one_snapshot
@@ -195,6 +229,7 @@ def _fit_programme(db: str | None, *, programme_code: str | None, species: list[
 
         chains = lineage(store, programme.id)
         tasks: list[FitTask] = []
+        not_called: list[NotCalled] = []
         notes: dict[tuple[str, str], list[Diagnostic]] = {}
         names = {}
         for target in targets.to_dict(orient="records"):
@@ -203,7 +238,11 @@ def _fit_programme(db: str | None, *, programme_code: str | None, species: list[
             long = queries.observations_long(store, programme.id, species=sp, measure=measure, sites=sites,
                                              first_year=first_year, last_year=last_year)
             if long.empty:
-                raise DataError(f"no stored values for {sp} ({measure}) in the years asked")
+                short = NotCalled(sp, names[sp], measure, "no stored values in the years asked", ())
+                not_called.append(short)
+                if skipped is not None:
+                    skipped.append({C.SPECIES: sp, C.MEASURE: measure, "reason": short.why()})
+                continue
             long[C.LINEAGE] = long[C.STATION].map(chains)
             data, species_notes = analysis_frame(long, measure)
             options = {"margin": change_margin(programme.change_margin), "choices": choices}
@@ -224,11 +263,13 @@ def _fit_programme(db: str | None, *, programme_code: str | None, species: list[
                                           save=save, progress=tick)
     finally:
         store.dispose()
-    return _species_trends(outcomes, notes, names, keep_data, skipped)
+    return _species_trends(outcomes, notes, names, keep_data, skipped, not_called)
 
 
-def _species_trends(outcomes, notes, names, keep_data: bool, skipped: list[dict] | None) -> list[SpeciesTrend]:
-    out = []
+def _species_trends(outcomes, notes, names, keep_data: bool, skipped: list[dict] | None,
+                    not_called: list[NotCalled]) -> TrendRun:
+    out = TrendRun()
+    out.not_called = not_called
     dropped = set()
     for o in outcomes:
         t = o.task
@@ -237,9 +278,14 @@ def _species_trends(outcomes, notes, names, keep_data: bool, skipped: list[dict]
             continue
         if o.error is not None:
             if t.area_kind == AREA_ALL:
-                if skipped is None or not isinstance(o.error, EstimationError):
+                if not isinstance(o.error, EstimationError):
                     raise o.error
-                skipped.append({C.SPECIES: t.species, C.MEASURE: t.measure, "reason": str(o.error)})
+                # this species cannot be called; the others still are
+                years = tuple(sorted(int(y) for y in set(t.data[C.YEAR]))) if C.YEAR in t.data else ()
+                short = NotCalled(t.species, names.get(t.species, ""), t.measure, str(o.error), years)
+                out.not_called.append(short)
+                if skipped is not None:
+                    skipped.append({C.SPECIES: t.species, C.MEASURE: t.measure, "reason": short.why()})
                 dropped.add(key)
                 continue
             notes[key].append(Diagnostic(f"{t.area_kind}_not_fitted",
@@ -250,7 +296,8 @@ def _species_trends(outcomes, notes, names, keep_data: bool, skipped: list[dict]
                                 t.data if keep_data else None, area_kind=t.area_kind, area=t.area,
                                 fitted_at=o.fitted_at, reused=o.reused, fit_id=o.fit_id, fit_key=o.key))
     # area notes found after the overall entry was made: rebuild it with every note
-    return [replace(s, notes=tuple(notes[(s.species, s.measure)])) if s.area_kind == AREA_ALL else s for s in out]
+    out[:] = [replace(s, notes=tuple(notes[(s.species, s.measure)])) if s.area_kind == AREA_ALL else s for s in out]
+    return out
 
 
 MEASURE_BY_COLUMNS = [
