@@ -303,20 +303,26 @@ def change_command(ctx: Context, species, first, second, site, figure, as_json, 
 @click.option("--previous", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
               help="Last year's report.json to compare with (default: the last report recorded in the database "
                    "for YEAR-1, else reports/YEAR-1/report.json next to --out, if present).")
+@click.option("--site", default=None, help="A report for this one site (code): trends on its stations only.")
+@click.option("--species", default=None, help="A report for this one species (code).")
+@click.option("--no-pdf", "no_pdf", is_flag=True, help="Skip report.pdf (the printed report).")
 @click.option("--by", "by", type=click.Choice(["site", "stratum", "region"]), default=None,
               help="Add a table of trends by site, stratum or region.")
 @click.option("--refit", is_flag=True, help="Fit every trend again instead of reusing stored fits.")
 @parallel_options
 @click.pass_obj
-def report_command(ctx: Context, year: int, out_dir, previous, by, refit, workers, cluster) -> None:
-    """Write the annual trend summary for land managers: one self-contained HTML page, figures and numbers.
+def report_command(ctx: Context, year: int, out_dir, previous, site, species, no_pdf: bool, by, refit, workers,
+                   cluster) -> None:
+    """Write the annual trend summary for land managers: one self-contained HTML page, the printed
+    report as PDF (report.pdf, A4 with page numbers), figures and numbers.
 
     Stored fits of unchanged data are reused; the report says when each fit was made."""
     from monitor.services import report
 
-    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous, by=by,
-                                 refit=refit, workers=workers, cluster=cluster)
-    say(f"report written: {folder / 'index.html'}")
+    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous,
+                                 site=site, species=species, pdf=not no_pdf, by=by, refit=refit, workers=workers,
+                                 cluster=cluster)
+    say(f"report written: {folder / 'index.html'}" + ("" if no_pdf else f" and {folder / 'report.pdf'}"))
 
 
 def _int_list(text: str) -> list[int]:

@@ -63,9 +63,9 @@ def test_the_report_reuses_stored_fits_says_when_and_compares_with_last_year_fro
                 session.execute(text(f"DELETE FROM {table}"))
     finally:
         store.dispose()
-    report.write_report(db, 2025, tmp_path / "one" / "2025")
+    report.write_report(db, 2025, tmp_path / "one" / "2025", pdf=False)
     fitted = trend.fit_programme(db, last_year=2026)   # fits stored before the report ...
-    second = report.write_report(db, 2026, tmp_path / "two" / "2026", by="site")  # ... no 2025 folder beside it
+    second = report.write_report(db, 2026, tmp_path / "two" / "2026", by="site", pdf=False)  # no 2025 folder here
     doc = json.loads((second / "report.json").read_text())
     overall = [f for f in doc["fits"] if f["area_kind"] == "all"]
     assert overall and all(f["reused"] for f in overall)  # ... are reused by the report
