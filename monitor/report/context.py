@@ -232,7 +232,7 @@ class PowerRow:
     species: str
     species_name: str
     measure_label: str
-    detectable_change: float   # magnitude of annual change detected with the stated power [fraction/yr]
+    detectable_change: float | None  # annual change detected with the stated power [fraction/yr]; None: not computed
     power: float
     n_stations: int | None
     n_years: int | None
@@ -704,10 +704,18 @@ def build_report_context(
             design = ""
             if ns is not None and ny is not None:
                 design = f" with {ns} stations over {ny} years"
-            text = (f"A fall of {float(row['detectable_change']) * 100:.1f}% a year would be detected "
-                    f"{pw * 100:.0f} times in 100{design}.")
+            change = row.get("detectable_change")
+            change = None if change is None or not math.isfinite(float(change)) else float(change)
+            if change is None:
+                # never "nan%": say that it could not be computed, and why
+                why = str(row.get("note") or "").strip()
+                text = why[:1].upper() + why[1:] if why else "The detectable change could not be computed."
+                text = text if text.endswith(".") else text + "."
+            else:
+                text = (f"A fall of {change * 100:.1f}% a year would be detected "
+                        f"{pw * 100:.0f} times in 100{design}.")
             power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms),
-                                            float(row["detectable_change"]), pw, ns, ny, text)
+                                            change, pw, ns, ny, text)
 
     summary: list[SummaryRow] = []
     sections: list[SpeciesSection] = []
