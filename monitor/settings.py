@@ -10,6 +10,14 @@ exists, overrides the default through :func:`change_margin`.
     ``monitor trend --table`` documented and applied; the stage functions' own fallback of 0.01 was
     the odd one out and is gone.  A programme sets its own in ``programme.json`` (``change_margin``).
     The value is a convention of the trade (common practice), not a published constant.
+``GENERALISE_M``
+    The grid cell [m] to whose centre a station is moved wherever its position leaves the database
+    while a species flagged sensitive has been recorded there (exports, report maps, field sheets for
+    crews outside the programme).  A programme sets its own in ``settings.generalise_m``; exports take
+    ``--generalise-m``.  1 km is a common practice for sensitive plant records, not a published constant.
+``FIELD_PACKS_OUTSIDE``
+    The programme setting (``settings.field_packs_for_outside_crews``, true or false) that makes
+    field packs generalise sensitive stations too, for crews from outside the programme.
 ``MIN_TREND_YEARS``, ``MIN_TREND_STATIONS``
     Below these a trend call is "unclear" by rule, and fewer stations than this are warned about
     when stations are placed (common practice minimums).
@@ -29,6 +37,8 @@ from __future__ import annotations
 import math
 
 DEFAULT_CHANGE_MARGIN = 0.02  # fraction per year; common practice
+GENERALISE_M = 1000.0         # m; common practice
+FIELD_PACKS_OUTSIDE = "field_packs_for_outside_crews"
 MIN_TREND_YEARS = 5           # common practice minimum for a trend call
 MIN_TREND_STATIONS = 10       # common practice minimum for a trend call and for a placement
 MIN_YEAR_EFFECT_YEARS = 5     # a year random effect is fitted by default from this many years with data
@@ -41,4 +51,5 @@ def change_margin(programme_value: float | None = None) -> float:
     return float(programme_value)
 
 
-__all__ = ["DEFAULT_CHANGE_MARGIN", "MIN_TREND_STATIONS", "MIN_TREND_YEARS", "MIN_YEAR_EFFECT_YEARS", "change_margin"]
+__all__ = ["DEFAULT_CHANGE_MARGIN", "FIELD_PACKS_OUTSIDE", "GENERALISE_M", "MIN_TREND_STATIONS", "MIN_TREND_YEARS",
+           "MIN_YEAR_EFFECT_YEARS", "change_margin"]

@@ -72,14 +72,18 @@ def design_group() -> None:
 @click.option("--allocation", type=click.Choice(["proportional", "equal", "neyman"]), default="proportional",
               show_default=True, help="Stratified: how stations are split among strata.")
 @click.option("--pilot-sd", default=None, metavar="A=SD,B=SD", help="Neyman allocation: pilot SD per stratum.")
+@click.option("--line", "line_file", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
+              help="Transect: a drawn line (GeoJSON LineString, programme CRS) instead of start, bearing, length.")
+@click.option("--kind", type=click.Choice(["belt", "line"]), default="belt", show_default=True,
+              help="Transect: a belt of quadrats across the line, or points on the line itself.")
 @click.option("--dry-run", is_flag=True, help="Show the stations without storing them.")
 @format_option
 @click.pass_obj
 def design_place(ctx: Context, site: str, method: str, n: int | None, seed: int | None, min_separation: float,
                  exclude: Path | None, spacing: float | None, start: str | None, bearing: float | None,
                  length: float | None, layout: str, quadrat: str | None, prefix: str | None, panel: str | None,
-                 strata: Path | None, allocation: str, pilot_sd: str | None, dry_run: bool, as_json: bool,
-                 as_csv: bool) -> None:
+                 strata: Path | None, allocation: str, pilot_sd: str | None, line_file: Path | None, kind: str,
+                 dry_run: bool, as_json: bool, as_csv: bool) -> None:
     """Place new stations into stored SITE and store them with their method and seed."""
     from monitor.services import design
 
@@ -88,7 +92,7 @@ def design_place(ctx: Context, site: str, method: str, n: int | None, seed: int 
         ctx.db, site, method, n=n, seed=seed, min_separation=min_separation, exclude=exclude, spacing=spacing,
         start=_pair(start, "--start"), bearing=bearing, length=length, layout=layout,
         quadrat=_pair(quadrat, "--quadrat"), prefix=prefix, panel=panel, strata=strata, allocation=allocation,
-        pilot_sd=_pilot(pilot_sd), dry_run=dry_run, programme_code=ctx.programme)
+        pilot_sd=_pilot(pilot_sd), line=line_file, kind=kind, dry_run=dry_run, programme_code=ctx.programme)
     _diagnostics(result.diagnostics)
     columns = [c for c in ("station", "site", "stratum", "transect", "distance_m", "x", "y", "panel")
                if c in result.stations.columns]
@@ -96,6 +100,31 @@ def design_place(ctx: Context, site: str, method: str, n: int | None, seed: int 
     verb = "would place" if dry_run else "placed"
     say(f"{verb} {len(result.stations)} stations in site {result.site} by {result.method} placement, seed {result.seed}"
         + ("" if dry_run else " (stored)"))
+
+
+@design_group.command("extend")
+@click.argument("site")
+@click.option("--n", "n", type=int, required=True, help="Stations to add.")
+@click.option("--seed", type=int, default=None, help="Seed of the new draws (random, stratified); stored.")
+@click.option("--run", "run_id", type=int, default=None, help="Extend this stored placement run (default: the latest).")
+@click.option("--panel", default=None, help="Put the new stations into this stored panel.")
+@click.option("--dry-run", is_flag=True, help="Show the new stations without storing them.")
+@format_option
+@click.pass_obj
+def design_extend(ctx: Context, site: str, n: int, seed: int | None, run_id: int | None, panel: str | None,
+                  dry_run: bool, as_json: bool, as_csv: bool) -> None:
+    """Add N stations to SITE's balanced (continuing its Halton order), stratified or random placement."""
+    from monitor.services import design
+
+    fmt = chosen_format(as_json, as_csv)
+    result = design.extend_stations(ctx.db, site, n, seed=seed, run=run_id, panel=panel, dry_run=dry_run,
+                                    programme_code=ctx.programme)
+    _diagnostics(result.diagnostics)
+    columns = [c for c in ("station", "site", "stratum", "x", "y", "halton_index") if c in result.stations.columns]
+    emit(result if fmt == "json" else result.stations, fmt, columns=None if fmt == "json" else columns)
+    say(f"{'would add' if dry_run else 'added'} {len(result.stations)} stations to the {result.method} placement "
+        f"of site {result.site} (seed {result.seed}; {result.params['stations_before']} -> "
+        f"{result.params['stations_after']} stations)" + ("" if dry_run else " (stored)"))
 
 
 @design_group.command("panels")

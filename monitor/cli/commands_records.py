@@ -6,6 +6,8 @@ from pathlib import Path
 
 import click
 
+from monitor.settings import GENERALISE_M
+
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, say
 
@@ -296,7 +298,7 @@ def export_csv_command(ctx: Context, folder: Path) -> None:
 
 @export_group.command("geojson")
 @click.argument("file", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("--generalise-m", type=click.FloatRange(min=1), default=1000.0, show_default=True,
+@click.option("--generalise-m", type=click.FloatRange(min=1), default=GENERALISE_M, show_default=True,
               help="Grid cell [m] for stations where a sensitive species occurs.")
 @click.pass_obj
 def export_geojson_command(ctx: Context, file: Path, generalise_m: float) -> None:
@@ -309,7 +311,7 @@ def export_geojson_command(ctx: Context, file: Path, generalise_m: float) -> Non
 
 @export_group.command("dwca")
 @click.argument("file", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("--generalise-m", type=click.FloatRange(min=1), default=1000.0, show_default=True,
+@click.option("--generalise-m", type=click.FloatRange(min=1), default=GENERALISE_M, show_default=True,
               help="Grid cell [m] for stations where a sensitive species occurs.")
 @click.pass_obj
 def export_dwca_command(ctx: Context, file: Path, generalise_m: float) -> None:

@@ -363,8 +363,10 @@ def stratified_random(
 
 def _bas_draw(area: BaseGeometry, n: int, start: tuple[int, int], first_index: int, *,
               min_separation: float, width: float | None, length: float | None,
-              existing: tuple[list[float], list[float]], max_draws: int) -> tuple[list, list, list]:
-    xmin, ymin, xmax, ymax = area.bounds
+              existing: tuple[list[float], list[float]], max_draws: int,
+              bounds: tuple[float, float, float, float] | None = None) -> tuple[list, list, list]:
+    # the Halton box is the first placement's; an extension keeps it even when later stations shrink the area
+    xmin, ymin, xmax, ymax = bounds if bounds is not None else area.bounds
     xs: list[float] = []
     ys: list[float] = []
     ks: list[int] = []
@@ -460,14 +462,39 @@ def extend_balanced(
     n_more: int,
     *,
     exclusions: Iterable[BaseGeometry] = (),
+    avoid: Iterable[tuple[float, float]] = (),
     prefix: str | None = None,
+    first_number: int | None = None,
     max_draws: int | None = None,
 ) -> Placement:
-    """Add ``n_more`` stations to a BAS placement by continuing its Halton sequence.
+    r"""Add ``n_more`` stations to a BAS placement by continuing its random-start Halton sequence.
 
-    The existing stations keep their codes and order; the new ones follow in order, so the
-    enlarged sample is the one BAS would have drawn with ``n + n_more`` from the start
-    (same site, exclusions and seed).  No new random numbers are drawn.
+    Parameters
+    ----------
+    placement : Placement
+        A balanced placement with ``params["halton_start"]``, ``params["bounds"]`` and a
+        ``halton_index`` per station (its earlier extensions included).
+    site, exclusions :
+        The site and the exclusion zones of the first placement (the Halton box must be the same).
+    n_more : int
+        Stations to add.
+    avoid : iterable of (x, y)
+        Stations placed since by other means: new stations keep the minimum separation from them
+        too, without changing the Halton box.
+    prefix, first_number : codes of the new stations (default: the placement's prefix, next number).
+
+    Returns
+    -------
+    Placement
+        All stations (old first, unchanged), the new ones continuing ``order``; no new random
+        numbers are drawn, so with nothing placed since the enlarged sample is exactly the one BAS
+        draws with ``n + n_more`` from the start (same site, exclusions and seed).
+
+    Notes
+    -----
+    Candidates :math:`k = k_{max} + 1, k_{max} + 2, \dots` of the same sequence are accepted as in
+    :func:`balanced_acceptance`: inside the usable area and at least ``min_separation`` from every
+    station kept.  Any leading run of a BAS order is spatially balanced (Robertson et al. 2013).
 
     References
     ----------
@@ -477,23 +504,26 @@ def extend_balanced(
         raise DesignError("only a balanced (BAS) placement can be extended along its sequence")
     n_more = _check_n(n_more)
     area = usable_area(site, exclusions)
-    if tuple(area.bounds) != tuple(placement.params["bounds"]):
+    bounds = tuple(float(b) for b in placement.params["bounds"])
+    if not np.allclose(tuple(area.bounds), bounds, rtol=0, atol=1e-6):
         raise DesignError("the site or exclusions differ from those of the original balanced placement")
     old = placement.stations
-    start = tuple(placement.params["halton_start"])
+    start = tuple(int(v) for v in placement.params["halton_start"])
     first = int(old["halton_index"].max()) + 1 if len(old) else 0
     width = old.get(C.QUADRAT_WIDTH)
     length = old.get(C.QUADRAT_LENGTH)
     qw = float(width.iloc[0]) if width is not None and len(old) else None
     ql = float(length.iloc[0]) if length is not None and len(old) else None
     sep = float(placement.params.get("min_separation") or 0.0)
+    others = list(avoid)
     xs, ys, ks = _bas_draw(area, n_more, start, first, min_separation=sep, width=qw, length=ql,
-                           existing=(list(old[C.X]), list(old[C.Y])),
-                           max_draws=max_draws or max(10000, 1000 * n_more))
+                           existing=(list(old[C.X]) + [p[0] for p in others], list(old[C.Y]) + [p[1] for p in others]),
+                           max_draws=max_draws or max(10000, 1000 * n_more), bounds=bounds)
     pre = prefix if prefix is not None else placement.params.get("prefix", "Q")
-    numbers = old[C.STATION].str.extract(r"(\d+)$")[0].dropna().astype(int)
-    nxt = int(numbers.max()) + 1 if len(numbers) else 1
-    new = frame(station_codes(pre, len(xs), nxt, max(3, len(str(nxt + len(xs))))), xs, ys,
+    if first_number is None:
+        numbers = old[C.STATION].str.extract(r"(\d+)$")[0].dropna().astype(int)
+        first_number = int(numbers.max()) + 1 if len(numbers) else 1
+    new = frame(station_codes(pre, len(xs), first_number, max(3, len(str(first_number + len(xs))))), xs, ys,
                 C.PLACEMENT_BALANCED, qw, ql, order=np.arange(len(old), len(old) + len(xs)),
                 halton_index=np.array(ks, dtype=np.int64))
     df = pd.concat([old, new], ignore_index=True)
@@ -501,6 +531,115 @@ def extend_balanced(
     params = dict(placement.params)
     params["n"] = len(df)
     return Placement(C.PLACEMENT_BALANCED, placement.seed, df, params, tuple(diags))
+
+
+def extend_random(
+    placement: Placement,
+    site: BaseGeometry,
+    n_more: int,
+    rng: RngLike,
+    *,
+    exclusions: Iterable[BaseGeometry] = (),
+    avoid: Iterable[tuple[float, float]] = (),
+    prefix: str = "Q",
+    first_number: int = 1,
+    resolution: float | None = None,
+) -> Placement:
+    """Add ``n_more`` simple random stations to a random placement: new draws (their own seed, returned),
+    the same quadrat size, resolution and minimum separation from every station kept.
+
+    Returns a Placement of the NEW stations only, ``method="random"``, ``seed`` the extension's.
+    """
+    n_more = _check_n(n_more)
+    area = usable_area(site, exclusions)
+    old = placement.stations
+    qw, ql = _quadrat_of(old)
+    sep = float(placement.params.get("min_separation") or 0.0)
+    res = float(resolution or placement.params.get("resolution") or 0.1)
+    seed, gen = derive_rng(rng)
+    others = list(avoid)
+    x, y, drawn = _simple_random_xy(area, n_more, gen, resolution=res, min_separation=sep, width=qw, length=ql,
+                                    existing=(list(old[C.X]) + [p[0] for p in others],
+                                              list(old[C.Y]) + [p[1] for p in others]))
+    df = frame(station_codes(prefix, len(x), first_number), x, y, C.PLACEMENT_RANDOM, qw, ql)
+    diags = _placement_diagnostics(n_more, len(x), qw, ql, sep)
+    return Placement(C.PLACEMENT_RANDOM, seed, df,
+                     {"n": n_more, "min_separation": sep, "resolution": res, "candidates_drawn": drawn},
+                     tuple(diags))
+
+
+def extend_stratified(
+    placement: Placement,
+    strata: Mapping[str, BaseGeometry],
+    n_more: int,
+    rng: RngLike,
+    *,
+    exclusions: Iterable[BaseGeometry] = (),
+    avoid: Iterable[tuple[float, float]] = (),
+    prefix: str = "Q",
+    first_number: int = 1,
+) -> Placement:
+    r"""Add ``n_more`` stations to a stratified random placement, per stratum.
+
+    The total :math:`n + n_{more}` is allocated again by the placement's own rule (proportional,
+    equal or Neyman, :func:`allocate`); each stratum receives its shortfall
+    :math:`\max(0, n_h^{new} - n_h^{old})`, the largest shortfalls first when they add up to more
+    than ``n_more``, drawn at random within the stratum (new draws, seed returned) with the same
+    quadrat size and minimum separation from every station kept.
+
+    Returns a Placement of the NEW stations only, with a ``stratum`` column and
+    ``params["allocation"]`` (new stations per stratum).
+    """
+    n_more = _check_n(n_more)
+    excl = list(exclusions or ())
+    areas = {k: usable_area(g, excl, f"stratum {k} polygon") for k, g in strata.items()}
+    old = placement.stations
+    have = old[C.STRATUM].value_counts().to_dict() if C.STRATUM in old else {}
+    method = placement.params.get("allocation_method", "proportional")
+    target = allocate({k: a.area for k, a in areas.items()}, len(old) + n_more, method,
+                      placement.params.get("pilot_sd"))
+    short = {k: max(0, target[k] - int(have.get(k, 0))) for k in areas}
+    give = {k: 0 for k in areas}
+    left = n_more
+    while left > 0 and any(short[k] - give[k] > 0 for k in areas):
+        k = max(areas, key=lambda h: (short[h] - give[h], areas[h].area))
+        give[k] += 1
+        left -= 1
+    while left > 0:  # every stratum has its share: the rest go by the allocation's own weights
+        k = max(areas, key=lambda h: target[h] / max(1, int(have.get(h, 0)) + give[h]))
+        give[k] += 1
+        left -= 1
+    qw, ql = _quadrat_of(old)
+    sep = float(placement.params.get("min_separation") or 0.0)
+    seed, gen = derive_rng(rng)
+    kept_x = list(old[C.X]) + [p[0] for p in avoid]
+    kept_y = list(old[C.Y]) + [p[1] for p in avoid]
+    frames, diags, number = [], [], first_number
+    width = max(3, len(str(first_number + n_more - 1)))
+    for k, area in areas.items():
+        if give[k] == 0:
+            continue
+        x, y, _ = _simple_random_xy(area, give[k], gen, resolution=0.1, min_separation=sep, width=qw, length=ql,
+                                    existing=(kept_x, kept_y))
+        kept_x += list(x)
+        kept_y += list(y)
+        frames.append(frame(station_codes(prefix, len(x), number, width), x, y, C.PLACEMENT_STRATIFIED, qw, ql,
+                            **{C.STRATUM: k}))
+        number += len(x)
+        if len(x) < give[k]:
+            diags.append(Diagnostic("could_not_place", f"stratum {k}: only {len(x)} of {give[k]} stations could be placed"))
+    df = pd.concat(frames, ignore_index=True) if frames else frame([], [], [], C.PLACEMENT_STRATIFIED, qw, ql)
+    return Placement(C.PLACEMENT_STRATIFIED, seed, df,
+                     {"n": n_more, "allocation_method": method, "allocation": give, "target": target,
+                      "min_separation": sep}, tuple(diags))
+
+
+def _quadrat_of(stations: pd.DataFrame) -> tuple[float | None, float | None]:
+    if not len(stations):
+        return None, None
+    w = stations.get(C.QUADRAT_WIDTH)
+    ln = stations.get(C.QUADRAT_LENGTH)
+    return (float(w.iloc[0]) if w is not None else None, float(ln.iloc[0]) if ln is not None else None)
 
 
 def systematic_grid(

@@ -7,7 +7,11 @@ network request.  Templates live in ``templates/report/`` (Jinja2, autoescape,
 StrictUndefined): a base page plus one partial per section.
 
 The folder is written into a temporary sibling and moved into place at the end,
-so a reader never sees a half-written report.
+so a reader never sees a half-written report.  Nothing the tool did not write is ever deleted: every
+report folder carries a marker file (``.monitor-report``) listing the files written, an existing folder
+is replaced only when it is empty or one of our reports, and files a user added to a report folder stay.
+A non-empty folder without the marker is refused (a report written before the marker existed, holding
+only ``index.html``, ``report.json`` and ``figures/*.png|svg``, counts as ours).
 """
 
 from __future__ import annotations
@@ -22,7 +26,7 @@ from pathlib import Path
 
 import jinja2
 
-from monitor.errors import MonitorError
+from monitor.errors import InputError, InputProblem, MonitorError
 from monitor.report.context import FigureRef, ReportContext, SpeciesSection
 from monitor.report.figures import (
     data_uri,
@@ -37,6 +41,7 @@ from monitor.report.wording import MEASURE_LABEL
 INDEX = "index.html"
 NUMBERS = "report.json"
 FIGURES = "figures"
+MARKER = ".monitor-report"
 CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'"
 
 
@@ -135,6 +140,7 @@ def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: in
         (``<key>.png`` and ``<key>.svg``).
     """
     out_dir = Path(out_dir).resolve()
+    ours = report_files_in(out_dir)
     out_dir.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.", suffix=".partial", dir=out_dir.parent))
     try:
@@ -150,12 +156,75 @@ def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: in
         (tmp / INDEX).write_text(html, encoding="utf-8")
         numbers = json.dumps(context.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
         (tmp / NUMBERS).write_text(numbers + "\n", encoding="utf-8")
+        written = sorted(str(p.relative_to(tmp).as_posix()) for p in tmp.rglob("*") if p.is_file())
+        (tmp / MARKER).write_text(json.dumps({"written_by": "monitor report", "files": written}, indent=1) + "\n",
+                                  encoding="utf-8")
         os.chmod(tmp, 0o755)
-        _swap_into_place(tmp, out_dir)
+        if ours is None or _only(out_dir, ours):
+            _swap_into_place(tmp, out_dir)
+        else:
+            _replace_ours(tmp, out_dir, ours)
+            shutil.rmtree(tmp, ignore_errors=True)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     return out_dir
+
+
+_LEGACY_TOP = {INDEX, NUMBERS, FIGURES}
+
+
+def report_files_in(folder: Path) -> set[str] | None:
+    """The files of an earlier report of ours in ``folder`` (relative paths), None if it is absent or empty.
+
+    Raises InputError for a folder holding anything else: we never delete what we did not write.
+    """
+    folder = Path(folder)
+    if not folder.exists():
+        return None
+    if not folder.is_dir():
+        raise InputError(InputProblem(str(folder), None, "--out", None,
+                                      "a folder for the report; this is a file, and it is left as it is"))
+    entries = list(folder.iterdir())
+    if not entries:
+        return None
+    marker = folder / MARKER
+    if marker.is_file():
+        try:
+            files = json.loads(marker.read_text(encoding="utf-8")).get("files", [])
+        except (OSError, ValueError, AttributeError):
+            files = None
+        if isinstance(files, list) and all(isinstance(f, str) and ".." not in Path(f).parts for f in files):
+            return {*files, MARKER}
+    names = {e.name for e in entries}
+    figures = folder / FIGURES
+    if names <= _LEGACY_TOP and all(e.is_file() for e in entries if e.name != FIGURES) and (
+            not figures.exists() or (figures.is_dir() and all(f.is_file() and f.suffix in (".png", ".svg")
+                                                                for f in figures.iterdir()))):
+        return {str(p.relative_to(folder).as_posix()) for p in folder.rglob("*") if p.is_file()}
+    foreign = sorted(names - _LEGACY_TOP)[:3] or sorted(names)[:3]
+    raise InputError(InputProblem(str(folder), None, "--out", None,
+                                  "a new or empty folder, or the folder of an earlier report: this folder holds "
+                                  f"files monitor did not write ({', '.join(foreign)}"
+                                  f"{', ...' if len(names) > 3 else ''}), and nothing in it is deleted"))
+
+
+def _only(folder: Path, ours: set[str]) -> bool:
+    """True when ``folder`` holds nothing but the files of our earlier report (and their folders)."""
+    return all(str(p.relative_to(folder).as_posix()) in ours for p in folder.rglob("*") if not p.is_dir())
+
+
+def _replace_ours(tmp: Path, target: Path, ours: set[str]) -> None:
+    """Replace our earlier report's files in ``target`` by the new ones, keeping every file a user added."""
+    new = {str(p.relative_to(tmp).as_posix()) for p in tmp.rglob("*") if p.is_file()}
+    for name in sorted(ours - new):
+        path = target / name
+        if path.is_file():
+            path.unlink()
+    for name in sorted(new):
+        destination = target / name
+        destination.parent.mkdir(parents=True, exist_ok=True)
+        os.replace(tmp / name, destination)
 
 
 def _swap_into_place(tmp: Path, target: Path) -> None:

@@ -22,7 +22,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import shapely
-from shapely.geometry import MultiPolygon, Point, Polygon, mapping, shape
+from shapely.geometry import LineString, MultiLineString, MultiPolygon, Point, Polygon, mapping, shape
 from shapely.geometry.base import BaseGeometry
 
 from monitor import columns as C
@@ -169,6 +169,47 @@ def read_polygons(path: Path, epsg: int, *, code_field: str | None = None) -> li
     return out
 
 
+def read_lines(path: Path, epsg: int) -> list[tuple[str, LineString]]:
+    """LineStrings of a GeoJSON file in the programme CRS: (code, name or feature number, line) per feature."""
+    path = Path(path)
+    file = path.name
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8-sig"))
+    except OSError as exc:
+        raise InputError(InputProblem(file, None, None, None, f"a readable file ({exc.strerror})")) from None
+    except (json.JSONDecodeError, UnicodeDecodeError):
+        raise InputError(InputProblem(file, None, None, None, "a GeoJSON file (valid UTF-8 JSON)")) from None
+    if isinstance(doc, dict) and doc.get("type") == "FeatureCollection":
+        features = doc.get("features") or []
+    elif isinstance(doc, dict) and doc.get("type") == "Feature":
+        features = [doc]
+    elif isinstance(doc, dict) and doc.get("type") in ("LineString", "MultiLineString"):
+        features = [{"type": "Feature", "geometry": doc, "properties": {}}]
+    else:
+        raise InputError(InputProblem(file, None, "type", None, "a GeoJSON FeatureCollection of LineStrings"))
+    crs_name = ((doc.get("crs") or {}).get("properties") or {}).get("name", "")
+    if crs_name:
+        m = re.search(r"EPSG:+(\d+)$", str(crs_name))
+        if m and int(m.group(1)) != int(epsg):
+            raise InputError(InputProblem(file, None, "crs", crs_name, f"the programme's CRS EPSG:{epsg}"))
+    if not features:
+        raise InputError(InputProblem(file, None, "features", None, "at least one LineString"))
+    out = []
+    for i, feature in enumerate(features, start=1):
+        try:
+            geometry = shape(feature.get("geometry"))
+        except (ValueError, TypeError, AttributeError, KeyError):
+            raise InputError(InputProblem(file, i, "geometry", None, "a GeoJSON LineString")) from None
+        parts = list(geometry.geoms) if isinstance(geometry, MultiLineString) else [geometry]
+        for part in parts:
+            if not isinstance(part, LineString) or part.is_empty or part.length <= 0:
+                raise InputError(InputProblem(file, i, "geometry", geometry.geom_type,
+                                              "a LineString with at least two distinct points"))
+            props = feature.get("properties") or {}
+            out.append((str(props.get("code") or props.get("name") or i), part))
+    return out
+
+
 # --- placing stations -------------------------------------------------------------------------------------
 
 
@@ -228,6 +269,8 @@ def place_stations(
     prefix: str | None = None,
     panel: str | None = None,
     strata: Path | None = None,
+    line: Path | None = None,
+    kind: str = "belt",
     allocation: str = "proportional",
     pilot_sd: dict[str, float] | None = None,
     established: dt.date | None = None,
@@ -247,9 +290,12 @@ def place_stations(
         raise InputError(InputProblem("--n", None, None, None, f"the number of stations for {method} placement"))
     if method in (C.PLACEMENT_SYSTEMATIC, C.PLACEMENT_TRANSECT) and not spacing:
         raise InputError(InputProblem("--spacing", None, None, None, f"a spacing [m] for {method} placement"))
-    if method == C.PLACEMENT_TRANSECT and (start is None or bearing is None or length is None):
+    if method == C.PLACEMENT_TRANSECT and line is None and (start is None or bearing is None or length is None):
         raise InputError(InputProblem("--start/--bearing/--length", None, None, None,
-                                      "a start point, bearing and length for a transect"))
+                                      "a drawn line (--line FILE.geojson) or a start point, bearing and length for a "
+                                      "transect"))
+    if line is not None and method != C.PLACEMENT_TRANSECT:
+        raise InputError(InputProblem("--line", None, None, str(line), "--method transect with a drawn line"))
     if min_separation < 0:
         raise InputError(InputProblem("--min-separation", None, None, min_separation, "a distance >= 0 [m]"))
     if quadrat is not None and (quadrat[0] <= 0 or quadrat[1] <= 0):
@@ -262,7 +308,7 @@ def place_stations(
             result = _place(session, programme, site, method, n=n, seed=seed, min_separation=min_separation,
                             exclude=exclude, spacing=spacing, start=start, bearing=bearing, length=length,
                             layout=layout, quadrat=quadrat, prefix=prefix, panel=panel, strata=strata,
-                            allocation=allocation, pilot_sd=pilot_sd,
+                            allocation=allocation, pilot_sd=pilot_sd, line=line, kind=kind,
                             established=established or dt.date.today(), dry_run=dry_run)
             if dry_run:
                 session.rollback()
@@ -273,7 +319,7 @@ def place_stations(
 
 def _place(session: Session, programme: M.Programme, site_code: str, method: str, *, n, seed, min_separation,
            exclude, spacing, start, bearing, length, layout, quadrat, prefix, panel, strata, allocation,
-           pilot_sd, established, dry_run) -> PlaceResult:
+           pilot_sd, established, dry_run, line=None, kind="belt") -> PlaceResult:
     pid = programme.id
     site, geometry = site_geometry(session, pid, site_code)
     panel_id = None
@@ -297,8 +343,14 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
     stratum_ids: dict[str, int] = {}
     if method == C.PLACEMENT_TRANSECT:
         code = prefix or _free_transect_code(site_code, existing)
+        drawn = None
+        if line is not None:
+            lines = read_lines(line, programme.crs_epsg)
+            if len(lines) != 1:
+                raise InputError(InputProblem(Path(line).name, None, "features", len(lines), "exactly one LineString"))
+            drawn = lines[0][1]
         placement = D.transect(geometry, rng, spacing=float(spacing), start=start, bearing=bearing,
-                               length=length, layout=layout, kind="belt", width=float(width),
+                               length=length, line=drawn, layout=layout, kind=kind, width=float(width),
                                quadrat_length=float(qlength) if layout == "interrupted" else None,
                                exclusions=exclusions, code=code)
     else:
@@ -336,6 +388,7 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
         ))
     session.add_all(rows)
     session.flush()
+    _store_run(session, pid, site.id, placement, exclusions, min_separation, None)
     shown = frame.copy()
     shown.insert(1, C.SITE, site_code)
     if panel is not None:
@@ -343,6 +396,126 @@ def _place(session: Session, programme: M.Programme, site_code: str, method: str
     return PlaceResult(site=site_code, method=placement.method, seed=placement.seed, stations=shown,
                        diagnostics=placement.diagnostics, stored=not dry_run, strata_added=strata_added,
                        params={**placement.params, "first_season": first_season})
+
+
+#: what a placement run keeps of each of its stations, to be extended later
+RUN_STATION_FIELDS = (C.STATION, C.STRATUM, "order", "halton_index")
+
+
+def _store_run(session: Session, programme_id: int, site_id: int, placement: D.Placement,
+               exclusions: list[BaseGeometry], min_separation: float, extends: int | None) -> M.PlacementRun:
+    """Record the run: method, seed, inputs (exclusions as GeoJSON) and its stations in order."""
+    members = [{k: rec.get(k) for k in RUN_STATION_FIELDS if k in rec}
+               for rec in placement.stations.to_dict(orient="records")]
+    prefix = placement.params.get("prefix") or re.sub(r"\d+$", "", str(members[0][C.STATION])) if members else ""
+    params = {**_jsonable(placement.params), "prefix": prefix, "min_separation": float(min_separation),
+              "exclusions": [mapping(g) for g in exclusions], "stations": _jsonable(members)}
+    run = M.PlacementRun(programme_id=programme_id, site_id=site_id, method=placement.method, seed=int(placement.seed),
+                         extends_id=extends, n_stations=len(members), params_json=json.dumps(params, default=list))
+    session.add(run)
+    session.flush()
+    return run
+
+
+EXTENDABLE = (C.PLACEMENT_BALANCED, C.PLACEMENT_STRATIFIED, C.PLACEMENT_RANDOM)
+
+
+def extend_stations(db: str | None, site: str, n: int, *, seed: int | None = None, run: int | None = None,
+                    panel: str | None = None, established: dt.date | None = None, dry_run: bool = False,
+                    programme_code: str | None = None) -> PlaceResult:
+    """Add ``n`` stations to the latest balanced, stratified or random placement of ``site`` (or run ``run``).
+
+    Balanced: the stored random-start Halton order continues (no new draws; the seed stays the first
+    run's). Stratified: the total is allocated again by the placement's own rule and each stratum gets
+    its shortfall, drawn at random. Random: new draws. Both draw with a new seed, stored with the new
+    stations. Exclusions and the minimum separation are the first placement's; new stations also keep
+    that separation from every station in service in the site.
+    """
+    if n is None or n < 1:
+        raise InputError(InputProblem("--n", None, None, n, "the number of stations to add (at least 1)"))
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        with store.session() as session:
+            result = _extend(session, programme, site, int(n), seed, run, panel, established or dt.date.today())
+            if dry_run:
+                session.rollback()
+                result.stored = False
+        return result
+    finally:
+        store.dispose()
+
+
+def _extend(session: Session, programme: M.Programme, site_code: str, n: int, seed: int | None, run_id: int | None,
+            panel: str | None, established: dt.date) -> PlaceResult:
+    pid = programme.id
+    site, geometry = site_geometry(session, pid, site_code)
+    runs = session.exec(select(M.PlacementRun).where(M.PlacementRun.site_id == site.id)
+                        .order_by(M.PlacementRun.id)).all()
+    runs = [r for r in runs if r.method in EXTENDABLE]
+    if run_id is not None:
+        runs = [r for r in runs if r.id == run_id]
+    if not runs:
+        raise DataError(f"site {site_code} has no stored balanced, stratified or random placement to extend"
+                        + (f" with run {run_id}" if run_id is not None else "")
+                        + " (placements are stored from this version on; place with `monitor design place`)")
+    head = runs[-1]
+    chain = [head]
+    while chain[-1].extends_id is not None:
+        chain.append(session.get(M.PlacementRun, chain[-1].extends_id))
+    chain.reverse()
+    first_params = json.loads(chain[0].params_json)
+    exclusions = [shape(g) for g in first_params.get("exclusions", [])]
+    members = [m for r in chain for m in json.loads(r.params_json)["stations"]]
+    stations = {s.code: s for s in session.exec(select(M.Station).where(M.Station.programme_id == pid)).all()}
+    old = pd.DataFrame([{**m, C.X: stations[m[C.STATION]].x, C.Y: stations[m[C.STATION]].y,
+                         C.QUADRAT_WIDTH: stations[m[C.STATION]].quadrat_width_m,
+                         C.QUADRAT_LENGTH: stations[m[C.STATION]].quadrat_length_m} for m in members])
+    own = set(old[C.STATION])
+    avoid = [(s.x, s.y) for s in stations.values()
+             if s.site_id == site.id and s.state == "in_service" and s.code not in own]
+    params = dict(first_params)
+    params.pop("stations", None)
+    placement = D.Placement(chain[0].method, chain[0].seed, old, params)
+    prefix = params.get("prefix") or f"{site_code}-{METHOD_LETTER[chain[0].method]}"
+    first = _next_number(list(stations), prefix)
+    if chain[0].method == C.PLACEMENT_BALANCED:
+        grown = D.extend_balanced(placement, geometry, n, exclusions=exclusions, avoid=avoid, prefix=prefix,
+                                  first_number=first)
+        new = grown.stations.iloc[len(old):].reset_index(drop=True)
+        added = D.Placement(C.PLACEMENT_BALANCED, chain[0].seed, new, grown.params, grown.diagnostics)
+    elif chain[0].method == C.PLACEMENT_RANDOM:
+        added = D.extend_random(placement, geometry, n, fresh_seed(seed), exclusions=exclusions, avoid=avoid,
+                                prefix=prefix, first_number=first)
+    else:
+        strata, _ids, _added = _strata(session, programme, site, geometry, None)
+        added = D.extend_stratified(placement, strata, n, fresh_seed(seed), exclusions=exclusions, avoid=avoid,
+                                    prefix=prefix, first_number=first)
+    frame = added.stations
+    if frame.empty:
+        raise DesignError(f"no station could be added to site {site_code}: the usable area is full at this separation")
+    stratum_ids = {r.code: r.id for r in session.exec(select(M.Stratum).where(M.Stratum.site_id == site.id)).all()}
+    panel_id = None
+    if panel is not None:
+        row = session.exec(select(M.Panel).where(M.Panel.programme_id == pid, M.Panel.code == panel)).first()
+        if row is None:
+            raise DataError(f"no panel '{panel}' in the programme")
+        panel_id = row.id
+    rows = [M.Station(programme_id=pid, code=rec[C.STATION], site_id=site.id,
+                      stratum_id=stratum_ids.get(rec.get(C.STRATUM)) if rec.get(C.STRATUM) else None,
+                      panel_id=panel_id, placement=added.method, placement_seed=added.seed, x=float(rec[C.X]),
+                      y=float(rec[C.Y]), crs_epsg=programme.crs_epsg, fix_method=FIX_PLANNED,
+                      quadrat_width_m=float(rec[C.QUADRAT_WIDTH]), quadrat_length_m=float(rec[C.QUADRAT_LENGTH]),
+                      established=established) for rec in frame.to_dict(orient="records")]
+    session.add_all(rows)
+    session.flush()
+    run = _store_run(session, pid, site.id, added, exclusions, float(params.get("min_separation") or 0.0), head.id)
+    shown = frame.copy()
+    shown.insert(1, C.SITE, site_code)
+    return PlaceResult(site=site_code, method=added.method, seed=added.seed, stations=shown,
+                       diagnostics=added.diagnostics, stored=True,
+                       params={"run": run.id, "extends": head.id, "stations_before": len(old),
+                               "stations_after": len(old) + len(frame)})
 
 
 def _free_transect_code(site_code: str, existing: list[M.Station]) -> str:

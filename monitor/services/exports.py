@@ -22,6 +22,7 @@ from monitor.io import headers as H
 from monitor.io.dwca import ProgrammeMetadata, write_dwca
 from monitor.io.spatial import stations_geojson, write_geojson
 from monitor.io.tidy import write_tidy_csv
+from monitor.settings import GENERALISE_M
 
 GEOJSON_PROPERTIES = [C.STATION, C.SITE, C.PANEL, "placement", C.TRANSECT, C.DISTANCE, C.QUADRAT_AREA, "state",
                       "established", "retired", "coordinate_uncertainty_m", "data_generalizations"]
@@ -59,8 +60,33 @@ def generalise(x: float, y: float, cell_m: float) -> tuple[float, float]:
     return (math.floor(x / cell_m) * cell_m + cell_m / 2, math.floor(y / cell_m) * cell_m + cell_m / 2)
 
 
+def generalise_m_of(programme) -> float:
+    """The programme's own generalisation cell (settings ``generalise_m``), else :data:`GENERALISE_M`."""
+    try:
+        value = float(json.loads(programme.settings_json or "{}").get("generalise_m", GENERALISE_M))
+    except (TypeError, ValueError, json.JSONDecodeError, AttributeError):
+        return GENERALISE_M
+    return value if math.isfinite(value) and value > 0 else GENERALISE_M
+
+
+def generalised_positions(store: Store, programme_id: int, stations: pd.DataFrame, cell_m: float) -> pd.DataFrame:
+    """``stations`` (columns station, x, y) with every station where a sensitive species has been recorded
+    present moved to the centre of its ``cell_m`` grid cell, as every export does: the one rule for each
+    place a position leaves the database (exports, report figures and numbers, field sheets for others)."""
+    hidden = generalised_stations(queries.observations_table(store, programme_id), queries.species(store, programme_id))
+    if not hidden or stations is None or stations.empty:
+        return stations
+    out = stations.copy()
+    moved = out[C.STATION].isin(hidden).to_numpy()
+    xs, ys = out[C.X].astype(float).to_numpy().copy(), out[C.Y].astype(float).to_numpy().copy()
+    for i in moved.nonzero()[0]:
+        xs[i], ys[i] = generalise(xs[i], ys[i], cell_m)
+    out[C.X], out[C.Y] = xs, ys
+    return out
+
+
 def export_geojson(db: str | None, path: Path, *, programme_code: str | None = None,
-                   generalise_m: float = 1000.0) -> tuple[Path, int]:
+                   generalise_m: float = GENERALISE_M) -> tuple[Path, int]:
     """Write the programme's stations as an RFC 7946 FeatureCollection (WGS84 longitude, latitude).
 
     Returns the path and how many stations were generalised.
@@ -127,7 +153,7 @@ def programme_metadata(programme) -> ProgrammeMetadata:
 
 
 def export_dwca(db: str | None, path: Path, *, programme_code: str | None = None,
-                generalise_m: float = 1000.0) -> Path:
+                generalise_m: float = GENERALISE_M) -> Path:
     """Write a Darwin Core Archive of sampling events (see :mod:`monitor.io.dwca` for the standard followed)."""
     store = Store.open(db)
     try:

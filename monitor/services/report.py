@@ -17,6 +17,8 @@ from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
+from monitor.report.render import report_files_in
+from monitor.services.exports import generalise_m_of, generalised_positions
 from monitor.services import estimate, trend
 from monitor.trend import station_changes
 
@@ -151,6 +153,7 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
                  progress=None) -> Path:
     """Fit every target species up to ``year`` and write the report folder; returns its path."""
     out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
+    report_files_in(out_dir)  # refuse a folder we did not write now, not after the fits
     if previous is None:
         guess = out_dir.parent / str(year - 1) / REPORT_JSON
         previous = guess if guess.is_file() else None
@@ -210,7 +213,11 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             events=_events(store, programme.id),
             previous=previous_doc,
             power=power,
-            stations=stations[stations["state"] == "in_service"][[C.STATION, C.X, C.Y, C.SITE, "placement"]],
+            # positions as every export gives them: sensitive species' stations generalised
+            stations=generalised_positions(store, programme.id,
+                                           stations[stations["state"] == "in_service"][[C.STATION, C.X, C.Y, C.SITE,
+                                                                                          "placement"]],
+                                           generalise_m_of(programme)),
             sites=_sites_geometry(store, programme.id),
             station_changes={(t.species, t.measure): station_changes(t.data, t.measure)
                              for t in trends if t.data is not None},

