@@ -112,7 +112,10 @@ def summary_command(ctx: Context, as_json: bool, as_csv: bool, xlsx: Path | None
 @cli.command("demo")
 @click.option("--dir", "folder", type=click.Path(file_okay=False, path_type=Path), default=Path("demo_out"),
               show_default=True, help="Folder to build the demo in (new or empty).")
-def demo_command(folder: Path) -> None:
+@click.option("--serve", "then_serve", is_flag=True,
+              help="Then open the demo in the browser workspace (as `monitor serve` on its database).")
+@click.option("--port", type=int, default=8765, show_default=True, help="Port of the workspace (with --serve).")
+def demo_command(folder: Path, then_serve: bool, port: int) -> None:
     """Build the invented demo reserve in a fresh database and run the whole job on it."""
     from monitor.services import demo
 
@@ -187,3 +190,8 @@ def demo_command(folder: Path) -> None:
             click.echo(f"\nThe annual report for land managers: {result / 'index.html'}")
     click.echo(f"\nFigures are in {run.folder / 'figures'}")
     click.echo(f"The demo database is {run.database}; try: monitor --db {run.database} summary")
+    if then_serve:
+        from monitor.cli.commands_web import start_workspace
+
+        start_workspace(str(run.database), host="127.0.0.1", port=port, workdir=Path(folder) / "monitor_web",
+                        programme=None, open_browser=True)

@@ -47,6 +47,7 @@ def _register() -> None:
         commands_plan,
         commands_records,
         commands_setup,
+        commands_web,
     )
 
 

@@ -577,3 +577,24 @@ class SeasonPlanTeamDay(SQLModel, table=True):
         UniqueConstraint("plan_id", "team", "date", name="uq_season_plan_team_day_plan_team_date"),
         CheckConstraint("route_m >= 0", name="route_non_negative"),
     )
+
+# --- revision 0006: people who sign in to the browser workspace -------------------------------------------
+
+WEB_ROLES = ("reader", "recorder", "owner")
+
+
+class WebUser(SQLModel, table=True):
+    """A person who signs in to ``monitor serve`` on a shared programme, with the rights of one database group
+    (reader, recorder, owner).  Only a password hash is stored (scrypt, salted; ``monitor.web.security``)."""
+
+    __tablename__ = "web_user"
+
+    id: int | None = Field(default=None, primary_key=True)
+    login: str = Field(max_length=80, unique=True)
+    role: str
+    password_hash: str
+    active: bool = True
+    created_at: dt.datetime = Field(default_factory=lambda: utcnow())
+
+    __table_args__ = (CheckConstraint(_in("role", WEB_ROLES), name="role_known"),
+                      CheckConstraint("length(login) > 0", name="login_given"))

@@ -28,6 +28,7 @@ RECORDER_WRITES = ("visit", "observation", "visit_observer", "covariate", "round
                    "quality_flag", "planned_visit", "management_event")
 RECORDER_DELETES = ("observation", "visit_observer", "planned_visit")
 STATION_LINEAGE_COLUMNS = ("state", "retired", "retired_reason", "replaced_by_id")
+PRIVATE_TABLE = "web_user"
 
 
 def _require_postgresql(engine: Engine) -> str:
@@ -63,6 +64,8 @@ def setup_roles(engine: Engine) -> list[str]:
             f"GRANT SELECT ON ALL TABLES IN SCHEMA public TO {reader}, {recorder}",
             f"GRANT USAGE, SELECT ON ALL SEQUENCES IN SCHEMA public TO {recorder}",
         ]
+        # the workspace's password hashes are read by the serving login only, never by readers or recorders
+        statements.append(f"REVOKE ALL ON {_quote(PRIVATE_TABLE)} FROM {reader}, {recorder}")
         for table in RECORDER_WRITES:
             statements.append(f"GRANT INSERT, UPDATE ON {_quote(table)} TO {recorder}")
         for table in RECORDER_DELETES:
@@ -90,3 +93,22 @@ def grant(engine: Engine, login: str, group: str) -> str:
                 connection.execute(text(f"REVOKE {_quote(role_name(database, other))} FROM {_quote(login)}"))
         connection.execute(text(f"GRANT {_quote(role_name(database, group))} TO {_quote(login)}"))
     return role_name(database, group)
+
+
+def group_urls(engine: Engine) -> dict[str, str]:
+    """A database URL per group that works under that group's role (``options=-c role=...``), so that the
+    browser workspace does each person's work with exactly the rights of their group.  The groups must exist
+    (``monitor access setup``) and the serving login must be a member of each."""
+    database = _require_postgresql(engine)
+    names = {g: role_name(database, g) for g in GROUPS}
+    with engine.connect() as connection:
+        for name in names.values():
+            row = connection.execute(text("SELECT pg_has_role(current_user, oid, 'MEMBER') FROM pg_roles "
+                                          "WHERE rolname = :n"), {"n": name}).first()
+            if row is None:
+                raise DataError(f"the group role {name} does not exist; run `monitor access setup` first")
+            if not row[0]:
+                raise DataError(f"the login serving the workspace is not a member of {name}; serve with the "
+                                "owner's login (or grant it the group)")
+    return {g: engine.url.update_query_dict({"options": f"-c role={name}"}).render_as_string(hide_password=False)
+            for g, name in names.items()}

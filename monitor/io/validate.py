@@ -23,6 +23,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor.errors import InputError, InputProblem, ProblemCounter
 from monitor.io import headers as H
+from monitor.measures import VALUE_RULES
 
 WARNING = "warning"
 
@@ -334,25 +335,25 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             ways = sorted(m for s, m in registered if s == species[i])
             add(rows[i], fields[i], measures[i], f"a measure registered for {species[i]}: {', '.join(ways)}")
 
-        # ranges per measure
+        # ranges per measure: one rule each, from monitor.measures (the phone field sheet checks the same)
         whole = np.isclose(values, np.round(values), rtol=0, atol=1e-9)
         is_ = {m: measures == m for m in C.MEASURES}
-        bad = is_[C.MEASURE_COUNT] & ((values < 0) | ~whole)
-        for i in np.flatnonzero(bad):
-            add(rows[i], fields[i], _plain(shown[i]), "a count: a whole number >= 0")
-        bad = is_[C.MEASURE_COVER] & ((values < 0) | (values > 100))
-        for i in np.flatnonzero(bad):
-            add(rows[i], fields[i], _plain(shown[i]), "cover in percent, 0 to 100")
-        bad = is_[C.MEASURE_PRESENCE] & ~np.isin(values, [0.0, 1.0])
-        for i in np.flatnonzero(bad):
-            add(rows[i], fields[i], _plain(shown[i]), "presence 0 or 1")
+        for measure, value_rule in VALUE_RULES.items():
+            chosen = is_[measure]
+            if not chosen.any():
+                continue
+            with np.errstate(invalid="ignore"):
+                outside = values < value_rule.minimum
+                if value_rule.maximum is not None:
+                    outside |= values > value_rule.maximum
+                if value_rule.whole:
+                    outside |= ~whole
+                if value_rule.up_to_n:
+                    outside |= np.nan_to_num(ns, nan=np.inf) < values
+            for i in np.flatnonzero(chosen & outside):
+                add(rows[i], fields[i], _plain(shown[i]),
+                    value_rule.wording(None if np.isnan(ns[i]) else int(ns[i])))
         kn = is_[C.MEASURE_FREQUENCY] | is_[C.MEASURE_PIN_HITS]
-        with np.errstate(invalid="ignore"):
-            bad = kn & ((values < 0) | ~whole | (np.nan_to_num(ns, nan=np.inf) < values))
-        for i in np.flatnonzero(bad):
-            unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
-            add(rows[i], fields[i], _plain(shown[i]), f"a whole number of {unit} k with 0 <= k <= n = "
-                                               f"{'?' if np.isnan(ns[i]) else int(ns[i])}")
         distinct_n = np.array([registered.get(pair) for pair in distinct_pairs] or [None], dtype=object)
         programme_n = pd.to_numeric(pd.Series(distinct_n), errors="coerce").to_numpy(dtype=float)[pair_at]
         bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))

@@ -25,6 +25,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor.errors import DesignError
 from monitor.io.spatial import CalendarEvent, Route, Waypoint, gpx_document, icalendar_document, to_wgs84
+from monitor.measures import VALUE_RULES
 from monitor.schedule.planner import ARRIVAL, SeasonPlan, TeamDay
 
 #: the fixed leading headers of the wide field-sheet layout, in sheet order
@@ -288,6 +289,61 @@ def render_field_sheet(context: FieldSheetContext, template_dir: str | Path | No
     return env.get_template("field_sheet.html").render(sheet=context)
 
 
+def phone_sheet_fields(targets: Sequence[tuple[str, str] | tuple[str, str, int | None]],
+                       covariates: Sequence[tuple[str, str]] = ()) -> list[dict[str, Any]]:
+    """One input per species and measure (and visit covariate), in the entry sheet's column order, each
+    with the importer's value rule for its measure (``monitor.measures``) and the grid or frame size n."""
+    out: list[dict[str, Any]] = []
+    for t in targets:
+        species, measure = t[0], t[1]
+        n = t[2] if len(t) > 2 else None
+        value_rule = VALUE_RULES[measure]
+        n = None if n is None or pd.isna(n) else int(n)
+        label = f"{species} {measure.replace('_', ' ')}"
+        if value_rule.up_to_n:
+            label += f" (of {n} {value_rule.unit})"
+        elif measure == C.MEASURE_COVER:
+            label += " (%)"
+        out.append({"kind": "value", "header": _measure_header(species, measure, n), "species": species,
+                    "measure": measure, "n": n, "label": label, "hint": value_rule.wording(n),
+                    "whole": value_rule.whole, "rule": value_rule.to_dict()})
+    for name, unit in covariates:
+        out.append({"kind": "covariate", "header": f"cov:{name}[{unit}]", "species": None, "measure": None,
+                    "n": None, "label": f"{name} [{unit}]", "hint": "", "whole": False, "rule": None})
+    return out
+
+
+def phone_sheet_data(context: FieldSheetContext, targets: Sequence[tuple[str, str] | tuple[str, str, int | None]],
+                     covariates: Sequence[tuple[str, str]] = ()) -> dict[str, Any]:
+    """What the offline phone sheet's script reads: the team-day, the stations in route order with their last
+    visits, one field per column of the entry sheet, and the names it stores and exports under."""
+    fields_ = phone_sheet_fields(targets, covariates)
+    if tuple(f["header"] for f in fields_) != context.value_headers:
+        raise DesignError("the phone sheet's fields do not match the entry sheet's columns")
+    key = ":".join(("monitor-phone-sheet", context.programme, context.team, context.date, context.site))
+    return {
+        "storage_key": key,
+        "export_name": f"entry_{context.date}_{context.team}_{context.site}.csv",
+        "headers": list(context.headers),
+        "date": context.date,
+        "members": list(context.members),
+        "protocol": context.protocol,
+        "statuses": list(C.VISIT_STATUSES),
+        "statuses_with_values": list(C.STATUSES_WITH_VALUES),
+        "fields": fields_,
+        "stations": [asdict(s) for s in context.stations],
+    }
+
+
+def render_phone_sheet(context: FieldSheetContext, targets: Sequence[tuple[str, str] | tuple[str, str, int | None]],
+                       covariates: Sequence[tuple[str, str]] = (), template_dir: str | Path | None = None) -> str:
+    """The offline phone field sheet (``phone_sheet.html``): one self-contained HTML file, no server and no
+    network; entries are checked as typed, kept in the browser's storage, and exported as the entry CSV."""
+    env = template_environment(template_dir)
+    return env.get_template("phone_sheet.html").render(sheet=context,
+                                                       data=phone_sheet_data(context, targets, covariates))
+
+
 def context_field_names() -> set[str]:
     """Names of the context's fields (for checking the template uses nothing else)."""
     return {f.name for f in fields(FieldSheetContext)}
@@ -350,7 +406,10 @@ __all__ = [
     "field_sheet_columns",
     "field_sheet_context",
     "field_sheet_frame",
+    "phone_sheet_data",
+    "phone_sheet_fields",
     "render_field_sheet",
+    "render_phone_sheet",
     "team_day_calendar",
     "team_day_gpx",
     "template_environment",

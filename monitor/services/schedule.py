@@ -613,6 +613,10 @@ def stored_plan(store: Store, programme: M.Programme, year: int) -> S.SeasonPlan
                         params={"crews": {"path_factor": float(plan["path_factor"])}, "routing": plan["routing"]})
 
 
+#: the offline phone field sheet in each team-day's pack
+PHONE_SHEET = "phone_sheet.html"
+
+
 @dataclass
 class PackResult:
     folder: Path
@@ -639,8 +643,9 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
     relocation notes, quadrat size, the last two visits' values, empty boxes and the safety
     caution), ``entry_sheet.csv`` (the blank wide-layout table to key into) and ``entry_sheet.xlsx`` (the
-    same with drop-down lists for status and observers), ``route.gpx``
-    (GPX 1.1 waypoints and route).  In ``folder``: ``season_<year>.ics`` with one event per
+    same with drop-down lists for status and observers), ``route.gpx`` (GPX 1.1 waypoints and route),
+    ``phone_sheet.html`` (the offline sheet for a phone: checks as typed, keeps the work in the browser,
+    exports the entry CSV).  In ``folder``: ``season_<year>.ics`` with one event per
     team-day written.
 
     ``generalise_sensitive`` (default: the programme setting ``field_packs_for_outside_crews``) moves the
@@ -702,6 +707,7 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         entry_workbook(out / "entry_sheet.xlsx", entry.drop(columns=value_columns), statuses=C.VISIT_STATUSES,
                        observers=observer_codes, value_columns=value_columns,
                        title=f"{programme.name}: {td.site}, team {td.team}, {td.date.isoformat()}")
+        (out / PHONE_SHEET).write_text(fieldpack.render_phone_sheet(context, targets, covariates), encoding="utf-8")
         (out / "route.gpx").write_text(fieldpack.team_day_gpx(plan, td.team, td.date, stations,
                                                               crs=programme.crs_epsg), encoding="utf-8")
         written.append({"team": td.team, "date": td.date.isoformat(), "site": td.site, "stations": len(td.stations),
