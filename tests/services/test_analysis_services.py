@@ -7,6 +7,7 @@ are simulation checks of the whole path: files -> importer -> database -> long t
 from __future__ import annotations
 
 import json
+import math
 
 import numpy as np
 import pandas as pd
@@ -31,16 +32,23 @@ def test_every_target_is_fitted_with_its_default_family(trends):
         "HEABEL": "binomial", "SILGRA": "binomial"}
 
 
-def test_intervals_cover_the_built_in_trends(trends):
+def test_estimates_lie_within_three_standard_errors_of_the_built_in_trends(trends):
+    # a z limit rather than "every 95 % interval covers the truth", which five species at once pass only
+    # three draws in four; the demo's truth has good and bad years (truth.json year_sd), so the
+    # estimate is the built-in change plus the slope of the year draws
     for species, fitted in trends.items():
-        ac = fitted.result.annual_change
-        assert ac.lower <= TRUTH[species]["annual_change"] <= ac.upper, species
+        z = (fitted.result.slope - math.log1p(TRUTH[species]["annual_change"])) / fitted.result.slope_se
+        assert abs(z) < 3, (species, z)
 
 
-def test_calls_follow_the_built_in_direction(trends):
-    expected = {s: ("rising" if t["annual_change"] > 0 else "declining" if t["annual_change"] < 0 else "stable")
-                for s, t in TRUTH.items() if not s.startswith("_")}
-    assert {s: t.result.call for s, t in trends.items()} == expected
+def test_calls_never_contradict_the_built_in_direction(trends):
+    # a rising species is never called declining, nor a declining one rising; "unclear" is honest
+    # where the years cannot tell (with good and bad years a flat species is seldom provably stable)
+    for species, fitted in trends.items():
+        change = TRUTH[species]["annual_change"]
+        wrong = {"declining"} if change > 0 else {"rising"} if change < 0 else {"rising", "declining"}
+        assert fitted.result.call not in wrong, (species, fitted.result.call)
+        assert fitted.result.call in ("rising", "declining", "stable", "unclear")
 
 
 def test_species_left_out_where_never_recorded_and_protocol_change_flagged(trends):
