@@ -16,18 +16,38 @@ def _pct(x: float | None) -> str:
     return "" if x is None else f"{100 * x:+.1f}"
 
 
-def trend_rows(trends) -> list[dict]:
+def _sig(x: float | None) -> str:
+    return "" if x is None else f"{x:.3g}"
+
+
+def trend_rows(trends, skipped=()) -> list[dict]:
+    """One row per species: the annual change labelled with what it changes (count, odds, odds of cover),
+    the fitted trend on the measure's own scale (first -> last year, difference with interval), the
+    interval's reference and the call."""
     rows = []
     for t in trends:
         r = t.result
         ac = r.annual_change
+        lc = r.level_change
+        own = diff = ""
+        if lc is not None:
+            own = f"{_sig(lc.first.estimate)} -> {_sig(lc.last.estimate)} {lc.unit}"
+            d = lc.difference
+            diff = f"{d.estimate:+.3g} ({d.lower:+.3g} to {d.upper:+.3g})"
         rows.append({
-            "species": t.species, "measure": t.measure, "family": r.family, "stations": r.n_stations,
-            "years": f"{r.years[0]}-{r.years[1]}",
+            "species": t.species, "measure": t.measure, "model": r.model_label, "stations": r.n_stations,
+            "years": f"{r.years[0]}-{r.years[1]}", "year effect": r.year_random,
+            "change of": r.change_scale,
             "annual change %": f"{_pct(ac.estimate)} ({_pct(ac.lower)} to {_pct(ac.upper)})",
             "over period %": f"{_pct(r.period_change.estimate)}",
-            "call": r.call,
+            "fitted, first -> last": own, "difference (95% CI)": diff,
+            "interval": r.interval_label, "call": r.call,
         })
+    for s in skipped:
+        rows.append({"species": s["species"], "measure": s["measure"], "model": "", "stations": "", "years": "",
+                     "year effect": "", "change of": "", "annual change %": "", "over period %": "",
+                     "fitted, first -> last": "", "difference (95% CI)": "", "interval": "",
+                     "call": f"not fitted: {s['reason']}"})
     return rows
 
 
@@ -39,7 +59,19 @@ def trend_rows(trends) -> list[dict]:
 @click.option("--family", type=click.Choice(["poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal"]),
               default=None, help="Model family (default by measure: counts poisson-lognormal, k of n binomial, "
                                  "cover logit-normal).")
-@click.option("--observer-effect", is_flag=True, help="Add a random intercept for observer (crossed with station).")
+@click.option("--year-effect", "year_effect", type=click.Choice(["iid", "ar1"]), default=None,
+              help="Form of the random year effect shared by all stations: independent years (iid) or an "
+                   "order-1 autoregression, consecutive years alike (ar1). Default: iid from 5 years with data.")
+@click.option("--no-year-effect", "no_year_effect", is_flag=True,
+              help="Leave out the random year effect (intervals then ignore good and bad years shared by the "
+                   "stations, and are too narrow when there are such years).")
+@click.option("--site-year", "site_year", is_flag=True,
+              help="Add a random site-by-year effect (sites fluctuating apart from each other).")
+@click.option("--observation-effect/--no-observation-effect", "observation_effect", default=None,
+              help="k-of-n data: a visit-level effect for extra variation (default: added when the data are "
+                   "overdispersed).")
+@click.option("--observer-effect", is_flag=True, help="Add a random intercept for observer (crossed with station); "
+                                                      "visits with no observer form a level of their own.")
 @click.option("--table", "table", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
               help="Fit a long table from elsewhere (station, year, optional site, and count / cover_pct / "
                    "occupied+cells / hits+pins / present) instead of the database.")
@@ -48,15 +80,21 @@ def trend_rows(trends) -> list[dict]:
 @format_option
 @xlsx_option
 @click.pass_obj
-def trend_command(ctx: Context, species, sites, first_year, last_year, family, observer_effect, table, margin,
-                  as_json: bool, as_csv: bool, xlsx: Path | None) -> None:
+def trend_command(ctx: Context, species, sites, first_year, last_year, family, year_effect, no_year_effect, site_year,
+                  observation_effect, observer_effect, table, margin, as_json: bool, as_csv: bool,
+                  xlsx: Path | None) -> None:
     """Fit mixed models across years: annual change with 95% intervals and the call for each species."""
     from monitor.services import trend
 
+    if no_year_effect and year_effect:
+        raise click.UsageError("--no-year-effect and --year-effect exclude each other")
+    choices = trend.ModelChoices(family=family, year_random="none" if no_year_effect else year_effect,
+                                 site_by_year=site_year, observer_effect=observer_effect,
+                                 observation_effect=observation_effect)
     fmt = chosen_format(as_json, as_csv)
+    skipped: list[dict] = []
     if table is not None:
-        trends = [trend.fit_table(table, family=family, margin=change_margin(margin),
-                                  observer_effect=observer_effect)]
+        trends = [trend.fit_table(table, margin=change_margin(margin), choices=choices)]
     else:
         with progress(1, "fitting") as bar:
             def tick(i: int, n: int, _name: str) -> None:
@@ -65,14 +103,16 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, o
 
             trends = trend.fit_programme(ctx.db, programme_code=ctx.programme, species=list(species) or None,
                                          sites=list(sites) or None, first_year=first_year, last_year=last_year,
-                                         family=family, observer_effect=observer_effect, progress=tick)
+                                         choices=choices, skipped=skipped, progress=tick)
+    for s in skipped:
+        say(f"{s['species']} ({s['measure']}): not fitted: {s['reason']}")
     write_workbook(xlsx, {"trends": trend_number_rows(trends)})
     if fmt == "json":
-        emit([t.to_dict() for t in trends], fmt)
+        emit([t.to_dict() for t in trends] + [{**s, "call": None} for s in skipped], fmt)
     elif fmt == "csv":  # numbers in columns of their own, for spreadsheets
         emit(trend_number_rows(trends), fmt)
     else:
-        emit(trend_rows(trends), fmt)
+        emit(trend_rows(trends, skipped), fmt)
 
 
 @cli.command("estimate")

@@ -32,8 +32,27 @@ def trend_number_rows(trends) -> pd.DataFrame:
             "period_change_pct": _pct(pc.estimate), "period_change_lower_pct": _pct(pc.lower),
             "period_change_upper_pct": _pct(pc.upper),
             "margin_pct": _pct(r.margin), "call": r.call,
+            # what the annual change is a change of (count, odds, odds of cover), the model's year effect
+            # and the interval's reference (t df; blank for a normal reference)
+            "change_of": getattr(r, "change_scale", None), "year_effect": getattr(r, "year_random", None),
+            "interval_df": _finite(getattr(r, "slope_df", None)),
+            **_level_columns(getattr(r, "level_change", None)),
         })
     return pd.DataFrame(rows)
+
+
+def _finite(x):
+    return None if x is None or not math.isfinite(float(x)) else float(x)
+
+
+def _level_columns(lc) -> dict:
+    """The fitted trend on the measure's own scale, first and last year, and their difference."""
+    if lc is None:
+        return {"unit": None, "fitted_first": None, "fitted_last": None, "difference": None,
+                "difference_lower": None, "difference_upper": None}
+    return {"unit": lc.unit, "fitted_first": _finite(lc.first.estimate), "fitted_last": _finite(lc.last.estimate),
+            "difference": _finite(lc.difference.estimate), "difference_lower": _finite(lc.difference.lower),
+            "difference_upper": _finite(lc.difference.upper)}
 
 
 def xlsx_option(func):

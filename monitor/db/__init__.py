@@ -7,6 +7,6 @@ get the session type, ``select`` and ``insert`` from here.
 from sqlalchemy import insert
 from sqlmodel import Session, select
 
-from monitor.db.store import Store
+from monitor.db.store import Store, one_snapshot, read_snapshot
 
-__all__ = ["Session", "Store", "insert", "select"]
+__all__ = ["Session", "Store", "insert", "one_snapshot", "read_snapshot", "select"]

@@ -13,7 +13,7 @@ from pathlib import Path
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.estimate import (
     compare_seasons,
@@ -43,6 +43,7 @@ def _targets(store: Store, programme_id: int, species: list[str] | None) -> pd.D
     return targets
 
 
+@one_snapshot
 def season_table(db: str | None, year: int, *, programme_code: str | None = None, species: list[str] | None = None,
                  sites: list[str] | None = None, precision: float = 0.2, confidence: float = 0.95) -> pd.DataFrame:
     """One row per site, species and measure for the season: estimate with interval, totals for counts."""
@@ -90,6 +91,7 @@ def _values_in_visit_order(values: pd.DataFrame) -> pd.Series:
     return values.sort_values([C.DATE, C.STATION])["value"].astype(float)
 
 
+@one_snapshot
 def sample_adequacy(db: str | None, species: str, year: int, site: str, *, programme_code: str | None = None,
                     precision: float = 0.2, confidence: float = 0.95, figure: Path | None = None) -> AdequacyReport:
     """How many quadrats would estimate the site's mean count within +/- precision, and the running mean."""
@@ -109,6 +111,7 @@ def sample_adequacy(db: str | None, species: str, year: int, site: str, *, progr
         store.dispose()
 
 
+@one_snapshot
 def gradient(db: str | None, species: str, *, programme_code: str | None = None, transect: str | None = None,
              covariate: str | None = None, years: list[int] | None = None, family: str = "auto",
              figure: Path | None = None):
@@ -145,6 +148,7 @@ def gradient(db: str | None, species: str, *, programme_code: str | None = None,
         store.dispose()
 
 
+@one_snapshot
 def two_seasons(db: str | None, species: str, first: int, second: int, *, programme_code: str | None = None,
                 site: str | None = None, figure: Path | None = None):
     """Change in the mean between two seasons at the permanent quadrats: paired beside unpaired."""

@@ -16,7 +16,7 @@ from pathlib import Path
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, InputError
 from monitor.io import headers as H
 from monitor.io.dwca import ProgrammeMetadata, write_dwca
@@ -35,6 +35,7 @@ def _records(store: Store, programme_id: int) -> tuple[pd.DataFrame, pd.DataFram
     return visits, observations, covariates
 
 
+@one_snapshot
 def export_csv(db: str | None, folder: Path, *, programme_code: str | None = None) -> dict[str, Path]:
     """Write tidy ``visits.csv``, ``observations.csv`` and ``covariates.csv`` into ``folder``."""
     store = Store.open(db)
@@ -85,6 +86,7 @@ def generalised_positions(store: Store, programme_id: int, stations: pd.DataFram
     return out
 
 
+@one_snapshot
 def export_geojson(db: str | None, path: Path, *, programme_code: str | None = None,
                    generalise_m: float = GENERALISE_M) -> tuple[Path, int]:
     """Write the programme's stations as an RFC 7946 FeatureCollection (WGS84 longitude, latitude).
@@ -152,6 +154,7 @@ def programme_metadata(programme) -> ProgrammeMetadata:
     )
 
 
+@one_snapshot
 def export_dwca(db: str | None, path: Path, *, programme_code: str | None = None,
                 generalise_m: float = GENERALISE_M) -> Path:
     """Write a Darwin Core Archive of sampling events (see :mod:`monitor.io.dwca` for the standard followed)."""

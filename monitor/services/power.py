@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DesignError, EstimationError, InputError, InputProblem
 from monitor.power import (
     Design,
@@ -84,9 +84,12 @@ class PowerStudy:
                 "figure": None if self.figure is None else str(self.figure)}
 
 
+@one_snapshot
 def components_for(db: str | None, species: str, *, programme_code: str | None = None) -> tuple[VarianceComponents, str]:
     """The population model of a stored species: its fitted trend, and its grid or frame from the programme."""
     fitted = trend.fit_programme(db, programme_code=programme_code, species=[species], keep_data=True)
+    if not fitted and getattr(fitted, "not_called", None):
+        raise EstimationError(fitted.not_called[0].line())
     if len(fitted) != 1:
         raise InputError(InputProblem("--species", None, None, species, "one target species and measure"))
     t = fitted[0]

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 from typing import Any
 
-from monitor.db import Store, queries
+from monitor.db import Store, one_snapshot, queries
 
 
+@one_snapshot
 def programme_summary(db: str | None, programme_code: str | None = None) -> dict[str, Any]:
     store = Store.open(db)
     try:

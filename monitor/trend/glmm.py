@@ -114,6 +114,7 @@ class Term:
     z: np.ndarray | None = None  # None means 1 (an intercept)
     structure: str = "iid"
     kind: str = ""
+    group_size: int | None = None  # site-by-year: levels are site * group_size + year (see year_terms)
 
     def __post_init__(self):
         if self.structure not in TERM_STRUCTURES:
@@ -153,9 +154,12 @@ def year_terms(year_index: np.ndarray, n_years: int, structure: str = "iid",
     year_index = np.asarray(year_index, dtype=np.int64)
     terms = [Term("year", year_index, int(n_years), structure=structure, kind="year")]
     if site is not None:
-        cell = np.asarray(site, dtype=np.int64) * int(n_years) + year_index
-        _, code = np.unique(cell, return_inverse=True)
-        terms.append(Term("site_year", code.astype(np.int64), int(code.max()) + 1, kind="site_year"))
+        # the full site x year grid, site-major (cells without data are levels without
+        # observations), so that the engine can eliminate it site by site
+        site = np.asarray(site, dtype=np.int64)
+        n_sites = int(site.max()) + 1
+        terms.append(Term("site_year", site * int(n_years) + year_index, n_sites * int(n_years), kind="site_year",
+                          group_size=int(n_years)))
     return terms
 
 
@@ -315,13 +319,17 @@ class _DenseDesign:
 
     def station_cross(self, wt):
         """S' diag(wt) F: station-by-column sums, dense n_station x m."""
-        C = np.empty((self.n_st, self.m))
+        return self.cross(self.st, self.n_st, wt)
+
+    def cross(self, index, n_levels, wt):
+        """Level-by-column sums of wt * F for a grouping ``index`` with n_levels levels."""
+        C = np.empty((n_levels, self.m))
         for a in range(len(self.idx)):
             C[:, self.off[a]:self.off[a + 1]] = np.bincount(
-                self.st * self.nl[a] + self.idx[a], weights=wt * self.z[a],
-                minlength=self.n_st * self.nl[a]).reshape(self.n_st, self.nl[a])
+                index * self.nl[a] + self.idx[a], weights=wt * self.z[a],
+                minlength=n_levels * self.nl[a]).reshape(n_levels, self.nl[a])
         if self.p:
-            C[:, self.m_re:] = _bincount_cols(self.st, self.n_st, wt, self.XT)
+            C[:, self.m_re:] = _bincount_cols(index, n_levels, wt, self.XT)
         return C
 
 
@@ -373,7 +381,7 @@ class _Factor:
     """Block-eliminated factorisation of the Newton matrix (see module notes)."""
 
     __slots__ = ("d", "wt", "A", "C", "L", "m", "m_re", "logdet_u", "logdet_beta", "s_o", "s_st", "w",
-                 "D", "ok")
+                 "D", "ok", "s_c", "E", "T", "Scv")
 
 
 class LaplaceEngine:
@@ -391,12 +399,18 @@ class LaplaceEngine:
         self.X = np.asarray(spec.X, dtype=float)
         self.XT = np.ascontiguousarray(self.X.T)
         self.p = self.X.shape[1]
-        # the dense-block random terms: level index and value of each observation
-        self.t_idx = [np.asarray(t.index, dtype=np.int64) for t in spec.terms]
-        self.t_z = [np.ones(n) if t.z is None else np.asarray(t.z, float) for t in spec.terms]
-        self.t_nl = [int(t.n_levels) for t in spec.terms]
+        # a site-by-year term is eliminated site by site after the stations (see _cell_setup);
+        # the other random terms go to the dense block: level index and value of each observation
+        self.cell = self._cell_setup(spec)
+        self._dense = [a for a in range(len(spec.terms)) if a != self.cell]
+        self._dense_pos = {a: k for k, a in enumerate(self._dense)}
+        terms = [spec.terms[a] for a in self._dense]
+        self.t_idx = [np.asarray(t.index, dtype=np.int64) for t in terms]
+        self.t_z = [np.ones(n) if t.z is None else np.asarray(t.z, float) for t in terms]
+        self.t_nl = [int(t.n_levels) for t in terms]
         self.m_re = int(sum(self.t_nl))
         self._off = np.r_[0, np.cumsum(self.t_nl)].astype(int)
+        self.u_c = np.zeros(self.n_cell) if self.cell is not None else None
         self.n_sd = len(spec.sd_names())
         self.ar1 = [a for a, t in enumerate(spec.terms) if t.structure == "ar1"]
         self.n_rho = len(self.ar1)
@@ -412,6 +426,36 @@ class LaplaceEngine:
         self.pirls_failures = 0
         self.last_factor: _Factor | None = None
         self.last_eta: np.ndarray | None = None
+
+    def _cell_setup(self, spec: GlmmSpec):
+        """Find a site-by-year term that can be eliminated site by site.
+
+        Its levels must be laid out site-major on a full site x year grid (``year_terms``
+        does so: level = site * K + year, K years) and every station must lie in one site.
+        Then the Newton matrix's cell block, after the stations are eliminated, is
+        block-diagonal with one K x K block per site, and costs O(n_sites K^3) instead of
+        a dense (n_sites K)^3.  Returns the term's position, or None (the term then stays
+        in the dense block, which is exact but slow for many cells).
+        """
+        self.n_cell = 0
+        for a, t in enumerate(spec.terms):
+            if t.kind != "site_year" or t.structure != "iid" or t.z is not None or t.group_size is None:
+                continue
+            K = int(t.group_size)
+            cell = np.asarray(t.index, dtype=np.int64)
+            grp = cell // K
+            st_grp = np.full(self.n_st, -1, dtype=np.int64)
+            st_grp[self.st] = grp
+            if not np.array_equal(st_grp[self.st], grp):
+                return None  # a station in two sites: not nested
+            st_grp[st_grp < 0] = 0
+            self.n_cell, self.K, self.n_grp = int(t.n_levels), K, int(t.n_levels) // K
+            self.cell_idx, self.cell_pos, self.st_grp = cell, cell % K, st_grp
+            # station-to-site indicator (sums over a site's stations by BLAS, the fastest way here)
+            self.st_P = np.zeros((self.n_st, self.n_grp))
+            self.st_P[np.arange(self.n_st), st_grp] = 1.0
+            return a
+        return None
 
     # ------------------------------------------------------------------ parameters
     def unpack(self, phi: np.ndarray) -> tuple[float, np.ndarray, float]:
@@ -447,7 +491,8 @@ class LaplaceEngine:
         """P v: the prior precision of the spherical dense-block effects times v (identity for iid)."""
         out = v_re.copy()
         for a in self.ar1:
-            o0, o1 = self._off[a], self._off[a + 1]
+            k = self._dense_pos[a]
+            o0, o1 = self._off[k], self._off[k + 1]
             out[o0:o1] = _ar1_precision_mv(v_re[o0:o1], self.rho[a])
         return out
 
@@ -457,7 +502,7 @@ class LaplaceEngine:
         M[r, r] += 1.0
         neg_logdet = 0.0
         for a in self.ar1:
-            o0, o1 = self._off[a], self._off[a + 1]
+            o0, o1 = self._off[self._dense_pos[a]], self._off[self._dense_pos[a] + 1]
             rho, k = self.rho[a], o1 - o0
             c = 1.0 / (1.0 - rho * rho)
             d = np.full(k, (1.0 + rho * rho) * c)
@@ -474,8 +519,10 @@ class LaplaceEngine:
 
     # ------------------------------------------------------------------ linear algebra
     def _design(self, s_terms, full: bool) -> _DenseDesign:
-        return _DenseDesign(self.t_idx, self.t_z, self.t_nl, s_terms, self.X if full else None,
-                            self.st, self.n_st, self.XT)
+        D = _DenseDesign(self.t_idx, self.t_z, self.t_nl, [s_terms[a] for a in self._dense],
+                         self.X if full else None, self.st, self.n_st, self.XT)
+        D.s_c = float(s_terms[self.cell]) if self.cell is not None else 0.0
+        return D
 
     def _factor(self, w, s_st, s_o, D: _DenseDesign) -> _Factor:
         f = _Factor()
@@ -486,13 +533,36 @@ class LaplaceEngine:
         f.A = 1.0 + s_st * s_st * np.bincount(self.st, weights=f.wt, minlength=self.n_st)
         logdet = float(np.sum(np.log(f.d)) + np.sum(np.log(f.A)))
         f.ok = True
+        f.s_c = D.s_c
+        M = D.gram(f.wt) if m else None
+        C = D.station_cross(f.wt) * s_st if m else None
+        if self.cell is not None:
+            # cells (site x year): E = station-by-cell block (each station meets the K cells of
+            # its own site), T = cell block after the stations are eliminated (K x K per site),
+            # Scv = cell-by-dense block after the stations are eliminated
+            G, K, s_c = self.n_grp, self.K, f.s_c
+            cw = np.bincount(self.cell_idx, weights=f.wt, minlength=self.n_cell)
+            f.E = np.bincount(self.st * K + self.cell_pos, weights=f.wt,
+                              minlength=self.n_st * K).reshape(self.n_st, K) * (s_st * s_c)
+            W = f.E / np.sqrt(f.A)[:, None]
+            outer = (W[:, :, None] * W[:, None, :]).reshape(self.n_st, K * K)
+            T = -(self.st_P.T @ outer).reshape(G, K, K)
+            T[:, np.arange(K), np.arange(K)] += (1.0 + s_c * s_c * cw).reshape(G, K)
+            f.T = T
+            logdet += float(np.sum(np.linalg.slogdet(T)[1]))
+            if m:
+                Gc = D.cross(self.cell_idx, self.n_cell, f.wt) * s_c
+                EA = (f.E / f.A[:, None])
+                f.Scv = Gc.reshape(G, K, m) - (
+                    self.st_P.T @ (EA[:, :, None] * C[:, None, :]).reshape(self.n_st, K * m)).reshape(G, K, m)
         if m:
-            M = D.gram(f.wt)
-            C = D.station_cross(f.wt) * s_st
             f.C = C
             if s_st > 0:
                 # dense product by BLAS (single-threaded in CI): 5-10x faster than einsum here
                 M -= (C / f.A[:, None]).T @ C
+            if self.cell is not None:
+                Z = np.linalg.solve(f.T, f.Scv)
+                M -= f.Scv.reshape(-1, m).T @ Z.reshape(-1, m)
             logdet += self._prior_add(M)
             f.L, info = _potrf(M)
             if info != 0:
@@ -512,29 +582,53 @@ class LaplaceEngine:
             f.logdet_beta = 0.0
         return f
 
-    def _solve(self, f: _Factor, r_o, r_st, r_v):
+    def _solve(self, f: _Factor, r_o, r_st, r_v, r_c=None):
         r_st = r_st.copy()
         r_v = r_v.copy()
+        cells = self.cell is not None
+        if cells:
+            r_c = r_c.copy()
         if f.s_o > 0:
             q = f.s_o * f.w * r_o / f.d
             r_st -= f.s_st * np.bincount(self.st, weights=q, minlength=self.n_st)
             if f.m:
                 r_v -= f.D.rmatvec(q)
+            if cells:
+                r_c -= f.s_c * np.bincount(self.cell_idx, weights=q, minlength=self.n_cell)
+        x_c = None
+        if cells:
+            # stations out of the cell rows, then cells out of the dense rows (site by site)
+            G, K = self.n_grp, self.K
+            rA = r_st / f.A
+            r_c -= (self.st_P.T @ (f.E * rA[:, None])).ravel()
+            r_cg = r_c.reshape(G, K)
         if f.m:
             if f.s_st > 0:
                 r_v -= np.einsum("ij,i->j", f.C, r_st / f.A)
+            if cells:
+                r_v -= np.einsum("gkm,gk->m", f.Scv, np.linalg.solve(f.T, r_cg[:, :, None])[:, :, 0])
             y = _potrs(f.L, r_v)
-            x_st = (r_st - _xv(f.C, y)) / f.A
+            if cells:
+                x_c = np.linalg.solve(f.T, (r_cg - np.einsum("gkm,m->gk", f.Scv, y))[:, :, None])[:, :, 0]
+            x_st = r_st - _xv(f.C, y)
         else:
             y = r_v
-            x_st = r_st / f.A
+            if cells:
+                x_c = np.linalg.solve(f.T, r_cg[:, :, None])[:, :, 0]
+            x_st = r_st.copy()
+        if cells:
+            x_st -= np.einsum("jk,jk->j", f.E, x_c[self.st_grp])
+            x_c = x_c.ravel()
+        x_st /= f.A
         x_o = None
         if f.s_o > 0:
             a = f.s_st * x_st[self.st]
             if f.m:
                 a = a + f.D.matvec(y)
+            if cells:
+                a = a + f.s_c * x_c[self.cell_idx]
             x_o = (r_o - f.s_o * f.w * a) / f.d
-        return x_o, x_st, y
+        return x_o, x_st, y, x_c
 
     # ------------------------------------------------------------------ PIRLS
     def pirls(self, phi, beta=None, tol=1e-11, max_iter=60):
@@ -545,6 +639,8 @@ class LaplaceEngine:
         s_st, s_terms, s_o = self.unpack(phi)
         full = beta is None
         D = self._design(s_terms, full)
+        s_c = D.s_c
+        cells = self.cell is not None
         base = self.offset.copy()
         if not full:
             for k in range(self.p):
@@ -552,32 +648,38 @@ class LaplaceEngine:
         u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
         v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
         u_o = self.u_o.copy() if s_o > 0 else None
+        u_c = self.u_c.copy() if cells else None
 
-        def eta_of(u_st, v, u_o):
+        def eta_of(u_st, v, u_o, u_c):
             e = base + s_st * u_st[self.st]
             if v.size:
                 e = e + D.matvec(v)
             if u_o is not None:
                 e = e + s_o * u_o
+            if u_c is not None:
+                e = e + s_c * u_c[self.cell_idx]
             return e
 
-        def h_of(eta, u_st, v, u_o):
+        def h_of(eta, u_st, v, u_o, u_c):
             pen = _dot(u_st, u_st) + _dot(v[:self.m_re], self._prior_mv(v[:self.m_re]))
             if u_o is not None:
                 pen += _dot(u_o, u_o)
+            if u_c is not None:
+                pen += _dot(u_c, u_c)
             return float(np.sum(self.fam.loglik(eta)) - 0.5 * pen)
 
-        eta = eta_of(u_st, v, u_o)
-        h = h_of(eta, u_st, v, u_o)
+        eta = eta_of(u_st, v, u_o, u_c)
+        h = h_of(eta, u_st, v, u_o, u_c)
         # a warm start made for other variance values can be far off: compare with u = 0
         z_st = np.zeros_like(u_st)
         z_v = v.copy()
         z_v[:self.m_re] = 0
         z_o = None if u_o is None else np.zeros_like(u_o)
-        z_eta = eta_of(z_st, z_v, z_o)
-        z_h = h_of(z_eta, z_st, z_v, z_o)
+        z_c = None if u_c is None else np.zeros_like(u_c)
+        z_eta = eta_of(z_st, z_v, z_o, z_c)
+        z_h = h_of(z_eta, z_st, z_v, z_o, z_c)
         if not np.isfinite(h) or z_h > h:
-            u_st, v, u_o, eta, h = z_st, z_v, z_o, z_eta, z_h
+            u_st, v, u_o, u_c, eta, h = z_st, z_v, z_o, z_c, z_eta, z_h
         converged = False
         for _ in range(max_iter):
             d1, w = self.fam.derivs(eta)
@@ -586,8 +688,10 @@ class LaplaceEngine:
             g_v = D.rmatvec(d1) if v.size else np.zeros(0)
             g_v[:self.m_re] -= self._prior_mv(v[:self.m_re])
             g_o = s_o * d1 - u_o if u_o is not None else None
-            x_o, x_st, x_v = self._solve(f, g_o, g_st, g_v)
-            decrement = _dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
+            g_c = s_c * np.bincount(self.cell_idx, weights=d1, minlength=self.n_cell) - u_c if cells else None
+            x_o, x_st, x_v, x_c = self._solve(f, g_o, g_st, g_v, g_c)
+            decrement = (_dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
+                         + (_dot(g_c, x_c) if cells else 0.0))
             if decrement < 1e-7:
                 # close enough for Newton's quadratic convergence: take this last full step
                 # and factor at the new point, so that the log-determinant (which is first
@@ -595,8 +699,9 @@ class LaplaceEngine:
                 u_st = u_st + x_st
                 v = v + x_v
                 u_o = u_o + x_o if u_o is not None else None
-                eta = eta_of(u_st, v, u_o)
-                h = h_of(eta, u_st, v, u_o)
+                u_c = u_c + x_c if cells else None
+                eta = eta_of(u_st, v, u_o, u_c)
+                h = h_of(eta, u_st, v, u_o, u_c)
                 d1, w = self.fam.derivs(eta)
                 f = self._factor(w, s_st, s_o, D)
                 converged = True
@@ -606,14 +711,15 @@ class LaplaceEngine:
                 n_st_ = u_st + step * x_st
                 n_v = v + step * x_v
                 n_o = u_o + step * x_o if u_o is not None else None
-                n_eta = eta_of(n_st_, n_v, n_o)
-                n_h = h_of(n_eta, n_st_, n_v, n_o)
+                n_c = u_c + step * x_c if cells else None
+                n_eta = eta_of(n_st_, n_v, n_o, n_c)
+                n_h = h_of(n_eta, n_st_, n_v, n_o, n_c)
                 if np.isfinite(n_h) and n_h >= h - 1e-12 * max(1.0, abs(h)):
                     break
                 step *= 0.5
             else:
                 break
-            u_st, v, u_o, eta, h = n_st_, n_v, n_o, n_eta, n_h
+            u_st, v, u_o, u_c, eta, h = n_st_, n_v, n_o, n_c, n_eta, n_h
         else:
             d1, w = self.fam.derivs(eta)
             f = self._factor(w, s_st, s_o, D)
@@ -622,6 +728,8 @@ class LaplaceEngine:
         # save warm start
         if s_st > 0:
             self.u_st = u_st
+        if cells:
+            self.u_c = u_c
         if full:
             self.u_re, self.beta = v[:self.m_re].copy(), v[self.m_re:].copy()
         else:

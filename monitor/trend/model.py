@@ -3,26 +3,56 @@ r"""Trend models for permanent-quadrat monitoring: TrendModel -> TrendResult.
 Models (i = a visit of station j in site s in year y; t = y - c, c the mid-point of the
 first and last year with data):
 
-count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s
-count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + e_i,  e_i ~ N(0, sd_obs^2)
-count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s
+count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s + w_y
+count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + w_y + e_i,  e_i ~ N(0, sd_obs^2)
+count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s + w_y
 frequency / pin_hits / presence, "binomial"
-                            k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s
-cover, "logit-normal"       z_i = log((p_i + eps) / (1 - p_i + eps)) = b0 + b1 t + u_j + v_s + e_i,
+                            k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s + w_y (+ e_i)
+cover, "logit-normal"       z_i = logit(p_i) = b0 + b1 t + u_j + v_s + w_y + e_i,
                             p_i = cover_i / 100, e_i ~ N(0, sigma^2)   (linear mixed model, ML or REML)
 
-with u_j ~ N(0, sd_station^2), v_s ~ N(0, sd_site^2) (site optional); optionally an observer
-intercept crossed with station, a random year slope by site (uncorrelated with the site
-intercept: lme4's (t || site)), extra fixed covariates; year as a factor (yearly indices
-relative to a base year) instead of b1 t.
+with u_j ~ N(0, sd_station^2), v_s ~ N(0, sd_site^2) (site optional) and w_y the year
+effect: the fluctuation of a year shared by every station (weather), N(0, sd_year^2)
+independently ("iid") or a stationary order-1 autoregression over calendar years ("ar1").
+Optionally a site-by-year effect (sites fluctuate apart), an observer intercept crossed
+with station, a random year slope by site (lme4's (t || site)), extra fixed covariates;
+year as a factor (yearly estimates) instead of b1 t.
 
-The trend: annual change exp(b1) - 1 [fraction per year]; for cover that is the change
-in the (adjusted) odds of cover per year, and it is stated as such.
+The year effect (Piepho & Ogutu 2002; Urquhart, Paulsen & Larsen 1998).  Station-years of
+one year are not independent: the information about a trend comes from the number of
+years.  Rule: the year effect is in the model by default when the series has at least
+YEAR_EFFECT_MIN_YEARS (5, monitor.trend.glmm) years with data, the fewest with which a call is made at all
+(a year SD from fewer years is barely estimable; shorter series are called "unclear"
+anyway).  With a year effect the slope's interval, its profile interval and the call use
+a t reference with the between-year (containment) df of the engine
+(monitor.trend.glmm.coefficient_df: n_years - 2 for a straight-line trend); without it a
+normal reference.  The result says which (``inference``).
 
-Cover adjustment (0 and 100 %): eps defaults to the smallest non-zero value of p and
-1 - p in the data (Warton & Hui 2011, their recommendation for the empirical logit);
-give ``cover_adjust`` (in percent) to fix it instead.  The log-likelihood of the cover
-model is that of the transformed response z.
+Observation-level effect for k-of-n data (frequency, pin hits): binomial with a normal
+observation effect, as glmer with (1 | obs) (Harrison 2015).  By default it is added when
+the plain binomial fit shows overdispersion (Pearson chi2 / df above
+OVERDISPERSION_RATIO with a chi-squared test p < OVERDISPERSION_P); presence (n = 1)
+cannot carry one.
+
+Cover transform: the plain logit z = log(p / (1 - p)) (the log odds of cover) when every
+value lies strictly between 0 and 100 %; only when some are 0 or 100 % the adjusted logit
+z = log((p + e) / (1 - p + e)) with e the smallest non-zero value of p and 1 - p
+(Warton & Hui 2011); ``cover_adjust`` (percent) fixes e.  The result states the transform.
+
+The trend: annual change exp(b1) - 1 [fraction per year]; for k-of-n data and cover that
+is the change in the odds, and it is labelled so (``change_scale``).  The same trend on
+the measure's own scale: ``trend_line`` (mean count per m^2 or per quadrat, % cover,
+% of cells, pins or stations) and ``level_change`` (first year against last year of the
+fitted line, difference and ratio with delta-method intervals).  Yearly estimates come
+from the year-as-factor model on the same scale (``yearly``), so points and line share
+one baseline; ``indices`` are the same yearly estimates relative to the base year, and
+``fitted_trend`` the line relative to that same base.
+
+Natural scale: the mean over stations and visits (population-averaged), i.e. the inverse
+link averaged over the normal station, site and observation (and cover residual) effects:
+count exp(eta + s^2/2); k of n E[expit(eta + s Z)] (Gauss-Hermite, 40 nodes); cover
+100 (E[(1 + 2e) expit(z + s Z)] - e).  The year, site-by-year, observer and site-slope
+effects are left out: the line is the trend in a typical year, and a point is one year.
 
 Fitting: maximum likelihood by the Laplace approximation (or adaptive Gauss-Hermite
 quadrature) with our own engine, monitor.trend.glmm.
@@ -33,8 +63,13 @@ Bates, D., Maechler, M., Bolker, B. & Walker, S. (2015) J. Stat. Softw. 67(1), 1
 Bolker, B. M. et al. (2009) Generalized linear mixed models: a practical guide for
   ecology and evolution. Trends Ecol. Evol. 24(3), 127-135.
 Dixon, P. M. & Pechmann, J. H. K. (2005) Ecology 86(7), 1751-1756.
-Harrison, X. A. (2014) Using observation-level random effects to model overdispersion in
-  count data in ecology and evolution. PeerJ 2:e616.
+Harrison, X. A. (2015) A comparison of observation-level random effect and beta-binomial
+  models for modelling overdispersion in binomial data in ecology and evolution.
+  PeerJ 3:e1114.
+Piepho, H.-P. & Ogutu, J. O. (2002) A simple mixed model for trend analysis in wildlife
+  populations. JABES 7(3), 350-360.
+Urquhart, N. S., Paulsen, S. G. & Larsen, D. P. (1998) Monitoring for policy-relevant
+  regional trends over time. Ecol. Appl. 8(2), 246-257.
 Venzon, D. J. & Moolgavkar, S. H. (1988) A method for computing profile-likelihood-based
   confidence intervals. Applied Statistics 37(1), 87-94.
 Warton, D. I. & Hui, F. K. C. (2011) The arcsine is asinine: the analysis of proportions
@@ -48,14 +83,16 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
-from scipy.stats import norm
+from scipy.special import expit
+from scipy.stats import chi2, norm
+from scipy.stats import t as t_dist
 
 from monitor import columns as C
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 
 from .call import DEFAULT_MARGIN, MIN_STATIONS, MIN_YEARS, classify_call
 from .families import Binomial, Gaussian, NegativeBinomial, Poisson
-from .glmm import GlmmFit, GlmmSpec, Term, default_year_effect, fit_glmm, year_terms
+from .glmm import YEAR_EFFECT_MIN_YEARS, GlmmFit, GlmmSpec, Term, default_year_effect, fit_glmm, year_terms
 
 FAMILIES = ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal")
 _FAMILIES_FOR = {
@@ -65,16 +102,36 @@ _FAMILIES_FOR = {
     C.MEASURE_PRESENCE: ("binomial",),
     C.MEASURE_COVER: ("logit-normal",),
 }
+YEAR_RANDOM = ("iid", "ar1", "none")   # the year effect: independent, AR(1) over calendar years, none
 SLOPE = "year"          # name of the slope parameter (per year, link scale)
 INTERCEPT = "(Intercept)"
-OVERDISPERSION_RATIO = 1.5   # common practice threshold for Pearson chi2 / df
+# Overdispersion of k-of-n data, Pearson chi2 / df of the binomial fit: a ratio above 1.2
+# widens a binomial interval by more than 10 % (sqrt(1.2) = 1.095); common practice
+# thresholds lie between 1.2 and 2 (Bolker et al. 2009, box 3: "greater than 1").  The
+# chi-squared test keeps small data sets from firing by chance.
+OVERDISPERSION_RATIO = 1.2
+OVERDISPERSION_P = 0.01
 LOW_COVERAGE_FRACTION = 0.5  # common practice: a year with < half the median stations visited
+NO_OBSERVER = "(not recorded)"   # the observer level of visits whose observer cell is blank
+_GH_X, _GH_W = np.polynomial.hermite_e.hermegauss(40)
+_GH_W = _GH_W / math.sqrt(2 * math.pi)     # E[f(Z)], Z ~ N(0, 1) = sum w_k f(x_k)
+NATURAL_UNIT = {
+    C.MEASURE_COVER: "% cover",
+    C.MEASURE_FREQUENCY: "% of cells occupied",
+    C.MEASURE_PIN_HITS: "% of pins hitting",
+    C.MEASURE_PRESENCE: "% of stations occupied",
+}
+CHANGE_SCALE = {
+    "poisson": "count", "poisson-lognormal": "count", "negbin": "count",
+    "binomial": "odds", "logit-normal": "odds of cover",
+}
 
 
 def default_family(measure: str) -> str:
     """The default response family for a measure.
 
-    count -> "poisson-lognormal"; frequency, pin_hits, presence -> "binomial";
+    count -> "poisson-lognormal"; frequency, pin_hits, presence -> "binomial" (with an
+    observation-level effect where the data are overdispersed, see TrendModel);
     cover -> "logit-normal".
     """
     if measure == C.MEASURE_COUNT:
@@ -98,6 +155,30 @@ class Interval:
         return {"estimate": _num(self.estimate), "lower": _num(self.lower), "upper": _num(self.upper)}
 
 
+@dataclass(frozen=True)
+class LevelChange:
+    """The fitted trend on the measure's own scale, first year against last year.
+
+    ``first`` and ``last`` are the trend line's values (natural scale, ``unit``) with 95 %
+    intervals; ``difference`` is last - first in the same unit (percentage points for a
+    share) and ``ratio`` is last / first - 1 [fraction], both with delta-method intervals
+    on the inference reference of the slope.
+    """
+
+    first_year: int
+    last_year: int
+    unit: str
+    first: Interval
+    last: Interval
+    difference: Interval
+    ratio: Interval
+
+    def to_dict(self) -> dict:
+        return {"first_year": self.first_year, "last_year": self.last_year, "unit": self.unit,
+                "first": self.first.to_dict(), "last": self.last.to_dict(),
+                "difference": self.difference.to_dict(), "ratio": self.ratio.to_dict()}
+
+
 def _num(x):
     if x is None:
         return None
@@ -105,9 +186,23 @@ def _num(x):
     return x if math.isfinite(x) else None
 
 
+def _rows(frame: pd.DataFrame) -> list[dict]:
+    return [{k: (int(v) if k in ("year", "n_stations") else _num(v)) for k, v in r.items()}
+            for r in frame.to_dict("records")]
+
+
 @dataclass(frozen=True, eq=False)
 class TrendResult:
-    """The fitted trend of one species and measure (immutable)."""
+    """The fitted trend of one species and measure (immutable).
+
+    Beside the statsmodels-like ``params``, ``bse``, ``conf_int()``: ``annual_change``
+    (exp(slope) - 1 with its 95 % interval on the reference named by ``inference``),
+    ``change_scale`` (what that change is a change of: "count", "odds", "odds of cover"),
+    ``yearly`` and ``trend_line`` (natural scale, ``natural_unit``), ``level_change``,
+    ``indices`` (yearly estimates relative to ``base_year``), ``fitted_trend`` (the line
+    relative to the same base), ``estimator`` (the engine's label: "joint-mode" is the fast
+    path, not a maximum likelihood estimate) and ``cover_transform``.
+    """
 
     measure: str
     family: str
@@ -141,18 +236,57 @@ class TrendResult:
     year_centre: float = 0.0
     cover_eps: float | None = None
     vcov: pd.DataFrame | None = field(default=None, repr=False)
-    year_random: str = "none"      # the year random effect: "iid", "ar1" or "none"
-    slope_df: float = math.inf     # reference df of the slope's interval (inf: normal)
-    df_method: str = "z"           # how slope_df was chosen (monitor.trend.glmm.coefficient_df)
-    estimator: str = "ml-laplace"  # of the slope: see monitor.trend.glmm.ESTIMATORS ("joint-mode" is not ML)
+    year_random: str = "none"
+    site_by_year: bool = False
+    observation_effect: bool = False
+    rho: dict[str, float] = field(default_factory=dict)
+    slope_df: float = math.inf
+    df_method: str = "z"
+    estimator: str = "ml-laplace"
+    cover_transform: str | None = None
+    change_scale: str = "count"
+    natural_unit: str = ""
+    yearly: pd.DataFrame | None = field(default=None, repr=False)
+    trend_line: pd.DataFrame | None = field(default=None, repr=False)
+    level_change: LevelChange | None = None
+    base_year: int | None = None
+    no_index_years: tuple[int, ...] = ()
+
+    @property
+    def model_label(self) -> str:
+        """The family in words, with the observation-level effect where there is one."""
+        if self.family == "binomial" and self.observation_effect:
+            return "binomial with an observation-level effect"
+        return self.family
+
+    @property
+    def change_label(self) -> str:
+        """What the annual change is a change of, for a table heading or a sentence."""
+        return {"count": "annual change", "odds": "annual change in the odds",
+                "odds of cover": "annual change in the odds of cover"}[self.change_scale]
+
+    @property
+    def interval_label(self) -> str:
+        """The reference of the intervals in words: "t, 10 df" or "normal (z)"."""
+        if math.isfinite(self.slope_df):
+            return f"t, {self.slope_df:g} df"
+        return "normal (z)"
 
     def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
-        """Wald intervals of the fixed effects (link scale): columns lower, upper."""
-        z = norm.ppf(1 - alpha / 2)
-        return pd.DataFrame({"lower": self.params - z * self.bse, "upper": self.params + z * self.bse})
+        """Wald intervals of the fixed effects (link scale): columns lower, upper.
+
+        The slope and intercept use the t reference with ``slope_df`` degrees of freedom
+        when the model has a year effect; the other fixed effects a normal reference.
+        """
+        q = np.full(len(self.params), norm.ppf(1 - alpha / 2))
+        if math.isfinite(self.slope_df):
+            for name in (SLOPE, INTERCEPT):
+                if name in self.params.index:
+                    q[list(self.params.index).index(name)] = t_dist.ppf(1 - alpha / 2, self.slope_df)
+        return pd.DataFrame({"lower": self.params - q * self.bse, "upper": self.params + q * self.bse})
 
     def to_frame(self) -> pd.DataFrame:
-        """Fixed effects as a table: estimate, se, lower, upper (95 % Wald)."""
+        """Fixed effects as a table: estimate, se, lower, upper (95 %, Wald)."""
         ci = self.conf_int()
         return pd.DataFrame({"estimate": self.params, "se": self.bse, "lower": ci["lower"], "upper": ci["upper"]})
 
@@ -161,16 +295,28 @@ class TrendResult:
         return {
             "measure": self.measure,
             "family": self.family,
+            "model": self.model_label,
             "n_obs": int(self.n_obs),
             "n_stations": int(self.n_stations),
             "n_sites": int(self.n_sites),
             "years": [int(self.years[0]), int(self.years[1])],
             "n_years": int(self.n_years),
+            "year_random": self.year_random,
+            "site_by_year": bool(self.site_by_year),
+            "observation_effect": bool(self.observation_effect),
+            "estimator": self.estimator,
+            "df_method": self.df_method,
             "slope": {"estimate": _num(self.slope), "se": _num(self.slope_se)},
+            "slope_df": _num(self.slope_df),
+            "change_scale": self.change_scale,
             "annual_change": self.annual_change.to_dict(),
             "annual_change_profile": None if self.annual_change_profile is None else self.annual_change_profile.to_dict(),
             "period_change": self.period_change.to_dict(),
+            "natural_unit": self.natural_unit,
+            "level_change": None if self.level_change is None else self.level_change.to_dict(),
+            "cover_transform": self.cover_transform,
             "random_sd": {k: _num(v) for k, v in self.random_sd.items()},
+            "ar1_correlation": {k: _num(v) for k, v in self.rho.items()},
             "dispersion": _num(self.dispersion),
             "loglik": _num(self.loglik),
             "aic": _num(self.aic),
@@ -179,34 +325,46 @@ class TrendResult:
             "call_reason": self.call_reason,
             "margin": _num(self.margin),
             "converged": bool(self.converged),
-            "year_random": self.year_random,
-            "slope_df": _num(self.slope_df),
-            "df_method": self.df_method,
-            "estimator": self.estimator,
-            "indices": [{"year": int(r.year), "index": _num(r.index), "lower": _num(r.lower), "upper": _num(r.upper)}
-                        for r in self.indices.itertuples(index=False)],
+            "base_year": None if self.base_year is None else int(self.base_year),
+            "indices": _rows(self.indices),
+            "fitted_trend": _rows(self.fitted_trend),
+            "yearly": [] if self.yearly is None else _rows(self.yearly),
+            "trend_line": [] if self.trend_line is None else _rows(self.trend_line),
+            "no_index_years": [int(y) for y in self.no_index_years],
             "diagnostics": [{"code": d.code, "message": d.message, "severity": d.severity} for d in self.diagnostics],
         }
 
     def summary(self) -> str:
         """A plain-text summary for people."""
-        what = "change in the odds of cover" if self.family == "logit-normal" else "annual change"
         ac = self.annual_change
         lines = [
-            f"Trend of {self.measure} ({self.family}, {'REML' if self.reml else 'ML'}, {self.method}), "
+            f"Trend of {self.measure} ({self.model_label}, {'REML' if self.reml else 'ML'}, {self.method}), "
             f"{self.years[0]}-{self.years[1]}",
             f"  {self.n_obs} visits, {self.n_stations} stations, {self.n_sites} sites, {self.n_years} years",
-            f"  {what}: {100 * ac.estimate:+.1f} % a year (95 % CI {100 * ac.lower:+.1f} to {100 * ac.upper:+.1f}, Wald)",
+            f"  year effect: {self.year_random}{'; site-by-year effect' if self.site_by_year else ''}; "
+            f"estimator: {self.estimator}; intervals: {self.interval_label}"
+            + ("" if self.df_method == "z" else f" ({self.df_method})"),
+            f"  {self.change_label}: {100 * ac.estimate:+.1f} % a year (95 % CI {100 * ac.lower:+.1f} to "
+            f"{100 * ac.upper:+.1f}, Wald, {self.interval_label})",
         ]
         if self.annual_change_profile is not None:
             p = self.annual_change_profile
             lines.append(f"  profile-likelihood 95 % CI {100 * p.lower:+.1f} to {100 * p.upper:+.1f} % a year")
         pc = self.period_change
         lines.append(f"  over the whole period: {100 * pc.estimate:+.1f} % (95 % CI {100 * pc.lower:+.1f} to "
-                     f"{100 * pc.upper:+.1f})")
+                     f"{100 * pc.upper:+.1f})" + ("" if self.change_scale == "count" else f" in the {self.change_scale}"))
+        lc = self.level_change
+        if lc is not None:
+            lines.append(f"  on the measure's scale ({lc.unit}): {lc.first.estimate:.4g} in {lc.first_year}, "
+                         f"{lc.last.estimate:.4g} in {lc.last_year}; difference {lc.difference.estimate:+.4g} "
+                         f"(95 % CI {lc.difference.lower:+.4g} to {lc.difference.upper:+.4g})")
+        if self.cover_transform:
+            lines.append(f"  cover analysed as {self.cover_transform}")
         lines.append(f"  call: {self.call} (margin ±{100 * self.margin:.1f} % a year). {self.call_reason}")
         sds = ", ".join(f"{k} {v:.3g}" for k, v in self.random_sd.items())
         lines.append(f"  random-effect SDs (link scale): {sds or 'none'}")
+        for k, v in self.rho.items():
+            lines.append(f"  AR(1) correlation of the {k} effect: {v:.3g}")
         if self.dispersion is not None:
             lab = "NB2 size" if self.family == "negbin" else "residual SD"
             lines.append(f"  {lab}: {self.dispersion:.4g}")
@@ -224,35 +382,37 @@ class TrendModel:
     ----------
     data : DataFrame
         Long table, one row per (station, visit) with a value (missing visits absent):
-        ``station``, ``year`` [int], optional ``site``, ``observer``, covariates, and the
-        measure's value columns (monitor.columns.MEASURE_COLUMNS).  An optional ``lineage``
-        column names the first station of a relocation chain: the stations of one chain
-        share one station effect (a moved quadrat continues its series).
+        ``station``, ``year`` [int], optional ``site``, ``observer``, ``quadrat_area_m2``,
+        covariates, and the measure's value columns (monitor.columns.MEASURE_COLUMNS).  An optional
+        ``lineage`` column names the first station of a relocation chain: the stations of one
+        chain share one station effect (a moved quadrat continues its series).
     measure : str
         count, cover, frequency, pin_hits or presence.
     family : str, optional
         One of FAMILIES; default ``default_family(measure)``.
     year_effect : {"linear", "factor"}
-        Year as a continuous covariate (the trend) or as a factor (yearly indices).  The
+        Year as a continuous covariate (the trend) or as a factor (yearly estimates).  The
         slope and the call always come from the linear model; with "factor" the fixed
         effects, log-likelihood and AIC reported are those of the factor model.
+    year_random : {None, "iid", "ar1", "none"}
+        The random year effect of the linear model, crossed with station and site: None
+        (default) is "iid" from YEAR_EFFECT_MIN_YEARS (5) years with data with the Laplace
+        method, else "none"; "ar1" makes consecutive calendar years alike.  Not used in the
+        year-factor model, where the year fixed effects take its place.
+    site_by_year : bool
+        Add a random site-by-year effect (needs 2 or more sites).
     site_effect : bool
         Random site intercept when a ``site`` column with 2 or more sites exists.
     observer_effect : bool
         Random observer intercept, crossed with station (needs an ``observer`` column;
-        a ';'-joined crew is one level).
+        a ';'-joined crew is one level; a blank cell is its own level, NO_OBSERVER, and
+        the result says how many visits have one).
+    observation_effect : bool, optional
+        Binomial only: a normal observation-level effect (glmer's (1 | obs)).  None
+        (default): added for frequency and pin hits when the plain binomial fit is
+        overdispersed (see the module notes), never for presence.
     site_slope : bool
         Random slope of year by site, uncorrelated with the site intercept.
-    year_random : {None, "iid", "ar1", "none"}
-        Random year intercept crossed with station and site (the year-to-year variation
-        that all stations share): independent ("iid") or an order-1 autoregression over
-        consecutive years ("ar1"), or none.  Default (None): "iid" when the series has at
-        least ``YEAR_EFFECT_MIN_YEARS`` (5) years with data and the method is Laplace,
-        else "none".  With a year effect the slope's interval uses a t reference with
-        between-year df (monitor.trend.glmm.coefficient_df).  Not used in the year-factor
-        model, where the year fixed effects take its place.
-    site_by_year : bool
-        Also a random site-by-year intercept (sites fluctuating apart from each other).
     covariates : sequence of str
         Extra fixed-effect columns; non-numeric columns enter as treatment contrasts.
     method : {"laplace", "agq"}
@@ -261,29 +421,34 @@ class TrendModel:
     reml : bool
         Restricted maximum likelihood (logit-normal only).
     cover_adjust : float, optional
-        The cover adjustment eps [percent]; default the smallest non-zero cover and
-        100 - cover in the data (Warton & Hui 2011).
+        The cover adjustment e [percent]; default none when every value lies strictly
+        between 0 and 100 %, else the smallest non-zero cover and 100 - cover in the data
+        (Warton & Hui 2011).
     margin : float
         Change that matters for the call [fraction per year].
     base_year : int, optional
-        Base of the yearly indices (index 1); default the first year with data.
+        Base of the yearly indices (index 1); default the first year with data.  A year in
+        which every value is 0 (or every k = n) cannot be a base: the next year that can
+        is taken and the result says so.
 
     Notes
     -----
-    log E[y] = b0 + b1 (year - c) + u_station + v_site (+ e_obs | + w_observer | + a_site (year - c));
-    see the module docstring for every family.
+    log E[y] = b0 + b1 (year - c) + u_station + v_site + w_year (+ e_obs | + w_observer | + a_site (year - c)
+    | + x_site,year); see the module docstring for every family.
 
     References
     ----------
     Bates, D. et al. (2015) J. Stat. Softw. 67(1), 1-48.
     Bolker, B. M. et al. (2009) Trends Ecol. Evol. 24(3), 127-135.
+    Piepho, H.-P. & Ogutu, J. O. (2002) JABES 7(3), 350-360.
     """
 
     def __init__(self, data: pd.DataFrame, measure: str = "count", family: str | None = None,
                  year_effect: str = "linear", site_effect: bool = True, observer_effect: bool = False,
                  site_slope: bool = False, covariates=(), method: str = "laplace", n_agq: int = 7,
                  reml: bool = False, cover_adjust: float | None = None, margin: float = DEFAULT_MARGIN,
-                 base_year: int | None = None, year_random: str | None = None, site_by_year: bool = False):
+                 base_year: int | None = None, year_random: str | None = None, site_by_year: bool = False,
+                 observation_effect: bool | None = None):
         if measure not in C.MEASURES:
             raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
         family = default_family(measure) if family is None else family
@@ -294,6 +459,8 @@ class TrendModel:
                              f"expected one of {', '.join(_FAMILIES_FOR[measure])}")
         if year_effect not in ("linear", "factor"):
             raise InputError(f"year_effect must be 'linear' or 'factor' (got {year_effect!r})")
+        if year_random is not None and year_random not in YEAR_RANDOM:
+            raise InputError(f"year_random must be one of {', '.join(YEAR_RANDOM)} (got {year_random!r})")
         if method not in ("laplace", "agq"):
             raise InputError(f"method must be 'laplace' or 'agq' (got {method!r})")
         if reml and family != "logit-normal":
@@ -302,45 +469,60 @@ class TrendModel:
             raise InputError(f"margin of change must be a positive fraction per year (got {margin!r})")
         if method == "agq" and not (isinstance(n_agq, (int, np.integer)) and 1 <= n_agq <= 50):
             raise InputError(f"n_agq must be an integer from 1 to 50 (got {n_agq!r})")
+        if observation_effect and family != "binomial":
+            raise InputError("an observation-level effect is set by the family for counts (poisson-lognormal) "
+                             "and by the residual for cover; observation_effect applies to binomial data only")
+        if observation_effect and measure == C.MEASURE_PRESENCE:
+            raise InputError("presence (0 or 1 a visit) cannot carry an observation-level effect")
         self.measure, self.family, self.year_effect = measure, family, year_effect
         self.observer_effect, self.site_slope = bool(observer_effect), bool(site_slope)
         self.covariates = tuple(covariates)
         self.method, self.n_agq, self.reml = method, int(n_agq), bool(reml)
         self.margin = float(margin)
         self.cover_adjust = cover_adjust
+        self.observation_effect = observation_effect
         self._notes: list[Diagnostic] = []
         self.data = self._check(data)
         d = self.data
-        self.has_site = bool(site_effect) and C.SITE in d.columns and d[C.SITE].nunique() >= 2
-        if site_effect and C.SITE in d.columns and d[C.SITE].nunique() < 2:
+        n_site_levels = d[C.SITE].nunique() if C.SITE in d.columns else 0
+        self.has_site = bool(site_effect) and n_site_levels >= 2
+        if site_effect and C.SITE in d.columns and n_site_levels < 2:
             self._notes.append(Diagnostic("one_site", "All stations lie in one site, so there is no site effect.", "info"))
-        if self.site_slope and not (C.SITE in d.columns and d[C.SITE].nunique() >= 2):
+        if self.site_slope and n_site_levels < 2:
             raise InputError("a random slope of year by site needs a 'site' column with at least 2 sites")
+        if site_by_year and n_site_levels < 2:
+            raise InputError("a site-by-year effect needs a 'site' column with at least 2 sites")
+        self.site_by_year = bool(site_by_year)
         if self.site_slope:
             self.has_site = True
-        if self.observer_effect and C.OBSERVER not in d.columns:
-            raise InputError("an observer effect needs an 'observer' column")
-        if method == "agq" and (self.has_site or self.observer_effect or family == "poisson-lognormal"):
+        if method == "agq" and (self.has_site or self.observer_effect or family == "poisson-lognormal"
+                                or observation_effect or year_random in ("iid", "ar1") or site_by_year):
             raise InputError("adaptive Gauss-Hermite quadrature needs a single grouping factor: "
-                             "use site_effect=False, no observer effect and a family without an observation-level effect")
-        if year_random not in (None, "iid", "ar1", "none"):
-            raise InputError(f"year_random must be 'iid', 'ar1' or 'none' (got {year_random!r})")
+                             "use site_effect=False, year_random='none', no observer effect and a family "
+                             "without an observation-level effect")
         self.years = np.sort(d[C.YEAR].unique())
-        if year_random is None:
-            year_random = "iid" if default_year_effect(len(self.years)) and method != "agq" else "none"
-        if method == "agq" and (year_random != "none" or site_by_year):
-            raise InputError("adaptive Gauss-Hermite quadrature needs a single grouping factor: "
-                             "use year_random='none' and no site-by-year effect")
-        if site_by_year and not self.has_site:
-            raise InputError("a site-by-year effect needs a 'site' column with at least 2 sites")
-        self.year_random, self.site_by_year = year_random, bool(site_by_year)
         self.first, self.last = int(self.years[0]), int(self.years[-1])
         self.centre = (self.first + self.last) / 2.0
+        if year_random is None:
+            year_random = "iid" if default_year_effect(len(self.years)) and method != "agq" else "none"
+            if year_random == "none" and method != "agq" and len(self.years) >= 3:
+                self._notes.append(Diagnostic(
+                    "no_year_effect",
+                    f"With {len(self.years)} years of data (fewer than {YEAR_EFFECT_MIN_YEARS}) the model has no "
+                    "year-to-year effect: the interval assumes years do not fluctuate together and may be too "
+                    "narrow.", "info"))
+        elif year_random == "none" and len(self.years) >= YEAR_EFFECT_MIN_YEARS:
+            self._notes.append(Diagnostic(
+                "no_year_effect",
+                "The model was asked to leave out the year-to-year effect: if good and bad years are shared "
+                "by the stations, the interval is too narrow and the call too confident."))
+        self.year_random = year_random
+        self.no_index_years = self._degenerate_years()
         if base_year is None:
             base_year = self.first
         if base_year not in set(self.years.tolist()):
             raise InputError(f"base year {base_year} has no data")
-        self.base_year = int(base_year)
+        self.base_year = self._carried_base(int(base_year))
 
     # ------------------------------------------------------------------ input
     def _check(self, data: pd.DataFrame) -> pd.DataFrame:
@@ -390,6 +572,17 @@ class TrendModel:
         d[C.YEAR] = d[C.YEAR].astype(int)
         for c in value_cols:
             d[c] = v[c]
+        if self.observer_effect:
+            if C.OBSERVER not in d.columns:
+                raise InputError("an observer effect needs an 'observer' column")
+            obs = d[C.OBSERVER].astype("string").str.strip()
+            blank = obs.isna() | (obs == "")
+            if blank.any():
+                self._notes.append(Diagnostic(
+                    "observer_blank",
+                    f"{int(blank.sum())} of {len(d)} visit(s) have no observer recorded; in the observer effect "
+                    f"they are one level of their own, '{NO_OBSERVER}'."))
+            d[C.OBSERVER] = obs.mask(blank, NO_OBSERVER).astype(str)
         # a station is identified within its site (codes are unique in a programme, but a
         # table brought from elsewhere may reuse a code in two sites); a relocated quadrat
         # carries the first station of its chain in ``lineage`` and shares that station's effect
@@ -400,16 +593,52 @@ class TrendModel:
             d["_station_key"] = station.astype(str)
         return d.reset_index(drop=True)
 
-    # ------------------------------------------------------------------ design
-    def _response(self):
+    def _degenerate_years(self) -> dict[int, str]:
+        """Years whose every value is 0 ("zero") or every k = n ("full"): no yearly estimate exists there."""
         d = self.data
+        if self.measure == C.MEASURE_COVER:
+            return {}
+        kc = C.MEASURE_COLUMNS[self.measure][0]
+        k = d.groupby(C.YEAR)[kc].sum()
+        out = {int(y): "zero" for y in k.index[k.to_numpy() == 0]}
+        if self.measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
+            n = d.groupby(C.YEAR)[C.MEASURE_COLUMNS[self.measure][1]].sum()
+            out.update({int(y): "full" for y in k.index[k.to_numpy() == n.to_numpy()]})
+        elif self.measure == C.MEASURE_PRESENCE:
+            n = d.groupby(C.YEAR)[kc].size()
+            out.update({int(y): "full" for y in k.index[k.to_numpy() == n.to_numpy()]})
+        return out
+
+    def _carried_base(self, wanted: int) -> int:
+        """The base year: the one asked for, or the nearest later (then earlier) year the data can carry."""
+        if wanted not in self.no_index_years:
+            return wanted
+        ok = [int(y) for y in self.years if int(y) not in self.no_index_years]
+        if not ok:
+            self._notes.append(Diagnostic(
+                "no_index", "No yearly index exists: in every year all values are 0 or all are full."))
+            return wanted
+        later = [y for y in ok if y > wanted]
+        base = later[0] if later else ok[-1]
+        what = "zero" if self.no_index_years[wanted] == "zero" else "at its maximum"
+        self._notes.append(Diagnostic(
+            "base_year_moved",
+            f"Every value in {wanted} is {what}, so {wanted} cannot be the base of the yearly indices; "
+            f"they are relative to {base} instead.", "info"))
+        return base
+
+    # ------------------------------------------------------------------ design
+    def _response(self, d: pd.DataFrame | None = None):
+        d = self.data if d is None else d
         if self.measure == C.MEASURE_COUNT:
             y = d[C.COUNT].to_numpy(float)
             if self.family == "negbin":
                 return NegativeBinomial(y), None
             return Poisson(y), None
         if self.measure == C.MEASURE_COVER:
-            z, eps = logit_cover(d[C.COVER].to_numpy(float), self.cover_adjust)
+            z, eps = logit_cover(self.data[C.COVER].to_numpy(float), self.cover_adjust)
+            if len(d) != len(self.data):
+                z = z[d.index.to_numpy()]
             return Gaussian(z), eps
         if self.measure == C.MEASURE_PRESENCE:
             k = d[C.PRESENT].to_numpy(float)
@@ -417,14 +646,13 @@ class TrendModel:
         kc, nc = C.MEASURE_COLUMNS[self.measure]
         return Binomial(d[kc].to_numpy(float), d[nc].to_numpy(float)), None
 
-    def _design(self, year_effect: str):
-        d = self.data
+    def _design(self, d: pd.DataFrame, year_effect: str):
         t = d[C.YEAR].to_numpy(float) - self.centre
         cols = {INTERCEPT: np.ones(len(d))}
         if year_effect == "linear":
             cols[SLOPE] = t
         else:
-            for y in self.years:
+            for y in np.sort(d[C.YEAR].unique()):
                 if y != self.base_year:
                     cols[f"year[{int(y)}]"] = (d[C.YEAR].to_numpy() == y).astype(float)
         for c in self.covariates:
@@ -441,10 +669,13 @@ class TrendModel:
                                   "(a covariate is constant or duplicates another)")
         return X, list(cols.keys()), t
 
-    def _spec(self, year_effect: str) -> tuple[GlmmSpec, np.ndarray, float | None]:
-        d = self.data
-        fam, eps = self._response()
-        X, names, t = self._design(year_effect)
+    def _spec(self, year_effect: str, olre: bool | None = None, d: pd.DataFrame | None = None
+              ) -> tuple[GlmmSpec, np.ndarray, float | None]:
+        d = self.data if d is None else d
+        if olre is None:   # the family's own observation-level effect, or the one asked for
+            olre = self.family == "poisson-lognormal" or bool(self.observation_effect)
+        fam, eps = self._response(d)
+        X, names, t = self._design(d, year_effect)
         st = pd.factorize(d["_station_key"])[0]
         terms = []
         if self.has_site:
@@ -452,17 +683,18 @@ class TrendModel:
             terms.append(Term("site", si, int(si.max()) + 1))
             if self.site_slope:
                 terms.append(Term("site_slope", si, int(si.max()) + 1, t))
-        if self.observer_effect:
-            ob = pd.factorize(d[C.OBSERVER].astype(str))[0]
-            terms.append(Term("observer", ob, int(ob.max()) + 1))
-        yi = d[C.YEAR].to_numpy() - self.first
+        # the year effect over calendar years (a year without data is a level without observations)
+        yi = d[C.YEAR].to_numpy(np.int64) - self.first
         si = pd.factorize(d[C.SITE])[0] if self.site_by_year else None
         if year_effect == "linear" and self.year_random != "none":
             terms += year_terms(yi, self.last - self.first + 1, self.year_random, site=si)
         elif si is not None:  # year factor: the site-by-year effect only
             terms += year_terms(yi, self.last - self.first + 1, site=si)[1:]
+        if self.observer_effect:
+            ob = pd.factorize(d[C.OBSERVER].astype(str))[0]
+            terms.append(Term("observer", ob, int(ob.max()) + 1))
         spec = GlmmSpec(family=fam, X=X, x_names=names, station=st, n_station=int(st.max()) + 1, terms=terms,
-                        olre=(self.family == "poisson-lognormal"))
+                        olre=olre)
         return spec, t, eps
 
     def _fit_spec(self, spec: GlmmSpec, full: bool, **kw) -> GlmmFit:
@@ -478,14 +710,16 @@ class TrendModel:
         profile : bool
             Also compute the profile-likelihood interval of the slope.
         indices : bool
-            Also fit the year-as-factor model and report yearly indices.
+            Also fit the year-as-factor model and report yearly estimates and indices.
         fast : bool, optional
             The fast path (for power analysis), by default taken when ``profile`` and
             ``indices`` are both False: the fixed effects are the joint penalised mode at
             the Laplace ML variance estimates (lme4's nAGQ = 0 estimator) with conditional
-            standard errors (X' V^-1 X)^-1.  ``fast=False`` gives the full Laplace / AGQ
-            maximum likelihood estimate with Hessian standard errors (the default whenever
-            a profile or indices are asked for).  The Gaussian (cover) model is exact either way.
+            standard errors (X' V^-1 X)^-1.  It is NOT a maximum likelihood estimate: the
+            result says so (``estimator`` "joint-mode" and a diagnostic), and nothing a user
+            reads as a trend uses it.  ``fast=False`` gives the full Laplace / AGQ maximum
+            likelihood estimate with Hessian standard errors (the default whenever a
+            profile or indices are asked for).  The Gaussian (cover) model is exact either way.
 
         Returns
         -------
@@ -502,49 +736,52 @@ class TrendModel:
         if np.all(fam_check.y == fam_check.y[0]) and self.family != "logit-normal":
             raise EstimationError(f"every value of {self.measure} is the same ({fam_check.y[0]:g}); there is no trend to fit")
         full = (profile or indices) if fast is None else not fast
-        spec_lin, t, eps = self._spec("linear")
+        diags = list(self._notes)
+        olre, od = self._choose_observation_effect(diags)
+        spec_lin, t, eps = self._spec("linear", olre)
         fit_lin = self._fit_spec(spec_lin, full)
         j = spec_lin.x_names.index(SLOPE)
         slope = float(fit_lin.beta[j])
         slope_se = float(math.sqrt(fit_lin.vcov[j, j]))
-        z = fit_lin.quantile(j)  # t with between-year df when there is a year effect, else normal
-        lo, hi = slope - z * slope_se, slope + z * slope_se
+        q, slope_df, df_method = _reference(fit_lin, j)
+        lo, hi = slope - q * slope_se, slope + q * slope_se
         annual = Interval(math.expm1(slope), math.expm1(lo), math.expm1(hi))
         span = self.last - self.first
         period = Interval(math.expm1(slope * span), math.expm1(lo * span), math.expm1(hi * span))
-        diags = list(self._notes) + list(fit_lin.diagnostics)
+        estimator = _estimator(fit_lin, self, full)
+        diags += list(fit_lin.diagnostics)
+        if estimator == "joint-mode":
+            diags.append(Diagnostic("fast_path", "Fast path: the fixed effects are the joint mode at the variance "
+                                    "estimates, not maximum likelihood estimates; for power studies, not for "
+                                    "reading a trend.", "info"))
         prof = None
         if profile:
             try:
-                plo, phi_ = self._profile_slope(spec_lin, fit_lin, j, slope_se)
+                plo, phi_ = self._profile_slope(spec_lin, fit_lin, j, slope_se, q)
                 prof = Interval(math.expm1(slope), math.expm1(plo), math.expm1(phi_))
             except (EstimationError, FloatingPointError, np.linalg.LinAlgError, ValueError) as exc:
                 diags.append(Diagnostic("profile_failed", f"The profile-likelihood interval could not be computed ({exc})."))
-        # factor model: indices
-        fit_fac = None
-        spec_fac = None
+        # factor model: yearly estimates (the years with an estimate only)
+        fit_fac = spec_fac = None
         if indices or self.year_effect == "factor":
-            spec_fac, _, _ = self._spec("factor")
-            fit_fac = self._fit_spec(spec_fac, True)
-            diags += [Diagnostic(x.code, "Year-factor model: " + x.message, x.severity) for x in fit_fac.diagnostics
-                      if x.code != "variance_at_bound"]
-        idx_df = self._indices(spec_fac, fit_fac)
-        primary, pspec = (fit_fac, spec_fac) if self.year_effect == "factor" else (fit_lin, spec_lin)
+            fit_fac, spec_fac = self._fit_factor(olre, diags)
+        natural = _NaturalScale(self, eps)
+        # one averaging variance (the trend model's) for points and line: one baseline on both scales
+        s2 = natural.marginal_variance(fit_lin)
+        yearly, idx_df = self._yearly(spec_fac, fit_fac, natural, s2)
+        line, fitted, level = self._line(spec_lin, fit_lin, spec_fac, fit_fac, q, natural, s2)
+        primary, pspec = (fit_fac, spec_fac) if (self.year_effect == "factor" and fit_fac is not None) \
+            else (fit_lin, spec_lin)
         params = pd.Series(primary.beta, index=pspec.x_names, name="estimate")
         bse = pd.Series(np.sqrt(np.diag(primary.vcov)), index=pspec.x_names, name="se")
         vcov = pd.DataFrame(primary.vcov, index=pspec.x_names, columns=pspec.x_names)
-        diags += self._data_diagnostics(spec_lin, fit_lin, eps)
+        diags += self._data_diagnostics(spec_lin, fit_lin, eps, od)
         lo_c, hi_c = (prof.lower, prof.upper) if prof is not None else (annual.lower, annual.upper)
         call, reason = classify_call(lo_c, hi_c, self.margin, n_st, n_years)
         if n_st < MIN_STATIONS:
             diags.append(Diagnostic("few_stations", f"Only {n_st} stations: the call is 'unclear' by rule."))
         if n_years < MIN_YEARS:
             diags.append(Diagnostic("few_years", f"Only {n_years} years with data: the call is 'unclear' by rule."))
-        b = self.base_year
-        yrs = np.arange(self.first, self.last + 1)
-        e = slope * (yrs - b)
-        band = np.sort(np.c_[lo * (yrs - b), hi * (yrs - b)], axis=1)
-        fitted = pd.DataFrame({"year": yrs, "fit": np.exp(e), "lower": np.exp(band[:, 0]), "upper": np.exp(band[:, 1])})
         n_sites = int(d[C.SITE].nunique()) if C.SITE in d.columns else 0
         return TrendResult(
             measure=self.measure, family=self.family, n_obs=len(d), n_stations=n_st, n_sites=n_sites,
@@ -552,29 +789,133 @@ class TrendModel:
             annual_change=annual, annual_change_profile=prof, period_change=period, random_sd=dict(primary.sd),
             dispersion=primary.dispersion, loglik=primary.loglik, aic=-2 * primary.loglik + 2 * primary.df,
             df=primary.df, indices=idx_df, fitted_trend=fitted, diagnostics=tuple(_dedupe(diags)), call=call,
-            call_reason=reason, margin=self.margin, converged=bool(fit_lin.converged and (fit_fac is None or fit_fac.converged)),
+            call_reason=reason, margin=self.margin,
+            converged=bool(fit_lin.converged and (fit_fac is None or fit_fac.converged)),
             year_effect=self.year_effect, method=self.method, reml=self.reml, year_centre=self.centre,
-            cover_eps=eps, vcov=vcov, year_random=self.year_random, slope_df=float(fit_lin.coef_df[j]),
-            df_method=fit_lin.df_method, estimator=fit_lin.estimator)
+            cover_eps=eps, vcov=vcov, year_random=self.year_random, site_by_year=self.site_by_year,
+            observation_effect=bool(olre and self.family == "binomial"), rho=dict(getattr(fit_lin, "rho", {}) or {}),
+            slope_df=slope_df, df_method=df_method, estimator=estimator,
+            cover_transform=cover_transform_text(eps) if self.measure == C.MEASURE_COVER else None,
+            change_scale=CHANGE_SCALE[self.family], natural_unit=natural.unit, yearly=yearly, trend_line=line,
+            level_change=level, base_year=self.base_year if fit_fac is not None else None,
+            no_index_years=tuple(sorted(self.no_index_years)))
 
-    def _indices(self, spec, fit) -> pd.DataFrame:
+    # ------------------------------------------------------------------ observation-level effect
+    def _choose_observation_effect(self, diags: list[Diagnostic]) -> tuple[bool, tuple | None]:
+        """Whether the model carries an observation-level effect, and the overdispersion test behind it.
+
+        Returns (olre, (ratio, p) or None).  For k-of-n data with ``observation_effect``
+        None, the plain binomial model is fitted (fast path) and its Pearson statistic
+        decides (OVERDISPERSION_RATIO and OVERDISPERSION_P).
+        """
+        if self.family == "poisson-lognormal":
+            return True, None
+        if self.family != "binomial" or self.measure == C.MEASURE_PRESENCE:
+            return False, None
+        if self.observation_effect is not None:
+            return bool(self.observation_effect), None
+        spec, _, _ = self._spec("linear", False)
+        quick = self._fit_spec(spec, False)
+        ratio, p = _pearson_test(spec, quick)
+        if _overdispersed(ratio, p):
+            diags.append(Diagnostic(
+                "observation_effect_added",
+                f"The values vary more between visits than a binomial allows (Pearson chi2/df = {ratio:.2f}, "
+                f"p = {p:.2g}), so the model has an observation-level effect.", "info"))
+            return True, (ratio, p)
+        return False, (ratio, p)
+
+    def _fit_factor(self, olre: bool, diags: list[Diagnostic]):
+        """The year-as-factor model on the years that have an estimate; (None, None) if it cannot be fitted."""
+        keep = ~self.data[C.YEAR].isin(list(self.no_index_years))
+        d = self.data[keep]
+        if d.empty or d["_station_key"].nunique() < 2 or self.base_year in self.no_index_years:
+            return None, None
+        try:
+            spec_fac, _, _ = self._spec("factor", olre, d)
+            fit_fac = self._fit_spec(spec_fac, True)
+        except (EstimationError, FloatingPointError, np.linalg.LinAlgError, ValueError) as exc:
+            diags.append(Diagnostic("indices_failed", f"The yearly estimates could not be computed ({exc})."))
+            return None, None
+        diags += [Diagnostic(x.code, "Year-factor model: " + x.message, x.severity) for x in fit_fac.diagnostics
+                  if x.code != "variance_at_bound"]
+        for y, kind in sorted(self.no_index_years.items()):
+            what = "zero" if kind == "zero" else "at its maximum"
+            diags.append(Diagnostic("no_index_year", f"Every value in {y} is {what}: that year has no index or "
+                                    "interval of its own (it still counts in the trend).", "info"))
+        return fit_fac, spec_fac
+
+    # ------------------------------------------------------------------ yearly estimates and the line
+    def _yearly(self, spec, fit, natural: _NaturalScale, s2: float) -> tuple[pd.DataFrame | None, pd.DataFrame]:
+        """Yearly estimates on the natural scale (averaged over the trend model's variance s2) and as
+        indices relative to the base year."""
+        empty = pd.DataFrame({"year": pd.Series([], dtype=int), "index": pd.Series([], dtype=float),
+                              "lower": pd.Series([], dtype=float), "upper": pd.Series([], dtype=float)})
         if fit is None:
-            return pd.DataFrame({"year": pd.Series([], dtype=int), "index": pd.Series([], dtype=float),
-                                 "lower": pd.Series([], dtype=float), "upper": pd.Series([], dtype=float)})
+            return None, empty
         z = norm.ppf(0.975)
-        rows = []
+        per_year = self.data.groupby(C.YEAR)["_station_key"].nunique()
+        nat, rel = [], []
+        k0 = spec.x_names.index(INTERCEPT)
         for y in self.years:
-            if y == self.base_year:
-                rows.append((int(y), 1.0, 1.0, 1.0))
+            y = int(y)
+            if y in self.no_index_years:
+                zero = self.no_index_years[y] == "zero"
+                top = natural.top
+                nat.append((y, 0.0 if zero else top, 0.0 if zero else math.nan, math.nan if zero else top))
+                rel.append((y, 0.0 if zero else math.nan, 0.0 if zero else math.nan, math.nan))
                 continue
-            k = spec.x_names.index(f"year[{int(y)}]")
-            b, s = fit.beta[k], math.sqrt(fit.vcov[k, k])
-            rows.append((int(y), math.exp(b), math.exp(b - z * s), math.exp(b + z * s)))
-        return pd.DataFrame(rows, columns=["year", "index", "lower", "upper"])
+            c = np.zeros(len(spec.x_names))
+            c[k0] = 1.0
+            name = f"year[{y}]"
+            if name in spec.x_names:
+                c[spec.x_names.index(name)] = 1.0
+                kk = spec.x_names.index(name)
+                b, s = fit.beta[kk], math.sqrt(fit.vcov[kk, kk])
+                rel.append((y, math.exp(b), math.exp(b - z * s), math.exp(b + z * s)))
+            else:
+                rel.append((y, 1.0, 1.0, 1.0))
+            eta = float(c @ fit.beta)
+            se = math.sqrt(float(c @ fit.vcov @ c))
+            v = natural.value(np.array([eta, eta - z * se, eta + z * se]), s2)
+            nat.append((y, v[0], v[1], v[2]))
+        yearly = pd.DataFrame(nat, columns=["year", "estimate", "lower", "upper"])
+        yearly["n_stations"] = yearly["year"].map(per_year).astype(int)
+        return yearly, pd.DataFrame(rel, columns=["year", "index", "lower", "upper"])
 
-    def _profile_slope(self, spec: GlmmSpec, fit: GlmmFit, j: int, se: float) -> tuple[float, float]:
+    def _line(self, spec, fit, spec_fac, fit_fac, q: float, natural: _NaturalScale, s2: float):
+        """The fitted trend: natural scale, relative to the base of the indices, and first against last year."""
+        k0, k1 = spec.x_names.index(INTERCEPT), spec.x_names.index(SLOPE)
+        V = fit.vcov[np.ix_([k0, k1], [k0, k1])]
+        b = fit.beta[[k0, k1]]
+        yrs = np.arange(self.first, self.last + 1)
+        tt = yrs - self.centre
+        eta = b[0] + b[1] * tt
+        se = np.sqrt(V[0, 0] + 2 * tt * V[0, 1] + tt * tt * V[1, 1])
+        line = pd.DataFrame({"year": yrs, "fit": natural.value(eta, s2), "lower": natural.value(eta - q * se, s2),
+                             "upper": natural.value(eta + q * se, s2)})
+        if fit_fac is not None:
+            base = float(fit_fac.beta[spec_fac.x_names.index(INTERCEPT)])   # the base year's level
+            fitted = pd.DataFrame({"year": yrs, "fit": np.exp(eta - base), "lower": np.exp(eta - q * se - base),
+                                   "upper": np.exp(eta + q * se - base)})
+        else:   # no yearly estimates: the line relative to its own value in the base year
+            e = b[1] * (yrs - self.base_year)
+            sb = math.sqrt(V[1, 1])
+            band = np.sort(np.c_[(b[1] - q * sb) * (yrs - self.base_year), (b[1] + q * sb) * (yrs - self.base_year)],
+                           axis=1)
+            fitted = pd.DataFrame({"year": yrs, "fit": np.exp(e), "lower": np.exp(band[:, 0]),
+                                   "upper": np.exp(band[:, 1])})
+        level = natural.change(b, V, self.first - self.centre, self.last - self.centre, s2, q,
+                               self.first, self.last)
+        return line, fitted, level
+
+    def _profile_slope(self, spec: GlmmSpec, fit: GlmmFit, j: int, se: float, q: float) -> tuple[float, float]:
         """Profile-likelihood 95 % interval of the slope (Venzon & Moolgavkar 1988, by secant steps).
 
+        The signed root of the likelihood-ratio statistic is set to the same reference
+        quantile as the Wald interval: sqrt(chi2_1(0.95)) = 1.96 without a year effect, and
+        the t quantile with the between-year df with one (the likelihood ratio is then
+        calibrated like the Wald statistic, so the two intervals differ only in shape).
         For a REML fit the profile uses the ML likelihood (REML likelihoods of models with
         different fixed effects are not comparable).
         """
@@ -587,9 +928,7 @@ class TrendModel:
             ll_hat, beta_hat, phi_hat = ml.loglik, ml.beta, ml.phi
         else:
             ll_hat, beta_hat, phi_hat = fit.loglik, fit.beta, fit.phi
-        # the signed root of the deviance is compared with the slope's reference quantile:
-        # normal (sqrt of chi2(1)) without a year effect, t with between-year df with one
-        target = fit.quantile(j)
+        target = max(q, math.sqrt(chi2.ppf(0.95, 1)))
         start = {"phi": phi_hat, "beta": beta_hat[keep]}
 
         def signed_root(b):
@@ -621,46 +960,152 @@ class TrendModel:
             out.append(b1)
         return out[0], out[1]
 
-    def _data_diagnostics(self, spec: GlmmSpec, fit: GlmmFit, eps) -> list[Diagnostic]:
+    def _data_diagnostics(self, spec: GlmmSpec, fit: GlmmFit, eps, od) -> list[Diagnostic]:
         d = self.data
         out = []
-        visits = d.groupby("_station_key").size()
-        one = int((visits == 1).sum())
+        years_of = d.groupby("_station_key")[C.YEAR].nunique()
+        one = int((years_of == 1).sum())
         if one:
             out.append(Diagnostic("one_visit_stations",
-                                  f"{one} station(s) have a single visit; they tell about level but not about change.",
-                                  "info"))
+                                  f"{one} station(s) have values from a single year; they tell about level but "
+                                  "not about change.", "info"))
         per_year = d.groupby(C.YEAR)["_station_key"].nunique()
         low = per_year[per_year < LOW_COVERAGE_FRACTION * per_year.median()]
         if len(low):
             yrs = ", ".join(str(int(y)) for y in low.index)
             out.append(Diagnostic("low_coverage_years",
                                   f"Few stations were visited in {yrs} (under half the median of {per_year.median():g} a year)."))
-        fam = spec.family
-        if self.family in ("poisson", "binomial") and not (self.measure == C.MEASURE_PRESENCE):
-            if isinstance(fam, Poisson):
-                mu = np.exp(fit.eta)
-                var = mu
-            else:
-                p = 1 / (1 + np.exp(-fit.eta))
-                mu = fam.trials * p
-                var = fam.trials * p * (1 - p)
-            pearson = float(np.sum((fam.y - mu) ** 2 / np.maximum(var, 1e-12)))
-            dof = max(1, len(fam.y) - fit.df)
-            ratio = pearson / dof
-            if ratio > OVERDISPERSION_RATIO:
-                alt = "poisson-lognormal or negbin" if isinstance(fam, Poisson) else "a model with more variation"
+        plain = self.family == "poisson" or (self.family == "binomial" and not spec.olre)
+        if plain and self.measure != C.MEASURE_PRESENCE:
+            ratio, p = od if od is not None else _pearson_test(spec, fit)
+            if _overdispersed(ratio, p):
+                alt = ("poisson-lognormal or negbin" if self.family == "poisson"
+                       else "the binomial model with an observation-level effect")
                 out.append(Diagnostic("overdispersion",
                                       f"The data vary more than the {self.family} model allows (Pearson chi2/df = "
-                                      f"{ratio:.2f}); intervals are too narrow: consider {alt}."))
+                                      f"{ratio:.2f}, p = {p:.2g}); intervals are too narrow: consider {alt}."))
         if eps is not None:
             zeros = int(np.sum(d[C.COVER].to_numpy() == 0))
             full_ = int(np.sum(d[C.COVER].to_numpy() == 100))
             out.append(Diagnostic("cover_adjusted",
-                                  f"Cover analysed as log((p + e)/(1 - p + e)) with e = {eps:.4g} (p = cover/100); "
-                                  f"{zeros} value(s) of 0 % and {full_} of 100 %. The annual change is the change in the "
+                                  f"Cover analysed as {cover_transform_text(eps)}, because {zeros} value(s) are 0 % "
+                                  f"and {full_} are 100 %. The annual change is the change in the adjusted "
                                   "odds of cover.", "info"))
         return out
+
+
+def _reference(fit: GlmmFit, j: int) -> tuple[float, float, str]:
+    """(two-sided 95 % quantile, df, words) of the slope's reference distribution, from the engine."""
+    coef_df = getattr(fit, "coef_df", None)
+    df = math.inf if coef_df is None else float(coef_df[j])
+    if not math.isfinite(df):
+        return float(norm.ppf(0.975)), math.inf, str(getattr(fit, "df_method", "z"))
+    return float(t_dist.ppf(0.975, df)), df, str(getattr(fit, "df_method", f"t, {df:g} df"))
+
+
+def _estimator(fit: GlmmFit, model: TrendModel, full: bool) -> str:
+    """The engine's label of the estimator ("ml-laplace", "ml-agq", "ml-exact", "reml-exact", "joint-mode")."""
+    label = getattr(fit, "estimator", None)
+    if label:
+        return str(label)
+    if model.family == "logit-normal":
+        return "reml-exact" if model.reml else "ml-exact"
+    return ("ml-agq" if model.method == "agq" else "ml-laplace") if full else "joint-mode"
+
+
+def _pearson_test(spec: GlmmSpec, fit: GlmmFit) -> tuple[float, float]:
+    """Pearson chi2 / residual df of a Poisson or binomial fit (conditional on the modes), and its p-value.
+
+    The residual df are n minus the fixed effects, the variance parameters and the
+    effective number of station effects (the trace of the station shrinkage,
+    sum_j (A_j - 1) / A_j): the station modes fit the data as well, so leaving them out
+    of the df would hide overdispersion (McCullagh & Nelder 1989, sec. 4.5).
+    """
+    fam = spec.family
+    if isinstance(fam, Poisson):
+        mu = np.exp(np.minimum(fit.eta, 700.0))
+        var = mu
+    else:
+        p = expit(fit.eta)
+        mu = fam.trials * p
+        var = fam.trials * p * (1 - p)
+    pearson = float(np.sum((fam.y - mu) ** 2 / np.maximum(var, 1e-12)))
+    s_st = float(fit.sd.get("station", 0.0))
+    wsum = np.bincount(spec.station, weights=var, minlength=spec.n_station)
+    edf_station = float(np.sum(s_st ** 2 * wsum / (1.0 + s_st ** 2 * wsum)))
+    dof = max(1.0, len(fam.y) - fit.df - edf_station)
+    return pearson / dof, float(chi2.sf(pearson, dof))
+
+
+def _overdispersed(ratio: float, p: float) -> bool:
+    return bool(ratio > OVERDISPERSION_RATIO and p < OVERDISPERSION_P)
+
+
+class _NaturalScale:
+    """The measure's own scale: mean count per m^2 (or per quadrat), % cover, % of cells, pins or stations."""
+
+    def __init__(self, model: TrendModel, eps: float | None):
+        self.measure, self.family = model.measure, model.family
+        self.eps = 0.0 if eps is None else float(eps)
+        self.area = 1.0
+        if self.measure == C.MEASURE_COUNT:
+            areas = (model.data[C.QUADRAT_AREA].dropna().unique() if C.QUADRAT_AREA in model.data.columns
+                     else np.array([]))
+            if len(areas) == 1 and float(areas[0]) > 0:
+                self.area = float(areas[0])
+                self.unit = "mean count per m²"
+            else:
+                self.unit = "mean count per quadrat"
+            self.top = math.inf
+        else:
+            self.unit = NATURAL_UNIT[self.measure]
+            self.top = 100.0
+
+    def marginal_variance(self, fit: GlmmFit) -> float:
+        """Variance on the link scale that the mean over stations and visits averages over."""
+        s2 = sum(float(fit.sd.get(k, 0.0)) ** 2 for k in ("station", "site", "observation"))
+        if self.family == "logit-normal" and fit.dispersion is not None:
+            s2 += float(fit.dispersion) ** 2
+        return s2
+
+    def _moments(self, eta: np.ndarray, s2: float) -> tuple[np.ndarray, np.ndarray]:
+        """E[expit(eta + s Z)] and E[p (1 - p)] by Gauss-Hermite quadrature (40 nodes)."""
+        p = expit(np.asarray(eta, float)[..., None] + math.sqrt(s2) * _GH_X)
+        return p @ _GH_W, (p * (1 - p)) @ _GH_W
+
+    def value(self, eta: np.ndarray, s2: float) -> np.ndarray:
+        return self.value_and_slope(eta, s2)[0]
+
+    def value_and_slope(self, eta: np.ndarray, s2: float) -> tuple[np.ndarray, np.ndarray]:
+        """The natural-scale value at link-scale eta and its derivative d value / d eta."""
+        eta = np.asarray(eta, float)
+        if self.measure == C.MEASURE_COUNT:
+            v = np.exp(np.minimum(eta + s2 / 2, 700.0)) / self.area
+            return v, v
+        m1, m2 = self._moments(eta, s2)
+        a = 1.0 + 2.0 * self.eps
+        return np.clip(100.0 * (a * m1 - self.eps), 0.0, 100.0), 100.0 * a * m2
+
+    def change(self, b, V, t_first, t_last, s2, q, first_year, last_year) -> LevelChange:
+        """First against last year of the line b0 + b1 t on this scale, with delta-method intervals."""
+        x = np.array([[1.0, t_first], [1.0, t_last]])
+        eta = x @ b
+        se = np.sqrt(np.einsum("ij,jk,ik->i", x, V, x))
+        v, dv = self.value_and_slope(eta, s2)
+        lo = self.value(eta - q * se, s2)
+        hi = self.value(eta + q * se, s2)
+        g = dv[1] * x[1] - dv[0] * x[0]                 # gradient of v_last - v_first over (b0, b1)
+        diff = float(v[1] - v[0])
+        sd = math.sqrt(max(float(g @ V @ g), 0.0))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            gl = dv[1] / v[1] * x[1] - dv[0] / v[0] * x[0]   # of log(v_last / v_first)
+            lr = float(np.log(v[1] / v[0]))
+        sr = math.sqrt(max(float(gl @ V @ gl), 0.0)) if np.all(np.isfinite(gl)) else math.nan
+        return LevelChange(
+            int(first_year), int(last_year), self.unit,
+            Interval(float(v[0]), float(lo[0]), float(hi[0])), Interval(float(v[1]), float(lo[1]), float(hi[1])),
+            Interval(diff, diff - q * sd, diff + q * sd),
+            Interval(math.expm1(lr), math.expm1(lr - q * sr), math.expm1(lr + q * sr)))
 
 
 def _dedupe(diags):
@@ -673,19 +1118,28 @@ def _dedupe(diags):
     return out
 
 
-def logit_cover(cover_pct: np.ndarray, cover_adjust: float | None = None) -> tuple[np.ndarray, float]:
-    """Adjusted logit of cover: z = log((p + e) / (1 - p + e)), p = cover / 100.
+def cover_transform_text(eps: float | None) -> str:
+    """The cover transform in words: the plain logit, or the adjusted logit with its constant."""
+    if eps is None:
+        return "the logit of cover, log(p / (1 - p)) with p = cover / 100 (no value is 0 or 100 %)"
+    return f"the adjusted logit log((p + e) / (1 - p + e)) with e = {eps:.4g} (p = cover / 100)"
+
+
+def logit_cover(cover_pct: np.ndarray, cover_adjust: float | None = None) -> tuple[np.ndarray, float | None]:
+    """Logit of cover, adjusted only where it must be: z = log((p + e) / (1 - p + e)), p = cover / 100.
 
     Parameters
     ----------
     cover_pct : array
         Cover [%], 0-100.
     cover_adjust : float, optional
-        e in percent; default the smallest non-zero value of p and 1 - p in the data.
+        e in percent.  Default: none (e = 0, the plain logit, the log odds of cover) when
+        every value lies strictly between 0 and 100 %; otherwise the smallest non-zero
+        value of p and 1 - p in the data.
 
     Returns
     -------
-    (z, e) : array, float (e as a fraction)
+    (z, e) : array, float or None (e as a fraction; None for the plain logit)
 
     References
     ----------
@@ -697,6 +1151,8 @@ def logit_cover(cover_pct: np.ndarray, cover_adjust: float | None = None) -> tup
         if not cover_adjust > 0:
             raise InputError(f"cover_adjust must be a positive percentage (got {cover_adjust!r})")
         eps = float(cover_adjust) / 100.0
+    elif np.all((p > 0) & (p < 1)):
+        return np.log(p / (1 - p)), None
     else:
         cand = np.r_[p[p > 0], 1 - p[p < 1]]
         if cand.size == 0:

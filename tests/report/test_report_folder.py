@@ -23,7 +23,10 @@ def test_the_report_refuses_to_clear_a_folder_it_did_not_write(tmp_path, full_co
     assert sorted(p.name for p in folder.iterdir()) == ["notes.txt", "photo.jpg"]
     assert (folder / "notes.txt").read_text() == "site visit notes, keep"
     # and through the command line, before any fitting: exit 1, one line, the folder untouched
-    code = main(["--db", str(tmp_path / "none.sqlite"), "report", "2024", "--out", str(folder)])
+    db = str(tmp_path / "empty.sqlite")
+    assert main(["--db", db, "init"]) == 0
+    capsys.readouterr()
+    code = main(["--db", db, "report", "2024", "--out", str(folder)])
     err = capsys.readouterr().err
     assert code == 1
     assert err.count("\n") == 1 and "field '--out'" in err and "notes.txt" in err

@@ -141,3 +141,25 @@ def test_not_converged_when_the_gradient_is_large(monkeypatch):
     assert f.max_gradient > engine.GRADIENT_TOL
     msg = [x.message for x in f.diagnostics if x.code == "not_converged"][0]
     assert "still changes by" in msg and "iteration limit" in msg
+
+
+@pytest.mark.parametrize("family,y,olre", [("negbin", "count_sy", False), ("poisson", "count", True),
+                                           ("binomial", "occupied_od", True)])
+def test_site_by_year_elimination_equals_the_dense_block(family, y, olre):
+    # the site-by-year cells are eliminated site by site after the stations; the same model
+    # with the cells in the dense block (exact, slower) must give the same Laplace
+    # log-likelihood and modes at any parameter value
+    kw = {"trials": "cells"} if family == "binomial" else {}
+    blocked = spec_from_frame(YEAR, family, y, ["t"], "station", site="site", year="year", site_by_year=True,
+                              olre=olre, **kw)
+    dense = replace(blocked, terms=[replace(t, group_size=None) for t in blocked.terms])
+    eb, ed = engine.LaplaceEngine(blocked), engine.LaplaceEngine(dense)
+    assert eb.cell is not None and ed.cell is None
+    rng = np.random.default_rng(3)
+    for _ in range(3):
+        phi = np.log(rng.uniform(0.1, 0.8, eb.n_phi))
+        beta = np.array([1.0, -0.02]) + rng.normal(0, 0.1, 2)
+        assert eb.loglik_beta(phi, beta) == pytest.approx(ed.loglik_beta(phi, beta), abs=1e-8)
+        np.testing.assert_allclose(eb.u_st, ed.u_st, atol=1e-7)
+        assert eb.loglik_profiled(phi) == pytest.approx(ed.loglik_profiled(phi), abs=1e-8)
+        np.testing.assert_allclose(eb.beta, ed.beta, atol=1e-7)
