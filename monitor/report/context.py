@@ -848,10 +848,6 @@ def build_report_context(
             ny = row.get("n_years")
             ns = None if ns is None or (isinstance(ns, float) and math.isnan(ns)) else int(ns)
             ny = None if ny is None or (isinstance(ny, float) and math.isnan(ny)) else int(ny)
-            design = ""
-            if ns is not None and ny is not None:
-                design = f" with {ns} stations over {ny} years"
-            del design
             change = row.get("detectable_change")
             change = None if change is None or not math.isfinite(float(change)) else float(change)
             if change is None:  # never "nan%": say that it could not be computed, and why
