@@ -318,3 +318,18 @@ def station_move(ctx: Context, code: str, to: str, reason: str, when: str, lost:
     elif fmt == "csv":
         emit([result.to_dict()], fmt)
     say(result.message())
+
+
+def show_southern_demo(folder: Path) -> None:
+    """Run the southern-summer demo variant and print its plan across the new year."""
+    from monitor.services.demo_southern import run_southern_demo
+
+    steps = dict(run_southern_demo(folder, echo=say))
+    plan = steps["plan"]
+    click.echo(f"\nSeason {plan.year} (December {plan.year} to February {plan.year + 1}): {plan.summary()}")
+    emit(plan.team_day_table())
+    pack = steps["field_pack"]
+    for day in pack.team_days:
+        click.echo(f"\nField pack for team {day['team']} on {day['date']} ({day['site']}, {day['stations']} "
+                   f"stations): {day['folder']}")
+    click.echo(f"Calendar: {pack.calendar}")

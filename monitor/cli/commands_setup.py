@@ -112,12 +112,21 @@ def summary_command(ctx: Context, as_json: bool, as_csv: bool, xlsx: Path | None
 @cli.command("demo")
 @click.option("--dir", "folder", type=click.Path(file_okay=False, path_type=Path), default=Path("demo_out"),
               show_default=True, help="Folder to build the demo in (new or empty).")
+@click.option("--southern", is_flag=True,
+              help="The southern-summer variant instead: season 1 December to 28 February, planned across the "
+                   "new year.")
 @click.option("--serve", "then_serve", is_flag=True,
               help="Then open the demo in the browser workspace (as `monitor serve` on its database).")
 @click.option("--port", type=int, default=8765, show_default=True, help="Port of the workspace (with --serve).")
-def demo_command(folder: Path, then_serve: bool, port: int) -> None:
+def demo_command(folder: Path, southern: bool, then_serve: bool, port: int) -> None:
     """Build the invented demo reserve in a fresh database and run the whole job on it."""
     from monitor.services import demo
+
+    if southern:
+        from monitor.cli.commands_plan import show_southern_demo
+
+        show_southern_demo(folder)
+        return
 
     run = demo.run_demo(folder, echo=say)
     for name, result in run.steps:

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import datetime as dt
 import difflib
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -56,6 +56,9 @@ class Reference:
         Known covariates and their units; when given, names and units must match.
     today : date
         Dates after this are in the future.
+    season_of : callable date -> int, optional
+        The season a visit date belongs to (default: its calendar year).  A programme whose window
+        wraps the new year counts January and February dates to the season that opened in December.
     """
 
     stations: pd.DataFrame
@@ -68,6 +71,7 @@ class Reference:
     observers: frozenset[str] | None = None
     covariate_units: Mapping[str, str | None] | None = None
     today: dt.date = field(default_factory=dt.date.today)
+    season_of: Callable[[dt.date], int] | None = None
 
 
 def _plain(value: object) -> object:
@@ -207,6 +211,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         row = None if row is None else int(row)
         counter.add(InputProblem(file, row, field_, value, expected, severity), (-1 if row is None else row,))
 
+    season = reference.season_of or (lambda d: d.year)
     station_codes = [str(s) for s in reference.stations[C.STATION]]
     retired = {}
     if H.RETIRED in reference.stations.columns:
@@ -225,7 +230,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         reps = ex[H.REPEAT] if H.REPEAT in ex.columns else [False] * len(ex)
         for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps, strict=True):
             date = _as_date(date)
-            rounds.setdefault((station, date.year), []).append((date, bool(rep), None))
+            rounds.setdefault((station, season(date)), []).append((date, bool(rep), None))
     n_visits = len(visits)
     v_stations = visits[C.STATION].tolist()
     v_dates = [d if type(d) is dt.date else _as_date(d) for d in visits[C.DATE]]
@@ -239,7 +244,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     # cheap screens first (per distinct date and team); the full checks run only on visits they pick out
     date_suspect: dict[dt.date, bool] = {}
     for date in set(v_dates):
-        window = reference.windows.get(date.year)
+        window = reference.windows.get(season(date))
         date_suspect[date] = date > reference.today or (window is not None and not window[0] <= date <= window[1])
     team_suspect: dict[object, bool] = {}
     if reference.observers is not None:
@@ -258,10 +263,10 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                                          f"(retired on {retired[station].isoformat()})")
         if date > reference.today:
             add(row, C.DATE, date.isoformat(), f"a date not after today ({reference.today.isoformat()})", WARNING)
-        window = reference.windows.get(date.year)
+        window = reference.windows.get(season(date))
         if window is not None and not window[0] <= date <= window[1]:
             add(row, C.DATE, date.isoformat(),
-                f"a date inside the {date.year} season window {window[0].isoformat()} to {window[1].isoformat()}",
+                f"a date inside the {season(date)} season window {window[0].isoformat()} to {window[1].isoformat()}",
                 WARNING)
         if reference.observers is not None:
             for code in v_teams[i] or ():
@@ -269,7 +274,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                     add(row, H.OBSERVERS, code,
                         "an observer in the register" + _closest(code, sorted(reference.observers)))
     for station, date, repeat, row in zip(v_stations, v_dates, v_repeats, v_rows, strict=True):
-        rounds.setdefault((station, date.year), []).append((date, bool(repeat), row))
+        rounds.setdefault((station, season(date)), []).append((date, bool(repeat), row))
     for (station, year), entries in rounds.items():
         if len(entries) < 2:
             continue  # one visit in the round: nothing to compare

@@ -8,7 +8,9 @@ most overdue first, whatever its panel says.
 
 The visit window of a station is the programme's season window narrowed by the windows of
 the species recorded there (flowering, say), since one visit records them all:
-:math:`[\max(a_0, a_s), \min(b_0, b_s)]`.
+:math:`[\max(a_0, a_s), \min(b_0, b_s)]`.  A window may wrap the new year (1 December to 28
+February): season :math:`t` then runs from December of :math:`t` into :math:`t + 1`, days are
+counted on through 31 December, and a visit belongs to the season in which it started.
 
 Effort per station [min] = set-up + :math:`\sum` minutes per quadrat for each
 (species, measure) recorded there.
@@ -40,7 +42,12 @@ FIRST_SEASON = "first_season"      # first season a station could be visited (se
 
 @dataclass(frozen=True)
 class SeasonWindow:
-    """A yearly window given as month-day pairs, e.g. ``SeasonWindow((5, 1), (7, 31))``."""
+    """A yearly window given as month-day pairs, e.g. ``SeasonWindow((5, 1), (7, 31))``.
+
+    A window whose end comes before its start wraps the new year (a southern summer,
+    ``SeasonWindow((12, 1), (2, 28))``): the season of year :math:`t` then runs from the start in
+    :math:`t` to the end in :math:`t + 1`, and a date belongs to the season in which it started.
+    """
 
     start: tuple[int, int]
     end: tuple[int, int]
@@ -51,10 +58,6 @@ class SeasonWindow:
                 dt.date(2024, int(md[0]), int(md[1]))  # leap year accepts 29 February
             except (ValueError, TypeError, IndexError) as exc:
                 raise DesignError(f"season window date {md!r} is not a month-day pair") from exc
-        if tuple(self.end) < tuple(self.start):
-            raise DesignError(
-                f"season window closes ({self.end[1]:02d}/{self.end[0]:02d}) before it opens "
-                f"({self.start[1]:02d}/{self.start[0]:02d})")
 
     @classmethod
     def parse(cls, start: str, end: str) -> SeasonWindow:
@@ -67,16 +70,49 @@ class SeasonWindow:
             return m, d
         return cls(md(start), md(end))
 
-    def dates(self, year: int) -> tuple[dt.date, dt.date]:
-        def day(md: tuple[int, int]) -> dt.date:
-            m, d = md
-            if (m, d) == (2, 29) and not _leap(year):
-                d = 28
-            return dt.date(year, m, d)
-        return day(self.start), day(self.end)
+    @property
+    def wraps(self) -> bool:
+        """True when the window runs over the new year (its end month-day is before its start)."""
+        return tuple(self.end) < tuple(self.start)
 
-    def to_dict(self) -> dict[str, str]:
-        return {"start": f"{self.start[0]:02d}-{self.start[1]:02d}", "end": f"{self.end[0]:02d}-{self.end[1]:02d}"}
+    def dates(self, year: int) -> tuple[dt.date, dt.date]:
+        """First and last day of season ``year`` (the last in ``year + 1`` when the window wraps)."""
+        def day(y: int, md: tuple[int, int]) -> dt.date:
+            m, d = md
+            if (m, d) == (2, 29) and not _leap(y):
+                d = 28
+            return dt.date(y, m, d)
+        return day(year, self.start), day(year + 1 if self.wraps else year, self.end)
+
+    def season_of(self, date: dt.date) -> int:
+        """The season a date belongs to: the year in which that season's window opened.
+
+        For a wrapping window a date up to the window's end in January or February belongs to the
+        season that opened the year before; otherwise the season is the calendar year.
+        """
+        if self.wraps and (date.month, date.day) <= tuple(self.end):
+            return date.year - 1
+        return date.year
+
+    def first_season_after(self, day: dt.date) -> int:
+        """The first season whose window has not closed by ``day`` (a station set out that day)."""
+        season = self.season_of(day)
+        return season + (1 if day > self.dates(season)[1] else 0)
+
+    def overlapping(self, start: dt.date, end: dt.date) -> tuple[dt.date, dt.date]:
+        """This window's occurrence that overlaps ``[start, end]`` most (species windows inside a season
+        that wraps the new year may fall in either calendar year)."""
+        best = None
+        for y in range(start.year - 1, end.year + 1):
+            a, b = self.dates(y)
+            overlap = (min(b, end) - max(a, start)).days
+            if best is None or overlap > best[0]:
+                best = (overlap, a, b)
+        return best[1], best[2]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"start": f"{self.start[0]:02d}-{self.start[1]:02d}", "end": f"{self.end[0]:02d}-{self.end[1]:02d}",
+                "wraps": self.wraps}
 
 
 def _leap(y: int) -> bool:
@@ -130,9 +166,10 @@ def station_window(year: int, window: SeasonWindow, species: Sequence[str],
                    species_windows: Mapping[str, SeasonWindow] | None) -> tuple[dt.date, dt.date]:
     """Programme window narrowed by the windows of ``species`` (intersection)."""
     a, b = window.dates(year)
+    season = (a, b)
     for sp in species:
         if species_windows and sp in species_windows:
-            sa, sb = species_windows[sp].dates(year)
+            sa, sb = species_windows[sp].overlapping(*season)
             a, b = max(a, sa), min(b, sb)
     return a, b
 

@@ -124,6 +124,23 @@ def programme_window(session: Session, programme_id: int, year: int) -> tuple[dt
     return start, end
 
 
+def season_rule(session: Session, programme_id: int) -> Callable[[dt.date], int]:
+    """The season a visit date belongs to.  With a standing programme window that wraps the new year
+    (start after end, e.g. 12-01 to 02-28) a date up to the window's end counts to the season that opened
+    the year before; otherwise the season is the calendar year."""
+    rows = session.exec(select(M.SeasonWindow).where(M.SeasonWindow.programme_id == programme_id,
+                                                     M.SeasonWindow.species_id.is_(None),
+                                                     M.SeasonWindow.year.is_(None))).all()
+    if not rows or rows[0].end_md >= rows[0].start_md:
+        return _calendar_year
+    end = rows[0].end_md
+    return lambda d: d.year - 1 if f"{d.month:02d}-{d.day:02d}" <= end else d.year
+
+
+def _calendar_year(date: dt.date) -> int:
+    return date.year
+
+
 def build_reference(session: Session, programme: M.Programme, years: list[int]) -> Reference:
     pid = programme.id
     stations = session.exec(select(M.Station).where(M.Station.programme_id == pid)).all()
@@ -158,6 +175,7 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
         observers=observers or None,
         covariate_units=units if isinstance(units, dict) and units else None,
         today=dt.date.today(),
+        season_of=season_rule(session, pid),
     )
 
 
@@ -328,6 +346,9 @@ def _import_in(session: Session, programme: M.Programme, records: FieldRecords, 
                                f"as {batch.file_name}; nothing to do")
         return report
     visits = records.visits
+    season_of = season_rule(session, programme.id)
+    if season_of is not _calendar_year:  # a season across the new year: January visits belong to December's round
+        visits = visits.assign(**{C.YEAR: [season_of(d) for d in visits[C.DATE]]})
     years = sorted({int(y) for y in visits[C.YEAR]})
     report.years = years
     reference = build_reference(session, programme, years)

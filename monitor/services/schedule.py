@@ -129,7 +129,7 @@ def _first_season(established: dt.date | None, window: S.SeasonWindow) -> int | 
     set out after that year's season window closed."""
     if established is None:
         return None
-    return established.year + (1 if established > window.dates(established.year)[1] else 0)
+    return window.first_season_after(established)
 
 
 def season_inputs(store: Store, programme: M.Programme, year: int,

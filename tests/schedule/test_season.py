@@ -21,11 +21,30 @@ DESIGN = PanelDesign.parse("[1-0,1-3]", 2024)
 TARGETS = [("ANEMNE", "count"), ("CALLUV", "cover")]
 
 
-def test_window_closing_before_opening_is_an_error():
-    with pytest.raises(DesignError, match="closes .* before it opens"):
-        SeasonWindow((7, 31), (5, 1))
+def test_window_may_wrap_the_new_year():
+    w = SeasonWindow((12, 1), (2, 28))
+    assert w.wraps and not SeasonWindow((5, 1), (7, 31)).wraps
+    # season 2027 runs from 1 December 2027 to 28 February 2028; 2028 is a leap year, the end stays 28 Feb
+    assert w.dates(2027) == (dt.date(2027, 12, 1), dt.date(2028, 2, 28))
+    # a date belongs to the season in which it started
+    assert w.season_of(dt.date(2028, 1, 15)) == 2027 and w.season_of(dt.date(2027, 12, 31)) == 2027
+    assert w.season_of(dt.date(2028, 3, 1)) == 2028 and w.season_of(dt.date(2028, 2, 28)) == 2027
+    # a station set out in March can first be visited the coming December; one set out in January the same season
+    assert w.first_season_after(dt.date(2027, 3, 10)) == 2027
+    assert w.first_season_after(dt.date(2028, 1, 10)) == 2027
+    assert SeasonWindow((5, 1), (7, 31)).first_season_after(dt.date(2027, 8, 1)) == 2028
     with pytest.raises(DesignError):
         SeasonWindow.parse("06-31", "07-10")
+
+
+def test_species_windows_inside_a_season_across_the_new_year():
+    w = SeasonWindow((12, 1), (2, 28))
+    sp = {"ANEMNE": SeasonWindow((1, 5), (2, 10)), "CALLUV": SeasonWindow((11, 20), (1, 20))}
+    # ANEMNE flowers in January: the occurrence in the season's second calendar year is used
+    assert station_window(2027, w, ["ANEMNE"], sp) == (dt.date(2028, 1, 5), dt.date(2028, 2, 10))
+    # CALLUV's own window wraps too: 1 December to 20 January
+    assert station_window(2027, w, ["CALLUV"], sp) == (dt.date(2027, 12, 1), dt.date(2028, 1, 20))
+    assert station_window(2027, w, ["ANEMNE", "CALLUV"], sp) == (dt.date(2028, 1, 5), dt.date(2028, 1, 20))
 
 
 def test_species_window_narrows_programme_window():
