@@ -980,9 +980,9 @@ def _methods(families: set[str], margins: set[float], software: Mapping[str, str
     if "observer" in random_effects:
         grouping += ", and one for each observer"
     if "year" in random_effects:
-        grouping += (", and a random effect for each year shared by all stations (good and bad years), whose "
-                     "intervals use a t reference with degrees of freedom from the number of years "
-                     "(Piepho & Ogutu 2002)")
+        grouping += (", and a random effect for each year shared by all stations (good and bad years; the "
+                     "intervals then rest on a t reference with degrees of freedom from the number of years, "
+                     "Piepho & Ogutu 2002)")
     margin_text = _margin_text(margins)
     first = (
         "Each species and measure was analysed with a generalised linear mixed model fitted by maximum "
