@@ -106,7 +106,7 @@ def safe_file(base: Path, relative: str) -> Path | None:
     path, a backslash, a link leading out of the folder, a missing file)."""
     if not relative or "\\" in relative or "\x00" in relative:
         return None
-    parts = PurePosixPath(relative).parts
+    parts = relative.split("/")
     if PurePosixPath(relative).is_absolute() or any(p in ("..", ".", "") for p in parts):
         return None
     root = Path(base).resolve()

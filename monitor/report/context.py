@@ -440,6 +440,8 @@ class ReportContext:
     cautions: tuple[str, ...]
     sites: Mapping[str, object] = field(default_factory=dict)
     names: Mapping[str, str] = field(default_factory=dict)
+    #: target species whose trend could not be called (one season of data, ...), as dicts with the reason
+    not_called: tuple[dict, ...] = ()
 
     def to_dict(self) -> dict:
         """The report's numbers as JSON-ready data (schema ``monitor.report/1``)."""
@@ -464,6 +466,7 @@ class ReportContext:
             "coverage": coverage,
             "power": [p.to_dict() for p in self.power],
             "comparison": None if self.comparison is None else [c.to_dict() for c in self.comparison],
+            "not_called": [dict(n) for n in self.not_called],
             "software": dict(self.methods.software),
         }
 

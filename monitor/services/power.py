@@ -88,6 +88,8 @@ class PowerStudy:
 def components_for(db: str | None, species: str, *, programme_code: str | None = None) -> tuple[VarianceComponents, str]:
     """The population model of a stored species: its fitted trend, and its grid or frame from the programme."""
     fitted = trend.fit_programme(db, programme_code=programme_code, species=[species], keep_data=True)
+    if not fitted and getattr(fitted, "not_called", None):
+        raise EstimationError(fitted.not_called[0].line())
     if len(fitted) != 1:
         raise InputError(InputProblem("--species", None, None, species, "one target species and measure"))
     t = fitted[0]

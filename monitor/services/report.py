@@ -6,6 +6,8 @@ The report folder is written to a temporary sibling and moved into place at the 
 
 from __future__ import annotations
 
+import dataclasses
+
 import datetime as dt
 import json
 from pathlib import Path
@@ -166,8 +168,10 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
 
     trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True)
+    not_called = list(getattr(trends, "not_called", []))
     if not trends:
-        raise DataError("no target species to report")
+        reasons = "; ".join(n.line() for n in not_called)
+        raise DataError("no target species to report" + (f": {reasons}" if reasons else ""))
     if power is None:
         from monitor.services.power import detectable_changes
 
@@ -231,6 +235,9 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
         )
     finally:
         store.dispose()
+    if not_called:  # species too short to call are said so; the rest of the report stands
+        context = dataclasses.replace(context, cautions=(*context.cautions, *(n.line() for n in not_called)),
+                                      not_called=tuple(n.to_dict() for n in not_called))
     try:
         return render_report(context, out_dir, progress=progress)
     except OSError as exc:

@@ -17,9 +17,41 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.db import Store, one_snapshot, queries
-from monitor.errors import DataError, Diagnostic, EstimationError, InputError, InputProblem
+from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 from monitor.trend import TrendModel, TrendResult
+
+
+@dataclass(frozen=True)
+class NotCalled:
+    """A target species whose trend cannot be called from the data (too short a series, too few stations)."""
+
+    species: str
+    common_name: str
+    measure: str
+    reason: str
+    years: tuple[int, ...] = ()
+
+    def why(self) -> str:
+        seasons = (f"data from {len(self.years)} season{'s' if len(self.years) != 1 else ''}"
+                   f" ({', '.join(map(str, self.years))})" if self.years else "no data")
+        return f"too short to call: {seasons}; {self.reason}"
+
+    def line(self) -> str:
+        return f"{self.species} ({self.measure}): {self.why()}"
+
+    def to_dict(self) -> dict:
+        return {"species": self.species, "common_name": self.common_name, "measure": self.measure,
+                "call": "too short to call", "reason": self.reason, "years": list(self.years)}
+
+
+class TrendRun(list):
+    """The fitted trends (a list of :class:`SpeciesTrend`) and, in ``not_called``, the species that could not
+    be fitted, each with its reason."""
+
+    def __init__(self, *args):
+        super().__init__(*args)
+        self.not_called: list[NotCalled] = []
 
 
 @dataclass(frozen=True)
@@ -111,9 +143,9 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                   progress: Callable[[int, int, str], None] | None = None) -> list[SpeciesTrend]:
     """Fit every target species and measure of the programme (or those named).
 
-    ``skipped``: when a list is given, a species whose model cannot be fitted at all (an
-    EstimationError: e.g. every stored value the same) is appended to it as
-    {species, measure, reason} and the other species go on; otherwise the error is raised.
+    A species whose trend cannot be fitted (one season of data, too few stations, no values, every value
+    the same) does not stop the others: it is listed in the returned list's ``not_called`` as too short to
+    call, with the reason, and, when ``skipped`` is a list, appended to it as {species, measure, reason}.
     """
     if choices is None:
         choices = ModelChoices(family=family, observer_effect=observer_effect)
@@ -130,7 +162,7 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
         from monitor.services.relocation import lineage
 
         chains = lineage(store, programme.id)
-        out = []
+        out = TrendRun()
         for i, target in enumerate(targets.to_dict(orient="records")):
             if progress:
                 progress(i, len(targets), target[C.SPECIES])
@@ -138,16 +170,23 @@ def fit_programme(db: str | None, *, programme_code: str | None = None, species:
                                              measure=target[C.MEASURE], sites=sites, first_year=first_year,
                                              last_year=last_year)
             if long.empty:
-                raise DataError(f"no stored values for {target[C.SPECIES]} ({target[C.MEASURE]}) in the years asked")
+                short = NotCalled(target[C.SPECIES], target["common_name"] or "", target[C.MEASURE],
+                                  "no stored values in the years asked", ())
+                out.not_called.append(short)
+                if skipped is not None:
+                    skipped.append({C.SPECIES: target[C.SPECIES], C.MEASURE: target[C.MEASURE], "reason": short.why()})
+                continue
             long[C.LINEAGE] = long[C.STATION].map(chains)
             data, notes = analysis_frame(long, target[C.MEASURE])
             try:
                 result = fit_one(data, target[C.MEASURE], margin=change_margin(programme.change_margin),
                                  choices=choices)
-            except EstimationError as exc:
-                if skipped is None:
-                    raise
-                skipped.append({C.SPECIES: target[C.SPECIES], C.MEASURE: target[C.MEASURE], "reason": str(exc)})
+            except EstimationError as exc:  # this species cannot be called; the others still are
+                years = tuple(sorted(int(y) for y in set(data[C.YEAR]))) if C.YEAR in data else ()
+                short = NotCalled(target[C.SPECIES], target["common_name"] or "", target[C.MEASURE], str(exc), years)
+                out.not_called.append(short)
+                if skipped is not None:
+                    skipped.append({C.SPECIES: target[C.SPECIES], C.MEASURE: target[C.MEASURE], "reason": short.why()})
                 continue
             out.append(SpeciesTrend(target[C.SPECIES], target["common_name"] or "", target[C.MEASURE], result,
                                     tuple(notes), data if keep_data else None))

@@ -32,6 +32,7 @@ from typing import Any
 
 import jinja2
 from starlette.applications import Starlette
+from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import UploadFile
 from starlette.requests import Request
 from starlette.responses import FileResponse, HTMLResponse, RedirectResponse, Response
@@ -164,7 +165,7 @@ class Ctx:
         return RedirectResponse(url, status_code=303)
 
 
-Handler = Callable[[Ctx], Awaitable[Response] | Response]
+Handler = Callable[[Ctx], Response]
 
 
 class WorkspaceApp:
@@ -209,8 +210,9 @@ class WorkspaceApp:
                 elif need is not None and not ctx.may(need):
                     raise Forbidden(f"Your role ({session.role}) may not do this; it needs a {need}.")
                 else:
-                    result = handler(ctx)
-                    response = await result if hasattr(result, "__await__") else result  # type: ignore[misc]
+                    # pages call the services, which block (database, fitting): off the event loop, so one long
+                    # request (building the report) does not hold up everyone else's
+                    response = await run_in_threadpool(handler, ctx)
             except Forbidden as exc:
                 response = ctx.render("web/error.html", status=exc.status, title="Not allowed", message=str(exc),
                                       problems=[])
