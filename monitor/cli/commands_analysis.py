@@ -247,13 +247,18 @@ def change_command(ctx: Context, species, first, second, site, figure, as_json, 
               help="Folder to write (default reports/YEAR); replaced as a whole, atomically.")
 @click.option("--previous", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
               help="Last year's report.json (default: reports/YEAR-1/report.json next to --out, if present).")
+@click.option("--site", default=None, help="A report for this one site (code): trends on its stations only.")
+@click.option("--species", default=None, help="A report for this one species (code).")
+@click.option("--no-pdf", "no_pdf", is_flag=True, help="Skip report.pdf (the printed report).")
 @click.pass_obj
-def report_command(ctx: Context, year: int, out_dir, previous) -> None:
-    """Write the annual trend summary for land managers: one self-contained HTML page, figures and numbers."""
+def report_command(ctx: Context, year: int, out_dir, previous, site, species, no_pdf: bool) -> None:
+    """Write the annual trend summary for land managers: one self-contained HTML page, the printed
+    report as PDF (report.pdf, A4 with page numbers), figures and numbers."""
     from monitor.services import report
 
-    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous)
-    say(f"report written: {folder / 'index.html'}")
+    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous,
+                                 site=site, species=species, pdf=not no_pdf)
+    say(f"report written: {folder / 'index.html'}" + ("" if no_pdf else f" and {folder / 'report.pdf'}"))
 
 
 def _int_list(text: str) -> list[int]:

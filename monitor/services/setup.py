@@ -105,7 +105,9 @@ def create_programme(session: Session, path: Path) -> M.Programme:
         allow_lone_working=meta.get("allow_lone_working", False),
         change_margin=meta.get("change_margin", DEFAULT_CHANGE_MARGIN),
         settings_json=json.dumps({**meta.get("settings", {}),
-                                  **({"time_zone": meta["time_zone"]} if meta.get("time_zone") else {})},
+                                  **({"time_zone": meta["time_zone"]} if meta.get("time_zone") else {}),
+                                  **({"protocol_measures": meta["protocol_measures"]}
+                                     if meta.get("protocol_measures") else {})},
                                  sort_keys=True),
     )
     session.add(programme)
