@@ -26,6 +26,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor.errors import InputError
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
+from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
 from monitor.settings import DEFAULT_CHANGE_MARGIN
@@ -479,6 +480,10 @@ class ReportContext:
     photos: tuple = ()                   # StationPhotos, where stations have repeat photos
     #: target species whose trend could not be called (one season of data, ...), as dicts with the reason
     not_called: tuple[dict, ...] = ()
+    fits: tuple[FitRow, ...] = ()        # every fit shown (overall and by area), when it was made
+    fits_note: str = ""
+    areas: tuple[FitRow, ...] = ()       # trends by site, stratum or region, beside the overall ones
+    area_kind: str = ""                  # site, stratum or region ("" when not asked for)
 
     def to_dict(self) -> dict:
         """The report's numbers as JSON-ready data (schema ``monitor.report/1``)."""
@@ -505,6 +510,8 @@ class ReportContext:
             "comparison": None if self.comparison is None else [c.to_dict() for c in self.comparison],
             "not_called": [dict(n) for n in self.not_called],
             "software": dict(self.methods.software),
+            "areas": [a.to_dict() for a in self.areas],
+            "fits": [f.to_dict() for f in self.fits],
         }
 
 

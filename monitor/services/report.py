@@ -21,7 +21,9 @@ from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
 from monitor.report.render import report_files_in
 from monitor.services.exports import generalise_m_of, generalised_positions
-from monitor.services import estimate, trend
+from monitor.report.fits import FittedEntry, fit_rows, fits_note
+from monitor.services import analyses, estimate, trend
+from monitor.services.records import current_user
 from monitor.trend import station_changes
 
 REPORT_JSON = "report.json"
@@ -196,27 +198,66 @@ def _photos(store: Store, programme_id: int, stations: pd.DataFrame, site_names:
     return out
 
 
-@one_snapshot
+def _read_previous(previous: Path | None) -> dict | None:
+    if previous is None:
+        return None
+    try:
+        return json.loads(Path(previous).read_text(encoding="utf-8"))
+    except (OSError, json.JSONDecodeError) as exc:
+        raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
+
+
+def _previous_from_database(db: str | None, year: int, programme_code: str | None) -> dict | None:
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        return analyses.previous_report(store, programme.id, year - 1)
+    finally:
+        store.dispose()
+
+
 def write_report(db: str | None, year: int, out_dir: Path | None = None, *, programme_code: str | None = None,
                  previous: Path | None = None, power: pd.DataFrame | None = None,
                  progress=None, site: str | None = None, species: str | None = None, pdf: bool = True,
-                 photo_base: Path | None = None) -> Path:
+                 photo_base: Path | None = None, by: str | None = None, workers: int | None = 1,
+                 cluster: str | None = None, refit: bool = False) -> Path:
     """Fit every target species up to ``year`` and write the report folder; returns its path.
 
     ``site`` limits the report to one site (trends fitted on its stations only); ``species`` to one
     species.  With ``pdf`` the folder also holds ``report.pdf``, the printed report (WeasyPrint).
+
+    Everything the report reads comes from one snapshot of the database.  Trends come from the stored
+    fits where the data, model and engine still match, and are fitted (by ``workers`` local processes or
+    on the Dask scheduler ``cluster``) otherwise; ``by`` adds trends by site, stratum or region.  Last
+    year's calls are read from the database (the last report recorded for ``year - 1``); ``previous``
+    names a report.json to compare with instead, and a report folder of last year beside ``out_dir`` is
+    read only when the database holds no report for that year.  After the snapshot, the new fits are
+    stored and the report is recorded with the fits it showed (``monitor trend history``); a report
+    limited to one site or species is not recorded (it is not the season's report).
     """
+    with analyses.saving_after() as saved:
+        folder, shown = _write_report(db, year, out_dir, programme_code=programme_code, previous=previous,
+                                      power=power, progress=progress, site=site, species=species, pdf=pdf,
+                                      photo_base=photo_base, by=by, workers=workers, cluster=cluster,
+                                      refit=refit)
+    if site is None and species is None:
+        _record(db, programme_code, year, [saved.fit_id(t) for t in shown], folder)
+    return folder
+
+
+@one_snapshot
+def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_code: str | None,
+                  previous: Path | None, power: pd.DataFrame | None, progress, site: str | None,
+                  species: str | None, pdf: bool, photo_base: Path | None, by: str | None, workers: int | None,
+                  cluster: str | None, refit: bool) -> tuple[Path, list]:
     out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
     report_files_in(out_dir)  # refuse a folder we did not write now, not after the fits
-    if previous is None:
+    previous_doc = _read_previous(previous)
+    if previous_doc is None and site is None and species is None:
+        previous_doc = _previous_from_database(db, year, programme_code)
+    if previous_doc is None:
         guess = out_dir.parent / str(year - 1) / REPORT_JSON
-        previous = guess if guess.is_file() else None
-    previous_doc = None
-    if previous is not None:
-        try:
-            previous_doc = json.loads(Path(previous).read_text(encoding="utf-8"))
-        except (OSError, json.JSONDecodeError) as exc:
-            raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
+        previous_doc = _read_previous(guess if guess.is_file() else None)
 
     if site is not None or species is not None:  # refuse an unknown code before any fitting
         store = Store.open(db)
@@ -232,9 +273,12 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
         if species is not None and species not in known_species:
             raise InputError(InputProblem("report", None, "--species", species,
                                           f"a species code of the programme ({', '.join(sorted(known_species))})"))
-    trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True,
-                                 sites=[site] if site else None, species=[species] if species else None)
-    not_called = list(getattr(trends, "not_called", []))
+    fitted = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True,
+                                 sites=[site] if site else None, species=[species] if species else None, by=by,
+                                 workers=workers, cluster=cluster, refit=refit)
+    not_called = list(getattr(fitted, "not_called", []))
+    everything = list(fitted)
+    trends = [t for t in fitted if t.area_kind == "all"]
     if not trends:
         reasons = "; ".join(n.line() for n in not_called)
         raise DataError("no target species to report" + (f" for site {site}" if site else "")
@@ -320,9 +364,24 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
     if not_called:  # species too short to call are said so; the rest of the report stands
         context = dataclasses.replace(context, cautions=(*context.cautions, *(n.line() for n in not_called)),
                                       not_called=tuple(n.to_dict() for n in not_called))
+    rows = fit_rows([FittedEntry(t.species, t.common_name, t.measure, t.area_kind, t.area, t.result, t.fitted_at,
+                                 t.reused) for t in everything])
+    context = dataclasses.replace(context, fits=rows, fits_note=fits_note(rows),
+                                  areas=tuple(r for r in rows if r.area_kind != "all"), area_kind=by or "")
     try:
-        return render_report(context, out_dir, progress=progress, pdf=pdf)
+        return render_report(context, out_dir, progress=progress, pdf=pdf), everything
     except OSError as exc:
         if exc.filename is None and exc.errno is not None:  # a failed write names no file (a full disk)
             raise OSError(exc.errno, exc.strerror, str(out_dir)) from exc
         raise
+
+
+def _record(db: str | None, programme_code: str | None, year: int, fit_ids: list[int | None], folder: Path) -> None:
+    """Record the report and the fits it showed (fits not stored, for a role that may not write, are not)."""
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        analyses.record_report(store, programme.id, year, [i for i in fit_ids if i is not None],
+                               folder=str(folder), who=current_user())
+    finally:
+        store.dispose()

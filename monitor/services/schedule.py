@@ -378,6 +378,8 @@ def plan_season(
     replace: bool = False,
     dry_run: bool = False,
     programme_code: str | None = None,
+    paths: Path | None = None,
+    winding: float | None = None,
 ) -> PlanResult:
     """Plan season ``year`` and store it in ``planned_visit`` (one transaction).
 
@@ -386,6 +388,10 @@ def plan_season(
     within ``start_tolerance_m`` of the reserve's sites.  Sites whose access permission lapses
     before a station's window are held back.  An earlier plan of the same year is replaced only
     with ``replace``.  Nothing is written when a request is refused or with ``dry_run``.
+
+    Walking follows the programme's paths when ``paths`` (GeoJSON lines in the programme CRS) is given:
+    shortest paths over that network; otherwise straight lines times the winding factor (``winding``, or
+    the crews file's ``path_factor``; 1 by default).  The paths are stored with the plan.
     """
     if (teams is None) == (crews_file is None):
         raise InputError(InputProblem("--teams/--crews", None, None, None, "either a number of teams or a crews file"))
@@ -413,6 +419,16 @@ def plan_season(
                 starts[r[C.SITE]] = (p.x, p.y)
         starts.update(crew["start_points"])
         reserve = shapely.union_all(list(geometries.values())).buffer(start_tolerance_m) if geometries else None
+        if winding is not None:
+            if winding < 1.0:
+                raise InputError(InputProblem("--winding", None, None, winding, "a factor of at least 1"))
+            crew["path_factor"] = float(winding)
+        network, path_record = None, None
+        if paths is not None:
+            from monitor.services.design import read_lines
+
+            network = S.PathNetwork([line for _code, line in read_lines(paths, programme.crs_epsg)])
+            path_record = {"file": Path(paths).name, "length_m": network.length, "network": network.to_geojson()}
         crews = S.CrewSettings(teams=crew["teams"], start_points=starts,
                                allow_lone_working=bool(programme.allow_lone_working),
                                blocked_dates=tuple(crew["blocked_dates"]) + tuple(blocked if crews_file else ()),
@@ -430,7 +446,9 @@ def plan_season(
         access = {r[C.SITE]: as_date(r["access_until"]) for r in sites.to_dict(orient="records")}
         rng = fresh_seed(seed)
         plan = S.plan_season(due, crews, year=int(year), rng=rng, access_until=access, reserve=reserve,
-                             randomise_site_order=randomise_sites)
+                             randomise_site_order=randomise_sites, network=network)
+        if path_record is not None:
+            plan.params["paths"] = path_record
         result = PlanResult(year=int(year), plan=plan, stored=False, due=due, already_recorded=already)
         if dry_run:
             return result
@@ -570,6 +588,20 @@ def update_outcomes(db: str | None, years: list[int] | None = None, *, programme
             return refresh_outcomes(session, programme.id, years)
     finally:
         store.dispose()
+
+
+def stored_plans(db: str | None, *, programme_code: str | None = None) -> pd.DataFrame:
+    """Every stored season plan, one row a season, for comparing years (:func:`queries.season_plans`)."""
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        frame = queries.season_plans(store, programme.id)
+    finally:
+        store.dispose()
+    frame["route_km"] = frame["route_km"].astype(float).round(2)
+    for column in ("first_day", "last_day"):
+        frame[column] = [as_date(v) for v in frame[column]]
+    return frame
 
 
 # --- field packs ---------------------------------------------------------------------------------------------------
@@ -732,6 +764,7 @@ __all__ = [
     "read_crews_file",
     "refresh_outcomes",
     "stored_plan",
+    "stored_plans",
     "update_outcomes",
     "write_field_packs",
 ]

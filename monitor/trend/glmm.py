@@ -10,10 +10,14 @@ For observation i (a visit of station j(i) in site s(i), recorded by observer o(
     y_i | eta_i ~ family(eta_i),        all u ~ N(0, 1) independently.
 
 "Terms" are the random effects other than the station intercept and the
-observation-level effect: a site intercept (z = 1), a site slope (z = centred year)
-and an observer intercept (z = 1, crossed with station).  The random effects are
-"spherical" (u ~ N(0, I)) and their standard deviations enter as scale factors,
-as in lme4 (Bates et al. 2015).
+observation-level effect: a site intercept (z = 1), a site slope (z = centred year),
+an observer intercept (z = 1, crossed with station), a year intercept (crossed with
+station and site; independent, or AR(1) over consecutive years) and a site-by-year
+intercept (nested in site and in year, crossed with station).  The random effects are
+"spherical" (u ~ N(0, I), or N(0, R) with R the AR(1) correlation matrix, whose inverse
+is tridiagonal) and their standard deviations enter as scale factors, as in lme4
+(Bates et al. 2015).  With a year effect, the fixed effects that are constant within
+years get a t reference with between-year df (``coefficient_df``).
 
 Laplace approximation
 ---------------------
@@ -51,7 +55,10 @@ Newton's system  H [u_obs, u_station, v] = g  is solved by block elimination: th
 observation-level effects (diagonal) are eliminated first, which only rescales the
 weights, w~_i = w_i / (1 + sd_obs^2 w_i); then the station intercepts (diagonal, since
 a station touches only its own rows), which leaves a small dense Schur complement over
-v = (site, site-slope and observer effects, and beta).  This is a sparse Cholesky
+v = (site, site-slope, observer and year effects, and beta).  A site-by-year effect is
+eliminated between the two: after the stations, its cells couple only within a site, so
+they leave one dense K x K block per site (K years), eliminated site by site before v.
+This is a sparse Cholesky
 factorisation in which the fill-in is confined to v: all sums over a station's or a
 level's rows are np.bincount calls, so one Newton step costs O(n + n_station * m + m^3)
 with m = len(v), and no n x n (or n_station x n_station) matrix is ever formed.
@@ -59,7 +66,15 @@ Crossed observer effects live in the dense block, which is exact for any crossin
 pattern and cheap while there are up to a few hundred observers and sites (the usual
 case in a monitoring programme); a general sparse factorisation would be needed
 only for crossed factors with thousands of levels.
-log det(H) = sum log(1 + sd_obs^2 w_i) + sum log A_j + log det(dense Schur block).
+log det(H) = sum log(1 + sd_obs^2 w_i) + sum log A_j [+ sum log det(site blocks)]
++ log det(dense Schur block) - log det(prior precision of the AR(1) year effects).
+
+Estimators and convergence
+--------------------------
+``GlmmFit.estimator`` names what was computed (``ESTIMATORS``): "ml-laplace" / "ml-agq"
+(stage 2), "ml-exact" / "reml-exact" (Gaussian), or "joint-mode" (stage 1 only: the
+fast path, not a maximum likelihood estimate of beta).  ``converged`` is judged from
+numbers: the search's own stopping rule, or else the scaled gradient (GRADIENT_TOL).
 
 References
 ----------
