@@ -162,7 +162,7 @@ def trend_history_command(ctx: Context, species: str, areas: bool, as_json: bool
         emit(table, fmt)
         return
     if table.empty:
-        say(f"no report recorded for {species} yet (reports are recorded from `monitor report`)")
+        say(f"no report recorded for {species} yet (reports are recorded from `monitor report YEAR`)")
         return
     emit([{"report": r["report_year"], "species": r["species"], "measure": r["measure"], "area": r["area"],
            "call": r["call"], "annual change %": f"{_pct(r['annual_change'])} ({_pct(r['lower'])} to "
