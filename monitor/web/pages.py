@@ -408,11 +408,13 @@ def trends(ctx: Ctx):
 
 def _fit(ctx: Ctx, species: str):
     from monitor.services import trend as trend_service
+    from monitor.services import workspace
 
     def compute():
         return trend_service.fit_programme(ctx.db, programme_code=_programme(ctx), species=[species])
 
-    return ctx.app.cached(("trend", species), compute)
+    # reused until the stored records change (through the workspace or the command line)
+    return ctx.app.cached(("trend", species, workspace.records_fingerprint(ctx.db, _programme(ctx))), compute)
 
 
 def trend(ctx: Ctx):

@@ -178,3 +178,15 @@ def test_build_the_report_and_download_it(owner, programme):
     html = owner.get("/files/reports/2026/index.html")
     assert html.status_code == 200 and "Hollowmere Vale" in html.text
     assert html.headers["content-disposition"].startswith("attachment")
+
+
+def test_a_trend_is_fitted_again_after_the_records_change_elsewhere(owner, programme):
+    _engine, url = programme
+    cache = owner.app.state.workspace.cache
+    assert owner.get("/trends/GLASED").status_code == 200
+    fitted = [k for k in cache if k[:2] == ("trend", "GLASED")]
+    assert owner.get("/trends/GLASED").status_code == 200
+    assert [k for k in cache if k[:2] == ("trend", "GLASED")] == fitted  # reused while nothing changed
+    records.set_value(url, "SM-17", 2021, "GLASED", "cover", "23", reason="recount, from the command line")
+    assert owner.get("/trends/GLASED").status_code == 200
+    assert len([k for k in cache if k[:2] == ("trend", "GLASED")]) == len(fitted) + 1
