@@ -41,8 +41,8 @@ def test_plans_go_back_into_settings_on_downgrade_and_into_tables_on_upgrade(pla
         assert len(tables["season_plan"]) == 2 and len(tables["season_plan_team"]) == 4
         assert "season_plans" not in _settings(store)
         plan_2027 = schedule.stored_plan(store, store.programme(), 2027)
-        migrate.downgrade(store.engine, "-1")
-        assert migrate.current_revision(store.engine) != migrate.head_revision()
+        migrate.downgrade(store.engine, "0004-1")  # to the revision before 0004, whatever came after it
+        assert migrate.current_revision(store.engine) not in (migrate.head_revision(), "0004")
         with store.engine.connect() as connection:
             present = set(sa.inspect(connection).get_table_names())
         assert not present & set(PLAN_TABLES)
