@@ -125,7 +125,7 @@ def main() -> None:
         "protocols": [
             {"code": "P1", "description": "2015 protocol: 10-pin frame, pins 10 cm apart", "effective_from": "2015-01-01"},
             {"code": "P2", "description": "2021 protocol: as P1, with frequency grid re-strung to 25 cells of 20 cm",
-             "effective_from": "2021-01-01"},
+             "effective_from": "2021-01-01", "measures": ["frequency"]},
         ],
     }
     (out / "programme.json").write_text(json.dumps(programme, indent=2) + "\n", encoding="utf-8")

@@ -10,6 +10,7 @@ from __future__ import annotations
 PROGRAMME = "programme"      # programme code
 SITE = "site"                # site code
 STRATUM = "stratum"          # stratum code within a site (optional)
+REGION = "region"            # the programme's own grouping of sites (optional; a property of each site)
 STATION = "station"          # permanent quadrat code, unique in a programme
 LINEAGE = "lineage"          # first station of a relocation chain: a moved quadrat continues its series
 TRANSECT = "transect"        # transect code (stations laid along a line)

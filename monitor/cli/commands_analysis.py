@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from pathlib import Path
 
 import click
@@ -13,7 +14,7 @@ from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 
 
 def _pct(x: float | None) -> str:
-    return "" if x is None else f"{100 * x:+.1f}"
+    return "" if x is None or x != x else f"{100 * x:+.1f}"
 
 
 def _sig(x: float | None) -> str:
@@ -25,6 +26,7 @@ def trend_rows(trends, skipped=()) -> list[dict]:
     the fitted trend on the measure's own scale (first -> last year, difference with interval), the
     interval's reference and the call."""
     rows = []
+    by_area = any(x.area_kind != "all" for x in trends)
     for t in trends:
         r = t.result
         ac = r.annual_change
@@ -34,24 +36,41 @@ def trend_rows(trends, skipped=()) -> list[dict]:
             own = f"{_sig(lc.first.estimate)} -> {_sig(lc.last.estimate)} {lc.unit}"
             d = lc.difference
             diff = f"{d.estimate:+.3g} ({d.lower:+.3g} to {d.upper:+.3g})"
+        area = {"area": "all" if t.area_kind == "all" else f"{t.area_kind} {t.area}"} if by_area else {}
         rows.append({
-            "species": t.species, "measure": t.measure, "model": r.model_label, "stations": r.n_stations,
+            "species": t.species, "measure": t.measure, **area, "model": r.model_label, "stations": r.n_stations,
             "years": f"{r.years[0]}-{r.years[1]}", "year effect": r.year_random,
             "change of": r.change_scale,
             "annual change %": f"{_pct(ac.estimate)} ({_pct(ac.lower)} to {_pct(ac.upper)})",
             "over period %": f"{_pct(r.period_change.estimate)}",
             "fitted, first -> last": own, "difference (95% CI)": diff,
-            "interval": r.interval_label, "call": r.call,
+            "interval": r.interval_label, "call": r.call, "fitted": _fitted(t),
         })
     for s in skipped:
         rows.append({"species": s["species"], "measure": s["measure"], "model": "", "stations": "", "years": "",
                      "year effect": "", "change of": "", "annual change %": "", "over period %": "",
                      "fitted, first -> last": "", "difference (95% CI)": "", "interval": "",
-                     "call": f"not fitted: {s['reason']}"})
+                     "call": f"not fitted: {s['reason']}", "fitted": ""})
     return rows
 
 
-@cli.command("trend")
+def _fitted(t) -> str:
+    if t.fitted_at is None:
+        return ""
+    stamp = t.fitted_at.astimezone(dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
+    return f"{stamp} (stored)" if t.reused else stamp
+
+
+def parallel_options(func):
+    """``--workers`` and ``--cluster``: where the fits run."""
+    func = click.option("--cluster", default=None, metavar="tcp://HOST:PORT",
+                        help="Run the fits on this Dask scheduler's workers (results are stored here).")(func)
+    func = click.option("--workers", type=click.IntRange(min=1), default=None,
+                        help="Local processes fitting at once (default: the cores).")(func)
+    return func
+
+
+@cli.group("trend", invoke_without_command=True)
 @click.option("--species", "species", multiple=True, help="Species code (repeat for several; default all targets).")
 @click.option("--site", "sites", multiple=True, help="Only these sites (repeat for several).")
 @click.option("--from", "first_year", type=int, default=None, help="First season to use.")
@@ -72,6 +91,10 @@ def trend_rows(trends, skipped=()) -> list[dict]:
                    "overdispersed).")
 @click.option("--observer-effect", is_flag=True, help="Add a random intercept for observer (crossed with station); "
                                                       "visits with no observer form a level of their own.")
+@click.option("--by", "by", type=click.Choice(["site", "stratum", "region"]), default=None,
+              help="Also a trend for each site, stratum or region (a site's region is set in sites.geojson).")
+@click.option("--refit", is_flag=True, help="Fit again even where a stored fit of the same data and model exists.")
+@parallel_options
 @click.option("--table", "table", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
               help="Fit a long table from elsewhere (station, year, optional site, and count / cover_pct / "
                    "occupied+cells / hits+pins / present) instead of the database.")
@@ -79,13 +102,18 @@ def trend_rows(trends, skipped=()) -> list[dict]:
               help=f"Margin of change that matters, fraction a year (with --table; default {DEFAULT_CHANGE_MARGIN:g}).")
 @format_option
 @xlsx_option
-@click.pass_obj
-def trend_command(ctx: Context, species, sites, first_year, last_year, family, year_effect, no_year_effect, site_year,
-                  observation_effect, observer_effect, table, margin, as_json: bool, as_csv: bool,
-                  xlsx: Path | None) -> None:
-    """Fit mixed models across years: annual change with 95% intervals and the call for each species."""
+@click.pass_context
+def trend_command(click_ctx: click.Context, species, sites, first_year, last_year, family, year_effect, no_year_effect,
+                  site_year, observation_effect, observer_effect, by, refit, workers, cluster, table, margin,
+                  as_json: bool, as_csv: bool, xlsx: Path | None) -> None:
+    """Fit mixed models across years: annual change with 95% intervals and the call for each species.
+
+    Fits are stored and reused while the data, the model and the engine are unchanged."""
+    if click_ctx.invoked_subcommand is not None:
+        return
     from monitor.services import trend
 
+    ctx: Context = click_ctx.obj
     if no_year_effect and year_effect:
         raise click.UsageError("--no-year-effect and --year-effect exclude each other")
     choices = trend.ModelChoices(family=family, year_random="none" if no_year_effect else year_effect,
@@ -103,7 +131,11 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, y
 
             trends = trend.fit_programme(ctx.db, programme_code=ctx.programme, species=list(species) or None,
                                          sites=list(sites) or None, first_year=first_year, last_year=last_year,
-                                         choices=choices, skipped=skipped, progress=tick)
+                                         choices=choices, skipped=skipped, by=by, refit=refit, workers=workers,
+                                         cluster=cluster, progress=tick)
+        reused = sum(t.reused for t in trends)
+        if reused:
+            say(f"{reused} of {len(trends)} fits reused from the stored fits (unchanged data, model and engine)")
     for s in skipped:
         say(f"{s['species']} ({s['measure']}): not fitted: {s['reason']}")
     write_workbook(xlsx, {"trends": trend_number_rows(trends)})
@@ -113,6 +145,29 @@ def trend_command(ctx: Context, species, sites, first_year, last_year, family, y
         emit(trend_number_rows(trends), fmt)
     else:
         emit(trend_rows(trends, skipped), fmt)
+
+
+@trend_command.command("history")
+@click.argument("species")
+@click.option("--areas", is_flag=True, help="Also the calls by site, stratum or region.")
+@format_option
+@click.pass_obj
+def trend_history_command(ctx: Context, species: str, areas: bool, as_json: bool, as_csv: bool) -> None:
+    """The call each year's report gave a species, with its annual change and when the fit was made."""
+    from monitor.services import analyses
+
+    table = analyses.history(ctx.db, species, programme_code=ctx.programme, areas=areas)
+    fmt = chosen_format(as_json, as_csv)
+    if fmt != "table":
+        emit(table, fmt)
+        return
+    if table.empty:
+        say(f"no report recorded for {species} yet (reports are recorded from `monitor report YEAR`)")
+        return
+    emit([{"report": r["report_year"], "species": r["species"], "measure": r["measure"], "area": r["area"],
+           "call": r["call"], "annual change %": f"{_pct(r['annual_change'])} ({_pct(r['lower'])} to "
+           f"{_pct(r['upper'])})", "years": r["years"], "fitted": r["fitted_at"], "reported": r["reported_at"]}
+          for r in table.to_dict(orient="records")])
 
 
 @cli.command("estimate")
@@ -246,14 +301,28 @@ def change_command(ctx: Context, species, first, second, site, figure, as_json, 
 @click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path), default=None,
               help="Folder to write (default reports/YEAR); replaced as a whole, atomically.")
 @click.option("--previous", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
-              help="Last year's report.json (default: reports/YEAR-1/report.json next to --out, if present).")
+              help="Last year's report.json to compare with (default: the last report recorded in the database "
+                   "for YEAR-1, else reports/YEAR-1/report.json next to --out, if present).")
+@click.option("--site", default=None, help="A report for this one site (code): trends on its stations only.")
+@click.option("--species", default=None, help="A report for this one species (code).")
+@click.option("--no-pdf", "no_pdf", is_flag=True, help="Skip report.pdf (the printed report).")
+@click.option("--by", "by", type=click.Choice(["site", "stratum", "region"]), default=None,
+              help="Add a table of trends by site, stratum or region.")
+@click.option("--refit", is_flag=True, help="Fit every trend again instead of reusing stored fits.")
+@parallel_options
 @click.pass_obj
-def report_command(ctx: Context, year: int, out_dir, previous) -> None:
-    """Write the annual trend summary for land managers: one self-contained HTML page, figures and numbers."""
+def report_command(ctx: Context, year: int, out_dir, previous, site, species, no_pdf: bool, by, refit, workers,
+                   cluster) -> None:
+    """Write the annual trend summary for land managers: one self-contained HTML page, the printed
+    report as PDF (report.pdf, A4 with page numbers), figures and numbers.
+
+    Stored fits of unchanged data are reused; the report says when each fit was made."""
     from monitor.services import report
 
-    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous)
-    say(f"report written: {folder / 'index.html'}")
+    folder = report.write_report(ctx.db, year, out_dir, programme_code=ctx.programme, previous=previous,
+                                 site=site, species=species, pdf=not no_pdf, by=by, refit=refit, workers=workers,
+                                 cluster=cluster)
+    say(f"report written: {folder / 'index.html'}" + ("" if no_pdf else f" and {folder / 'report.pdf'}"))
 
 
 def _int_list(text: str) -> list[int]:
@@ -292,13 +361,15 @@ def _int_list(text: str) -> list[int]:
 @click.option("--replicates", type=int, default=200, show_default=True, help="Simulated data sets per design.")
 @click.option("--seed", type=int, default=1, show_default=True, help="Seed: the same seed gives the same answer.")
 @click.option("--workers", type=int, default=1, show_default=True, help="Processes to run in parallel.")
+@click.option("--cluster", default=None, metavar="tcp://HOST:PORT",
+              help="Run the replicates on this Dask scheduler's workers instead (the same answer).")
 @click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
               help="Save power against stations, one line per number of years, with the unlimited-stations ceiling.")
 @format_option
 @click.pass_obj
 def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, sd_year, sd_site_year, trials,
                   change, over_years, stations, years, revisit, missed, alpha, side, target, replicates, seed,
-                  workers, figure, as_json, as_csv):
+                  workers, cluster, figure, as_json, as_csv):
     """Can the design detect the change that matters? Simulated power per design, with the approximation beside it."""
     from dataclasses import replace
 
@@ -334,8 +405,8 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
 
         study = power.power_study(components, source, change=change, over_years=over_years, stations=station_list,
                                   years=year_list, revisit=revisit, missed_share=missed, alpha=alpha, side=side,
-                                  target=target, replicates=replicates, seed=seed, workers=workers, figure=figure,
-                                  progress=tick)
+                                  target=target, replicates=replicates, seed=seed, workers=workers, cluster=cluster,
+                                  figure=figure, progress=tick)
     fmt = chosen_format(as_json, as_csv)
     if fmt == "json":
         emit(study.to_dict(), fmt)

@@ -216,12 +216,17 @@ def _day(text: str | None) -> dt.date | None:
 @click.option("--seed", type=int, default=None, help="Seed of the randomised site order (stored with the plan).")
 @click.option("--randomise-sites", is_flag=True, help="Visit the sites in a random order across the window.")
 @click.option("--replace", is_flag=True, help="Replace a plan already stored for YEAR.")
+@click.option("--paths", "paths_file", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
+              help="The programme's paths (GeoJSON lines, programme CRS): walk the shortest paths over them.")
+@click.option("--winding", type=float, default=None,
+              help="Without paths: straight lines times this winding factor (>= 1; default 1 or the crews file's).")
 @click.option("--dry-run", is_flag=True, help="Plan without storing.")
 @format_option
 @click.pass_obj
 def season_plan(ctx: Context, year: int, teams: int | None, crews_file: Path | None, hours: float, speed: float,
                 blocked: tuple[str, ...], window: tuple[str, str] | None, seed: int | None, randomise_sites: bool,
-                replace: bool, dry_run: bool, as_json: bool, as_csv: bool) -> None:
+                replace: bool, paths_file: Path | None, winding: float | None, dry_run: bool, as_json: bool,
+                as_csv: bool) -> None:
     """Plan season YEAR: due and overdue stations to teams, days and routes, stored as the round's plan."""
     from monitor.services import schedule
 
@@ -229,7 +234,8 @@ def season_plan(ctx: Context, year: int, teams: int | None, crews_file: Path | N
     result = schedule.plan_season(
         ctx.db, year, teams=teams, crews_file=crews_file, hours_per_day=hours, walking_speed_kmh=speed,
         blocked=tuple(_day(b) for b in blocked), window=tuple(window) if window else None, seed=seed,
-        randomise_sites=randomise_sites, replace=replace, dry_run=dry_run, programme_code=ctx.programme)
+        randomise_sites=randomise_sites, replace=replace, dry_run=dry_run, programme_code=ctx.programme,
+        paths=paths_file, winding=winding)
     if fmt == "json":
         emit(result, fmt)
     else:
@@ -249,6 +255,18 @@ def season_plan(ctx: Context, year: int, teams: int | None, crews_file: Path | N
     else:
         replaced = f", replacing {result.replaced} earlier planned visits" if result.replaced else ""
         say(f"plan for {year} stored (seed {result.plan.seed}{replaced})")
+
+
+@season_group.command("plans")
+@format_option
+@click.pass_obj
+def season_plans(ctx: Context, as_json: bool, as_csv: bool) -> None:
+    """The stored season plans side by side, one row a season: teams, team-days, stations, route, routing."""
+    from monitor.services import schedule
+
+    frame = schedule.stored_plans(ctx.db, programme_code=ctx.programme)
+    emit(frame, chosen_format(as_json, as_csv))
+    say(f"{len(frame)} stored season plan{'s' if len(frame) != 1 else ''}")
 
 
 @season_group.command("due")
@@ -272,14 +290,17 @@ def season_due(ctx: Context, year: int, window: tuple[str, str] | None, as_json:
 @click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
 @click.option("--team", default=None, help="Only this team's days.")
 @click.option("--day", default=None, metavar="YYYY-MM-DD", help="Only this day.")
+@click.option("--no-pdf", "no_pdf", is_flag=True, help="Skip field_sheet.pdf (the sheet ready to print).")
 @format_option
 @click.pass_obj
-def season_pack(ctx: Context, year: int, folder: Path, team: str | None, day: str | None, as_json: bool,
-                as_csv: bool) -> None:
-    """Write field packs for YEAR's planned team-days into FOLDER: field sheet, entry sheet, GPX, iCalendar."""
+def season_pack(ctx: Context, year: int, folder: Path, team: str | None, day: str | None, no_pdf: bool,
+                as_json: bool, as_csv: bool) -> None:
+    """Write field packs for YEAR's planned team-days into FOLDER: field sheet (HTML and a PDF to print),
+    entry sheets (.xlsx with drop-down lists, and CSV), GPX, iCalendar in the programme's time zone."""
     from monitor.services import schedule
 
-    result = schedule.write_field_packs(ctx.db, year, folder, team=team, day=_day(day), programme_code=ctx.programme)
+    result = schedule.write_field_packs(ctx.db, year, folder, team=team, day=_day(day), programme_code=ctx.programme,
+                                        pdf=not no_pdf)
     fmt = chosen_format(as_json, as_csv)
     emit(result if fmt == "json" else result.team_days, fmt)
     say(f"wrote {len(result.team_days)} field pack(s) and the calendar {result.calendar}")

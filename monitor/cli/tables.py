@@ -25,6 +25,7 @@ def trend_number_rows(trends) -> pd.DataFrame:
         ac, pc = r.annual_change, r.period_change
         rows.append({
             "species": t.species, "common_name": getattr(t, "common_name", None), "measure": t.measure,
+            "area_kind": getattr(t, "area_kind", "all"), "area": getattr(t, "area", ""),
             "family": r.family, "stations": int(r.n_stations), "sites": int(r.n_sites),
             "first_year": int(r.years[0]), "last_year": int(r.years[1]), "seasons": int(r.n_years),
             "annual_change_pct": _pct(ac.estimate), "annual_change_lower_pct": _pct(ac.lower),
@@ -37,6 +38,8 @@ def trend_number_rows(trends) -> pd.DataFrame:
             "change_of": getattr(r, "change_scale", None), "year_effect": getattr(r, "year_random", None),
             "interval_df": _finite(getattr(r, "slope_df", None)),
             **_level_columns(getattr(r, "level_change", None)),
+            "fitted_at": None if getattr(t, "fitted_at", None) is None else t.fitted_at.isoformat(),
+            "reused": bool(getattr(t, "reused", False)),
         })
     return pd.DataFrame(rows)
 

@@ -29,12 +29,19 @@ def head_revision() -> str:
     return head
 
 
+def _known_revisions() -> set[str]:
+    return {rev.revision for rev in ScriptDirectory(str(migrations_dir())).walk_revisions()}
+
+
 def current_revision(engine: Engine) -> str | None:
     try:
         with engine.connect() as connection:
             return MigrationContext.configure(connection).get_current_revision()
     except DatabaseError as exc:
-        raise SchemaError(f"{_where(engine)} is not a database monitor can read ({_short(exc)})") from exc
+        from monitor.db.engine import locked_message
+
+        raise SchemaError(locked_message(exc, _where(engine))
+                          or f"{_where(engine)} is not a database monitor can read ({_short(exc)})") from exc
 
 
 def _where(engine: Engine) -> str:
@@ -54,6 +61,9 @@ def _foreign_tables(engine: Engine) -> list[str]:
 def upgrade(engine: Engine, revision: str = "head") -> tuple[str | None, str]:
     """Create or upgrade the schema.  Returns (revision before, revision after)."""
     before = current_revision(engine)
+    if before is not None and before not in _known_revisions():
+        raise SchemaError(f"{_where(engine)} has schema revision {before}, made by a newer version of monitor; "
+                          "nothing was changed: upgrade monitor to use it")
     if before is None and _foreign_tables(engine):
         raise SchemaError(
             f"{_where(engine)} holds tables but is not a monitor database; refusing to change it"
@@ -83,12 +93,9 @@ def check_current(engine: Engine) -> None:
             raise SchemaError(f"{_where(engine)} is not a monitor database (no schema revision found)")
         raise SchemaError(f"{_where(engine)} has no monitor schema yet; run `monitor init` first")
     if current != head:
-        script = ScriptDirectory(str(migrations_dir()))
-        known = {rev.revision for rev in script.walk_revisions()}
-        if current not in known:
-            raise SchemaError(
-                f"{_where(engine)} has schema revision {current}, newer than this monitor knows; upgrade monitor"
-            )
+        if current not in _known_revisions():
+            raise SchemaError(f"{_where(engine)} has schema revision {current}, made by a newer version of monitor; "
+                              "upgrade monitor to use it")
         raise SchemaError(
             f"{_where(engine)} has schema revision {current} but this monitor needs {head}; "
             "run `monitor init` to upgrade it"

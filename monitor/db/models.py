@@ -87,6 +87,8 @@ class Site(SQLModel, table=True):
     base_y: float | None = None
     access_until: dt.date | None = Field(default=None, description="landowner permission or permit valid until")
     access_notes: str = ""
+    region: str | None = Field(default=None, max_length=40,
+                               description="the programme's own grouping of sites for trends by region")
 
     __table_args__ = (
         UniqueConstraint("programme_id", "code", name="uq_site_programme_code"),
@@ -577,6 +579,79 @@ class SeasonPlanTeamDay(SQLModel, table=True):
         UniqueConstraint("plan_id", "team", "date", name="uq_season_plan_team_day_plan_team_date"),
         CheckConstraint("route_m >= 0", name="route_non_negative"),
     )
+
+
+# --- revision 0003: stored fits, reports issued, regions of sites -----------------------------------------
+
+AREA_KINDS = ("all", "site", "stratum", "region")
+
+
+class StoredFit(SQLModel, table=True):
+    """One fitted trend, kept so that it is made once and reused while its data, model and engine stand.
+
+    ``spec_json`` holds every option that changes the fit; ``data_fingerprint`` the SHA-256 of the exact
+    table fitted; ``result_json`` the whole result in a versioned JSON form (``monitor.trend.storage``).
+    The call and annual change are copied out of the result for the history query.
+    """
+
+    __tablename__ = "stored_fit"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    species_id: int = Field(sa_column=_fk("species.id"))
+    measure: str = Field(sa_column=Column(ForeignKey("measure.code", ondelete="RESTRICT"), nullable=False))
+    area_kind: str = Field(default="all", max_length=10, description="all, site, stratum or region")
+    area: str = Field(default="", max_length=40, description="code of the site, stratum or region; '' for all")
+    spec_json: str
+    spec_hash: str = Field(max_length=64)
+    engine_version: str = Field(max_length=200)
+    data_fingerprint: str = Field(max_length=64)
+    result_json: str
+    n_obs: int
+    first_year: int
+    last_year: int
+    call: str
+    annual_change: float | None = None
+    annual_lower: float | None = None
+    annual_upper: float | None = None
+    fit_seconds: float = Field(description="wall-clock time of the fit [s]")
+    fitted_by: str
+    fitted_at: dt.datetime = Field(default_factory=lambda: utcnow())
+
+    __table_args__ = (
+        UniqueConstraint("programme_id", "species_id", "measure", "area_kind", "area", "spec_hash", "engine_version",
+                         "data_fingerprint", name="uq_stored_fit_identity"),
+        CheckConstraint(_in("area_kind", AREA_KINDS), name="area_kind_known"),
+        CheckConstraint("(area_kind = 'all') = (area = '')", name="area_named"),
+        CheckConstraint("n_obs > 0", name="n_obs_positive"),
+        CheckConstraint("fit_seconds >= 0", name="fit_seconds_non_negative"),
+    )
+
+
+class ReportIssue(SQLModel, table=True):
+    """An annual report as written: the season, when, by whom, and (through report_fit) the fits it gave."""
+
+    __tablename__ = "report_issue"
+
+    id: int | None = Field(default=None, primary_key=True)
+    programme_id: int = Field(sa_column=_fk("programme.id"))
+    year: int
+    folder: str = ""
+    issued_by: str
+    issued_at: dt.datetime = Field(default_factory=lambda: utcnow())
+
+
+class ReportFit(SQLModel, table=True):
+    """A fit shown in a report (its call is what the managers were told that year)."""
+
+    __tablename__ = "report_fit"
+
+    id: int | None = Field(default=None, primary_key=True)
+    report_id: int = Field(sa_column=_fk("report_issue.id"))
+    fit_id: int = Field(sa_column=_fk("stored_fit.id"))
+
+    __table_args__ = (UniqueConstraint("report_id", "fit_id", name="uq_report_fit_report_fit"),)
+
 
 # --- revision 0006: people who sign in to the browser workspace -------------------------------------------
 

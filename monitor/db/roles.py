@@ -6,7 +6,7 @@ Three group roles per database (named after it, since PostgreSQL roles belong to
     reads every table: for report readers and analysts.
 ``<db>_recorder``
     reads everything and adds records: visits, values, covariates, photos, rounds, plans, quality flags,
-    management events, import batches; may correct values (logged) and retire stations (only the
+    management events, import batches, stored fits and reports issued; may correct values (logged) and retire stations (only the
     lineage columns of ``station``); may add to the change log but never alter or delete it; no schema
     changes.
 ``<db>_owner``
@@ -25,7 +25,7 @@ from monitor.errors import DataError
 
 GROUPS = ("reader", "recorder", "owner")
 RECORDER_WRITES = ("visit", "observation", "visit_observer", "covariate", "round", "import_batch", "photo",
-                   "quality_flag", "planned_visit", "management_event")
+                   "quality_flag", "planned_visit", "management_event", "stored_fit", "report_issue", "report_fit")
 RECORDER_DELETES = ("observation", "visit_observer", "planned_visit")
 STATION_LINEAGE_COLUMNS = ("state", "retired", "retired_reason", "replaced_by_id")
 PRIVATE_TABLE = "web_user"

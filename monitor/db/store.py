@@ -27,7 +27,7 @@ from sqlmodel import Session
 
 from monitor.config import database_url
 from monitor.db import migrate, models
-from monitor.db.engine import make_engine
+from monitor.db.engine import locked_message, make_engine
 from monitor.errors import AccessError, DataError, MonitorError, SchemaError
 
 
@@ -61,7 +61,8 @@ class Store:
                 migrate.check_current(engine)
         except OperationalError as exc:
             engine.dispose()
-            raise SchemaError(f"cannot open the database: {str(exc.orig).splitlines()[0]}") from exc
+            raise SchemaError(locked_message(exc, _where(engine))
+                              or f"cannot open the database: {str(exc.orig).splitlines()[0]}") from exc
         except BaseException:
             engine.dispose()
             raise
@@ -83,7 +84,8 @@ class Store:
                 raise DataError(f"the database refused the change: {_first_line(exc)}") from exc
             except OperationalError as exc:
                 session.rollback()
-                raise MonitorError(f"database error, nothing was written: {_first_line(exc)}") from exc
+                raise MonitorError(locked_message(exc, _where(self.engine))
+                                   or f"database error, nothing was written: {_first_line(exc)}") from exc
             except DBAPIError as exc:
                 session.rollback()
                 if _denied(exc):
@@ -102,6 +104,11 @@ class Store:
                 # plain tuples: pandas reads a list of tuples column by column at C speed, whereas rows of
                 # another type go through a per-row attribute probe that costs seconds per million rows
                 return pd.DataFrame([tuple(row) for row in result], columns=list(result.keys()))
+        except OperationalError as exc:
+            message = locked_message(exc, _where(self.engine))
+            if message is None:
+                raise
+            raise MonitorError(message) from exc
         except DBAPIError as exc:
             if _denied(exc):
                 raise AccessError(f"your database role may not read this: {_first_line(exc)}") from exc
@@ -158,7 +165,8 @@ def read_snapshot(path_or_url: str | None = None) -> Iterator[Store]:
                     _SNAPSHOTS.reset(token)
                     transaction.rollback()  # a read: nothing to keep
     except OperationalError as exc:
-        raise MonitorError(f"cannot read the database: {_first_line(exc)}") from exc
+        raise MonitorError(locked_message(exc, _where(store.engine))
+                           or f"cannot read the database: {_first_line(exc)}") from exc
     finally:
         store.dispose()
 
@@ -172,6 +180,11 @@ def one_snapshot(function: F) -> F:
             return function(db, *args, **kwargs)
 
     return wrapper  # type: ignore[return-value]
+
+
+def _where(engine: Engine) -> str:
+    return str(engine.url.database) if engine.url.get_backend_name() == "sqlite" else \
+        engine.url.render_as_string(hide_password=True)
 
 
 def _denied(exc: DBAPIError) -> bool:

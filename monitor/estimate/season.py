@@ -103,6 +103,7 @@ def _row_count(rows, site_area, strata_table, design, confidence, precision) -> 
     }
     diagnostics = list(est.diagnostics)
     counts = numeric_column(rows, C.COUNT, "count")
+    row["counted"] = float(counts.sum())  # individuals seen in the quadrats: the total's floor
     if counts.mean() > 0 and counts.std(ddof=1) > 0:
         adequacy = quadrats_needed(counts, precision=precision, confidence=confidence)
         row["quadrats_needed"] = adequacy.n_required

@@ -90,7 +90,7 @@ class Problems:
 
     def add(self, row: int | None, field_: str | None, value: object, expected: str,
             severity: str = "error") -> None:
-        self.counter.add(InputProblem(self.file, row, field_, value, expected, severity))
+        self.counter.add_parts(self.file, row, field_, value, expected, severity)
 
     def extend(self, problems: Iterable[InputProblem]) -> None:
         for problem in problems:

@@ -93,7 +93,8 @@ PROGRAMME = FileSpec(
           "required_covariates, and triggers (see the trigger keys below)."),
         F("protocols", "list of objects", False,
           '[{"code": "P1", "description": "10-pin frame", "effective_from": "2015-01-01"}]',
-          "Protocol versions with the date each took effect."),
+          "Protocol versions with the date each took effect, and optionally the measures a version "
+          'changed ("measures": ["frequency"]): the report notes a change only on those measures.'),
     ),
     "monitor setup all FOLDER",
 )

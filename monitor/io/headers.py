@@ -54,6 +54,23 @@ SOURCE_TEXT = "source_text"        # a value's cell as typed (echoed in messages
 SCOPE_PROGRAMME = "programme"
 
 
+#: what a species code may be, so that the field sheets can carry it in a ``CODE:measure`` column header:
+#: a letter or digit, then letters, digits, '_', '-' or '.' (no space, ':', '/', ',', ';', quotes or brackets)
+SHEET_CODE_RE = re.compile(r"^[^\W_][\w.\-]*$")
+#: a species code that would read as the covariate prefix ``cov:`` in a sheet header
+RESERVED_SPECIES_CODES = ("cov",)
+
+
+def species_code_problem(code: str) -> str | None:
+    """Why a species code cannot go into a sheet's ``CODE:measure`` header, or None when it can."""
+    if not SHEET_CODE_RE.match(code) or len(code) > 40:
+        return ("a species code of letters, digits, '_', '-' or '.' (at most 40, no spaces or ':'), "
+                "so that the field sheets can carry it in a column header such as 'CODE:count'")
+    if code.lower() in RESERVED_SPECIES_CODES:
+        return f"a species code other than '{code}', which the sheets read as the covariate prefix 'cov:'"
+    return None
+
+
 def normalise_header(text: str) -> str:
     """Case-fold, trim, and turn runs of spaces, dashes and dots into one underscore."""
     text = text.replace("\ufeff", "").strip().lower()

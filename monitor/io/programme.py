@@ -432,6 +432,9 @@ def read_species_csv(source: str | os.PathLike[str]) -> pd.DataFrame:
     for number, cells in table.rows:
         raw = table.raw_name
         rec: dict[str, object] = {"source_row": number, C.SPECIES: get(table, cells, C.SPECIES)}
+        why = H.species_code_problem(str(rec[C.SPECIES])) if rec[C.SPECIES] else None
+        if why:
+            problems.add(number, raw(C.SPECIES), rec[C.SPECIES], why)
         rec[H.SCIENTIFIC_NAME] = get(table, cells, H.SCIENTIFIC_NAME)
         if not rec[H.SCIENTIFIC_NAME]:
             problems.add(number, raw(H.SCIENTIFIC_NAME), None, "a scientific name")

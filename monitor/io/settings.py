@@ -85,6 +85,14 @@ def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
             continue
         protocols.append({"code": str(item["code"]), "description": str(item.get("description", "")),
                           "effective_from": start})
+        measures = item.get("measures")
+        if measures is not None:
+            from monitor import columns as C
+
+            if not (isinstance(measures, list) and measures and all(m in C.MEASURES for m in measures)):
+                bad(f"{field}.measures", measures, f"a list of the measures the protocol concerns ({', '.join(C.MEASURES)})")
+            else:
+                out.setdefault("protocol_measures", {})[str(item["code"])] = list(measures)
     out["protocols"] = protocols
     if problems:
         raise InputError(problems)

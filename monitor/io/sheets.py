@@ -87,7 +87,8 @@ def entry_workbook(path: str | Path, rows: pd.DataFrame, *, statuses: Sequence[s
 
     ``rows`` holds the visit columns already filled in (station, planned date, ...); the value columns
     are left blank to fill in.  The lists live on a sheet of their own (``lists``), so a list longer
-    than the 255 characters of an inline list still works.  The importer reads the first sheet.
+    than the 255 characters of an inline list still works; that sheet is hidden, and the importer reads
+    the one visible sheet.
     """
     from openpyxl import Workbook
     from openpyxl.styles import Font
@@ -108,6 +109,8 @@ def entry_workbook(path: str | Path, rows: pd.DataFrame, *, statuses: Sequence[s
         sheet.append(values + [None] * (len(columns) - len(values)))
     last = max(sheet.max_row, 2) + 20  # room for visits added on the day
     lists = book.create_sheet(LISTS_SHEET)
+    # hidden, so the workbook has one visible sheet: the importer reads that one and never a hidden one
+    lists.sheet_state = "hidden"
     lists.append(["status", "observer"])
     for i in range(max(len(statuses), len(observers))):
         lists.append([statuses[i] if i < len(statuses) else None, observers[i] if i < len(observers) else None])

@@ -30,7 +30,7 @@ from __future__ import annotations
 import math
 import os
 from collections.abc import Callable, Sequence
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -148,8 +148,10 @@ class _Job:
 
 def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str, n_replicates: int,
               entropy: int, n_workers: int | None, progress: Progress,
-              progress_offset: int = 0, progress_total: int | None = None) -> list[list[tuple]]:
-    """Run every job's replicates, in this process or across a process pool."""
+              progress_offset: int = 0, progress_total: int | None = None,
+              executor: Executor | None = None) -> list[list[tuple]]:
+    """Run every job's replicates, in this process, across a process pool, or on the ``executor`` given
+    (any ``concurrent.futures.Executor``, e.g. a Dask client's; ``n_workers`` then sets the chunking)."""
     if fitter not in FITTERS:
         raise DesignError(f"fitter {fitter!r}: expected one of {', '.join(FITTERS)}")
     if fitter.startswith("trend") and components.family == "lognormal":
@@ -172,7 +174,9 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
         progress(done, total)
     chunk = max(1, min(25, math.ceil(n_replicates / (4 * workers))))
     pieces = [(j, start) for j in range(len(jobs)) for start in range(0, n_replicates, chunk)]
-    if workers == 1:
+    if executor is not None:
+        _collect(executor, components, jobs, fitter, seeds, pieces, chunk, results, done, total, progress)
+    elif workers == 1:
         for j, start in pieces:
             job = jobs[j]
             rows = _run_chunk(components, job.design, job.scenario, fitter, seeds[job.key][start:start + chunk])
@@ -182,19 +186,24 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
                 progress(done, total)
     else:
         with ProcessPoolExecutor(max_workers=workers) as pool:
-            futures = {
-                pool.submit(_run_chunk, components, jobs[j].design, jobs[j].scenario, fitter,
-                            seeds[jobs[j].key][start:start + chunk]): (j, start)
-                for j, start in pieces
-            }
-            for future in as_completed(futures):
-                j, start = futures[future]
-                rows = future.result()
-                results[j][start:start + len(rows)] = rows
-                done += len(rows)
-                if progress is not None:
-                    progress(done, total)
+            _collect(pool, components, jobs, fitter, seeds, pieces, chunk, results, done, total, progress)
     return results  # type: ignore[return-value]
+
+
+def _collect(pool: Executor, components, jobs, fitter, seeds, pieces, chunk, results, done, total, progress) -> None:
+    """Submit every chunk of replicates to ``pool`` and put each back in its place as it finishes."""
+    futures = {
+        pool.submit(_run_chunk, components, jobs[j].design, jobs[j].scenario, fitter,
+                    seeds[jobs[j].key][start:start + chunk]): (j, start)
+        for j, start in pieces
+    }
+    for future in as_completed(futures):
+        j, start = futures[future]
+        rows = future.result()
+        results[j][start:start + len(rows)] = rows
+        done += len(rows)
+        if progress is not None:
+            progress(done, total)
 
 
 def _summarise(components: VarianceComponents, job: _Job, fitter: str, rows: list[tuple], entropy: int,
@@ -323,19 +332,21 @@ def simulate_power(components: VarianceComponents, design: Design, scenario: Sce
 def compare_designs(components: VarianceComponents, designs: Sequence[Design], scenario: Scenario, *,
                     rng: np.random.Generator, n_replicates: int = 500, n_workers: int | None = 1,
                     progress: Progress = None, fitter: str = "trend",
-                    approximation: bool = True) -> list[PowerResult]:
+                    approximation: bool = True, executor: Executor | None = None) -> list[PowerResult]:
     """Simulated power of several designs side by side (see :func:`simulate_power`).
 
     Every design's replicates are seeded from ``SeedSequence(entropy, spawn_key=(0,))`` (common
     random numbers, see the module docstring).  Use :func:`results_frame` for a table and
-    :func:`monitor.power.plot_power` for the figure.
+    :func:`monitor.power.plot_power` for the figure.  ``executor`` (any ``concurrent.futures.Executor``,
+    such as a Dask client's) runs the replicates instead of a local pool of ``n_workers``; the answer is
+    the same.
     """
     designs = list(designs)
     if not designs:
         raise DesignError("no designs to compare")
     entropy = _entropy(rng)
     jobs = [_Job(k, d, scenario) for k, d in enumerate(designs)]
-    rows = _run_jobs(components, jobs, fitter, n_replicates, entropy, n_workers, progress)
+    rows = _run_jobs(components, jobs, fitter, n_replicates, entropy, n_workers, progress, executor=executor)
     return [_summarise(components, job, fitter, r, entropy, approximation) for job, r in zip(jobs, rows, strict=True)]
 
 
@@ -369,7 +380,8 @@ class DesignSearch:
 def smallest_design(components: VarianceComponents, scenario: Scenario, design: Design, *,
                     vary: str = "n_stations", grid: Sequence[int], target: float = 0.8,
                     rng: np.random.Generator, n_replicates: int = 500, n_workers: int | None = 1,
-                    progress: Progress = None, fitter: str = "trend") -> DesignSearch:
+                    progress: Progress = None, fitter: str = "trend",
+                    executor: Executor | None = None) -> DesignSearch:
     """Smallest number of stations (or years) on ``grid`` whose simulated power reaches ``target``.
 
     The approximation's answer on the grid is simulated first; then a bisection over the grid,
@@ -406,7 +418,7 @@ def smallest_design(components: VarianceComponents, scenario: Scenario, design: 
         if j not in evaluated:
             job = _Job(j, candidates[j], scenario)
             rows = _run_jobs(components, [job], fitter, n_replicates, entropy, n_workers, progress,
-                             progress_offset=done[0], progress_total=total)
+                             progress_offset=done[0], progress_total=total, executor=executor)
             done[0] += n_replicates
             evaluated[j] = _summarise(components, job, fitter, rows[0], entropy, True)
         return evaluated[j].power

@@ -21,12 +21,14 @@ from monitor.report.context import (
     GradientData,
     Interval,
     Methods,
+    Photo,
     PowerRow,
     ProgrammeInfo,
     QualityFlag,
     ReportContext,
     SeasonsRow,
     SpeciesSection,
+    StationPhotos,
     SummaryRow,
     build_report_context,
     software_versions,
@@ -52,7 +54,7 @@ from monitor.report.wording import (
 
 __all__ = [
     "CallChange", "Coverage", "CoverageRow", "EstimateRow", "EventMark", "FigureRef", "GradientData",
-    "Interval", "Methods", "MethodChange", "PowerRow", "ProgrammeInfo", "QualityFlag", "ReportContext",
+    "Interval", "Methods", "MethodChange", "Photo", "PowerRow", "StationPhotos", "ProgrammeInfo", "QualityFlag", "ReportContext",
     "SeasonsRow", "SpeciesSection", "SummaryRow", "Trigger", "TriggerOutcome", "TrendNumbers",
     "build_report_context", "caveat_sentences", "compare_with_previous", "draw_figures", "environment",
     "evaluate_trigger", "evaluate_triggers", "figure_png", "figure_svg", "period_phrase", "plot_gradient",

@@ -26,6 +26,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor.errors import InputError
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
+from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
 from monitor.settings import DEFAULT_CHANGE_MARGIN
@@ -37,10 +38,17 @@ from monitor.report.wording import (
     TrendNumbers,
     caveat_sentences,
     change_with_interval,
+    decline_advice,
+    detectable_fall_sentence,
     percent,
+    plain_measures,
     rate_with_interval,
+    season_label,
     signed_percent,
+    significant,
+    total_floor_note,
     trend_sentence,
+    whole,
 )
 
 PROBABILITY_PLACEMENTS = (C.PLACEMENT_RANDOM, C.PLACEMENT_STRATIFIED, C.PLACEMENT_BALANCED,
@@ -68,6 +76,8 @@ REFERENCES = (
     "Harrower, M. and Brewer, C. A. (2003). ColorBrewer.org: an online tool for selecting colour "
     "schemes for maps. The Cartographic Journal 40(1), 27–37.",
 )
+
+FEW_QUADRATS = 10  # below this many quadrats an estimate is flagged (as monitor.estimate does; common practice)
 
 SOFTWARE = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "Jinja2", "shapely")
 
@@ -287,6 +297,8 @@ class SpeciesSection:
     figures: tuple[FigureRef, ...]
     triggers: tuple[TriggerOutcome, ...]
     power: PowerRow | None
+    advice: str | None = None
+    interval_method: str = ""
 
     def to_dict(self) -> dict:
         def rows(frame):
@@ -323,6 +335,9 @@ class EstimateRow:
     estimate_text: str
     interval_text: str
     n_stations: int | None
+    site_name: str = ""
+    notes: tuple[str, ...] = ()
+    few_quadrats: bool = False
 
     def to_dict(self) -> dict:
         return {"species": self.species, "site": self.site, "quantity": self.quantity,
@@ -340,6 +355,7 @@ class CoverageRow:
     missed: int
     inaccessible: int
     visited_text: str   # "45 of 48 (94%)"
+    site_name: str = ""
 
 
 @dataclass(frozen=True)
@@ -352,6 +368,25 @@ class SeasonsRow:
     n_years: int
     first_year: int
     last_year: int
+
+
+@dataclass(frozen=True)
+class Photo:
+    """One repeat photo of a station: when, which way, and the picture as a data URI (a thumbnail)."""
+
+    date: str
+    caption: str
+    image: str
+
+
+@dataclass(frozen=True)
+class StationPhotos:
+    """A station's repeat photos, oldest first, for setting side by side."""
+
+    station: str
+    site: str
+    site_name: str
+    photos: tuple[Photo, ...]
 
 
 @dataclass(frozen=True)
@@ -433,6 +468,15 @@ class ReportContext:
     cautions: tuple[str, ...]
     sites: Mapping[str, object] = field(default_factory=dict)
     names: Mapping[str, str] = field(default_factory=dict)
+    site_names: Mapping[str, str] = field(default_factory=dict)
+    scope: str = ""                      # "" for the whole programme, else what the report is limited to
+    photos: tuple = ()                   # StationPhotos, where stations have repeat photos
+    #: target species whose trend could not be called (one season of data, ...), as dicts with the reason
+    not_called: tuple[dict, ...] = ()
+    fits: tuple[FitRow, ...] = ()        # every fit shown (overall and by area), when it was made
+    fits_note: str = ""
+    areas: tuple[FitRow, ...] = ()       # trends by site, stratum or region, beside the overall ones
+    area_kind: str = ""                  # site, stratum or region ("" when not asked for)
 
     def to_dict(self) -> dict:
         """The report's numbers as JSON-ready data (schema ``monitor.report/1``)."""
@@ -457,7 +501,10 @@ class ReportContext:
             "coverage": coverage,
             "power": [p.to_dict() for p in self.power],
             "comparison": None if self.comparison is None else [c.to_dict() for c in self.comparison],
+            "not_called": [dict(n) for n in self.not_called],
             "software": dict(self.methods.software),
+            "areas": [a.to_dict() for a in self.areas],
+            "fits": [f.to_dict() for f in self.fits],
         }
 
 
@@ -512,16 +559,36 @@ QUANTITY_LABEL = {
 }
 
 
-def _format_quantity(quantity: str, value: float) -> str:
+def density_unit(value: float) -> tuple[str, float]:
+    """The unit a density reads best in: per m², or per hectare when below 0.01 per m²."""
+    if value is not None and math.isfinite(value) and 0 < abs(value) < 0.01:
+        return "per ha", 10_000.0
+    return "per m²", 1.0
+
+
+def _format_quantity(quantity: str, value: float, scale: tuple[str, float] | None = None) -> str:
+    """A value of this season's estimates to sensible significant figures (2; totals whole)."""
     if value is None or not math.isfinite(value):
         return "n/a"
     if quantity == "cover":
-        return f"{value:.1f}%"
+        return f"{significant(value, 2)}%"
     if quantity in ("frequency", "presence"):
-        return f"{value * 100:.1f}%"
+        return f"{significant(value * 100, 2)}%"
     if quantity == "density":
-        return f"{_sig(value)} per m²"
-    return _sig(value)
+        unit, factor = scale or density_unit(value)
+        return f"{significant(value * factor, 2)} {unit}"
+    return whole(value)
+
+
+def _interval_text(quantity: str, lower: float | None, upper: float | None,
+                   scale: tuple[str, float] | None) -> str:
+    """``"8.2 to 18 per m²"``: the unit once, after the upper bound."""
+    if lower is None or upper is None:
+        return "—"
+    if quantity == "density":
+        unit, factor = scale or density_unit(upper)
+        return f"{significant(lower * factor, 2)} to {significant(upper * factor, 2)} {unit}"
+    return f"{_format_quantity(quantity, lower)} to {_format_quantity(quantity, upper)}"
 
 
 def software_versions(extra: Mapping[str, str] | None = None) -> tuple[tuple[str, str], ...]:
@@ -535,17 +602,33 @@ def software_versions(extra: Mapping[str, str] | None = None) -> tuple[tuple[str
         except metadata.PackageNotFoundError:
             continue
     if extra:
-        pairs.extend((str(k), str(v)) for k, v in extra.items())
+        listed = {name for name, _ in pairs}
+        pairs.extend((str(k), str(v)) for k, v in extra.items() if str(k) not in listed)
     return tuple(pairs)
 
 
+def _first_lower(text: str) -> str:
+    """Lower-case the first letter only: codes inside a label (transect SM-T) stay as stored."""
+    return text[:1].lower() + text[1:] if text[:1].isupper() and not text[1:2].isupper() else text
+
+
+def _blank(value) -> bool:
+    return value is None or value == "" or (isinstance(value, float) and math.isnan(value))
+
+
 def _marks_for(species: str, events: pd.DataFrame | None, changes: Sequence[MethodChange],
-               change_species: Sequence[str | None], first: int, last: int) -> tuple[EventMark, ...]:
+               change_species: Sequence[str | None], first: int, last: int,
+               sites: set[str] | None = None) -> tuple[EventMark, ...]:
+    """Management events and method changes to mark on one species' plot: only those at the sites its
+    stations lie in (``sites``; an event with no site is programme-wide) and for this species."""
     marks: list[EventMark] = []
     if events is not None and len(events):
         for row in events.to_dict("records"):
             sp = row.get(C.SPECIES)
-            if sp is not None and not (isinstance(sp, float) and math.isnan(sp)) and str(sp) != species:
+            if not _blank(sp) and str(sp) != species:
+                continue
+            site = row.get(C.SITE)
+            if sites is not None and not _blank(site) and str(site) not in sites:
                 continue
             year = int(row[C.YEAR])
             if first <= year <= last:
@@ -571,6 +654,18 @@ def _method_changes(frame: pd.DataFrame | None) -> tuple[list[MethodChange], lis
     return changes, species
 
 
+def _change_applies(frame: pd.DataFrame | None, index: int, measure: str) -> bool:
+    """A method change names the measures it concerns (column ``measures``, e.g. "frequency;pin_hits");
+    none named means every measure."""
+    if frame is None or "measures" not in frame.columns:
+        return True
+    value = frame["measures"].iloc[index]
+    if _blank(value):
+        return True
+    named = value if isinstance(value, (list, tuple)) else str(value).replace(",", ";").split(";")
+    return measure in {str(m).strip() for m in named}
+
+
 def _figure_alt_indices(name: str, measure_label: str, first: int, last: int, annual_text: str,
                         marks: Sequence[EventMark]) -> str:
     text = (f"Yearly index of {name} ({measure_label}) from {first} to {last}, relative to {first}, with "
@@ -582,6 +677,41 @@ def _figure_alt_indices(name: str, measure_label: str, first: int, last: int, an
     if methods:
         text += " Method changed in " + ", ".join(methods) + "."
     return text
+
+
+class _CallView:
+    """A trend result seen through the interval its call was made from.
+
+    The trend engine calls a trend from the profile-likelihood interval of the annual change when it has
+    one, and reports the Wald (or t) interval as ``annual_change``; the two can differ in the last digit.
+    The report shows one: the call's.  The change over the period takes the same bounds, compounded over
+    the years between the first and the last season.
+    """
+
+    def __init__(self, result, annual: Interval, period: Interval, method: str):
+        self._result = result
+        self.annual_change = annual
+        self.period_change = period
+        self.interval_method = method
+
+    def __getattr__(self, name):
+        return getattr(self._result, name)
+
+    @classmethod
+    def of(cls, result) -> _CallView:
+        annual = Interval.from_any(_attr(result, "annual_change"))
+        period = Interval.from_any(_attr(result, "period_change"))
+        profile = Interval.from_any(getattr(result, "annual_change_profile", None))
+        if profile is None or not (math.isfinite(profile.lower) and math.isfinite(profile.upper)):
+            return cls(result, annual, period, "Wald")
+        first, last = (int(y) for y in _attr(result, "years"))
+        span = last - first
+
+        def over(rate: float) -> float:
+            return math.expm1(math.log1p(rate) * span) if rate > -1 else -1.0
+
+        return cls(result, Interval(annual.estimate, profile.lower, profile.upper),
+                   Interval(period.estimate, over(profile.lower), over(profile.upper)), "profile likelihood")
 
 
 # --------------------------------------------------------------------------- the builder
@@ -606,6 +736,9 @@ def build_report_context(
     corrections: Mapping[str, int] | None = None,
     generated: str = "",
     software: Mapping[str, str] | None = None,
+    site_names: Mapping[str, str] | None = None,
+    scope: str = "",
+    photos: Sequence = (),
 ) -> ReportContext:
     """Build the whole content of an annual report from results already computed.
 
@@ -661,6 +794,12 @@ def build_report_context(
         Date to print as "made on" (the caller's clock, for reproducible output).
     software : mapping, optional
         Extra software versions to list (e.g. R packages used as test references).
+    site_names : mapping code -> name, optional
+        Printed beside site codes.
+    scope : str
+        What the report is limited to ("site SM (Stream Meadow)"), "" for the whole programme.
+    photos : sequence of StationPhotos
+        Stations' repeat photos, shown where they exist.
 
     Returns
     -------
@@ -680,13 +819,20 @@ def build_report_context(
     flags_df = _frame(quality_flags, "quality_flags")
     events_df = _frame(events, "events")
     power_df = _frame(power, "power")
-    changes, change_species = _method_changes(_frame(method_changes, "method_changes"))
+    method_df = _frame(method_changes, "method_changes")
+    changes, change_species = _method_changes(method_df)
+    site_names = {str(k): str(v) for k, v in (site_names or {}).items() if not _blank(v)}
+    site_of = ({str(s): str(t) for s, t in zip(stations[C.STATION], stations[C.SITE], strict=True)}
+               if stations is not None and C.SITE in stations.columns else {})
     if events_df is not None and len(events_df):
         _require(events_df, [C.YEAR], "events")
     station_changes = station_changes or {}
     gradients = gradients or {}
 
-    outcomes = evaluate_triggers(triggers, trend_results)
+    # one interval throughout: the one the call was made from (profile likelihood when the engine gives
+    # it, else the engine's own), so the headline, the triggers and "why this call" agree to the digit
+    call_views = {key: _CallView.of(result) for key, result in trend_results.items()}
+    outcomes = evaluate_triggers(triggers, call_views)
     by_key: dict[tuple[str, str], list[TriggerOutcome]] = {}
     for outcome in outcomes:
         by_key.setdefault((outcome.trigger.species, outcome.trigger.measure), []).append(outcome)
@@ -704,8 +850,8 @@ def build_report_context(
             design = ""
             if ns is not None and ny is not None:
                 design = f" with {ns} stations over {ny} years"
-            text = (f"A fall of {float(row['detectable_change']) * 100:.1f}% a year would be detected "
-                    f"{pw * 100:.0f} times in 100{design}.")
+            del design
+            text = detectable_fall_sentence(float(row["detectable_change"]), pw, ns, ny)
             power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms),
                                             float(row["detectable_change"]), pw, ns, ny, text)
 
@@ -714,7 +860,7 @@ def build_report_context(
     margins = set()
     families = set()
     random_effects: set[str] = set()
-    for i, ((sp, ms), result) in enumerate(trend_results.items()):
+    for i, ((sp, ms), result) in enumerate(call_views.items()):
         name = names.get(sp, sp)
         annual = Interval.from_any(_attr(result, "annual_change"))
         period = Interval.from_any(_attr(result, "period_change"))
@@ -763,7 +909,9 @@ def build_report_context(
             (str(getattr(d, "code", "")), str(getattr(d, "message", "")), str(getattr(d, "severity", "warning")))
             for d in (_attr(result, "diagnostics", ()) or ())
         )
-        sp_changes = [(c, s) for c, s in zip(changes, change_species, strict=True) if s is None or s == sp]
+        applies = [_change_applies(method_df, k, ms) for k in range(len(changes))]
+        sp_changes = [(c, s) for c, s, ok in zip(changes, change_species, applies, strict=True)
+                      if ok and (s is None or s == sp)]
         caveats = caveat_sentences(
             n_stations, n_years, first, last,
             observation_sd=random_sd.get("observation"),
@@ -771,7 +919,12 @@ def build_report_context(
             method_changes=[c for c, _ in sp_changes], diagnostics=diagnostics,
             converged=bool(_attr(result, "converged", True)),
         )
-        marks = _marks_for(sp, events_df, changes, change_species, first, last)
+        changes_df_sp = station_changes.get((sp, ms))
+        species_sites = None
+        if changes_df_sp is not None and len(changes_df_sp) and site_of:
+            species_sites = {site_of[s] for s in changes_df_sp[C.STATION].astype(str) if s in site_of}
+        marks = _marks_for(sp, events_df, [c for c, _ in sp_changes], [s for _, s in sp_changes], first, last,
+                           species_sites)
         indices = _attr(result, "indices")
         fitted = _attr(result, "fitted_trend")
         stem = f"{i + 1:02d}-{slug(sp)}-{slug(ms)}"
@@ -804,7 +957,9 @@ def build_report_context(
                      + f" coloured by each station's own annual change in {name}: {n_fall} falling "
                        f"(down triangles), {n_rise} rising (up triangles), {n_none} with too few years "
                        "(open circles)."),
-                caption="Stations coloured by their own change (orange falling, purple rising).",
+                caption=("Stations coloured by their own change (orange falling, purple rising); open circles: "
+                         "too few years for a station's own trend; grey crosses: never recorded there. "
+                         "Grid north is up."),
             ))
         gradient = gradients.get((sp, ms))
         if gradient is not None:
@@ -814,7 +969,7 @@ def build_report_context(
                 key=f"{stem}-gradient", kind="gradient",
                 alt=(f"{gradient.value_label} of {name} against {gradient.gradient_label} in {season} at "
                      f"{len(g)} stations, from {_sig(g['gradient'].min())} to {_sig(g['gradient'].max())}."),
-                caption=f"{season}: {gradient.value_label.lower()} against {gradient.gradient_label.lower()}.",
+                caption=f"{season}: {_first_lower(gradient.value_label)} against {_first_lower(gradient.gradient_label)}.",
             ))
         n_sites = int(_attr(result, "n_sites", 0) or 0)
         model_text = (
@@ -822,6 +977,10 @@ def build_report_context(
             + (f" in {n_sites} sites" if n_sites else "")
             + f", {n_years} seasons {first}–{last}."
         )
+        has_trigger = bool(by_key.get((sp, ms)))
+        fired_here = any(o.fired for o in by_key.get((sp, ms), ()))
+        advice = None if fired_here else decline_advice(name, call, annual.estimate, annual.upper, has_trigger,
+                                                               margin)
         sections.append(SpeciesSection(
             summary=row, paragraph=paragraph, caveats=tuple(caveats),
             call_reason=str(_attr(result, "call_reason", "")), model_text=model_text,
@@ -829,7 +988,7 @@ def build_report_context(
             fitted_trend=None if fitted is None else pd.DataFrame(fitted)[[C.YEAR, "fit", "lower", "upper"]],
             marks=marks, stations=station_frame, station_changes=changes_df, gradient=gradient,
             figures=tuple(figures), triggers=tuple(by_key.get((sp, ms), ())),
-            power=power_rows.get((sp, ms)),
+            power=power_rows.get((sp, ms)), advice=advice, interval_method=result.interval_method,
         ))
 
     # this season's estimates
@@ -843,15 +1002,25 @@ def build_report_context(
             lo = None if lo is None or pd.isna(lo) else float(lo)
             hi = None if hi is None or pd.isna(hi) else float(hi)
             ns = row.get("n_stations")
+            ns = None if ns is None or pd.isna(ns) else int(ns)
+            value = float(row["estimate"])
+            # one unit for the estimate and both bounds of a row (per ha when the density is tiny)
+            scale = density_unit(max(abs(value), abs(hi or 0.0))) if q == "density" else None
+            notes: list[str] = []
+            counted = row.get("counted")
+            if q == "total" and lo is not None and counted is not None and not pd.isna(counted) \
+                    and counted > 0 and abs(lo - float(counted)) < 0.5:
+                notes.append(total_floor_note(float(counted)))
+            site = str(row[C.SITE])
             estimate_rows.append(EstimateRow(
                 species=str(row[C.SPECIES]), species_name=names.get(str(row[C.SPECIES]), str(row[C.SPECIES])),
                 measure_label=MEASURE_LABEL.get(str(row[C.MEASURE]), str(row[C.MEASURE])),
-                site=str(row[C.SITE]), quantity=q, quantity_label=label,
-                estimate=float(row["estimate"]), lower=lo, upper=hi,
-                estimate_text=_format_quantity(q, float(row["estimate"])),
-                interval_text=("—" if lo is None or hi is None
-                               else f"{_format_quantity(q, lo)} to {_format_quantity(q, hi)}"),
-                n_stations=None if ns is None or pd.isna(ns) else int(ns),
+                site=site, quantity=q, quantity_label=label,
+                estimate=value, lower=lo, upper=hi,
+                estimate_text=_format_quantity(q, value, scale),
+                interval_text=_interval_text(q, lo, hi, scale),
+                n_stations=ns, site_name=site_names.get(site, ""), notes=tuple(notes),
+                few_quadrats=ns is not None and ns < FEW_QUADRATS,
             ))
 
     # coverage
@@ -865,7 +1034,7 @@ def build_report_context(
             def cov_row(site, due, visited, missed, inaccessible):
                 share = f" ({visited / due * 100:.0f}%)" if due else ""
                 return CoverageRow(str(site), int(due), int(visited), int(missed), int(inaccessible),
-                                   f"{int(visited)} of {int(due)}{share}")
+                                   f"{int(visited)} of {int(due)}{share}", site_names.get(str(site), ""))
 
             for r in coverage_df.to_dict("records"):
                 site_rows.append(cov_row(r[C.SITE], r["due"], r["visited"], r["missed"], r["inaccessible"]))
@@ -883,8 +1052,8 @@ def build_report_context(
                 def text(v):
                     return "" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v)
 
-                flags.append(QualityFlag(text(r.get(C.STATION)), text(r.get(C.YEAR)), text(r.get(C.SPECIES)),
-                                         text(r["message"])))
+                flags.append(QualityFlag(text(r.get(C.STATION)), season_label(r.get(C.YEAR)),
+                                         text(r.get(C.SPECIES)), plain_measures(text(r["message"]))))
         coverage_obj = Coverage(tuple(site_rows), total, seasons, tuple(flags))
 
     # comparison with last year
@@ -923,7 +1092,7 @@ def build_report_context(
         summary=tuple(summary), triggers=tuple(outcomes), comparison=comparison,
         comparison_note=comparison_note, species=tuple(sections), estimates=tuple(estimate_rows),
         coverage=coverage_obj, power=tuple(power_rows.values()), methods=methods, cautions=cautions,
-        sites=dict(sites or {}), names=names,
+        sites=dict(sites or {}), names=names, site_names=site_names, scope=scope, photos=tuple(photos),
     )
 
 
@@ -992,7 +1161,8 @@ def _cautions(programme: ProgrammeInfo, stations: pd.DataFrame | None, margins: 
 
 
 __all__ = [
-    "Coverage", "CoverageRow", "EstimateRow", "FigureRef", "GradientData", "Interval", "Methods", "PowerRow",
+    "Coverage", "CoverageRow", "EstimateRow", "FigureRef", "GradientData", "Interval", "Methods", "Photo",
+    "PowerRow", "StationPhotos",
     "ProgrammeInfo", "QualityFlag", "ReportContext", "SeasonsRow", "SpeciesSection", "SummaryRow",
     "build_report_context", "signed_percent", "slug", "software_versions", "CallChange",
 ]

@@ -227,8 +227,11 @@ def plot_station_map(
     Returns
     -------
     Figure
-        Down triangles for falling stations, up triangles for rising ones,
-        hollow grey circles for stations without their own trend, and a colour bar in percent a year.
+        Down triangles for falling stations, up triangles for rising ones, hollow grey circles for
+        stations in the model with too few years for their own trend, small grey crosses for stations
+        where the species was never recorded (not in ``station_changes``), a colour bar in percent a
+        year, a scale bar and a grid-north arrow.  Site names sit above their outlines, clear of the
+        stations.
     """
     if ax is None:
         fig, ax = new_figure(4.4, 3.9)
@@ -247,14 +250,20 @@ def plot_station_map(
                 from shapely.geometry.base import BaseGeometry
 
                 geom = geometry if isinstance(geometry, BaseGeometry) else shape(geometry)
-                point = geom.representative_point()
-                ax.annotate(str(code), (point.x, point.y), fontsize=7, color="#333333", ha="center",
-                            va="center", alpha=0.8, zorder=2)
+                minx, _miny, maxx, maxy = geom.bounds
+                # above the outline's top edge, so no station marker sits under the label
+                ax.annotate(str(code), ((minx + maxx) / 2, maxy), xytext=(0, 3), textcoords="offset points",
+                            fontsize=7, color="#333333", ha="center", va="bottom", zorder=5,
+                            bbox={"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none",
+                                  "alpha": 0.85})
     frame = stations[[C.STATION, C.X, C.Y]].copy()
     if station_changes is not None and len(station_changes):
+        in_model = frame[C.STATION].isin(set(station_changes[C.STATION]))
         frame = frame.merge(station_changes[[C.STATION, "annual_change"]], on=C.STATION, how="left")
     else:
+        in_model = pd.Series(True, index=frame.index)
         frame["annual_change"] = np.nan
+    in_model = in_model.to_numpy(bool)
     change = frame["annual_change"].to_numpy(float)
     lim = limit if limit is not None else change_limit(change)
     norm = TwoSlopeNorm(vcenter=0.0, vmin=-lim, vmax=lim)
@@ -272,11 +281,17 @@ def plot_station_map(
                                   zorder=3)
         legend.append(Line2D([], [], linestyle="none", marker=marker, markerfacecolor="#dddddd",
                              markeredgecolor="#222222", label=label))
-    if (~has).any():
-        ax.scatter(frame.loc[~has, C.X], frame.loc[~has, C.Y], facecolors="none", edgecolors=NO_TREND_COLOUR,
+    few = ~has & in_model
+    never = ~has & ~in_model
+    if few.any():
+        ax.scatter(frame.loc[few, C.X], frame.loc[few, C.Y], facecolors="none", edgecolors=NO_TREND_COLOUR,
                    marker="o", s=size * 0.7, linewidths=0.8, zorder=3)
         legend.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
                              markeredgecolor=NO_TREND_COLOUR, label="Too few years"))
+    if never.any():
+        ax.scatter(frame.loc[never, C.X], frame.loc[never, C.Y], color="#b0b0b0", marker="x", s=size * 0.45,
+                   linewidths=0.7, zorder=2)
+        legend.append(Line2D([], [], linestyle="none", marker="x", color="#b0b0b0", label="Never recorded here"))
     if mappable is None:
         from matplotlib.cm import ScalarMappable
 
@@ -285,15 +300,55 @@ def plot_station_map(
     bar.set_label("Station's own change (% a year)", fontsize=8)
     bar.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v * 100:+.0f}" if v else "0"))
     bar.ax.tick_params(labelsize=7)
-    fig.legend(handles=legend, loc="outside lower center", ncol=3, frameon=False,
+    fig.legend(handles=legend, loc="outside lower center", ncol=2 if len(legend) > 3 else 3, frameon=False,
                fontsize=7.5, handletextpad=0.2, columnspacing=0.8)
     ax.tick_params(labelsize=7)
     ax.set_xlabel("Easting (m)", fontsize=8)
     ax.set_ylabel("Northing (m)", fontsize=8)
     ax.ticklabel_format(useOffset=False, style="plain")
+    # few, unrotated easting labels that cannot run together
+    from matplotlib.ticker import MaxNLocator
+
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=3))
+    ax.yaxis.set_major_locator(MaxNLocator(nbins=4))
+    _scale_bar(ax)
+    _north_arrow(ax)
     if title:
         ax.set_title(title, loc="left")
     return fig
+
+
+def nice_length(span: float) -> float:
+    """A round scale-bar length near a quarter of ``span`` [m]: 1, 2 or 5 times a power of ten."""
+    target = max(span / 4.0, 1e-9)
+    power = 10 ** math.floor(math.log10(target))
+    for step in (5, 2, 1):
+        if step * power <= target:
+            return float(step * power)
+    return float(power)
+
+
+def _scale_bar(ax: Axes) -> None:
+    """A scale bar in the lower right corner, its length a round number of metres (or km)."""
+    from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
+
+    ax.figure.canvas.draw_idle()
+    x0, x1 = ax.get_xlim()
+    length = nice_length(abs(x1 - x0))
+    label = f"{length / 1000:g} km" if length >= 1000 else f"{length:g} m"
+    bar = AnchoredSizeBar(ax.transData, length, label, loc="lower right", pad=0.4, borderpad=0.5, sep=3,
+                          frameon=True, size_vertical=0, fontproperties={"size": 7})
+    bar.patch.set_facecolor("white")
+    bar.patch.set_alpha(0.85)
+    bar.patch.set_edgecolor("none")
+    ax.add_artist(bar)
+
+
+def _north_arrow(ax: Axes) -> None:
+    """An arrow to grid north (up the northing axis) in the upper left corner."""
+    ax.annotate("N", xy=(0.07, 0.95), xytext=(0.07, 0.80), xycoords="axes fraction", textcoords="axes fraction",
+                ha="center", va="top", fontsize=8, fontweight="bold", zorder=6,
+                arrowprops={"arrowstyle": "-|>", "color": "#222222", "linewidth": 1.0})
 
 
 def plot_gradient(
@@ -363,3 +418,24 @@ def figure_svg(fig: Figure) -> bytes:
 def data_uri(png: bytes) -> str:
     """A ``data:image/png;base64,...`` URI for embedding."""
     return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+
+
+def photo_thumbnail(data: bytes, width: int = 480) -> str:
+    """A photo as a small JPEG data URI for the report page (Pillow, which matplotlib brings).
+
+    Raises ValueError when the bytes are not an image Pillow reads.
+    """
+    import io as _io
+
+    from PIL import Image, ImageOps, UnidentifiedImageError
+
+    try:
+        image = Image.open(_io.BytesIO(data))
+        image = ImageOps.exif_transpose(image).convert("RGB")
+    except (UnidentifiedImageError, OSError) as exc:
+        raise ValueError(f"not an image ({exc})") from None
+    if image.width > width:
+        image = image.resize((width, max(1, round(image.height * width / image.width))))
+    out = _io.BytesIO()
+    image.save(out, format="JPEG", quality=82)
+    return "data:image/jpeg;base64," + base64.b64encode(out.getvalue()).decode("ascii")

@@ -39,6 +39,7 @@ from monitor.report.figures import (
 from monitor.report.wording import MEASURE_LABEL
 
 INDEX = "index.html"
+PDF = "report.pdf"
 NUMBERS = "report.json"
 FIGURES = "figures"
 MARKER = ".monitor-report"
@@ -110,12 +111,29 @@ def draw_figures(context: ReportContext, *, dpi: int = 130, svg: bool = True,
 def render_html(context: ReportContext, images: dict[str, str], directory: Path | None = None) -> str:
     """The report page as a string; ``images`` maps figure keys to data URIs."""
     env = environment(directory)
-    return env.get_template("report/index.html").render(report=context, images=images, csp=CSP)
+    return env.get_template("report/index.html").render(report=context, images=images, csp=CSP,
+                                                        measure_labels=MEASURE_LABEL)
+
+
+def write_pdf(html: str, path: Path) -> Path:
+    """The printed report: the page's print stylesheet laid out on A4 by WeasyPrint (page numbers,
+    captions kept with their tables, one species to a sheet), written to ``path``.
+
+    WeasyPrint fetches nothing: the page holds its figures as data URIs, and any other URL is refused.
+    """
+    import logging
+
+    import weasyprint
+
+    logging.getLogger("weasyprint").setLevel(logging.ERROR)  # its notes on unsupported CSS are not ours
+    fetcher = weasyprint.URLFetcher(allowed_protocols=["data"])
+    weasyprint.HTML(string=html, url_fetcher=fetcher).write_pdf(path)
+    return path
 
 
 def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: int = 130, svg: bool = True,
                   templates: Path | None = None,
-                  progress: Callable[[int, int], None] | None = None) -> Path:
+                  progress: Callable[[int, int], None] | None = None, pdf: bool = False) -> Path:
     """Write the report folder and return its path.
 
     Parameters
@@ -132,6 +150,8 @@ def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: in
         A templates folder holding ``report/``; default: the project's.
     progress : callable(done, total), optional
         Called after each figure.
+    pdf : bool
+        Also write ``report.pdf``, the printed report (WeasyPrint).
 
     Returns
     -------
@@ -154,6 +174,8 @@ def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: in
             images[drawn.ref.key] = data_uri(drawn.png)
         html = render_html(context, images, templates)
         (tmp / INDEX).write_text(html, encoding="utf-8")
+        if pdf:
+            write_pdf(html, tmp / PDF)
         numbers = json.dumps(context.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
         (tmp / NUMBERS).write_text(numbers + "\n", encoding="utf-8")
         written = sorted(str(p.relative_to(tmp).as_posix()) for p in tmp.rglob("*") if p.is_file())

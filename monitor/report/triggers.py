@@ -115,7 +115,9 @@ class TriggerOutcome:
     rate_to_fire : float | None
         ``"decline"``: the annual change that would fire it [fraction per year].
     status : str
-        One plain sentence: fired or not and how fast it is being approached.
+        One plain sentence saying why: how far the trend is from the threshold, in the terms of the
+        rule (the decline over the window, or the interval's upper bound).  The state itself (fired,
+        not fired, approaching) is ``state_label``, so a page never says "Fired. Fired:".
     """
 
     trigger: Trigger
@@ -126,6 +128,15 @@ class TriggerOutcome:
     years_to_threshold: float | None
     rate_to_fire: float | None
     status: str
+
+    @property
+    def state_label(self) -> str:
+        """"Fired", "Not fired, approaching", "Not fired" or "Not evaluated"."""
+        if not self.evaluable:
+            return "Not evaluated"
+        if self.fired:
+            return "Fired"
+        return "Not fired, approaching" if self.years_to_threshold is not None else "Not fired"
 
     def to_dict(self) -> dict:
         t = self.trigger
@@ -144,6 +155,7 @@ class TriggerOutcome:
             "years_to_threshold": self.years_to_threshold,
             "rate_to_fire": self.rate_to_fire,
             "status": self.status,
+            "state": self.state_label,
         }
 
 
@@ -184,7 +196,7 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
     """
     if result is None:
         return TriggerOutcome(trigger, False, False, None, None, None, None,
-                              "Not evaluated: no trend for this species and measure.")
+                              "There is no trend for this species and measure to evaluate it against.")
     rate, lower, upper = _interval(result.annual_change)
     first, last = (int(y) for y in result.years)
     if trigger.kind == "decline":
@@ -197,7 +209,7 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
         if fired:
             years_to = 0.0
             status = (
-                f"Fired: at the current fall of {percent(rate)} a year, the decline over the last "
+                f"At the current fall of {percent(rate)} a year, the decline over the last "
                 f"{window} years is about {percent(decline)}, more than the {percent(trigger.threshold)} allowed."
             )
         elif rate < 0:
@@ -205,17 +217,17 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
             if t_star <= n:
                 years_to = max(0.0, t_star - window)
                 status = (
-                    f"Not fired but approaching: at the current fall of {percent(rate)} a year the decline "
+                    f"At the current fall of {percent(rate)} a year the decline "
                     f"would pass {percent(trigger.threshold)} in about {years_to:.0f} more "
                     f"year{'s' if round(years_to) != 1 else ''}."
                 )
             else:
                 status = (
-                    f"Not fired: the current fall of {percent(rate)} a year is slower than the "
+                    f"The current fall of {percent(rate)} a year is slower than the "
                     f"{percent(rate_to_fire)} a year that would fire it."
                 )
         else:
-            status = "Not fired: the estimate is not falling."
+            status = "The estimate is not falling."
         return TriggerOutcome(trigger, fired, True, decline, window, years_to, rate_to_fire, status)
 
     # upper_bound_below
@@ -225,8 +237,9 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
     if fired:
         years_to = 0.0
         status = (
-            f"Fired: the upper 95% bound of the annual change is {_signed(upper)} a year, "
-            f"below the {_signed(trigger.threshold)} set."
+            f"The upper 95% bound of the annual change is {_signed(upper)} a year, "
+            f"below the {_signed(trigger.threshold)} a year set: even the least steep change the data allow "
+            f"is {'a fall' if trigger.threshold <= 0 else 'below the threshold'}."
         )
     elif rate < trigger.threshold and getattr(result, "slope_se", None) is not None:
         slope = float(result.slope)
@@ -239,16 +252,17 @@ def evaluate_trigger(trigger: Trigger, result) -> TriggerOutcome:
                 break
         if years_to is not None:
             status = (
-                f"Not fired but approaching: if the estimate holds, about {years_to:.0f} more "
-                f"year{'s' if years_to != 1 else ''} of data would bring the upper bound "
-                f"({_signed(upper)} a year now) below {_signed(trigger.threshold)}."
+                f"The upper 95% bound of the annual change is {_signed(upper)} a year, not yet below the "
+                f"{_signed(trigger.threshold)} a year set; if the estimate holds, about {years_to:.0f} more "
+                f"year{'s' if years_to != 1 else ''} of data would bring it below."
             )
         else:
-            status = f"Not fired: the upper bound is {_signed(upper)} a year."
+            status = (f"The upper 95% bound of the annual change is {_signed(upper)} a year, not below the "
+                      f"{_signed(trigger.threshold)} a year set.")
     else:
         status = (
-            f"Not fired: the estimate ({_signed(rate)} a year) is not below the threshold "
-            f"({_signed(trigger.threshold)} a year)."
+            f"The upper 95% bound of the annual change is {_signed(upper)} a year, not below the "
+            f"{_signed(trigger.threshold)} a year set (the estimate itself is {_signed(rate)} a year)."
         )
     return TriggerOutcome(trigger, fired, True, upper, None, years_to, None, status)
 

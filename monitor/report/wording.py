@@ -20,6 +20,7 @@ third") when one is close (within 3 percentage points), else in percent.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
@@ -375,3 +376,91 @@ def caveat_sentences(
             out.append(message if message.endswith(".") else message + ".")
             covered.add(code)
     return out
+
+
+# --------------------------------------------------------------------------- numbers in prose and tables
+def significant(value: float, digits: int = 2) -> str:
+    """A number rounded to ``digits`` significant figures, written without an exponent or trailing
+    zeros: ``6.41e-05 -> "0.000064"``, ``3.0 -> "3"``, ``1458141 -> "1,500,000"``, ``0.625 -> "0.63"``.
+
+    Whole numbers below ``10 ** digits`` are kept whole (``37 -> "37"``, never ``"37.0"``).
+    """
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if value == 0:
+        return "0"
+    magnitude = math.floor(math.log10(abs(value)))
+    if float(value).is_integer() and abs(value) < 10 ** digits:
+        return f"{int(value):,}"
+    decimals = digits - 1 - magnitude
+    rounded = round(value, decimals)
+    if decimals <= 0:
+        return f"{rounded:,.0f}"
+    text = f"{rounded:,.{decimals}f}"
+    return text.rstrip("0").rstrip(".") if "." in text else text
+
+
+def whole(value: float) -> str:
+    """A count of individuals: whole, with thousands separators, rounded to 2 significant figures above
+    a thousand (an estimated total is not known to the last plant)."""
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if abs(value) >= 1000:
+        return significant(value, 2)
+    return f"{round(value):,.0f}"
+
+
+def season_label(year) -> str:
+    """A season as people write it: ``2016.0 -> "2016"``; blank for none."""
+    if year is None or (isinstance(year, float) and not math.isfinite(year)) or year == "":
+        return ""
+    try:
+        return str(int(float(year)))
+    except (TypeError, ValueError):
+        return str(year)
+
+
+_RAW_MEASURE = re.compile(r"\b(" + "|".join(re.escape(m) for m in C.MEASURES) + r")\b")
+
+
+def plain_measures(text: str) -> str:
+    """Measure names as people write them inside a sentence: ``"pin_hits 0" -> "pin hits 0"``."""
+    return _RAW_MEASURE.sub(lambda m: MEASURE_LABEL.get(m[1], m[1]), text)
+
+
+def detectable_fall_sentence(change: float, power: float, n_stations: int | None, n_years: int | None) -> str:
+    """``"A fall of 7.5% a year would be detected 80 times in 100 with 23 stations over 10 years."``
+
+    ``change`` is the smallest detectable annual change [fraction per year], given with or without its
+    sign; the sentence carries the direction, so the number is a magnitude (no "a fall of -7.5%").
+    """
+    design = f" with {n_stations} stations over {n_years} years" if n_stations is not None and n_years is not None else ""
+    return (f"A fall of {abs(change) * 100:.1f}% a year would be detected {power * 100:.0f} times in 100"
+            f"{design}.")
+
+
+def total_floor_note(counted: float, unit: str = "plants") -> str:
+    """Why a total's lower bound equals the number counted."""
+    n = int(round(counted))
+    return (f"The lower bound is the {n:,} {unit if n != 1 else unit.rstrip('s')} counted in the quadrats: "
+            "the site cannot hold fewer than were seen, so the interval is cut there.")
+
+
+def decline_advice(name: str, call: str, annual: float, upper: float, has_trigger: bool,
+                   margin: float = 0.0) -> str | None:
+    """A sentence of advice for a decline that has not fired a trigger (None when there is no decline).
+
+    A declining call without a fired trigger still asks for a response: a look at the causes and, where no
+    trigger is set, agreeing one; a fall whose interval still reaches zero asks for watching.
+    """
+    if call == C.CALL_DECLINING:
+        if has_trigger:
+            return (f"{name} is declining, though not yet past its agreed trigger: review what may be causing "
+                    "the fall (management, grazing, water, recording) with the land manager now, before it "
+                    "does.")
+        return (f"{name} is declining and no trigger is set for it: review the likely causes with the land "
+                "manager and agree a threshold and a response in advance.")
+    if annual < -abs(margin) and upper > 0 and call == C.CALL_UNCLEAR:
+        return (f"The estimate for {name} is falling but the data cannot yet tell: keep the stations visited "
+                "every season and look again next year.")
+    return None

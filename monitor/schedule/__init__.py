@@ -22,6 +22,7 @@ from monitor.schedule.planner import (
     nearest_neighbour_length,
     plan_season,
 )
+from monitor.schedule.network import PathNetwork, straight_distances
 from monitor.schedule.routing import held_karp, order_route, route_length
 from monitor.schedule.season import (
     EffortSettings,
@@ -35,6 +36,7 @@ __all__ = [
     "CrewSettings",
     "EffortSettings",
     "FieldSheetContext",
+    "PathNetwork",
     "SeasonPlan",
     "SeasonWindow",
     "SheetStation",
@@ -52,6 +54,7 @@ __all__ = [
     "render_field_sheet",
     "route_length",
     "station_window",
+    "straight_distances",
     "team_day_calendar",
     "team_day_gpx",
 ]

@@ -20,7 +20,9 @@ Rules, in the order they are applied:
    team-days they need; a station that cannot fit in one day even alone is listed too.
    Every due station ends in exactly one of visits, held_back or unplanned.
 
-Walking time [min] = ``path_factor`` x straight-line distance [m] / (speed [km/h] x 1000/60).
+Walking time [min] = walking distance [m] / (speed [km/h] x 1000/60), the distance being the shortest
+path over the programme's paths where it supplies them (:mod:`monitor.schedule.network`), otherwise
+``path_factor`` (the winding factor, at least 1) x the straight-line distance.
 """
 
 from __future__ import annotations
@@ -39,7 +41,8 @@ from shapely.geometry.base import BaseGeometry
 from monitor import columns as C
 from monitor.design._common import RngLike, derive_rng
 from monitor.errors import DesignError, Diagnostic
-from monitor.schedule.routing import order_route, route_length
+from monitor.schedule.network import PathNetwork, straight_distances
+from monitor.schedule.routing import order_route, route_length, tour_length
 from monitor.schedule.season import EFFORT, OVERDUE_YEARS, WINDOW_END, WINDOW_START
 
 TEAM = "team"
@@ -207,29 +210,52 @@ def _add_minutes(t: dt.time, minutes: float) -> dt.time:
 
 
 class _Pool:
-    """Pending stations with array views for fast day building."""
+    """Pending stations with array views for fast day building.
 
-    def __init__(self, due: pd.DataFrame, start_xy: np.ndarray, pf: float):
+    Walking distances come from one matrix per site over its start point (row 0) and its due
+    stations (``local`` index 1..m): straight lines times the winding factor, or shortest paths over
+    the programme's path network.
+    """
+
+    def __init__(self, due: pd.DataFrame, starts: Mapping[str, np.ndarray], pf: float,
+                 network: PathNetwork | None = None):
         self.due = due
         self.x = due[C.X].to_numpy(float)
         self.y = due[C.Y].to_numpy(float)
         self.effort = due[EFFORT].to_numpy(float)
         self.overdue = due[OVERDUE_YEARS].to_numpy(int)
         self.site = due[C.SITE].astype(str).to_numpy()
-        self.start_xy = start_xy
         self.pf = pf
         self.ws = np.array([d.toordinal() for d in due[WINDOW_START]])
         self.we = np.array([d.toordinal() for d in due[WINDOW_END]])
         self.pending = np.ones(len(due), dtype=bool)
-        self.out_m = np.hypot(self.x - start_xy[:, 0], self.y - start_xy[:, 1]) * pf
+        self.local = np.zeros(len(due), dtype=int)
+        self.matrix: dict[str, np.ndarray] = {}
+        for site in np.unique(self.site):
+            idx = np.flatnonzero(self.site == site)
+            self.local[idx] = np.arange(1, idx.size + 1)
+            pts = np.vstack([np.asarray(starts[site], float)[None, :], np.column_stack([self.x[idx], self.y[idx]])])
+            if network is None:
+                self.matrix[str(site)] = straight_distances(pts, pf)
+            else:
+                try:
+                    self.matrix[str(site)] = network.distances(pts)
+                except DesignError:
+                    raise DesignError(f"site {site}: the start point and stations do not all reach one another "
+                                      "over the paths given") from None
+        self.out_m = np.array([self.matrix[str(s)][0, k] for s, k in zip(self.site, self.local, strict=True)])
+
+    def walk(self, site: str, a: int, b: int) -> float:
+        """Walking distance [m] between local nodes ``a`` and ``b`` of ``site`` (0 = the start point)."""
+        return float(self.matrix[str(site)][a, b])
 
 
 def _build_day(pool: _Pool, cand: np.ndarray, start: np.ndarray, capacity: float,
                m_per_min: float, ignore_priority: bool = False) -> list[int]:
-    """Choose stations from ``cand`` (indices) by cheapest insertion within ``capacity`` minutes."""
-    pf = pool.pf
+    """Choose stations from ``cand`` (indices, one site) by cheapest insertion within ``capacity`` minutes."""
     if cand.size == 0:
         return []
+    dist = pool.matrix[str(pool.site[cand[0]])]
     # seed: most overdue, then earliest window end, then farthest from the start point
     if ignore_priority:
         key = np.lexsort((-pool.out_m[cand],))
@@ -244,17 +270,16 @@ def _build_day(pool: _Pool, cand: np.ndarray, start: np.ndarray, capacity: float
     if seed is None:
         return []
     route = [seed]
-    rx = [start[0], pool.x[seed], start[0]]
-    ry = [start[1], pool.y[seed], start[1]]
+    nodes = [0, int(pool.local[seed]), 0]
     used = 2 * pool.out_m[seed] / m_per_min + pool.effort[seed]
     left = cand[cand != seed]
     while left.size:
-        px = np.array(rx)
-        py = np.array(ry)
-        seg = np.hypot(np.diff(px), np.diff(py))  # len(route)+1 legs
-        dx_in = np.hypot(pool.x[left][:, None] - px[None, :-1], pool.y[left][:, None] - py[None, :-1])
-        dx_out = np.hypot(pool.x[left][:, None] - px[None, 1:], pool.y[left][:, None] - py[None, 1:])
-        delta = (dx_in + dx_out - seg[None, :]) * pf / m_per_min  # extra walking minutes
+        at = np.asarray(nodes)
+        seg = dist[at[:-1], at[1:]]  # len(route)+1 legs
+        near = dist[pool.local[left]]
+        dx_in = near[:, at[:-1]]
+        dx_out = near[:, at[1:]]
+        delta = (dx_in + dx_out - seg[None, :]) / m_per_min  # extra walking minutes
         pos = np.argmin(delta, axis=1)
         best = delta[np.arange(left.size), pos]
         total = best + pool.effort[left]
@@ -269,16 +294,21 @@ def _build_day(pool: _Pool, cand: np.ndarray, start: np.ndarray, capacity: float
         i = int(left[k])
         p = int(pos[k])
         route.insert(p, i)
-        rx.insert(p + 1, pool.x[i])
-        ry.insert(p + 1, pool.y[i])
+        nodes.insert(p + 1, int(pool.local[i]))
         used += float(total[k])
         left = np.delete(left, k)
     return route
 
 
+def _sub_matrix(pool: _Pool, stops: list[int]) -> np.ndarray:
+    """Distances over the start point (0) and ``stops`` (1..k), from the site's matrix."""
+    nodes = np.concatenate([[0], pool.local[stops]])
+    return pool.matrix[str(pool.site[stops[0]])][np.ix_(nodes, nodes)]
+
+
 def _sequence(pool: _Pool, stops: list[int], start: np.ndarray, route_method: str) -> list[int]:
     pts = np.column_stack([pool.x[stops], pool.y[stops]])
-    order = order_route(pts, start, route_method)
+    order = order_route(pts, start, route_method, dist=_sub_matrix(pool, stops))
     return [stops[k] for k in order]
 
 
@@ -309,6 +339,7 @@ def plan_season(
     reserve: BaseGeometry | None = None,
     randomise_site_order: bool = False,
     route_method: str = "auto",
+    network: PathNetwork | None = None,
 ) -> SeasonPlan:
     """Assign due stations to teams and days inside their windows and order each day's route.
 
@@ -328,6 +359,9 @@ def plan_season(
         Visit sites in a random order across the window (seeded).
     route_method : {"auto", "exact", "heuristic", "nearest"}
         See :func:`monitor.schedule.routing.order_route`.
+    network : PathNetwork, optional
+        The programme's paths: walking distances are shortest paths over them
+        (:mod:`monitor.schedule.network`); without, straight lines times ``crews.path_factor``.
 
     Returns
     -------
@@ -367,8 +401,7 @@ def plan_season(
         site_order = [site_order[i] for i in gen.permutation(len(site_order))]
     rank = {s: i for i, s in enumerate(site_order)}
     starts = {s: np.asarray(crews.start_points[s], float) for s in sites}
-    start_xy = np.array([starts[s] for s in due[C.SITE].astype(str)]).reshape(-1, 2)
-    pool = _Pool(due, start_xy, crews.path_factor)
+    pool = _Pool(due, starts, crews.path_factor, network)
 
     held, unplanned = [], []
     cut: dict[int, dt.date] = {}
@@ -425,9 +458,9 @@ def plan_season(
                 ordered = _sequence(pool, chosen, starts[site], route_method)
                 pool.pending[ordered] = False
                 clock = 0.0
-                prev = starts[site]
+                prev = 0
                 for k, i in enumerate(ordered, start=1):
-                    walk = float(np.hypot(pool.x[i] - prev[0], pool.y[i] - prev[1])) * crews.path_factor
+                    walk = pool.walk(site, prev, int(pool.local[i]))
                     clock += walk / team.metres_per_minute
                     arrival = _add_minutes(crews.day_start, clock)
                     clock += pool.effort[i]
@@ -436,14 +469,13 @@ def plan_season(
                                     ARRIVAL: arrival, DEPARTURE: _add_minutes(crews.day_start, clock),
                                     WALK_M: walk, EFFORT: pool.effort[i], OVERDUE_YEARS: int(pool.overdue[i]),
                                     WINDOW_START: due[WINDOW_START].iloc[i], WINDOW_END: due[WINDOW_END].iloc[i]})
-                    prev = (pool.x[i], pool.y[i])
-                back = float(np.hypot(prev[0] - starts[site][0], prev[1] - starts[site][1])) * crews.path_factor
+                    prev = int(pool.local[i])
+                back = pool.walk(site, prev, 0)
                 clock += back / team.metres_per_minute
-                pts = np.column_stack([pool.x[ordered], pool.y[ordered]])
                 team_days.append(TeamDay(team.code, day, site, tuple(team.members),
                                          (float(starts[site][0]), float(starts[site][1])),
                                          tuple(due[C.STATION].iloc[ordered]),
-                                         route_length(pts, starts[site]) * crews.path_factor,
+                                         tour_length(list(range(1, len(ordered) + 1)), _sub_matrix(pool, ordered)),
                                          crews.day_start, _add_minutes(crews.day_start, clock)))
     left = np.flatnonzero(pool.pending)
     extra = 0
@@ -482,6 +514,7 @@ def plan_season(
                       site_order=tuple(site_order), diagnostics=tuple(diags),
                       params={"randomise_site_order": randomise_site_order, "route_method": route_method,
                               "crews": crews.to_dict(),
+                              "routing": "paths" if network is not None else "straight",
                               "access_until": {k: (v.isoformat() if v else None) for k, v in access_until.items()}})
 
 

@@ -153,7 +153,8 @@ def held_karp(dist: np.ndarray) -> list[int]:
     return [k + 1 for k in reversed(order)]
 
 
-def order_route(points: np.ndarray, start: Sequence[float], method: str = "auto") -> list[int]:
+def order_route(points: np.ndarray, start: Sequence[float], method: str = "auto",
+                dist: np.ndarray | None = None) -> list[int]:
     """Order stations into a short closed walking route from ``start``.
 
     Parameters
@@ -165,6 +166,9 @@ def order_route(points: np.ndarray, start: Sequence[float], method: str = "auto"
     method : {"auto", "exact", "heuristic", "nearest"}
         ``exact`` is Held-Karp; ``heuristic`` nearest neighbour then 2-opt and Or-opt;
         ``auto`` exact up to EXACT_MAX_STOPS stops, heuristic beyond.
+    dist : array (m+1, m+1), optional
+        Walking distances over the start point (row 0) and the stations in order (e.g. over a
+        path network); straight lines when not given.
 
     Returns
     -------
@@ -179,7 +183,10 @@ def order_route(points: np.ndarray, start: Sequence[float], method: str = "auto"
     m = len(pts)
     if m == 0:
         return []
-    dist = distance_matrix(np.vstack([np.asarray(start, float)[None, :], pts]))
+    if dist is None:
+        dist = distance_matrix(np.vstack([np.asarray(start, float)[None, :], pts]))
+    elif dist.shape != (m + 1, m + 1):
+        raise ValueError("the distance matrix must cover the start point and every station")
     if method == "exact" or (method == "auto" and m <= EXACT_MAX_STOPS):
         tour = held_karp(dist)
     elif method in ("auto", "heuristic"):

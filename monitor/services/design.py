@@ -458,7 +458,7 @@ def _extend(session: Session, programme: M.Programme, site_code: str, n: int, se
     if not runs:
         raise DataError(f"site {site_code} has no stored balanced, stratified or random placement to extend"
                         + (f" with run {run_id}" if run_id is not None else "")
-                        + " (placements are stored from this version on; place with `monitor design place`)")
+                        + " (placements are stored from this version on; place with `monitor design place SITE --method random`)")
     head = runs[-1]
     chain = [head]
     while chain[-1].extends_id is not None:

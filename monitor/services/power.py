@@ -38,6 +38,7 @@ from monitor.power import (
 )
 from monitor.power.model import mean_share_visited
 from monitor.services import trend
+from monitor.services.executor import open_runner
 from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 #: the grids the searches walk: stations 10 to 200, and 3 to 50 consecutive seasons
@@ -88,6 +89,8 @@ class PowerStudy:
 def components_for(db: str | None, species: str, *, programme_code: str | None = None) -> tuple[VarianceComponents, str]:
     """The population model of a stored species: its fitted trend, and its grid or frame from the programme."""
     fitted = trend.fit_programme(db, programme_code=programme_code, species=[species], keep_data=True)
+    if not fitted and getattr(fitted, "not_called", None):
+        raise EstimationError(fitted.not_called[0].line())
     if len(fitted) != 1:
         raise InputError(InputProblem("--species", None, None, species, "one target species and measure"))
     t = fitted[0]
@@ -172,14 +175,16 @@ def power_study(components: VarianceComponents, source: str, *, change: float, o
                 alpha: float = 0.05, side: str = "decline", margin: float = DEFAULT_CHANGE_MARGIN,
                 target: float = 0.8, replicates: int = 200, seed: int = 1, workers: int = 1,
                 find_smallest: bool = True, find_years: bool = True, figure: Path | None = None,
-                progress: Callable[[int, int], None] | None = None) -> PowerStudy:
+                progress: Callable[[int, int], None] | None = None, cluster: str | None = None) -> PowerStudy:
     """Simulated power of every stations x years design for a steady change of ``change`` over ``over_years``.
 
     Every design shares the same replicate seeds (common random numbers), so the comparison between
     designs is not masked by independent noise.  With ``find_smallest`` the smallest number of
     stations reaching ``target`` over the longest series compared; with ``find_years`` the smallest
     number of consecutive seasons reaching it with the most stations compared.  ``progress`` is
-    called with (work done, work planned) in units of simulated visits.
+    called with (work done, work planned) in units of simulated visits.  The replicates run in
+    ``workers`` local processes, or on the Dask scheduler at ``cluster``; every replicate is seeded from
+    ``seed`` and its place, so the answer is the same wherever it runs.
     """
     if not stations or not years:
         raise InputError(InputProblem("--stations/--years", None, None, None, "at least one value each"))
@@ -195,26 +200,31 @@ def power_study(components: VarianceComponents, source: str, *, change: float, o
                                                    target, replicates) if find_years else (0.0, 0.0))
     work = _Work(progress, sum(replicates * _work(d) for d in designs) + planned_stations + planned_years)
 
-    results = []
-    for design in designs:
-        # each design from the same seed: the same entropy, so the same replicate seeds as one joint run
-        results += compare_designs(components, [design], scenario, rng=np.random.default_rng(seed),
-                                   n_replicates=replicates, n_workers=workers,
-                                   progress=work.phase(_work(design)))
-    smallest = None
-    if find_smallest:
-        start = work.done
-        smallest = smallest_design(components, scenario, base_stations, vary="n_stations", grid=stations_grid,
-                                   target=target, rng=np.random.default_rng(seed + 1), n_replicates=replicates,
-                                   n_workers=workers, progress=work.phase(weight_stations))
-        work.finish_phase(planned_stations, start)
-    years_search = None
-    if find_years:
-        start = work.done
-        years_search = smallest_design(components, scenario, base_stations, vary="n_years", grid=years_grid,
-                                       target=target, rng=np.random.default_rng(seed + 2), n_replicates=replicates,
-                                       n_workers=workers, progress=work.phase(weight_years))
-        work.finish_phase(planned_years, start)
+    with open_runner(workers, cluster) as runner:
+        # on a cluster its executor runs the replicates (chunked for its workers); locally, the stage's own pool
+        executor = runner.executor if cluster else None
+        n_workers = max(1, runner.cluster_workers()) if cluster else workers
+        results = []
+        for design in designs:
+            # each design from the same seed: the same entropy, so the same replicate seeds as one joint run
+            results += compare_designs(components, [design], scenario, rng=np.random.default_rng(seed),
+                                       n_replicates=replicates, n_workers=n_workers,
+                                       progress=work.phase(_work(design)), executor=executor)
+        smallest = None
+        if find_smallest:
+            start = work.done
+            smallest = smallest_design(components, scenario, base_stations, vary="n_stations", grid=stations_grid,
+                                       target=target, rng=np.random.default_rng(seed + 1), n_replicates=replicates,
+                                       n_workers=n_workers, progress=work.phase(weight_stations), executor=executor)
+            work.finish_phase(planned_stations, start)
+        years_search = None
+        if find_years:
+            start = work.done
+            years_search = smallest_design(components, scenario, base_stations, vary="n_years", grid=years_grid,
+                                           target=target, rng=np.random.default_rng(seed + 2),
+                                           n_replicates=replicates, n_workers=n_workers,
+                                           progress=work.phase(weight_years), executor=executor)
+            work.finish_phase(planned_years, start)
     if figure is not None:
         import matplotlib.pyplot as plt
 

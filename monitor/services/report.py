@@ -6,6 +6,8 @@ The report folder is written to a temporary sibling and moved into place at the 
 
 from __future__ import annotations
 
+import dataclasses
+
 import datetime as dt
 import json
 from pathlib import Path
@@ -19,7 +21,9 @@ from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
 from monitor.report.render import report_files_in
 from monitor.services.exports import generalise_m_of, generalised_positions
-from monitor.services import estimate, trend
+from monitor.report.fits import FittedEntry, fit_rows, fits_note
+from monitor.services import analyses, estimate, trend
+from monitor.services.records import current_user
 from monitor.trend import station_changes
 
 REPORT_JSON = "report.json"
@@ -62,7 +66,7 @@ def _estimate_rows(table: pd.DataFrame) -> pd.DataFrame:
                          "upper": r["upper"]})
             if pd.notna(r.get("total")):
                 rows.append({**base, "quantity": "total", "estimate": r["total"], "lower": r["total_lower"],
-                             "upper": r["total_upper"]})
+                             "upper": r["total_upper"], "counted": r.get("counted")})
         else:
             rows.append({**base, "quantity": quantity_of[r["measure"]], "estimate": r["estimate"],
                          "lower": r["lower"], "upper": r["upper"]})
@@ -85,6 +89,10 @@ def _coverage(store: Store, programme_id: int, year: int) -> pd.DataFrame:
     return frame.groupby("site", as_index=False).sum()
 
 
+def _scoped(frame: pd.DataFrame, site: str | None) -> pd.DataFrame:
+    return frame if site is None else frame[frame["site"] == site]
+
+
 def _events(store: Store, programme_id: int) -> pd.DataFrame:
     frame = store.frame(
         """
@@ -104,15 +112,21 @@ def _events(store: Store, programme_id: int) -> pd.DataFrame:
                          "description": frame["notes"].fillna("")})
 
 
-def _method_changes(store: Store, programme_id: int, first: int, last: int) -> pd.DataFrame:
+def _method_changes(store: Store, programme_id: int, first: int, last: int,
+                    measures_of: dict | None = None) -> pd.DataFrame:
+    """Protocol changes inside the series, each with the measures it concerns (blank: every measure)."""
     frame = store.frame("SELECT code, description, effective_from FROM protocol_version WHERE programme_id = :p "
                         "ORDER BY effective_from", p=programme_id)
+    measures_of = measures_of or {}
     rows = []
     for r in frame.to_dict(orient="records"):
         year = pd.Timestamp(r["effective_from"]).year
         if first < year <= last:
-            rows.append({"year": year, "kind": "protocol", "description": f"protocol {r['code']}: {r['description']}"})
-    return pd.DataFrame(rows, columns=["year", "kind", "description"])
+            described = str(r["description"] or "")
+            text = f"protocol {r['code']}" + (f": {described}" if described else "")
+            rows.append({"year": year, "kind": "protocol", "description": text,
+                         "measures": ";".join(measures_of.get(str(r["code"]), []))})
+    return pd.DataFrame(rows, columns=["year", "kind", "description", "measures"])
 
 
 def _quality_flags(store: Store, programme_id: int) -> pd.DataFrame:
@@ -148,26 +162,127 @@ def _sites_geometry(store: Store, programme_id: int) -> dict[str, dict]:
             if r["boundary_geojson"]}
 
 
-@one_snapshot
+def _photos(store: Store, programme_id: int, stations: pd.DataFrame, site_names: dict[str, str],
+            base: Path | None = None) -> list:
+    """Stations' repeat photos, where the photo files can be read (thumbnails; the rest are named)."""
+    from monitor.report import Photo, StationPhotos
+    from monitor.report.figures import photo_thumbnail
+
+    frame = store.frame(
+        """
+        SELECT t.code AS station, s.code AS site, v.date AS visit_date, p.path, p.bearing_deg, p.notes
+        FROM photo p JOIN station t ON t.id = p.station_id JOIN site s ON s.id = t.site_id
+        LEFT JOIN visit v ON v.id = p.visit_id
+        WHERE t.programme_id = :p ORDER BY t.code, v.date, p.id
+        """,
+        p=programme_id,
+    )
+    frame = frame[frame["station"].isin(set(stations[C.STATION]))]
+    out = []
+    for (station, site), rows in frame.groupby(["station", "site"], sort=True):
+        photos = []
+        for r in rows.to_dict(orient="records"):
+            path = Path(r["path"])
+            if not path.is_absolute() and base is not None:
+                path = base / path
+            try:
+                image = photo_thumbnail(path.read_bytes())
+            except (OSError, ValueError):
+                continue  # a photo whose file is not here is listed in `monitor station history`
+            bearing = "" if r["bearing_deg"] is None or pd.isna(r["bearing_deg"]) else f"facing {r['bearing_deg']:.0f}°"
+            caption = ", ".join(x for x in (bearing, str(r["notes"] or "")) if x)
+            date = "" if r["visit_date"] is None or pd.isna(r["visit_date"]) else str(r["visit_date"])[:10]
+            photos.append(Photo(date=date or "undated", caption=caption, image=image))
+        if photos:
+            out.append(StationPhotos(str(station), str(site), site_names.get(str(site), ""), tuple(photos)))
+    return out
+
+
+def _read_previous(previous: Path | None) -> dict | None:
+    if previous is None:
+        return None
+    try:
+        return json.loads(Path(previous).read_text(encoding="utf-8"))
+    except (OSError, json.JSONDecodeError) as exc:
+        raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
+
+
+def _previous_from_database(db: str | None, year: int, programme_code: str | None) -> dict | None:
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        return analyses.previous_report(store, programme.id, year - 1)
+    finally:
+        store.dispose()
+
+
 def write_report(db: str | None, year: int, out_dir: Path | None = None, *, programme_code: str | None = None,
                  previous: Path | None = None, power: pd.DataFrame | None = None,
-                 progress=None) -> Path:
-    """Fit every target species up to ``year`` and write the report folder; returns its path."""
+                 progress=None, site: str | None = None, species: str | None = None, pdf: bool = True,
+                 photo_base: Path | None = None, by: str | None = None, workers: int | None = 1,
+                 cluster: str | None = None, refit: bool = False) -> Path:
+    """Fit every target species up to ``year`` and write the report folder; returns its path.
+
+    ``site`` limits the report to one site (trends fitted on its stations only); ``species`` to one
+    species.  With ``pdf`` the folder also holds ``report.pdf``, the printed report (WeasyPrint).
+
+    Everything the report reads comes from one snapshot of the database.  Trends come from the stored
+    fits where the data, model and engine still match, and are fitted (by ``workers`` local processes or
+    on the Dask scheduler ``cluster``) otherwise; ``by`` adds trends by site, stratum or region.  Last
+    year's calls are read from the database (the last report recorded for ``year - 1``); ``previous``
+    names a report.json to compare with instead, and a report folder of last year beside ``out_dir`` is
+    read only when the database holds no report for that year.  After the snapshot, the new fits are
+    stored and the report is recorded with the fits it showed (``monitor trend history``); a report
+    limited to one site or species is not recorded (it is not the season's report).
+    """
+    with analyses.saving_after() as saved:
+        folder, shown = _write_report(db, year, out_dir, programme_code=programme_code, previous=previous,
+                                      power=power, progress=progress, site=site, species=species, pdf=pdf,
+                                      photo_base=photo_base, by=by, workers=workers, cluster=cluster,
+                                      refit=refit)
+    if site is None and species is None:
+        _record(db, programme_code, year, [saved.fit_id(t) for t in shown], folder)
+    return folder
+
+
+@one_snapshot
+def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_code: str | None,
+                  previous: Path | None, power: pd.DataFrame | None, progress, site: str | None,
+                  species: str | None, pdf: bool, photo_base: Path | None, by: str | None, workers: int | None,
+                  cluster: str | None, refit: bool) -> tuple[Path, list]:
     out_dir = Path(out_dir) if out_dir is not None else default_folder(year)
     report_files_in(out_dir)  # refuse a folder we did not write now, not after the fits
-    if previous is None:
+    previous_doc = _read_previous(previous)
+    if previous_doc is None and site is None and species is None:
+        previous_doc = _previous_from_database(db, year, programme_code)
+    if previous_doc is None:
         guess = out_dir.parent / str(year - 1) / REPORT_JSON
-        previous = guess if guess.is_file() else None
-    previous_doc = None
-    if previous is not None:
-        try:
-            previous_doc = json.loads(Path(previous).read_text(encoding="utf-8"))
-        except (OSError, json.JSONDecodeError) as exc:
-            raise InputError(InputProblem(str(previous), None, None, None, f"last year's report.json ({exc})")) from None
+        previous_doc = _read_previous(guess if guess.is_file() else None)
 
-    trends = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True)
+    if site is not None or species is not None:  # refuse an unknown code before any fitting
+        store = Store.open(db)
+        try:
+            programme = store.programme(programme_code)
+            known_sites = set(queries.sites(store, programme.id)["site"])
+            known_species = set(queries.species(store, programme.id)[C.SPECIES])
+        finally:
+            store.dispose()
+        if site is not None and site not in known_sites:
+            raise InputError(InputProblem("report", None, "--site", site,
+                                          f"a site code of the programme ({', '.join(sorted(known_sites))})"))
+        if species is not None and species not in known_species:
+            raise InputError(InputProblem("report", None, "--species", species,
+                                          f"a species code of the programme ({', '.join(sorted(known_species))})"))
+    fitted = trend.fit_programme(db, programme_code=programme_code, last_year=year, keep_data=True,
+                                 sites=[site] if site else None, species=[species] if species else None, by=by,
+                                 workers=workers, cluster=cluster, refit=refit)
+    not_called = list(getattr(fitted, "not_called", []))
+    everything = list(fitted)
+    trends = [t for t in fitted if t.area_kind == "all"]
     if not trends:
-        raise DataError("no target species to report")
+        reasons = "; ".join(n.line() for n in not_called)
+        raise DataError("no target species to report" + (f" for site {site}" if site else "")
+                        + (f" for species {species}" if species else "") + (f": {reasons}" if reasons else ""))
     if power is None:
         from monitor.services.power import detectable_changes
 
@@ -176,6 +291,12 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
     try:
         programme = store.programme(programme_code)
         stations = queries.stations(store, programme.id)
+        site_names = {str(k): str(v) for k, v in queries.sites(store, programme.id).set_index("site")["name"].items()
+                      if v is not None and not pd.isna(v)}
+        if site is not None:
+            if site not in site_names and site not in set(stations[C.SITE]):
+                raise InputError(InputProblem("report", None, "--site", site, "a site code of the programme"))
+            stations = stations[stations[C.SITE] == site]
         placements = stations.loc[stations["state"] == "in_service", "placement"]
         meta = ProgrammeInfo(
             name=programme.name,
@@ -199,7 +320,9 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
                         gradient_label=f"distance along transect {transect} [m]", value_label="count per quadrat")
                     break
         try:
-            season_table = estimate.season_table(db, year, programme_code=programme.code)
+            season_table = estimate.season_table(db, year, programme_code=programme.code,
+                                                 sites=[site] if site else None,
+                                                 species=[species] if species else None)
             estimates = _estimate_rows(season_table)
         except DataError:
             estimates = None
@@ -208,9 +331,9 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             year,
             {(t.species, t.measure): t.result for t in trends},
             estimates=estimates,
-            coverage=_coverage(store, programme.id, year),
+            coverage=_scoped(_coverage(store, programme.id, year), site),
             quality_flags=_quality_flags(store, programme.id),
-            triggers=triggers_of(programme),
+            triggers=[t for t in triggers_of(programme) if species is None or t.species == species],
             events=_events(store, programme.id),
             previous=previous_doc,
             power=power,
@@ -223,17 +346,42 @@ def write_report(db: str | None, year: int, out_dir: Path | None = None, *, prog
             station_changes={(t.species, t.measure): station_changes(t.data, t.measure)
                              for t in trends if t.data is not None},
             gradients=gradients,
-            method_changes=_method_changes(store, programme.id, first, year),
+            method_changes=_method_changes(store, programme.id, first, year,
+                                           _settings(programme).get("protocol_measures")),
             species_names={t.species: t.common_name for t in trends if t.common_name},
             corrections=_corrections_since(store, programme.id, (previous_doc or {}).get("generated")),
             generated=dt.date.today().isoformat(),
             software={"monitor": __version__},
+            site_names=site_names,
+            scope=" and ".join(x for x in (
+                f"site {site_names.get(site, site)} ({site})" if site else "",
+                f"species {species}" if species else "") if x),
+            photos=_photos(store, programme.id, stations[stations["state"] == "in_service"], site_names,
+                           photo_base),
         )
     finally:
         store.dispose()
+    if not_called:  # species too short to call are said so; the rest of the report stands
+        context = dataclasses.replace(context, cautions=(*context.cautions, *(n.line() for n in not_called)),
+                                      not_called=tuple(n.to_dict() for n in not_called))
+    rows = fit_rows([FittedEntry(t.species, t.common_name, t.measure, t.area_kind, t.area, t.result, t.fitted_at,
+                                 t.reused) for t in everything])
+    context = dataclasses.replace(context, fits=rows, fits_note=fits_note(rows),
+                                  areas=tuple(r for r in rows if r.area_kind != "all"), area_kind=by or "")
     try:
-        return render_report(context, out_dir, progress=progress)
+        return render_report(context, out_dir, progress=progress, pdf=pdf), everything
     except OSError as exc:
         if exc.filename is None and exc.errno is not None:  # a failed write names no file (a full disk)
             raise OSError(exc.errno, exc.strerror, str(out_dir)) from exc
         raise
+
+
+def _record(db: str | None, programme_code: str | None, year: int, fit_ids: list[int | None], folder: Path) -> None:
+    """Record the report and the fits it showed (fits not stored, for a role that may not write, are not)."""
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        analyses.record_report(store, programme.id, year, [i for i in fit_ids if i is not None],
+                               folder=str(folder), who=current_user())
+    finally:
+        store.dispose()

@@ -145,6 +145,8 @@ def season_inputs(store: Store, programme: M.Programme, year: int,
         season_window = _parse_window(stored[0], stored[1], f"the programme's {year} season window")
     species = queries.species(store, pid)
     species = species[species[C.MEASURE].notna()]
+    species_names = {str(r[C.SPECIES]): str(r["common_name"]) for r in species.to_dict(orient="records")
+                     if r.get("common_name") and not pd.isna(r["common_name"])}
     targets = [(str(r[C.SPECIES]), str(r[C.MEASURE]), None if pd.isna(r["n"]) else int(r["n"]))
                for r in species.to_dict(orient="records")]
     species_windows = {}
@@ -378,6 +380,8 @@ def plan_season(
     replace: bool = False,
     dry_run: bool = False,
     programme_code: str | None = None,
+    paths: Path | None = None,
+    winding: float | None = None,
 ) -> PlanResult:
     """Plan season ``year`` and store it in ``planned_visit`` (one transaction).
 
@@ -386,6 +390,10 @@ def plan_season(
     within ``start_tolerance_m`` of the reserve's sites.  Sites whose access permission lapses
     before a station's window are held back.  An earlier plan of the same year is replaced only
     with ``replace``.  Nothing is written when a request is refused or with ``dry_run``.
+
+    Walking follows the programme's paths when ``paths`` (GeoJSON lines in the programme CRS) is given:
+    shortest paths over that network; otherwise straight lines times the winding factor (``winding``, or
+    the crews file's ``path_factor``; 1 by default).  The paths are stored with the plan.
     """
     if (teams is None) == (crews_file is None):
         raise InputError(InputProblem("--teams/--crews", None, None, None, "either a number of teams or a crews file"))
@@ -413,6 +421,16 @@ def plan_season(
                 starts[r[C.SITE]] = (p.x, p.y)
         starts.update(crew["start_points"])
         reserve = shapely.union_all(list(geometries.values())).buffer(start_tolerance_m) if geometries else None
+        if winding is not None:
+            if winding < 1.0:
+                raise InputError(InputProblem("--winding", None, None, winding, "a factor of at least 1"))
+            crew["path_factor"] = float(winding)
+        network, path_record = None, None
+        if paths is not None:
+            from monitor.services.design import read_lines
+
+            network = S.PathNetwork([line for _code, line in read_lines(paths, programme.crs_epsg)])
+            path_record = {"file": Path(paths).name, "length_m": network.length, "network": network.to_geojson()}
         crews = S.CrewSettings(teams=crew["teams"], start_points=starts,
                                allow_lone_working=bool(programme.allow_lone_working),
                                blocked_dates=tuple(crew["blocked_dates"]) + tuple(blocked if crews_file else ()),
@@ -430,7 +448,9 @@ def plan_season(
         access = {r[C.SITE]: as_date(r["access_until"]) for r in sites.to_dict(orient="records")}
         rng = fresh_seed(seed)
         plan = S.plan_season(due, crews, year=int(year), rng=rng, access_until=access, reserve=reserve,
-                             randomise_site_order=randomise_sites)
+                             randomise_site_order=randomise_sites, network=network)
+        if path_record is not None:
+            plan.params["paths"] = path_record
         result = PlanResult(year=int(year), plan=plan, stored=False, due=due, already_recorded=already)
         if dry_run:
             return result
@@ -572,6 +592,20 @@ def update_outcomes(db: str | None, years: list[int] | None = None, *, programme
         store.dispose()
 
 
+def stored_plans(db: str | None, *, programme_code: str | None = None) -> pd.DataFrame:
+    """Every stored season plan, one row a season, for comparing years (:func:`queries.season_plans`)."""
+    store = Store.open(db)
+    try:
+        programme = store.programme(programme_code)
+        frame = queries.season_plans(store, programme.id)
+    finally:
+        store.dispose()
+    frame["route_km"] = frame["route_km"].astype(float).round(2)
+    for column in ("first_day", "last_day"):
+        frame[column] = [as_date(v) for v in frame[column]]
+    return frame
+
+
 # --- field packs ---------------------------------------------------------------------------------------------------
 
 
@@ -637,7 +671,8 @@ def _protocol_on(session_rows: pd.DataFrame, day: dt.date) -> str:
 
 def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | None = None,
                       day: dt.date | None = None, programme_code: str | None = None,
-                      now: dt.datetime | None = None, generalise_sensitive: bool | None = None) -> PackResult:
+                      now: dt.datetime | None = None, generalise_sensitive: bool | None = None,
+                      pdf: bool = False) -> PackResult:
     """Write a field pack per planned team-day (optionally one team and/or one day) into ``folder``.
 
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
@@ -670,6 +705,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
                                                        p=programme.id)["code"]]
         lineage_notes = relocation.lineage_notes(store, programme.id)
+        site_names = {str(k): str(v) for k, v in queries.sites(store, programme.id).set_index("site")["name"].items()
+                      if v is not None and not pd.isna(v)}
         if generalise_sensitive is None:
             generalise_sensitive = _settings(programme).get(FIELD_PACKS_OUTSIDE) is True
         if generalise_sensitive:  # packs for crews outside the programme: positions as every export gives them
@@ -679,6 +716,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     finally:
         store.dispose()
     species = species[species[C.MEASURE].notna()]
+    species_names = {str(r[C.SPECIES]): str(r["common_name"]) for r in species.to_dict(orient="records")
+                     if r.get("common_name") and not pd.isna(r["common_name"])}
     targets = [(str(r[C.SPECIES]), str(r[C.MEASURE]), None if pd.isna(r["n"]) else int(r["n"]))
                for r in species.to_dict(orient="records")]
     units = _settings(programme).get("covariate_units") or {}
@@ -699,8 +738,12 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         protocol = _protocol_on(protocols, td.date)
         context = fieldpack.field_sheet_context(
             plan, td.team, td.date, stations, crs=programme.crs_epsg, targets=targets, covariates=covariates,
-            visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now)
-        (out / "field_sheet.html").write_text(fieldpack.render_field_sheet(context), encoding="utf-8")
+            visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now,
+            species_names=species_names, site_name=site_names.get(td.site, ""))
+        sheet_html = fieldpack.render_field_sheet(context)
+        (out / "field_sheet.html").write_text(sheet_html, encoding="utf-8")
+        if pdf:
+            fieldpack.write_sheet_pdf(sheet_html, out / "field_sheet.pdf")
         entry = fieldpack.field_sheet_frame(context)
         entry.to_csv(out / "entry_sheet.csv", index=False)
         value_columns = [h for h in entry.columns if ":" in h]
@@ -732,6 +775,7 @@ __all__ = [
     "read_crews_file",
     "refresh_outcomes",
     "stored_plan",
+    "stored_plans",
     "update_outcomes",
     "write_field_packs",
 ]

@@ -105,7 +105,9 @@ def create_programme(session: Session, path: Path) -> M.Programme:
         allow_lone_working=meta.get("allow_lone_working", False),
         change_margin=meta.get("change_margin", DEFAULT_CHANGE_MARGIN),
         settings_json=json.dumps({**meta.get("settings", {}),
-                                  **({"time_zone": meta["time_zone"]} if meta.get("time_zone") else {})},
+                                  **({"time_zone": meta["time_zone"]} if meta.get("time_zone") else {}),
+                                  **({"protocol_measures": meta["protocol_measures"]}
+                                     if meta.get("protocol_measures") else {})},
                                  sort_keys=True),
     )
     session.add(programme)
@@ -132,6 +134,9 @@ def load_sites(session: Session, programme: M.Programme, path: Path, report: Loa
         code = getattr(row, C.SITE)
         if code in existing:
             problems.append(_clash(file, i, "code", code, "site"))
+        region = raw_props[i - 1].get(C.REGION)
+        if region is not None and not (isinstance(region, str) and 0 < len(region.strip()) <= 40):
+            problems.append(InputProblem(file, i, C.REGION, region, "a region code of 1 to 40 characters, or none"))
     if problems:
         raise InputError(problems)
     for i, row in enumerate(frame.to_dict(orient="records"), start=1):
@@ -147,6 +152,7 @@ def load_sites(session: Session, programme: M.Programme, path: Path, report: Loa
             base_x=_float_or_none(props.get("base_x")),
             base_y=_float_or_none(props.get("base_y")),
             access_notes=str(props.get("access_notes", "") or ""),
+            region=props[C.REGION].strip() if props.get(C.REGION) is not None else None,
         ))
     session.flush()
     report.add("sites", len(frame))

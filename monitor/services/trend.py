@@ -8,8 +8,10 @@ Missed and inaccessible visits are absent from the data, never zeros.
 
 from __future__ import annotations
 
+import dataclasses
+import datetime as dt
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -17,9 +19,46 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.db import Store, one_snapshot, queries
-from monitor.errors import DataError, Diagnostic, EstimationError, InputError, InputProblem
+from monitor.db import fits as fit_store
+from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
+from monitor.services import analyses
+from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
+from monitor.services.executor import open_runner
+from monitor.services.records import current_user
 from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 from monitor.trend import TrendModel, TrendResult
+
+
+@dataclass(frozen=True)
+class NotCalled:
+    """A target species whose trend cannot be called from the data (too short a series, too few stations)."""
+
+    species: str
+    common_name: str
+    measure: str
+    reason: str
+    years: tuple[int, ...] = ()
+
+    def why(self) -> str:
+        seasons = (f"data from {len(self.years)} season{'s' if len(self.years) != 1 else ''}"
+                   f" ({', '.join(map(str, self.years))})" if self.years else "no data")
+        return f"too short to call: {seasons}; {self.reason}"
+
+    def line(self) -> str:
+        return f"{self.species} ({self.measure}): {self.why()}"
+
+    def to_dict(self) -> dict:
+        return {"species": self.species, "common_name": self.common_name, "measure": self.measure,
+                "call": "too short to call", "reason": self.reason, "years": list(self.years)}
+
+
+class TrendRun(list):
+    """The fitted trends (a list of :class:`SpeciesTrend`) and, in ``not_called``, the species that could not
+    be fitted, each with its reason."""
+
+    def __init__(self, *args):
+        super().__init__(*args)
+        self.not_called: list[NotCalled] = []
 
 
 @dataclass(frozen=True)
@@ -32,11 +71,20 @@ class SpeciesTrend:
     result: TrendResult
     notes: tuple[Diagnostic, ...] = field(default_factory=tuple)
     data: pd.DataFrame | None = field(default=None, repr=False, compare=False)
+    area_kind: str = "all"             # all, site, stratum or region
+    area: str = ""                     # the site, stratum or region code ("" for the whole programme)
+    fitted_at: dt.datetime | None = None
+    reused: bool = False               # read back from the stored fits, not fitted by this run
+    fit_id: int | None = None          # the stored fit (None when not stored)
+    fit_key: tuple | None = field(default=None, repr=False, compare=False)  # identity of the fit in the store
 
     def to_dict(self) -> dict:
-        out = {"species": self.species, "common_name": self.common_name, **self.result.to_dict()}
+        out = {"species": self.species, "common_name": self.common_name, "area_kind": self.area_kind,
+               "area": self.area, **self.result.to_dict()}
         out["diagnostics"] = out["diagnostics"] + [
             {"code": d.code, "message": d.message, "severity": d.severity} for d in self.notes]
+        out["fitted_at"] = None if self.fitted_at is None else self.fitted_at.isoformat()
+        out["reused"] = self.reused
         return out
 
 
@@ -103,59 +151,153 @@ def fit_one(data: pd.DataFrame, measure: str, *, margin: float, choices: ModelCh
     return model.fit(profile=profile, indices=indices, fast=False)
 
 
-@one_snapshot
+def _targets(store: Store, programme_id: int, species: list[str] | None) -> pd.DataFrame:
+    targets = queries.species(store, programme_id).dropna(subset=[C.MEASURE])
+    if species:
+        unknown = sorted(set(species) - set(targets[C.SPECIES]))
+        if unknown:
+            raise InputError(InputProblem("--species", None, None, ", ".join(unknown),
+                                          f"a target species code ({', '.join(targets[C.SPECIES])})"))
+        targets = targets[targets[C.SPECIES].isin(species)]
+    return targets
+
+
+def _area_tasks(task: FitTask, by: str, areas: pd.Series) -> tuple[list[FitTask], list[Diagnostic]]:
+    """One task per area (site, stratum or region) of a species' table, in code order."""
+    data = task.data
+    area_of = data[C.STATION].map(areas)
+    notes = []
+    missing = int(area_of.isna().sum())
+    if missing:
+        stations = data.loc[area_of.isna(), C.STATION].nunique()
+        notes.append(Diagnostic(f"no_{by}", f"{stations} station(s) have no {by}; their {missing} value(s) enter "
+                                f"the overall trend only.", "info"))
+    tasks = [FitTask(task.species, task.measure, by, str(code), task.options,
+                     data[(area_of == code).to_numpy()].reset_index(drop=True))
+             for code in sorted(area_of.dropna().unique())]
+    return tasks, notes
+
+
 def fit_programme(db: str | None, *, programme_code: str | None = None, species: list[str] | None = None,
                   sites: list[str] | None = None, first_year: int | None = None, last_year: int | None = None,
                   family: str | None = None, observer_effect: bool = False, keep_data: bool = False,
                   choices: ModelChoices | None = None, skipped: list[dict] | None = None,
+                  by: str | None = None, workers: int | None = 1, cluster: str | None = None,
+                  refit: bool = False, save: bool = True,
                   progress: Callable[[int, int, str], None] | None = None) -> list[SpeciesTrend]:
-    """Fit every target species and measure of the programme (or those named).
+    """Fit every target species and measure of the programme (or those named), and by area with ``by``.
 
-    ``skipped``: when a list is given, a species whose model cannot be fitted at all (an
-    EstimationError: e.g. every stored value the same) is appended to it as
-    {species, measure, reason} and the other species go on; otherwise the error is raised.
+    A species whose trend cannot be fitted (one season of data, too few stations, no values, every value
+    the same) does not stop the others: it is listed in the returned list's ``not_called`` as too short to
+    call, with the reason, and, when ``skipped`` is a list, appended to it as {species, measure, reason}.
+    An area that cannot be fitted is noted on the species' overall trend.
+
+    Stored fits whose data, specification and engine still match are reused (``refit`` fits everything
+    again); the rest are fitted by ``workers`` local processes (None: the cores) or on the Dask scheduler
+    at ``cluster``, and stored by this process.  Results come in target order: each species' overall
+    trend, then its areas in code order.  Everything is read from one snapshot of the database; the new
+    fits are stored when it ends.
     """
-    if choices is None:
-        choices = ModelChoices(family=family, observer_effect=observer_effect)
+    with analyses.saving_after() as saved:
+        if choices is None:
+            choices = ModelChoices(family=family, observer_effect=observer_effect)
+        trends = _fit_programme(db, programme_code=programme_code, species=species, sites=sites,
+                                first_year=first_year, last_year=last_year, choices=choices, skipped=skipped,
+                                keep_data=keep_data, by=by, workers=workers, cluster=cluster, refit=refit,
+                                save=save, progress=progress)
+    out = TrendRun(t if t.fit_id is not None else replace(t, fit_id=saved.fit_id(t)) for t in trends)
+    out.not_called = trends.not_called
+    return out
+
+
+@one_snapshot
+def _fit_programme(db: str | None, *, programme_code: str | None, species: list[str] | None,
+                   sites: list[str] | None, first_year: int | None, last_year: int | None,
+                   choices: ModelChoices, skipped: list[dict] | None, keep_data: bool, by: str | None,
+                   workers: int | None,
+                   cluster: str | None, refit: bool, save: bool,
+                   progress: Callable[[int, int, str], None] | None) -> list[SpeciesTrend]:
+    """The reading and fitting of ``fit_programme``, in one snapshot (the new fits are stored after it)."""
+    if by is not None and by not in AREA_KINDS:
+        raise InputError(InputProblem("--by", None, None, by, f"one of {', '.join(AREA_KINDS)}"))
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
-        targets = queries.species(store, programme.id).dropna(subset=[C.MEASURE])
-        if species:
-            unknown = sorted(set(species) - set(targets[C.SPECIES]))
-            if unknown:
-                raise InputError(InputProblem("--species", None, None, ", ".join(unknown),
-                                              f"a target species code ({', '.join(targets[C.SPECIES])})"))
-            targets = targets[targets[C.SPECIES].isin(species)]
+        targets = _targets(store, programme.id, species)
+        areas = fit_store.area_of_stations(store, programme.id).set_index(C.STATION)[by] if by else None
         from monitor.services.relocation import lineage
 
         chains = lineage(store, programme.id)
-        out = []
-        for i, target in enumerate(targets.to_dict(orient="records")):
-            if progress:
-                progress(i, len(targets), target[C.SPECIES])
-            long = queries.observations_long(store, programme.id, species=target[C.SPECIES],
-                                             measure=target[C.MEASURE], sites=sites, first_year=first_year,
-                                             last_year=last_year)
+        tasks: list[FitTask] = []
+        not_called: list[NotCalled] = []
+        notes: dict[tuple[str, str], list[Diagnostic]] = {}
+        names = {}
+        for target in targets.to_dict(orient="records"):
+            sp, measure = target[C.SPECIES], target[C.MEASURE]
+            names[sp] = target["common_name"] or ""
+            long = queries.observations_long(store, programme.id, species=sp, measure=measure, sites=sites,
+                                             first_year=first_year, last_year=last_year)
             if long.empty:
-                raise DataError(f"no stored values for {target[C.SPECIES]} ({target[C.MEASURE]}) in the years asked")
-            long[C.LINEAGE] = long[C.STATION].map(chains)
-            data, notes = analysis_frame(long, target[C.MEASURE])
-            try:
-                result = fit_one(data, target[C.MEASURE], margin=change_margin(programme.change_margin),
-                                 choices=choices)
-            except EstimationError as exc:
-                if skipped is None:
-                    raise
-                skipped.append({C.SPECIES: target[C.SPECIES], C.MEASURE: target[C.MEASURE], "reason": str(exc)})
+                short = NotCalled(sp, names[sp], measure, "no stored values in the years asked", ())
+                not_called.append(short)
+                if skipped is not None:
+                    skipped.append({C.SPECIES: sp, C.MEASURE: measure, "reason": short.why()})
                 continue
-            out.append(SpeciesTrend(target[C.SPECIES], target["common_name"] or "", target[C.MEASURE], result,
-                                    tuple(notes), data if keep_data else None))
-        if progress:
-            progress(len(targets), len(targets), "")
-        return out
+            long[C.LINEAGE] = long[C.STATION].map(chains)
+            data, species_notes = analysis_frame(long, measure)
+            options = {"margin": change_margin(programme.change_margin), "choices": choices}
+            overall = FitTask(sp, measure, AREA_ALL, "", options, data)
+            tasks.append(overall)
+            notes[(sp, measure)] = species_notes
+            if areas is not None:
+                area_tasks, area_notes = _area_tasks(overall, by, areas)  # type: ignore[arg-type]
+                tasks += area_tasks
+                notes[(sp, measure)] += area_notes
+
+        def tick(done: int, total: int) -> None:
+            if progress:
+                progress(done, total, "")
+
+        with open_runner(workers, cluster) as runner:
+            outcomes = analyses.fit_tasks(store, programme.id, tasks, runner, who=current_user(), refit=refit,
+                                          save=save, progress=tick)
     finally:
         store.dispose()
+    return _species_trends(outcomes, notes, names, keep_data, skipped, not_called)
+
+
+def _species_trends(outcomes, notes, names, keep_data: bool, skipped: list[dict] | None,
+                    not_called: list[NotCalled]) -> TrendRun:
+    out = TrendRun()
+    out.not_called = not_called
+    dropped = set()
+    for o in outcomes:
+        t = o.task
+        key = (t.species, t.measure)
+        if key in dropped:
+            continue
+        if o.error is not None:
+            if t.area_kind == AREA_ALL:
+                if not isinstance(o.error, EstimationError):
+                    raise o.error
+                # this species cannot be called; the others still are
+                years = tuple(sorted(int(y) for y in set(t.data[C.YEAR]))) if C.YEAR in t.data else ()
+                short = NotCalled(t.species, names.get(t.species, ""), t.measure, str(o.error), years)
+                out.not_called.append(short)
+                if skipped is not None:
+                    skipped.append({C.SPECIES: t.species, C.MEASURE: t.measure, "reason": short.why()})
+                dropped.add(key)
+                continue
+            notes[key].append(Diagnostic(f"{t.area_kind}_not_fitted",
+                                         f"{t.area_kind.capitalize()} {t.area}: no trend ({o.error}).", "info"))
+            continue
+        out.append(SpeciesTrend(t.species, names.get(t.species, ""), t.measure, o.result,
+                                tuple(notes[key]) if t.area_kind == AREA_ALL else (),
+                                t.data if keep_data else None, area_kind=t.area_kind, area=t.area,
+                                fitted_at=o.fitted_at, reused=o.reused, fit_id=o.fit_id, fit_key=o.key))
+    # area notes found after the overall entry was made: rebuild it with every note
+    out[:] = [replace(s, notes=tuple(notes[(s.species, s.measure)])) if s.area_kind == AREA_ALL else s for s in out]
+    return out
 
 
 MEASURE_BY_COLUMNS = [

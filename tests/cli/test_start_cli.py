@@ -71,7 +71,7 @@ def test_station_add_is_checked_like_a_file_row_and_logged(programme_db, capsys)
 
 # --- every hint is a command that works ------------------------------------------------------------------
 _HINT = re.compile(r"`(monitor [^`]+)`")
-_PLACEHOLDERS = {"YEAR": "2024", "SITE": "SM", "{year}": "2024", "FOLDER": "@folder", "FILE": "@file", "DIR": "@folder",
+_PLACEHOLDERS = {"YEAR": "2024", "SITE": "SM", "LOGIN": "someone", "reader": "reader --password secret-long-enough", "{year}": "2024", "FOLDER": "@folder", "FILE": "@file", "DIR": "@folder",
                  '"..."': "checked", "{db_path}": "@db"}
 
 

@@ -20,6 +20,14 @@ def _rows(store: Store, table: str) -> list[dict]:
     return [{k: v for k, v in r.items() if k != "created_at"} for r in rows]
 
 
+def _before_0004() -> str:
+    from alembic.script import ScriptDirectory
+
+    from monitor.config import migrations_dir
+
+    return ScriptDirectory(str(migrations_dir())).get_revision("0004").down_revision
+
+
 def _settings(store: Store) -> dict:
     with store.engine.connect() as connection:
         return json.loads(connection.execute(sa.text("SELECT settings_json FROM programme")).scalar())
@@ -41,8 +49,10 @@ def test_plans_go_back_into_settings_on_downgrade_and_into_tables_on_upgrade(pla
         assert len(tables["season_plan"]) == 2 and len(tables["season_plan_team"]) == 4
         assert "season_plans" not in _settings(store)
         plan_2027 = schedule.stored_plan(store, store.programme(), 2027)
-        migrate.downgrade(store.engine, "0004-1")  # to the revision before 0004, whatever came after it
-        assert migrate.current_revision(store.engine) not in (migrate.head_revision(), "0004")
+        # down to the revision before 0004 (later revisions go first), then back up to head
+        before = _before_0004()
+        migrate.downgrade(store.engine, before)
+        assert migrate.current_revision(store.engine) == before
         with store.engine.connect() as connection:
             present = set(sa.inspect(connection).get_table_names())
         assert not present & set(PLAN_TABLES)

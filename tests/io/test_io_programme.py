@@ -269,3 +269,28 @@ def test_observers_csv(tmp_path):
     assert (2, "name", None) in got
     assert (2, "trained", "01/02/2015") in got   # D/M and M/D both fit: refused, never guessed
     assert (3, "code", "OB1;OB2") in got
+
+
+@pytest.mark.parametrize("code", ["MAR VIO", "MAR:VIO", "A/B", "cov", "'X", "=SUM", "a,b"])
+def test_species_codes_the_sheets_cannot_carry_are_refused_at_setup(tmp_path, code):
+    """A code with a space (or ':', '/', ...) cannot be a 'CODE:count' header of the field pack's entry
+    sheet, so that sheet could never be imported: refused when the species list is read."""
+    from monitor.errors import InputError
+    from monitor.io.programme import read_species_csv
+
+    path = tmp_path / "species.csv"
+    quoted = '"' + code.replace('"', '""') + '"'
+    path.write_text(f"code,scientific_name,measure\n{quoted},Viola invented,count\nOK-1,Carex invented,count\n")
+    with pytest.raises(InputError) as caught:
+        read_species_csv(path)
+    assert len(caught.value.problems) == 1
+    problem = caught.value.problems[0]
+    assert (problem.file, problem.row, problem.field, problem.value) == ("species.csv", 2, "code", code)
+
+
+def test_a_species_code_with_accents_digits_dots_and_dashes_is_fine(tmp_path):
+    from monitor.io.programme import read_species_csv
+
+    path = tmp_path / "species.csv"
+    path.write_text("code,scientific_name,measure\nÄSTER-2.b,Aster invented,count\n", encoding="utf-8")
+    assert list(read_species_csv(path)["species"]) == ["ÄSTER-2.b"]

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 import numpy as np
+import pytest
 from shapely.geometry import LineString, Point
 
 from monitor import columns as C
@@ -124,3 +125,43 @@ def test_transect_along_a_drawn_line(programme_db, tmp_path, capsys):
     bad.write_text(json.dumps({"type": "Feature", "properties": {}, "geometry": Point(1, 1).__geo_interface__}))
     _refused(programme_db, ["design", "place", "SM", "--method", "transect", "--line", str(bad), "--spacing", "5"],
              capsys, "bad.geojson", "LineString")
+
+
+def test_season_plan_over_paths_and_plans_compared(programme_db, tmp_path, capsys):
+    from monitor.services import records, schedule
+    from tests.conftest import REPO_ROOT
+
+    records.import_records(programme_db, REPO_ROOT / "demo_programme" / "records" / "season_2026.csv")
+    # an invented track network joining the four sites' car parks (sites.geojson base points) and crossing them
+    track = LineString([(511985, 5741990), (512200, 5742130), (512505, 5742030), (512650, 5742130),
+                        (512545, 5742310), (512640, 5742390), (512065, 5742350), (512230, 5742420)])
+    spur = LineString([(512200, 5742130), (512200, 5742250)])
+    paths = tmp_path / "paths.geojson"
+    paths.write_text(json.dumps({"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"name": n}, "geometry": g.__geo_interface__}
+        for n, g in (("track", track), ("spur", spur))]}))
+    assert main(["--db", programme_db, "season", "plan", "2027", "--teams", "2", "--seed", "3", "--winding",
+                 "1.25"]) == 0
+    straight = schedule.plan_season(programme_db, 2027, teams=2, seed=3, dry_run=True).plan
+    assert main(["--db", programme_db, "season", "plan", "2028", "--teams", "2", "--seed", "3", "--paths",
+                 str(paths)]) == 0
+    capsys.readouterr()
+    assert main(["--db", programme_db, "season", "plans", "--json"]) == 0
+    table = json.loads(capsys.readouterr().out)
+    assert [r["year"] for r in table] == [2027, 2028]
+    assert [r["routing"] for r in table] == ["straight", "paths"]
+    assert table[0]["path_factor"] == 1.25
+    # with the winding factor the stored route is 1.25 times the straight-line route of the same plan
+    assert table[0]["route_km"] == pytest.approx(1.25 * straight.total_route_m / 1000, abs=0.01)
+    store = Store.open(programme_db)
+    try:
+        record = queries.season_plan_record(store, store.programme().id, 2028)
+    finally:
+        store.dispose()
+    details = json.loads(record["plan"]["details_json"])
+    assert details["paths"]["file"] == "paths.geojson"
+    assert details["paths"]["length_m"] == pytest.approx(track.length + spur.length)
+    # the crossings must be given as lines: a polygon file is refused with its name
+    bad = tmp_path / "area.geojson"
+    bad.write_text(json.dumps({"type": "Feature", "properties": {}, "geometry": Point(0, 0).buffer(5).__geo_interface__}))
+    _refused(programme_db, ["season", "plan", "2029", "--teams", "2", "--paths", str(bad)], capsys, "area.geojson")

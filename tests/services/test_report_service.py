@@ -44,3 +44,38 @@ def test_a_second_report_compares_calls_with_the_previous_one(demo_db, written, 
     assert comparison["CHAORC"]["changed"] and comparison["CHAORC"]["previous_call"] == "stable"
     assert comparison["CHAORC"]["current_call"] == "declining"
     assert not comparison["MARVIO"]["changed"]
+
+
+def test_the_report_reuses_stored_fits_says_when_and_compares_with_last_year_from_the_database(demo_db, tmp_path):
+    import shutil
+
+    from sqlalchemy import text
+
+    from monitor.db import Store
+    from monitor.services import analyses, trend
+
+    db = str(tmp_path / "demo.sqlite")
+    shutil.copyfile(demo_db, db)
+    store = Store.open(db)
+    try:
+        with store.session() as session:  # fits and reports other tests recorded in the shared demo
+            for table in ("report_fit", "report_issue", "stored_fit"):
+                session.execute(text(f"DELETE FROM {table}"))
+    finally:
+        store.dispose()
+    report.write_report(db, 2025, tmp_path / "one" / "2025", pdf=False)
+    fitted = trend.fit_programme(db, last_year=2026)   # fits stored before the report ...
+    second = report.write_report(db, 2026, tmp_path / "two" / "2026", by="site", pdf=False)  # no 2025 folder here
+    doc = json.loads((second / "report.json").read_text())
+    overall = [f for f in doc["fits"] if f["area_kind"] == "all"]
+    assert overall and all(f["reused"] for f in overall)  # ... are reused by the report
+    assert all(not f["reused"] for f in doc["fits"] if f["area_kind"] == "site")  # the site fits are new
+    assert {(a["species"], a["area"]) for a in doc["areas"]} >= {("CHAORC", "CB"), ("CHAORC", "HH")}
+    html = (second / "index.html").read_text()
+    assert "When each trend was fitted" in html and "stored fits reused" in html
+    assert fitted[0].fitted_at.strftime("%Y-%m-%d %H:%M UTC") in html
+    comparison = {c["species"]: c for c in doc["comparison"]}
+    history = analyses.history(db, "CHAORC")
+    assert list(history["report_year"]) == [2025, 2026]
+    assert comparison["CHAORC"]["previous_call"] == history["call"].iloc[0]
+    assert comparison["CHAORC"]["current_call"] == history["call"].iloc[1] == fitted[0].result.call
