@@ -105,17 +105,21 @@ def test_upload_clean_sheet_dry_run_then_import_on_confirmation(owner, programme
 
 def test_correct_certify_and_unlock(owner, programme):
     _engine, url = programme
+    # the stored value is the demo's field sheet (read here, so a regenerated demo keeps the test whole)
+    sheet = pd.read_csv(RECORDS / "season_2024.csv")
+    before = int(sheet.loc[sheet["station"] == "SM-17", "MARVIO:count"].iloc[0])
+    after = before + 1
     page = owner.post("/records/correct", {"station": "SM-17", "year": "2024", "field": "MARVIO:count",
-                                           "value": "27", "reason": "recount from the photo"})
-    assert page.status_code == 200 and "corrected 26 -&gt; 27 (logged)" in page.text
+                                           "value": str(after), "reason": "recount from the photo"})
+    assert page.status_code == 200 and f"corrected {before} -&gt; {after} (logged)" in page.text
     history = records.station_history(url, "SM-17")
-    assert history["visits"][-1]["values"]["MARVIO:count"] == 27
+    assert history["visits"][-1]["values"]["MARVIO:count"] == after
     assert "recount from the photo" in history["changes"]["reason"].tolist()
     # without a reason: refused, nothing changed
     refused = owner.post("/records/correct", {"station": "SM-17", "year": "2024", "field": "MARVIO:count",
-                                              "value": "30", "reason": ""})
+                                              "value": str(after + 3), "reason": ""})
     assert refused.status_code == 400 and "reason" in refused.text
-    assert records.station_history(url, "SM-17")["visits"][-1]["values"]["MARVIO:count"] == 27
+    assert records.station_history(url, "SM-17")["visits"][-1]["values"]["MARVIO:count"] == after
     certified = owner.post("/records/certify", {"year": "2024"})
     assert "season 2024 certified (locked)" in certified.text
     seasons = workspace.seasons(url).set_index("year")
