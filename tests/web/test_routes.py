@@ -191,6 +191,8 @@ def test_a_trend_is_fitted_again_after_the_records_change_elsewhere(owner, progr
     fitted = [k for k in cache if k[:2] == ("trend", "GLASED")]
     assert owner.get("/trends/GLASED").status_code == 200
     assert [k for k in cache if k[:2] == ("trend", "GLASED")] == fitted  # reused while nothing changed
-    records.set_value(url, "SM-17", 2021, "GLASED", "cover", "23", reason="recount, from the command line")
+    done = next(v for v in records.station_history(url, "SM-17")["visits"] if v["status"] == "done")
+    records.set_value(url, "SM-17", done["year"], "GLASED", "cover", str(done["values"]["GLASED:cover"] + 1),
+                      reason="recount, from the command line")
     assert owner.get("/trends/GLASED").status_code == 200
     assert len([k for k in cache if k[:2] == ("trend", "GLASED")]) == len(fitted) + 1
