@@ -87,6 +87,7 @@ def test_upload_clean_sheet_dry_run_then_import_on_confirmation(owner, programme
     token = check.url.path.rsplit("/", 1)[1]
     done = owner.post(f"/records/import/{token}", page=f"/records/check/{token}")
     assert done.status_code == 200 and "imported" in done.text
+    assert list((tmp_path / "web" / "uploads").iterdir()) == []  # the saved upload goes once it is stored
     sheet = pd.read_csv(RECORDS / "season_2020.csv", dtype=str, keep_default_na=False)
     row = sheet[sheet["status"] == "done"].iloc[0]
     history = records.station_history(url, row["station"])
@@ -176,8 +177,22 @@ def test_build_the_report_and_download_it(owner, programme):
     if programme[0] == "sqlite":
         pytest.skip("built on SQLite by tests/web/test_browser.py (a report fits every species: once an engine)")
     response = owner.post("/trends/report", {"year": "2026"}, page="/trends")
-    assert response.status_code == 200 and "The 2026 report is built" in response.text
+    assert response.status_code == 200 and "The 2026 report is built (index.html" in response.text
     assert 'href="/files/reports/2026/index.html"' in response.text
     html = owner.get("/files/reports/2026/index.html")
     assert html.status_code == 200 and "Hollowmere Vale" in html.text
     assert html.headers["content-disposition"].startswith("attachment")
+
+
+def test_a_trend_is_fitted_again_after_the_records_change_elsewhere(owner, programme):
+    _engine, url = programme
+    cache = owner.app.state.workspace.cache
+    assert owner.get("/trends/GLASED").status_code == 200
+    fitted = [k for k in cache if k[:2] == ("trend", "GLASED")]
+    assert owner.get("/trends/GLASED").status_code == 200
+    assert [k for k in cache if k[:2] == ("trend", "GLASED")] == fitted  # reused while nothing changed
+    done = next(v for v in records.station_history(url, "SM-17")["visits"] if v["status"] == "done")
+    records.set_value(url, "SM-17", done["year"], "GLASED", "cover", str(done["values"]["GLASED:cover"] + 1),
+                      reason="recount, from the command line")
+    assert owner.get("/trends/GLASED").status_code == 200
+    assert len([k for k in cache if k[:2] == ("trend", "GLASED")]) == len(fitted) + 1
