@@ -791,8 +791,12 @@ class LaplaceEngine:
 
 # ---------------------------------------------------------------------- helpers
 def num_hessian(fun, x, h, f0=None):
-    """Central-difference gradient and Hessian of a scalar function (4-point formula off the diagonal).
+    """Central-difference gradient and Hessian of a scalar function.
 
+    Off the diagonal, H_ij = [f(x+a) + f(x-a) - f(x+e_i) - f(x-e_i) - f(x+e_j) - f(x-e_j) + 2 f(x)]
+    / (2 h_i h_j) with a = e_i + e_j (steps h_i, h_j): second-order accurate like the 4-point
+    formula, but it reuses the axis evaluations, so a k-parameter Hessian costs
+    1 + 2k + k(k-1) evaluations instead of 1 + 2k + 2k(k-1) (57 instead of 99 for k = 7).
     Returns (f(x), gradient, Hessian).
     """
     k = len(x)
@@ -800,17 +804,20 @@ def num_hessian(fun, x, h, f0=None):
     g = np.zeros(k)
     if f0 is None:
         f0 = fun(x)
+    fp = np.empty(k)
+    fm = np.empty(k)
     for i in range(k):
         ei = np.zeros(k)
         ei[i] = h[i]
-        fp, fm = fun(x + ei), fun(x - ei)
-        g[i] = (fp - fm) / (2 * h[i])
-        H[i, i] = (fp - 2 * f0 + fm) / h[i] ** 2
+        fp[i], fm[i] = fun(x + ei), fun(x - ei)
+        g[i] = (fp[i] - fm[i]) / (2 * h[i])
+        H[i, i] = (fp[i] - 2 * f0 + fm[i]) / h[i] ** 2
+    for i in range(k):
         for j in range(i):
-            ej = np.zeros(k)
-            ej[j] = h[j]
-            H[i, j] = H[j, i] = (fun(x + ei + ej) - fun(x + ei - ej) - fun(x - ei + ej) + fun(x - ei - ej)) / (
-                4 * h[i] * h[j])
+            a = np.zeros(k)
+            a[i], a[j] = h[i], h[j]
+            H[i, j] = H[j, i] = (fun(x + a) + fun(x - a) - fp[i] - fm[i] - fp[j] - fm[j] + 2 * f0) / (
+                2 * h[i] * h[j])
     return f0, g, H
 
 
