@@ -71,23 +71,46 @@ class ProblemCounter:
         self.counts: dict[str, int] = {}
         self.total = 0
         self.errors = 0
+        self._kinds: dict[tuple[str, str], str] = {}
+        self._worst: tuple = ()  # the largest key kept, once the heap is full (keyed use)
 
     def add(self, problem: InputProblem, key: tuple | None = None, *, count: bool = True) -> None:
+        self.add_parts(problem.file, problem.row, problem.field, problem.value, problem.expected, problem.severity,
+                       key=key, count=count, made=problem)
+
+    def add_parts(self, file: str, row: int | None, field: str | None, value: object, expected: str,
+                  severity: str = "error", *, key: tuple | None = None, count: bool = True,
+                  made: InputProblem | None = None) -> None:
+        """Count a problem and keep it if it is among the first; the InputProblem is built only when kept
+        (a million problems cost counters, not a million objects)."""
         import heapq
 
         if count:
             self.total += 1
-            if problem.severity == "error":
+            if severity == "error":
                 self.errors += 1
-            kind = problem_kind(problem)
+            kind = self._kinds.get((expected, severity))
+            if kind is None:
+                kind = self._kinds[(expected, severity)] = problem_kind(
+                    made or InputProblem(file, row, field, value, expected, severity))
             self.counts[kind] = self.counts.get(kind, 0) + 1
         self._seq += 1
-        full = (*(key if key is not None else (self._seq,)), self._seq)
-        negated = tuple(-k for k in full)
-        if len(self._heap) < self.limit:
-            heapq.heappush(self._heap, (negated, problem))
-        elif negated > self._heap[0][0]:
-            heapq.heapreplace(self._heap, (negated, problem))
+        full = self._heap
+        if key is None:
+            if len(full) >= self.limit:
+                return  # in arrival order, a later problem never displaces a kept one
+            negated = (-self._seq, -self._seq)
+        else:
+            if len(full) >= self.limit and key >= self._worst:
+                return  # a later key than every kept one (ties: the earlier arrival stays)
+            negated = (*(-k for k in key), -self._seq)
+        problem = made or InputProblem(file, row, field, value, expected, severity)
+        if len(full) < self.limit:
+            heapq.heappush(full, (negated, problem))
+        else:
+            heapq.heapreplace(full, (negated, problem))
+        if len(full) >= self.limit and key is not None:
+            self._worst = tuple(-k for k in full[0][0][:-1])
 
     def merge(self, other: ProblemCounter) -> None:
         """Add another collector's problems after this one's (its kept ones, and its counts of all)."""

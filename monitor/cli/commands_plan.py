@@ -290,14 +290,17 @@ def season_due(ctx: Context, year: int, window: tuple[str, str] | None, as_json:
 @click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
 @click.option("--team", default=None, help="Only this team's days.")
 @click.option("--day", default=None, metavar="YYYY-MM-DD", help="Only this day.")
+@click.option("--no-pdf", "no_pdf", is_flag=True, help="Skip field_sheet.pdf (the sheet ready to print).")
 @format_option
 @click.pass_obj
-def season_pack(ctx: Context, year: int, folder: Path, team: str | None, day: str | None, as_json: bool,
-                as_csv: bool) -> None:
-    """Write field packs for YEAR's planned team-days into FOLDER: field sheet, entry sheet, GPX, iCalendar."""
+def season_pack(ctx: Context, year: int, folder: Path, team: str | None, day: str | None, no_pdf: bool,
+                as_json: bool, as_csv: bool) -> None:
+    """Write field packs for YEAR's planned team-days into FOLDER: field sheet (HTML and a PDF to print),
+    entry sheets (.xlsx with drop-down lists, and CSV), GPX, iCalendar in the programme's time zone."""
     from monitor.services import schedule
 
-    result = schedule.write_field_packs(ctx.db, year, folder, team=team, day=_day(day), programme_code=ctx.programme)
+    result = schedule.write_field_packs(ctx.db, year, folder, team=team, day=_day(day), programme_code=ctx.programme,
+                                        pdf=not no_pdf)
     fmt = chosen_format(as_json, as_csv)
     emit(result if fmt == "json" else result.team_days, fmt)
     say(f"wrote {len(result.team_days)} field pack(s) and the calendar {result.calendar}")

@@ -195,10 +195,13 @@ def demo_command(folder: Path, southern: bool, then_serve: bool, port: int) -> N
                              "call": fitted.result.call})
             emit(rows)
         if name == "power":
-            from monitor.cli.commands_analysis import power_rows
+            from monitor.cli.commands_analysis import power_rows, power_sentences
 
             emit(power_rows(result), title=f"\nPower to detect a 50% fall over 10 years ({result.source}; "
-                 f"{result.results[0].n_replicates} simulated data sets per design, one-sided 5% test)")
+                 f"{result.results[0].n_replicates} simulated data sets per design, the same seeds for every "
+                 "design, one-sided 5% test)")
+            for line in power_sentences(result):
+                click.echo(line)
         if name == "report":
             click.echo(f"\nThe annual report for land managers: {result / 'index.html'}")
     click.echo(f"\nFigures are in {run.folder / 'figures'}")

@@ -90,7 +90,7 @@ class Problems:
 
     def add(self, row: int | None, field_: str | None, value: object, expected: str,
             severity: str = "error") -> None:
-        self.counter.add(InputProblem(self.file, row, field_, value, expected, severity))
+        self.counter.add_parts(self.file, row, field_, value, expected, severity)
 
     def extend(self, problems: Iterable[InputProblem]) -> None:
         for problem in problems:
@@ -493,7 +493,9 @@ def table_from_rows(rows: list[tuple[int, list[str]]], file: str, *, csv_shape: 
         if issue.row != header_row:
             by_row.setdefault(issue.row, []).append(issue)
     body: list[tuple[int, list[str]]] = []
-    for number, cells in rows[1:]:
+    for at in range(1, len(rows)):
+        number, cells = rows[at]
+        rows[at] = None  # type: ignore[call-overload]  # consumed: the raw row is freed as the body grows
         for issue in by_row.get(number, ()):
             name = raw[issue.column] if issue.column < width else f"column {issue.column + 1}"
             add(number, f"{name} (cell {issue.coordinate})", issue.value, issue.expected)

@@ -233,8 +233,8 @@ class _KeyedProblems:
 
     def add(self, row: int | None, field_: str | None, value: object, expected: str,
             severity: str = "error") -> None:
-        key = (-1 if row is None else row, *self.phase)
-        self.counter.add(InputProblem(self.file, row, field_, value, expected, severity), key)
+        self.counter.add_parts(self.file, row, field_, value, expected, severity,
+                               key=(-1 if row is None else row, *self.phase))
 
 
 class _Reader:

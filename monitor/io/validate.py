@@ -209,7 +209,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
 
     def add(row, field_, value, expected, severity="error"):
         row = None if row is None else int(row)
-        counter.add(InputProblem(file, row, field_, value, expected, severity), (-1 if row is None else row,))
+        counter.add_parts(file, row, field_, value, expected, severity, key=(-1 if row is None else row,))
 
     season = reference.season_of or (lambda d: d.year)
     station_codes = [str(s) for s in reference.stations[C.STATION]]

@@ -31,6 +31,9 @@ from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
 from monitor.settings import DEFAULT_CHANGE_MARGIN
 from monitor.report.wording import (
+    LevelNumbers,
+    level_sentence,
+    odds_trend_sentence,
     CALL_LABEL,
     CALL_MARKER,
     MEASURE_LABEL,
@@ -39,6 +42,7 @@ from monitor.report.wording import (
     caveat_sentences,
     change_with_interval,
     decline_advice,
+    detectable_change_not_computed_sentence,
     detectable_fall_sentence,
     percent,
     plain_measures,
@@ -71,6 +75,8 @@ REFERENCES = (
     "Ecology 86(7), 1751–1756.",
     "Harrison, X. A. (2014). Using observation-level random effects to model overdispersion in count "
     "data in ecology and evolution. PeerJ 2, e616.",
+    "Piepho, H.-P. and Ogutu, J. O. (2002). A simple mixed model for trend analysis in wildlife "
+    "populations. Journal of Agricultural, Biological, and Environmental Statistics 7(3), 350–360.",
     "Warton, D. I. and Hui, F. K. C. (2011). The arcsine is asinine: the analysis of proportions in "
     "ecology. Ecology 92(1), 3–10.",
     "Harrower, M. and Brewer, C. A. (2003). ColorBrewer.org: an online tool for selecting colour "
@@ -242,7 +248,7 @@ class PowerRow:
     species: str
     species_name: str
     measure_label: str
-    detectable_change: float   # magnitude of annual change detected with the stated power [fraction/yr]
+    detectable_change: float | None  # annual change detected with the stated power [fraction/yr]; None: not computed
     power: float
     n_stations: int | None
     n_years: int | None
@@ -268,9 +274,10 @@ class SpeciesSection:
     model_text : str
         Which model, on how many visits, stations, sites and years.
     indices : DataFrame | None
-        year, index, lower, upper.
+        year, index, lower, upper: the yearly estimates on the measure's own scale (``value_label``,
+        e.g. "% cover") when the fit has them, else indices relative to the first year.
     fitted_trend : DataFrame | None
-        year, fit, lower, upper.
+        year, fit, lower, upper: the fitted trend on the same scale (one baseline with the points).
     marks : tuple[EventMark, ...]
         Management events and method changes within the series.
     stations : DataFrame | None
@@ -299,6 +306,7 @@ class SpeciesSection:
     power: PowerRow | None
     advice: str | None = None
     interval_method: str = ""
+    value_label: str = ""   # the scale of ``indices`` and ``fitted_trend``: a unit, or "" for indices
 
     def to_dict(self) -> dict:
         def rows(frame):
@@ -654,6 +662,23 @@ def _method_changes(frame: pd.DataFrame | None) -> tuple[list[MethodChange], lis
     return changes, species
 
 
+def _level_numbers(level) -> LevelNumbers | None:
+    """The fitted trend first against last year, from ``TrendResult.level_change`` (or its dict)."""
+    if level is None:
+        return None
+
+    def get(obj, key):
+        return obj.get(key) if isinstance(obj, Mapping) else getattr(obj, key)
+
+    def est(part, key="estimate"):
+        value = get(get(level, part), key)
+        return math.nan if value is None else float(value)
+
+    return LevelNumbers(str(get(level, "unit")), int(get(level, "first_year")), int(get(level, "last_year")),
+                        est("first"), est("last"), est("difference"), est("difference", "lower"),
+                        est("difference", "upper"))
+
+
 def _change_applies(frame: pd.DataFrame | None, index: int, measure: str) -> bool:
     """A method change names the measures it concerns (column ``measures``, e.g. "frequency;pin_hits");
     none named means every measure."""
@@ -702,8 +727,11 @@ class _CallView:
         annual = Interval.from_any(_attr(result, "annual_change"))
         period = Interval.from_any(_attr(result, "period_change"))
         profile = Interval.from_any(getattr(result, "annual_change_profile", None))
+        # the reference the interval rests on: "t, 10 df" with a year effect, "normal (z)" without
+        reference = getattr(result, "interval_label", None)
+        ref = f" ({reference})" if isinstance(reference, str) and reference else ""
         if profile is None or not (math.isfinite(profile.lower) and math.isfinite(profile.upper)):
-            return cls(result, annual, period, "Wald")
+            return cls(result, annual, period, "Wald" + ref)
         first, last = (int(y) for y in _attr(result, "years"))
         span = last - first
 
@@ -711,7 +739,7 @@ class _CallView:
             return math.expm1(math.log1p(rate) * span) if rate > -1 else -1.0
 
         return cls(result, Interval(annual.estimate, profile.lower, profile.upper),
-                   Interval(period.estimate, over(profile.lower), over(profile.upper)), "profile likelihood")
+                   Interval(period.estimate, over(profile.lower), over(profile.upper)), "profile likelihood" + ref)
 
 
 # --------------------------------------------------------------------------- the builder
@@ -847,13 +875,14 @@ def build_report_context(
             ny = row.get("n_years")
             ns = None if ns is None or (isinstance(ns, float) and math.isnan(ns)) else int(ns)
             ny = None if ny is None or (isinstance(ny, float) and math.isnan(ny)) else int(ny)
-            design = ""
-            if ns is not None and ny is not None:
-                design = f" with {ns} stations over {ny} years"
-            del design
-            text = detectable_fall_sentence(float(row["detectable_change"]), pw, ns, ny)
+            change = row.get("detectable_change")
+            change = None if change is None or not math.isfinite(float(change)) else float(change)
+            if change is None:  # never "nan%": say that it could not be computed, and why
+                text = detectable_change_not_computed_sentence(str(row.get("note") or ""))
+            else:
+                text = detectable_fall_sentence(change, pw, ns, ny)
             power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms),
-                                            float(row["detectable_change"]), pw, ns, ny, text)
+                                            change, pw, ns, ny, text)
 
     summary: list[SummaryRow] = []
     sections: list[SpeciesSection] = []
@@ -881,14 +910,18 @@ def build_report_context(
         else:
             trigger_state, trigger_text = "not fired", "Not fired"
         anchor = f"sp-{i + 1}"
+        # k-of-n and cover rates are changes in the odds: labelled so wherever they are printed
+        odds = str(_attr(result, "change_scale", "count") or "count") != "count"
         annual_text = rate_with_interval(annual.estimate, annual.lower, annual.upper)
+        if odds:
+            annual_text = annual_text.replace(" a year ", " a year in the odds ", 1)
         row = SummaryRow(
             species=sp, species_name=name, measure=ms, measure_label=measure_label, anchor=anchor,
             call=call, call_label=CALL_LABEL.get(call, call), marker=CALL_MARKER.get(call, "?"),
             annual_change=annual, period_change=period,
             annual_text=annual_text,
             period_text=change_with_interval(period.estimate, period.lower, period.upper),
-            annual_estimate_text=f"{signed_percent(annual.estimate)} a year",
+            annual_estimate_text=f"{signed_percent(annual.estimate)} a year" + (" in the odds" if odds else ""),
             annual_ci_text=(f"95% CI {signed_percent(annual.lower).rstrip('%')} to "
                             f"{signed_percent(annual.upper).rstrip('%')}"),
             period_estimate_text=signed_percent(period.estimate, 0),
@@ -902,7 +935,11 @@ def build_report_context(
 
         numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last,
                                call, margin)
-        paragraph = trend_sentence(name, ms, numbers)
+        level = _level_numbers(_attr(result, "level_change"))
+        if odds and level is not None:
+            paragraph = odds_trend_sentence(name, ms, numbers, level)
+        else:
+            paragraph = trend_sentence(name, ms, numbers) + ("" if level is None else " " + level_sentence(level))
         random_sd = dict(_attr(result, "random_sd", {}) or {})
         random_effects.update(random_sd)
         diagnostics = tuple(
@@ -927,14 +964,21 @@ def build_report_context(
                            species_sites)
         indices = _attr(result, "indices")
         fitted = _attr(result, "fitted_trend")
+        # the yearly estimates and the fitted line on the measure's own scale, one baseline, where the fit has them
+        yearly, line = _attr(result, "yearly"), _attr(result, "trend_line")
+        value_label = ""
+        if yearly is not None and line is not None and len(yearly):
+            indices = pd.DataFrame(yearly).rename(columns={"estimate": "index"})
+            fitted = line
+            value_label = str(_attr(result, "natural_unit", "") or "")
         stem = f"{i + 1:02d}-{slug(sp)}-{slug(ms)}"
         figures = []
         if indices is not None and len(indices):
             figures.append(FigureRef(
                 key=f"{stem}-indices", kind="indices",
                 alt=_figure_alt_indices(name, measure_label, first, last, annual_text, marks),
-                caption=(f"Yearly index (points, 95% intervals) and fitted trend (line, 95% band), "
-                         f"relative to {first}."),
+                caption=(f"Yearly estimates (points, 95% intervals) and fitted trend (line, 95% band), "
+                         + (f"as {value_label}." if value_label else f"relative to {first}.")),
             ))
         changes_df = station_changes.get((sp, ms))
         station_frame = None
@@ -989,6 +1033,7 @@ def build_report_context(
             marks=marks, stations=station_frame, station_changes=changes_df, gradient=gradient,
             figures=tuple(figures), triggers=tuple(by_key.get((sp, ms), ())),
             power=power_rows.get((sp, ms)), advice=advice, interval_method=result.interval_method,
+            value_label=value_label,
         ))
 
     # this season's estimates
@@ -1109,15 +1154,20 @@ def _methods(families: set[str], margins: set[float], software: Mapping[str, str
                 else "a random intercept for each station")
     if "observer" in random_effects:
         grouping += ", and one for each observer"
+    if "year" in random_effects:
+        grouping += (", and a random effect for each year shared by all stations (good and bad years; the "
+                     "intervals then rest on a t reference with degrees of freedom from the number of years, "
+                     "Piepho & Ogutu 2002)")
     margin_text = _margin_text(margins)
     first = (
         "Each species and measure was analysed with a generalised linear mixed model fitted by maximum "
         f"likelihood (Laplace approximation; Breslow & Clayton 1993), with {grouping}, "
         "so that the trend is the typical change within stations rather than "
         f"a change in which stations were visited. Models used: {family_list}. Year as a continuous "
-        "covariate gives the annual change, exp(slope) − 1, with its 95% interval; year as a factor gives "
-        "the yearly indices relative to the first year. The change over the period is the annual change "
-        "compounded over the years between the first and last season."
+        "covariate gives the annual change, exp(slope) − 1, with its 95% interval (for frequencies, pin hits, "
+        "presence and cover a change in the odds, p / (1 − p)); year as a factor gives the yearly estimates, "
+        "shown with the fitted trend on the measure's own scale (mean over stations). The change over the "
+        "period is the annual change compounded over the years between the first and last season."
     )
     second = (
         "The models assume that change is steady on the log (or logit) scale over the period, that stations "

@@ -82,8 +82,9 @@ def plot_indices(
     ylabel: str = "Index (first year = 1)",
     title: str | None = None,
     ax: Axes | None = None,
+    reference: float | None = 1.0,
 ) -> Figure:
-    """Yearly indices with 95 % intervals, the fitted trend line and its band.
+    """Yearly estimates (or indices) with 95 % intervals, the fitted trend line and its band.
 
     Parameters
     ----------
@@ -97,6 +98,9 @@ def plot_indices(
         Management events (dotted grey) and method changes (dashed, labelled
         "method changed") drawn as vertical lines at their year.
     ylabel, title : str
+    reference : float or None
+        A grey line at this value (1 for indices); None for yearly estimates on the
+        measure's own scale (``TrendResult.yearly`` and ``trend_line``, same columns).
     ax : Axes, optional
         Draw into this axes; a new figure otherwise.
 
@@ -133,8 +137,9 @@ def plot_indices(
     (points,) = ax.plot(years, ix["index"].to_numpy(float), linestyle="none", marker="o", markersize=4.5,
                         color=POINT_COLOUR, label="Yearly index", gid="indices")
     handles.insert(0, points)
-    ax.axhline(1.0, color="#bbbbbb", linewidth=0.8, zorder=0)
-    top = np.nanmax(np.r_[ix["upper"].to_numpy(float), 1.0,
+    if reference is not None:
+        ax.axhline(reference, color="#bbbbbb", linewidth=0.8, zorder=0)
+    top = np.nanmax(np.r_[ix["upper"].to_numpy(float), ix["index"].to_numpy(float), 1.0 if reference is not None else 0.0,
                           fitted_trend["upper"].to_numpy(float) if fitted_trend is not None and len(fitted_trend)
                           else []])
     top = float(top) if math.isfinite(top) else 2.0

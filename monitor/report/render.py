@@ -81,6 +81,9 @@ def draw_figure(section: SpeciesSection, ref: FigureRef, context: ReportContext)
     s = section.summary
     if ref.kind == "indices":
         label = MEASURE_LABEL.get(s.measure, s.measure)
+        if section.value_label:   # yearly estimates and trend on the measure's own scale
+            return plot_indices(section.indices, section.fitted_trend, marks=section.marks,
+                                ylabel=section.value_label[0].upper() + section.value_label[1:], reference=None)
         return plot_indices(section.indices, section.fitted_trend, marks=section.marks,
                             ylabel=f"Index of {label} ({s.first_year} = 1)")
     if ref.kind == "map":

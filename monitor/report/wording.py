@@ -378,6 +378,89 @@ def caveat_sentences(
     return out
 
 
+# --------------------------------------------------------------------------- the trend on the measure's own scale
+@dataclass(frozen=True)
+class LevelNumbers:
+    """The fitted trend on the measure's own scale, first against last year (from ``TrendResult.level_change``).
+
+    ``unit`` as the trend engine names it ("% of cells occupied", "% cover", "mean count per m²", ...);
+    ``first`` and ``last`` are the fitted line's values in that unit, ``difference`` (last - first)
+    with its 95 % interval in the same unit (percentage points for a share or cover).
+    """
+
+    unit: str
+    first_year: int
+    last_year: int
+    first: float
+    last: float
+    difference: float
+    difference_lower: float
+    difference_upper: float
+
+    @property
+    def is_share(self) -> bool:
+        return self.unit.startswith("%")
+
+
+def _level(value: float, level: LevelNumbers) -> str:
+    if level.is_share:
+        return f"{value:.0f}%" if abs(value) >= 9.5 else f"{value:.1f}%"
+    return f"{value:.2g}" if abs(value) < 10 else f"{value:.0f}"
+
+
+def _points(value: float, level: LevelNumbers) -> str:
+    """A signed difference on the measure's scale: "−17" (percentage points) for shares, "−0.42" for counts."""
+    if not math.isfinite(value):
+        return "n/a"
+    if level.is_share:
+        mag = f"{abs(value):.0f}" if abs(value) >= 9.5 else f"{abs(value):.1f}"
+    else:
+        mag = f"{abs(value):.2g}"
+    return f"{MINUS if value < 0 else '+'}{mag}"
+
+
+def level_sentence(level: LevelNumbers) -> str:
+    """The fitted trend in the measure's own units, first year against last.
+
+    E.g. "On the fitted trend the share went from 90% in 2015 to 73% in 2025: a change of −17
+    percentage points (95% CI −25 to −9)." or, for counts, "On the fitted trend the mean count per
+    m² went from 2.1 in 2015 to 1.4 in 2025: a change of −0.7 (95% CI −1 to −0.4)."
+    """
+    what = "the share" if level.is_share and level.unit != "% cover" else (
+        "cover" if level.unit == "% cover" else f"the {level.unit}")
+    unit = " percentage points" if level.is_share else ""
+    return (f"On the fitted trend {what} went from {_level(level.first, level)} in {level.first_year} to "
+            f"{_level(level.last, level)} in {level.last_year}: a change of {_points(level.difference, level)}{unit} "
+            f"(95% CI {_points(level.difference_lower, level)} to {_points(level.difference_upper, level)}).")
+
+
+def odds_trend_sentence(name: str, measure: str, numbers: TrendNumbers, level: LevelNumbers) -> str:
+    """A trend of a share (frequency, pin hits, presence) or of cover, led by the share itself.
+
+    The model's rate is a change in the odds (p / (1 - p)), which is not the change of the
+    share: a share that falls from 0.90 to 0.73 has odds falling 13 % a year but the share by
+    17 percentage points in all.  The sentence gives the share on the fitted trend first and
+    the odds rate second, labelled as odds; the call (which rests on the odds interval, against
+    the margin) sets the direction word.
+    """
+    subject = measure_subject(measure, name)
+    n = numbers
+    odds = "the odds of cover" if measure == C.MEASURE_COVER else "the odds"
+    ci = directed_interval_phrase(n.annual_lower, n.annual_upper)
+    share = level_sentence(level)
+    if n.call == C.CALL_DECLINING and level.difference < 0:
+        head = f"{subject} fell since {n.first_year}."
+    elif n.call == C.CALL_RISING and level.difference > 0:
+        head = f"{subject} rose since {n.first_year}."
+    elif n.call == C.CALL_STABLE:
+        head = (f"{subject} changed little since {n.first_year}, within the \u00b1{percent(n.margin)} a year "
+                f"(in {odds}) that this programme treats as the smallest change that matters.")
+    else:
+        head = f"For {subject[0].lower() + subject[1:]} we cannot yet say which way the trend is going."
+    return (f"{head} {share} In {odds} the estimate is {_point_phrase(n.annual_estimate)} "
+            f"(95% CI {ci}).")
+
+
 # --------------------------------------------------------------------------- numbers in prose and tables
 def significant(value: float, digits: int = 2) -> str:
     """A number rounded to ``digits`` significant figures, written without an exponent or trailing
@@ -437,6 +520,15 @@ def detectable_fall_sentence(change: float, power: float, n_stations: int | None
     design = f" with {n_stations} stations over {n_years} years" if n_stations is not None and n_years is not None else ""
     return (f"A fall of {abs(change) * 100:.1f}% a year would be detected {power * 100:.0f} times in 100"
             f"{design}.")
+
+
+def detectable_change_not_computed_sentence(note: str) -> str:
+    """Said instead of a detectable fall that could not be computed (never "nan%"), with the reason given."""
+    why = note.strip()
+    if not why:
+        return "The detectable change could not be computed."
+    text = why[:1].upper() + why[1:]
+    return text if text.endswith(".") else text + "."
 
 
 def total_floor_note(counted: float, unit: str = "plants") -> str:

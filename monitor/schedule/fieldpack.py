@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, fields
 from pathlib import Path
 from typing import Any
@@ -126,6 +126,10 @@ class FieldSheetContext:
     cautions: tuple[str, ...]
     instructions: tuple[str, ...]
     generated: str
+    site_name: str = ""                  # printed beside the site code
+    crs: str = ""                        # "EPSG:32630 (WGS 84 / UTM zone 30N)": what E and N are in
+    value_labels: tuple[str, ...] = ()   # the species' common name under each value header
+    running_head: str = ""               # site, team and date at the top of every printed page
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -194,6 +198,8 @@ def field_sheet_context(
     programme: str = "",
     protocol: str = "",
     generated: dt.datetime | None = None,
+    species_names: Mapping[str, str] | None = None,
+    site_name: str = "",
 ) -> FieldSheetContext:
     """Build the field-sheet context for one team-day.
 
@@ -210,6 +216,8 @@ def field_sheet_context(
     visits, observations : canonical frames of earlier records (for the last two visits)
     programme, protocol : names printed on the sheet
     generated : time stamp printed on the sheet (default: now, UTC)
+    species_names : species code -> common name, printed under each value column's code
+    site_name : the site's name, printed beside its code
     """
     td = plan.team_day(team, date)
     headers = field_sheet_columns(targets, covariates)
@@ -242,12 +250,20 @@ def field_sheet_context(
                                  float(r[C.Y]), round(float(lon[k]), 6), round(float(lat[k]), 6), quadrat,
                                  reloc, tr, prev))
     generated = generated or dt.datetime.now(dt.UTC)
+    names = dict(species_names or {})
+    labels = []
+    for t in targets:
+        labels.append(str(names.get(t[0]) or ""))
+    labels += ["" for _ in covariates]  # a covariate's header already says what it is
+    site_words = f"{td.site} {site_name}" if site_name else td.site
+    running_head = f"Site {site_words} · team {td.team} · {td.date.isoformat()}"
     instructions = (
-        "One row per station visit. Fill date (YYYY-MM-DD), observers (codes separated by ';') and "
-        "status (done, partial, missed or inaccessible) for every row.",
+        "One row per station visit. The date box holds the planned date: cross it out and write the day of "
+        "the visit (YYYY-MM-DD) if it differs. Fill observers (codes separated by ';') and status (done, "
+        "partial, missed or inaccessible) for every row.",
         "Write 0 for a species looked for and not found; leave a box blank only when it was not recorded. "
         "A missed or inaccessible visit has all value boxes blank.",
-        "Grey rows show the last two visits for reference only: do not copy them into today's row.",
+        "Rows marked 'earlier' show the last two visits for reference only: do not copy them into today's row.",
     )
     return FieldSheetContext(
         title=f"Field sheet: {td.site}, team {td.team}, {td.date.isoformat()}",
@@ -256,7 +272,21 @@ def field_sheet_context(
         start_point=f"{td.start[0]:.0f} E, {td.start[1]:.0f} N", route_km=round(td.route_m / 1000.0, 2),
         protocol=protocol, headers=headers, value_headers=value_headers, stations=tuple(rows),
         cautions=SAFETY_CAUTIONS, instructions=instructions,
-        generated=generated.strftime("%Y-%m-%d %H:%M UTC"))
+        generated=generated.strftime("%Y-%m-%d %H:%M UTC"), site_name=site_name, crs=crs_label(crs),
+        value_labels=tuple(labels), running_head=running_head)
+
+
+def crs_label(crs: int | str) -> str:
+    """``"EPSG:32630 (WGS 84 / UTM zone 30N)"``: the code with its name from the EPSG registry (pyproj)."""
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
+    code = str(crs).upper().removeprefix("EPSG:")
+    try:
+        name = CRS.from_user_input(f"EPSG:{code}").name
+    except CRSError:
+        return f"EPSG:{code}"
+    return f"EPSG:{code} ({name})"
 
 
 def field_sheet_frame(context: FieldSheetContext) -> pd.DataFrame:
@@ -342,6 +372,18 @@ def render_phone_sheet(context: FieldSheetContext, targets: Sequence[tuple[str, 
     env = template_environment(template_dir)
     return env.get_template("phone_sheet.html").render(sheet=context,
                                                        data=phone_sheet_data(context, targets, covariates))
+
+
+def write_sheet_pdf(html: str, path: str | Path) -> Path:
+    """The field sheet as a PDF for printing (WeasyPrint): A4 landscape, every page headed with site,
+    team, date and "page n of m".  Nothing is fetched: the sheet is self-contained."""
+    import logging
+
+    import weasyprint
+
+    logging.getLogger("weasyprint").setLevel(logging.ERROR)
+    weasyprint.HTML(string=html, url_fetcher=weasyprint.URLFetcher(allowed_protocols=["data"])).write_pdf(path)
+    return Path(path)
 
 
 def context_field_names() -> set[str]:

@@ -145,6 +145,8 @@ def season_inputs(store: Store, programme: M.Programme, year: int,
         season_window = _parse_window(stored[0], stored[1], f"the programme's {year} season window")
     species = queries.species(store, pid)
     species = species[species[C.MEASURE].notna()]
+    species_names = {str(r[C.SPECIES]): str(r["common_name"]) for r in species.to_dict(orient="records")
+                     if r.get("common_name") and not pd.isna(r["common_name"])}
     targets = [(str(r[C.SPECIES]), str(r[C.MEASURE]), None if pd.isna(r["n"]) else int(r["n"]))
                for r in species.to_dict(orient="records")]
     species_windows = {}
@@ -669,7 +671,8 @@ def _protocol_on(session_rows: pd.DataFrame, day: dt.date) -> str:
 
 def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | None = None,
                       day: dt.date | None = None, programme_code: str | None = None,
-                      now: dt.datetime | None = None, generalise_sensitive: bool | None = None) -> PackResult:
+                      now: dt.datetime | None = None, generalise_sensitive: bool | None = None,
+                      pdf: bool = False) -> PackResult:
     """Write a field pack per planned team-day (optionally one team and/or one day) into ``folder``.
 
     Per team-day ``<date>_<team>_<site>/``: ``field_sheet.html`` (stations in route order with
@@ -702,6 +705,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         observer_codes = [str(c) for c in store.frame("SELECT code FROM observer WHERE programme_id = :p ORDER BY code",
                                                        p=programme.id)["code"]]
         lineage_notes = relocation.lineage_notes(store, programme.id)
+        site_names = {str(k): str(v) for k, v in queries.sites(store, programme.id).set_index("site")["name"].items()
+                      if v is not None and not pd.isna(v)}
         if generalise_sensitive is None:
             generalise_sensitive = _settings(programme).get(FIELD_PACKS_OUTSIDE) is True
         if generalise_sensitive:  # packs for crews outside the programme: positions as every export gives them
@@ -711,6 +716,8 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     finally:
         store.dispose()
     species = species[species[C.MEASURE].notna()]
+    species_names = {str(r[C.SPECIES]): str(r["common_name"]) for r in species.to_dict(orient="records")
+                     if r.get("common_name") and not pd.isna(r["common_name"])}
     targets = [(str(r[C.SPECIES]), str(r[C.MEASURE]), None if pd.isna(r["n"]) else int(r["n"]))
                for r in species.to_dict(orient="records")]
     units = _settings(programme).get("covariate_units") or {}
@@ -731,8 +738,12 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         protocol = _protocol_on(protocols, td.date)
         context = fieldpack.field_sheet_context(
             plan, td.team, td.date, stations, crs=programme.crs_epsg, targets=targets, covariates=covariates,
-            visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now)
-        (out / "field_sheet.html").write_text(fieldpack.render_field_sheet(context), encoding="utf-8")
+            visits=visits, observations=observations, programme=programme.name, protocol=protocol, generated=now,
+            species_names=species_names, site_name=site_names.get(td.site, ""))
+        sheet_html = fieldpack.render_field_sheet(context)
+        (out / "field_sheet.html").write_text(sheet_html, encoding="utf-8")
+        if pdf:
+            fieldpack.write_sheet_pdf(sheet_html, out / "field_sheet.pdf")
         entry = fieldpack.field_sheet_frame(context)
         entry.to_csv(out / "entry_sheet.csv", index=False)
         value_columns = [h for h in entry.columns if ":" in h]

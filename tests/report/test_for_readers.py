@@ -129,7 +129,8 @@ def test_one_interval_for_the_headline_the_call_and_the_triggers(full_inputs):
     assert row.annual_change.upper == pytest.approx(profile.upper)
     span = row.last_year - row.first_year
     assert row.period_change.lower == pytest.approx(math.expm1(math.log1p(profile.lower) * span))
-    assert ctx.species[0].interval_method == "profile likelihood"
+    # the method, then the reference it rests on (t with year-based df when the model has a year effect)
+    assert ctx.species[0].interval_method == f"profile likelihood ({with_profile.interval_label})"
     for outcome in ctx.triggers:
         if outcome.trigger.kind == "upper_bound_below" and outcome.trigger.species == key[0]:
             assert outcome.observed == pytest.approx(profile.upper)

@@ -1,5 +1,6 @@
 """Field packs: sheet headers in the agreed wide layout, template context, GPX and iCalendar."""
 
+import dataclasses
 import datetime as dt
 import re
 from pathlib import Path
@@ -111,7 +112,9 @@ def test_headers_are_the_agreed_wide_layout():
 def test_rendered_sheet_table_headers_exactly_layout(plan):
     html = render_field_sheet(_context(plan))
     doc = etree.HTML(html)
-    ths = [th.text for th in doc.iter("th")]
+    # the header as the importer reads it (a line may break after ':'), the common name below it apart
+    ths = ["".join(th.itertext()).removesuffix("".join(th.xpath('string(.//span[@class="label"])')))
+           for th in doc.iter("th")]
     assert ths == list(field_sheet_columns(TARGETS, COVARIATES))
     today = doc.xpath('//tr[@class="today"]')
     assert [tr[0].text for tr in today] == list(plan.team_days[0].stations)
@@ -219,3 +222,70 @@ def test_calendar_in_the_programmes_time_zone(plan):
     assert start.utcoffset() == dt.datetime.combine(td.date, td.start_time,
                                                     zoneinfo.ZoneInfo("Europe/London")).utcoffset()
     assert "TZID=Europe/London" in text and "BEGIN:VTIMEZONE" in text
+
+
+# --- the printed sheet, for a wet hillside -------------------------------------------------------------------
+def _named_context(plan):
+    td = plan.team_days[0]
+    visits, obs = _history()
+    names = {t[0]: f"common name of {t[0].lower()}" for t in TARGETS}
+    return field_sheet_context(plan, td.team, td.date, STATIONS, crs=EPSG, targets=TARGETS, covariates=COVARIATES,
+                               visits=visits, observations=obs, programme="Heath quadrats", protocol="P2",
+                               generated=dt.datetime(2026, 5, 1, tzinfo=dt.UTC), species_names=names,
+                               site_name="Long Heath")
+
+
+def _css_pt(css: str, selector: str) -> float:
+    import re
+
+    block = re.search(re.escape(selector) + r"\s*\{([^}]*)\}", css)[1]
+    return float(re.search(r"font-size:\s*([\d.]+)pt", block)[1])
+
+
+def test_sheet_text_is_large_and_the_notes_column_wide(plan):
+    import re
+
+    html = render_field_sheet(_named_context(plan))
+    css = html[html.index("<style>"):html.index("</style>")]
+    # 10-11 pt for everything written or read in the field (common practice for outdoor forms)
+    assert _css_pt(css, "body") >= 11 and _css_pt(css, "tr.today td") >= 11
+    assert _css_pt(css, "tr.previous td") >= 10 and _css_pt(css, "tr.info td") >= 10
+    assert all(float(v) >= 8.5 for v in re.findall(r"font-size:\s*([\d.]+)pt", css))
+    assert float(re.search(r"\.c-notes \{ width: ([\d.]+)mm", css)[1]) >= 30
+    assert re.search(r"td\.date, th\.date \{ white-space: nowrap; \}", css)
+
+
+def test_sheet_names_common_names_planned_date_protocol_and_crs(plan):
+    ctx = _named_context(plan)
+    html = render_field_sheet(ctx)
+    doc = etree.HTML(html)
+    labels = [th.xpath("string(.//span[@class='label'])") for th in doc.iter("th")]
+    assert "common name of anemne" in labels
+    today = doc.xpath('//tr[@class="today"]')
+    assert all(tr[1].text == ctx.date and tr[5].text == "P2" for tr in today)   # planned date, protocol
+    assert f"EPSG:{EPSG}" in html and "UTM zone" in html                        # the coordinate system
+    assert "Long Heath" in html
+
+
+def test_printed_sheet_every_page_placed_and_page_one_holds_stations(plan, tmp_path):
+    """WeasyPrint lays the sheet out on A4; pypdf reads it back: every page carries site, team, date and
+    "page n of m"; dates are not broken across lines; page 1 holds entry rows, not only notes."""
+    from pypdf import PdfReader
+
+    from monitor.schedule.fieldpack import write_sheet_pdf
+
+    ctx = _named_context(plan)
+    many = dataclasses.replace(ctx, stations=ctx.stations * 4)   # enough rows for several pages
+    path = write_sheet_pdf(render_field_sheet(many), tmp_path / "sheet.pdf")
+    reader = PdfReader(str(path))
+    pages = len(reader.pages)
+    assert pages >= 2
+    for number, page in enumerate(reader.pages, start=1):
+        text = page.extract_text()
+        flat = " ".join(text.split())
+        assert f"page {number} of {pages}" in flat
+        assert f"Site {ctx.site} Long Heath" in flat and f"team {ctx.team}" in flat and ctx.date in flat
+    first = reader.pages[0].extract_text()
+    assert sum(first.count(s.station) > 0 for s in ctx.stations) >= 3
+    assert first.count(ctx.date) >= 4                                  # the date whole on its lines
+    assert "Safety first" in first                                     # the full notes at the end

@@ -182,7 +182,9 @@ def test_field_pack_is_read_back_by_the_records_importer(season_db, demo_source,
 
     # the printed sheet's table headers are the wide layout of FIELD_LAYOUT.md, in the entry sheet's order
     page = html.fromstring((folder / "field_sheet.html").read_text())
-    headers = [th.text_content().strip() for th in page.xpath("//table[@class='entry']/thead/tr/th")]
+    # (a species' common name is printed under its header, in a span of its own)
+    headers = [th.text_content().strip().removesuffix(th.xpath("string(.//span[@class='label'])")).strip()
+               for th in page.xpath("//table[@class='entry']/thead/tr/th")]
     entry = pd.read_csv(folder / "entry_sheet.csv", dtype=str, keep_default_na=False)
     assert headers == list(entry.columns)
     assert headers[:7] == ["station", "date", "observers", "status", "repeat", "protocol", "notes"]

@@ -346,3 +346,22 @@ def test_every_file_outcome_is_reported_and_dry_run_sees_earlier_files(programme
     assert err.startswith("error: second.csv, row 2")
     assert values_of(programme_db, rows[0][0], "MARVIO", "count") != []
     assert values_of(programme_db, rows[2][0], "MARVIO", "count") == []
+
+
+# --- a file written by a real spreadsheet program (LibreOffice Calc; tests/fixtures/records/README.md) ---------------
+
+LIBREOFFICE_SHEET = Path(__file__).resolve().parents[1] / "fixtures" / "records" / "field_sheet_2024.xlsx"
+
+
+def test_a_workbook_written_by_libreoffice_is_read_as_it_shows(programme_db, capsys):
+    lines = refused(capsys, programme_db, "records", "import", str(LIBREOFFICE_SHEET))
+    assert "field_sheet_2024.xlsx, field '--sheet'" in lines[0] and "'old draft', 'final'" in lines[0]
+    code, out, err = run(capsys, programme_db, "records", "import", str(LIBREOFFICE_SHEET), "--sheet", "final",
+                         "--json")
+    assert code == 0, err
+    assert json.loads(out)[0]["sheet"] == "final"
+    assert values_of(programme_db, "HH-05", "GLASED", "cover") == [12.5]        # shown 12.5 %
+    assert values_of(programme_db, "HH-05", "MARVIO", "count") == [0.0]         # not the draft's 99
+    assert values_of(programme_db, "WE-08", "CHAORC", "count") == [2.0]         # =1+1, its stored result
+    assert sorted(covariate_of(programme_db, "HH-05") + covariate_of(programme_db, "WE-08")) == [20.9, 31.2]
+    assert ("Größe geschätzt",) in stored(programme_db, "SELECT notes FROM visit")

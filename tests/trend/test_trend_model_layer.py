@@ -5,7 +5,9 @@ Simulated data here are invented (seeded numpy Generators) with known truth; out
 are named beside each check.
 """
 
+import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -15,6 +17,14 @@ from scipy.special import expit
 
 from monitor.trend import TrendModel
 from monitor.trend.model import OVERDISPERSION_RATIO, _pearson_test
+
+FIXTURES = Path(__file__).resolve().parents[1] / "fixtures" / "trend"
+
+
+@pytest.fixture(scope="module")
+def year_reference():
+    """tests/fixtures/trend/reference_year_values.json (R 4.2.2, lme4 1.1-31, glmmTMB 1.1.5)."""
+    return json.loads((FIXTURES / "reference_year_values.json").read_text())
 
 
 def counts(rng, n_station=12, years=range(2010, 2018), mean=1.5):
@@ -175,8 +185,11 @@ def test_a_shared_year_effect_widens_the_slope_interval_several_times():
     assert with_year.slope_se == pytest.approx(0.3 / math.sqrt(82.5), rel=0.35)
     # t reference with n_years - 2 df (containment), used by the Wald interval and the call
     assert with_year.slope_df == 8 and "t" in with_year.df_method
-    q = stats.t.ppf(0.975, 8)   # scipy.stats.t
+    # scipy.stats.t quantile, times sqrt(10 / 8): the ML year variance brought to its REML-equivalent
+    q = stats.t.ppf(0.975, 8) * math.sqrt(10 / 8)
+    assert with_year.se_scale == pytest.approx(math.sqrt(10 / 8))
     assert with_year.annual_change.lower == pytest.approx(math.expm1(with_year.slope - q * with_year.slope_se))
+    assert with_year.conf_int().loc["year", "lower"] == pytest.approx(with_year.slope - q * with_year.slope_se)
     assert with_year.interval_label == "t, 8 df" and without.interval_label == "normal (z)"
     assert "no_year_effect" in {x.code for x in without.diagnostics}
     out = with_year.to_dict()
@@ -205,3 +218,33 @@ def test_profile_interval_uses_the_t_reference():
     width = math.log1p(prof.upper) - math.log1p(prof.lower)
     assert width == pytest.approx(math.log1p(wald.upper) - math.log1p(wald.lower), rel=0.25)
     assert width > 1.1 * 2 * 1.96 * r.slope_se
+
+
+def test_default_year_effect_matches_glmmtmb_and_is_several_times_wider(year_reference):
+    # glmmTMB 1.1.5 glmmTMB(count_nb ~ t + (1|site) + (1|station) + (1|fyear), nbinom2) on the invented
+    # glmm_year_data.csv (tests/fixtures/trend/reference_year_fits.R): what `monitor trend` fits by default
+    d = pd.read_csv(FIXTURES / "glmm_year_data.csv")
+    nb = d.drop(columns="count").rename(columns={"count_nb": "count"})
+    ref = year_reference["negbin_year"]
+    r = TrendModel(nb, "count", family="negbin").fit(profile=False, indices=False, fast=False)
+    assert r.year_random == "iid" and r.slope_df == 10
+    assert r.slope == pytest.approx(ref["fixef"]["t"], abs=1e-5)
+    assert r.slope_se == pytest.approx(ref["se"]["t"], rel=1e-3)
+    assert r.random_sd["year"] == pytest.approx(ref["sd"]["fyear"], rel=1e-3)
+    no_year = TrendModel(nb, "count", family="negbin", year_random="none").fit(profile=False, indices=False,
+                                                                                fast=False)
+    assert r.slope_se > 2.2 * no_year.slope_se   # 60 stations, year SD 0.23: about 2.5 times
+
+
+def test_overdispersed_frequencies_get_glmers_observation_effect_by_default(year_reference):
+    # glmmTMB 1.1.5 on overdispersed invented k-of-n data (occupied_od): (1|obs_id) added; the plain
+    # binomial's Pearson chi2 from lme4 1.1-31 residuals(type = "pearson") over 651 rows is 1154.9
+    d = pd.read_csv(FIXTURES / "glmm_year_data.csv").drop(columns="occupied").rename(
+        columns={"occupied_od": "occupied"})
+    r = TrendModel(d, "frequency").fit(profile=False, indices=False, fast=False)
+    ref = year_reference["binomial_year_obs_tmb"]
+    assert r.observation_effect and "observation_effect_added" in {x.code for x in r.diagnostics}
+    assert r.slope == pytest.approx(ref["fixef"]["t"], abs=1e-4)
+    assert r.slope_se == pytest.approx(ref["se"]["t"], rel=1e-3)
+    assert r.random_sd["observation"] == pytest.approx(ref["sd"]["obs_id"], rel=1e-3)
+    assert year_reference["binomial_od_year"]["pearson_chi2"] / 651 > OVERDISPERSION_RATIO

@@ -45,7 +45,9 @@ def test_trend_with_year_effect_uses_t_reference():
     assert r.slope_se == pytest.approx(ref["se"]["t"], rel=1e-3)
     assert r.random_sd["year"] == pytest.approx(ref["sd"]["fyear"], rel=1e-3)
     assert r.slope_df == 10 and "containment" in r.df_method and r.estimator == "ml-laplace"
-    q = t.ppf(0.975, 10)   # scipy.stats.t
+    # scipy.stats.t, times sqrt(12 / 10): the ML year variance brought to its REML-equivalent
+    # (monitor.trend.model._reference; 12 years with data, 10 between-year df)
+    q = t.ppf(0.975, 10) * math.sqrt(12 / 10)
     assert r.annual_change.lower == pytest.approx(math.expm1(r.slope - q * r.slope_se), rel=1e-12)
     assert r.annual_change.upper == pytest.approx(math.expm1(r.slope + q * r.slope_se), rel=1e-12)
     out = r.to_dict()
@@ -62,7 +64,8 @@ def test_trend_with_year_effect_uses_t_reference():
 def test_profile_interval_uses_t_quantile():
     m = TrendModel(YEAR, "frequency")   # occupied of 20 cells, binomial with a year effect
     r = m.fit(profile=True, indices=False)
-    q = t.ppf(0.975, r.slope_df)
+    q = t.ppf(0.975, r.slope_df) * r.se_scale   # the Wald interval's multiplier (see the test above)
+    assert r.se_scale == pytest.approx(math.sqrt(r.n_years / r.slope_df))
     lo, hi = np.log1p(r.annual_change_profile.lower), np.log1p(r.annual_change_profile.upper)
     # independent check: refit with the slope fixed at each bound (as an offset); the
     # likelihood-ratio statistic there is the square of the t quantile
