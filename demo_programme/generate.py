@@ -68,6 +68,9 @@ PANELS = [
 ]
 
 STATION_SD, SITE_SD, OBS_SD = 0.6, 0.3, 0.25
+# good and bad years: one fluctuation a year for each species, shared by every station (link scale)
+YEAR_SD = 0.15
+YEAR_SEED = (SEED, 1)  # drawn from a generator of their own, so the other draws stay as they were
 COVER_RESID_SD = 0.35
 P_MISSED, P_INACCESSIBLE_SM = 0.04, 0.05
 
@@ -211,6 +214,9 @@ def main() -> None:
          ["HH", None, "cutting", "2022-02-15", "2022-02-15", "heath mown in rotation"]])
 
     # --- the truth and the records -----------------------------------------------------------------
+    year_rng = np.random.default_rng(list(YEAR_SEED))
+    year_effect = {(sp[0], y): float(year_rng.normal(0, YEAR_SD)) for sp in SPECIES
+                   for y in range(FIRST_YEAR, LAST_YEAR + 1)}
     site_codes = list(SITES)
     site_effect = {(sp[0], s): rng.normal(0, SITE_SD) for sp in SPECIES for s in site_codes}
     station_effect = {(sp[0], st["code"]): rng.normal(0, STATION_SD) for sp in SPECIES for st in stations}
@@ -254,7 +260,8 @@ def main() -> None:
                 moisture = round(float(np.clip(moisture_base[st["code"]] + rng.normal(0, 5), 1, 99)), 1)
                 for code, _sci, _com, measure, n, _sens, _w, truth in SPECIES:
                     present_here = st["site"] in truth["sites"]
-                    eta_re = site_effect[(code, st["site"])] + station_effect[(code, st["code"])]
+                    eta_re = (site_effect[(code, st["site"])] + station_effect[(code, st["code"])]
+                              + year_effect[(code, year)])
                     trend = math.log1p(truth["annual_change"]) * t
                     if measure == "count":
                         if not present_here:
@@ -307,6 +314,11 @@ def main() -> None:
         f"cover residual SD {COVER_RESID_SD} on the logit scale. Species are absent (recorded zero) outside "
         "their sites; the analyses use the stations where a species has ever been recorded.",
         "",
+        f"Good and bad years: each species has one fluctuation a year shared by all its stations, drawn with "
+        f"SD {YEAR_SD} on the link scale (log count, logit of cover or of a cell or pin) from a generator seeded "
+        f"{list(YEAR_SEED)}; the draws are in truth.json (`year_effects`). So the trend a programme can see "
+        "is the built-in change plus the slope of these twelve draws, and an honest interval reflects them.",
+        "",
         "| species | measure | built-in annual change | sites | level in 2015 |",
         "|---|---|---|---|---|",
     ]
@@ -322,8 +334,14 @@ def main() -> None:
               "stations in 2019 (flood). Protocol P2 from 2021. Hilltop Heath's access permission ends 2026-09-30.",
               "", "| year | visits on the sheet | visits done |", "|---|---|---|"]
     lines += [f"| {y} | {n} | {d} |" for y, n, d in truth_rows]
+    lines += ["", "Year effects drawn (link scale):", "",
+              "| year | " + " | ".join(sp[0] for sp in SPECIES) + " |", "|---|" + "---|" * len(SPECIES)]
+    lines += [f"| {y} | " + " | ".join(f"{year_effect[(sp[0], y)]:+.3f}" for sp in SPECIES) + " |"
+              for y in range(FIRST_YEAR, LAST_YEAR + 1)]
     (out / "TRUTH.md").write_text("\n".join(lines) + "\n", encoding="utf-8")
-    truth = {code: {"measure": measure, "annual_change": t["annual_change"], "sites": t["sites"]}
+    truth = {code: {"measure": measure, "annual_change": t["annual_change"], "sites": t["sites"],
+                    "year_sd": YEAR_SD,
+                    "year_effects": {str(y): round(year_effect[(code, y)], 6) for y in range(FIRST_YEAR, LAST_YEAR + 1)}}
              for code, _sci, _com, measure, _n, _sens, _w, t in SPECIES}
     truth["_gradient"] = {"species": "MARVIO", "transect": "SM-T", "change_per_m": math.exp(-0.03 * 0.3) - 1}
     (out / "truth.json").write_text(json.dumps(truth, indent=2) + "\n", encoding="utf-8")

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from monitor.db import Store, queries
 from monitor.services import demo
+from tests.conftest import REPO_ROOT
 
 
 def _counts(run) -> dict[str, int]:
@@ -32,3 +33,52 @@ def test_demo_refuses_a_folder_with_files(tmp_path):
     with pytest.raises(InputError, match="empty or new folder"):
         demo.run_demo(tmp_path)
     assert (tmp_path / "x.txt").read_text() == "keep me"
+
+
+def test_demo_trends_recover_the_truth_within_three_standard_errors(demo_db, demo_source):
+    # The demo's truth (demo_programme/truth.json) has a built-in steady change and a year-to-year
+    # fluctuation (SD 0.15) shared by every station.  A single draw must not decide the test: each
+    # slope must lie within 3 of its own standard errors of the built-in log(1 + change) (a z limit;
+    # the interval is t on the year-based df, so |z| < 3 fails by chance well under 1 % of the time).
+    import json
+    import math
+
+    from monitor.services import trend
+
+    truth = json.loads((demo_source / "truth.json").read_text(encoding="utf-8"))
+    fitted = trend.fit_programme(demo_db)
+    assert {t.species for t in fitted} == {k for k in truth if not k.startswith("_")}
+    for t in fitted:
+        built_in = math.log1p(truth[t.species]["annual_change"])
+        z = (t.result.slope - built_in) / t.result.slope_se
+        assert abs(z) < 3, f"{t.species}: slope {t.result.slope:+.4f} vs truth {built_in:+.4f} ({z:+.2f} SE)"
+        assert t.result.year_random != "none"   # twelve years: the year effect is in every model
+        assert t.result.random_sd.get("year", 0.0) < 0.5  # and its SD is of the size built in (0.15)
+
+
+def test_demo_generator_recovers_the_truth_over_replicate_draws(tmp_path):
+    # Regenerate the records with several seeds in-process (the generator's own model, all stations) and
+    # fit one count species each time: the mean z over replicates sits near 0 and none is extreme.
+    import importlib.util
+    import math
+
+    import numpy as np
+
+    from monitor.power import Design, Scenario, VarianceComponents, simulate_dataset
+    from monitor.trend import TrendModel
+
+    spec = importlib.util.spec_from_file_location("demo_generate", REPO_ROOT / "demo_programme" / "generate.py")
+    generate = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(generate)
+    # the generator's population model for a count species, simulated with the power study's simulator
+    components = VarianceComponents.from_mean("poisson-lognormal", 6.0, station_sd=generate.STATION_SD,
+                                              site_sd=generate.SITE_SD, observation_sd=generate.OBS_SD,
+                                              year_sd=generate.YEAR_SD, stations_per_site=8)
+    scenario = Scenario(0.06)
+    z = []
+    for seed in range(6):
+        data = simulate_dataset(components, Design(24, 12), scenario, np.random.default_rng([generate.SEED, seed]))
+        result = TrendModel(data, measure="count", family="poisson-lognormal").fit(profile=False, indices=False)
+        z.append((result.slope - math.log1p(0.06)) / result.slope_se)
+    assert all(abs(v) < 3.5 for v in z)
+    assert abs(np.mean(z)) < 3 / math.sqrt(len(z)) + 0.5  # mean of 6 near-standard z within 3 SE (t tails)

@@ -363,13 +363,15 @@ def _int_list(text: str) -> list[int]:
 @click.option("--workers", type=int, default=1, show_default=True, help="Processes to run in parallel.")
 @click.option("--cluster", default=None, metavar="tcp://HOST:PORT",
               help="Run the replicates on this Dask scheduler's workers instead (the same answer).")
+@click.option("--no-search", is_flag=True,
+              help="Compare the designs only: skip the searches for the smallest number of stations and of years.")
 @click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), default=None,
               help="Save power against stations, one line per number of years, with the unlimited-stations ceiling.")
 @format_option
 @click.pass_obj
 def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, sd_year, sd_site_year, trials,
                   change, over_years, stations, years, revisit, missed, alpha, side, target, replicates, seed,
-                  workers, cluster, figure, as_json, as_csv):
+                  workers, cluster, no_search, figure, as_json, as_csv):
     """Can the design detect the change that matters? Simulated power per design, with the approximation beside it."""
     from dataclasses import replace
 
@@ -406,7 +408,8 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
         study = power.power_study(components, source, change=change, over_years=over_years, stations=station_list,
                                   years=year_list, revisit=revisit, missed_share=missed, alpha=alpha, side=side,
                                   target=target, replicates=replicates, seed=seed, workers=workers, cluster=cluster,
-                                  figure=figure, progress=tick)
+                                  figure=figure, find_smallest=not no_search, find_years=not no_search,
+                                  progress=tick)
     fmt = chosen_format(as_json, as_csv)
     if fmt == "json":
         emit(study.to_dict(), fmt)

@@ -154,6 +154,10 @@ def demo_command(folder: Path, southern: bool, then_serve: bool, port: int) -> N
             shown.columns = [str(c) for c in shown.columns]
             click.echo(f"\nRevisit design {result.notation} (McDonald 2003 notation); X = due")
             emit(shown)
+        if name == "grow":
+            from monitor.cli.commands_plan import show_growth
+
+            show_growth(result)
         if name == "plan":
             click.echo(f"\nSeason {result.year} plan: {result.summary()}")
             emit(result.team_day_table())
@@ -191,10 +195,13 @@ def demo_command(folder: Path, southern: bool, then_serve: bool, port: int) -> N
                              "call": fitted.result.call})
             emit(rows)
         if name == "power":
-            from monitor.cli.commands_analysis import power_rows
+            from monitor.cli.commands_analysis import power_rows, power_sentences
 
             emit(power_rows(result), title=f"\nPower to detect a 50% fall over 10 years ({result.source}; "
-                 f"{result.results[0].n_replicates} simulated data sets per design, one-sided 5% test)")
+                 f"{result.results[0].n_replicates} simulated data sets per design, the same seeds for every "
+                 "design, one-sided 5% test)")
+            for line in power_sentences(result):
+                click.echo(line)
         if name == "report":
             click.echo(f"\nThe annual report for land managers: {result / 'index.html'}")
     click.echo(f"\nFigures are in {run.folder / 'figures'}")

@@ -44,7 +44,7 @@ def serve_command(ctx: Context, host: str, port: int, workdir: Path | None, http
                   https_key: Path | None, open_browser: bool) -> None:
     """Open the programme in the browser: overview, stations map, season plans and packs, records upload with
     a checked preview, quality flags, trends and the annual report.  SQLite: one user on this machine, opened by
-    a one-time link printed here.  PostgreSQL: people sign in (added with `monitor web-user add LOGIN reader`)."""
+    a one-time link printed here.  PostgreSQL: people sign in (each added with the web-user add command)."""
     if (https_cert is None) != (https_key is None):
         raise click.UsageError("--https-cert and --https-key go together")
     start_workspace(ctx.db, host=host, port=port, workdir=workdir, programme=ctx.programme, https_cert=https_cert,

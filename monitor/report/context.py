@@ -42,6 +42,7 @@ from monitor.report.wording import (
     caveat_sentences,
     change_with_interval,
     decline_advice,
+    detectable_change_not_computed_sentence,
     detectable_fall_sentence,
     percent,
     plain_measures,
@@ -247,7 +248,7 @@ class PowerRow:
     species: str
     species_name: str
     measure_label: str
-    detectable_change: float   # magnitude of annual change detected with the stated power [fraction/yr]
+    detectable_change: float | None  # annual change detected with the stated power [fraction/yr]; None: not computed
     power: float
     n_stations: int | None
     n_years: int | None
@@ -874,13 +875,14 @@ def build_report_context(
             ny = row.get("n_years")
             ns = None if ns is None or (isinstance(ns, float) and math.isnan(ns)) else int(ns)
             ny = None if ny is None or (isinstance(ny, float) and math.isnan(ny)) else int(ny)
-            design = ""
-            if ns is not None and ny is not None:
-                design = f" with {ns} stations over {ny} years"
-            del design
-            text = detectable_fall_sentence(float(row["detectable_change"]), pw, ns, ny)
+            change = row.get("detectable_change")
+            change = None if change is None or not math.isfinite(float(change)) else float(change)
+            if change is None:  # never "nan%": say that it could not be computed, and why
+                text = detectable_change_not_computed_sentence(str(row.get("note") or ""))
+            else:
+                text = detectable_fall_sentence(change, pw, ns, ny)
             power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms),
-                                            float(row["detectable_change"]), pw, ns, ny, text)
+                                            change, pw, ns, ny, text)
 
     summary: list[SummaryRow] = []
     sections: list[SpeciesSection] = []

@@ -522,6 +522,15 @@ def detectable_fall_sentence(change: float, power: float, n_stations: int | None
             f"{design}.")
 
 
+def detectable_change_not_computed_sentence(note: str) -> str:
+    """Said instead of a detectable fall that could not be computed (never "nan%"), with the reason given."""
+    why = note.strip()
+    if not why:
+        return "The detectable change could not be computed."
+    text = why[:1].upper() + why[1:]
+    return text if text.endswith(".") else text + "."
+
+
 def total_floor_note(counted: float, unit: str = "plants") -> str:
     """Why a total's lower bound equals the number counted."""
     n = int(round(counted))

@@ -78,3 +78,18 @@ def targets(db: str | None, programme_code: str | None = None) -> pd.DataFrame:
     finally:
         store.dispose()
     return frame[frame[C.MEASURE].notna()].reset_index(drop=True)
+
+
+def records_fingerprint(db: str | None, programme_code: str | None = None) -> tuple:
+    """A cheap mark that changes whenever stored values change (added, corrected, or a visit added), so that
+    a result computed from the records can be reused until then, whoever changed them."""
+    store, programme = _open(db, programme_code)
+    try:
+        row = store.frame(
+            "SELECT (SELECT count(*) FROM observation o JOIN visit v ON v.id = o.visit_id JOIN round r "
+            "ON r.id = v.round_id WHERE r.programme_id = :p) AS n, "
+            "(SELECT max(id) FROM visit) AS last_visit, "
+            "(SELECT max(id) FROM change_log WHERE programme_id = :p) AS last_change", p=programme.id).iloc[0]
+    finally:
+        store.dispose()
+    return tuple(None if pd.isna(v) else int(v) for v in row)

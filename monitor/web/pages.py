@@ -304,6 +304,7 @@ def records_import(ctx: Ctx):
         ctx.db, Path(pending["path"]), programme_code=_programme(ctx), correct=pending["correct"],
         reason=pending["reason"] or None, accept_warnings=pending["accept_warnings"], who=ctx.who)
     ctx.session.uploads.pop(token, None)
+    shutil.rmtree(Path(pending["path"]).parent, ignore_errors=True)  # stored now; the import batch keeps its hash
     ctx.app.forget()
     if report.already_imported:
         ctx.flash("ok", f"{pending['name']}: already imported, nothing to do.")
@@ -407,11 +408,13 @@ def trends(ctx: Ctx):
 
 def _fit(ctx: Ctx, species: str):
     from monitor.services import trend as trend_service
+    from monitor.services import workspace
 
     def compute():
         return trend_service.fit_programme(ctx.db, programme_code=_programme(ctx), species=[species])
 
-    return ctx.app.cached(("trend", species), compute)
+    # reused until the stored records change (through the workspace or the command line)
+    return ctx.app.cached(("trend", species, workspace.records_fingerprint(ctx.db, _programme(ctx))), compute)
 
 
 def trend(ctx: Ctx):
@@ -444,18 +447,9 @@ def trends_report(ctx: Ctx):
     base = ctx.config.workdir / "reports"
     folder = base / str(year)
     written = report_service.write_report(ctx.db, year, folder, programme_code=_programme(ctx))
-    _write_pdf(written)
-    ctx.flash("ok", f"The {year} report is built.")
+    made = ", ".join(p.name for p in sorted(written.iterdir()) if p.suffix in (".html", ".pdf"))
+    ctx.flash("ok", f"The {year} report is built ({made}).")
     return ctx.redirect("/trends")
-
-
-def _write_pdf(folder: Path) -> None:
-    """A PDF beside the report's HTML when the report service can write one."""
-    from monitor.services import report as report_service
-
-    writer = getattr(report_service, "write_pdf", None)
-    if writer is not None and (folder / "index.html").is_file() and not (folder / "report.pdf").exists():
-        writer(folder)
 
 
 def report_file(ctx: Ctx, relative: str) -> Path | None:

@@ -43,3 +43,17 @@ def test_power_for_a_programme_on_paper_is_reproducible(tmp_path, capsys):
     assert 0 <= result["power"] <= 1 and result["n_replicates"] == 20
     assert first["results"] == second["results"]  # the same seed gives the same answer
     assert first["smallest_design"]["target"] == 0.8
+    assert first["years_needed"]["vary"] == "n_years"
+
+
+def test_power_table_says_which_error_and_what_stations_cannot_buy(capsys):
+    # a year SD of 0.3 over 6 seasons: the ceiling with unlimited stations is below 80 %
+    args = ["power", "--mean", "5", "--station-sd", "0.5", "--obs-sd", "0.3", "--sd-year", "0.3", "--change", "-0.5",
+            "--over", "10", "--stations", "15", "--years", "6", "--replicates", "10", "--seed", "11", "--no-search"]
+    assert main(args) == 0
+    captured = capsys.readouterr()
+    assert "power (simulated, +/- 1 MC SE)" in captured.out and "ceiling (unlimited stations)" in captured.out
+    assert "+/- 1 Monte-Carlo SE, the figure +/- 2" in captured.err
+    assert "Over 6 seasons no number of stations reaches 80% power" in captured.err
+    assert "only more years help" in captured.err
+    assert main(args[:-1] + ["--sd-year", "-1", "--no-search"]) == 2

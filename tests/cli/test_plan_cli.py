@@ -92,8 +92,8 @@ def test_plan_due_pack_and_waypoints_from_the_command_line(programme_db, tmp_pat
     assert main(["--db", programme_db, "season", "pack", "2027", str(tmp_path / "packs"), "--team", first["team"],
                  "--day", first["date"]]) == 0
     folder = tmp_path / "packs" / f"{first['date']}_{first['team']}_{first['site']}"
-    # the pack's files (others, such as the phone sheet, may sit beside them)
-    assert {"field_sheet.html", "entry_sheet.csv", "entry_sheet.xlsx", "route.gpx"} <= {p.name for p in folder.iterdir()}
+    assert {p.name for p in folder.iterdir()} == {"field_sheet.html", "entry_sheet.csv", "entry_sheet.xlsx", "route.gpx",
+                                                      "phone_sheet.html"}
     assert (tmp_path / "packs" / "season_2027.ics").is_file()
     capsys.readouterr()
     assert main(["--db", programme_db, "design", "waypoints", str(tmp_path / "all.gpx")]) == 0

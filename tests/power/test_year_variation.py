@@ -144,7 +144,7 @@ def test_simulated_power_approaches_the_exact_noncentral_t_as_station_noise_vani
 
 def test_type_one_error_with_year_variation_quick():
     # no change, a year SD of 0.2 and 40 stations: the yearly-means t test rejects alpha of the time
-    # (an analysis that ignored the year effect would reject about half the time here)
+    # (least squares ignoring the year effect rejects far more often: checked below)
     components = lognormal(0.2, 0.5, station_sd=0.4, stations_per_site=10)
     result = simulate_power(components, Design(40, 10), Scenario(0.0, side="two-sided"),
                             rng=np.random.default_rng(7), n_replicates=600, fitter="yearly-means")
@@ -180,3 +180,62 @@ def test_how_many_years_by_simulation_matches_the_exact_answer():
     search = smallest_design(components, scenario, Design(30, 5), vary="n_years", grid=grid,
                              rng=np.random.default_rng(11), n_replicates=300, fitter="yearly-means")
     assert search.value == truth
+
+
+# --- the power study as users run it: the trend engine with its year effect ---------------------
+
+def _engine_exact_case(stations: int):
+    # counts near 5000 (Poisson noise on the log scale 1/5000) and an observation SD of 0.02 against a
+    # year SD of 0.25: the station noise has all but vanished, so the engine's test of the slope (t on
+    # n_years - 2 df) should have the exact power of the t test of the regression of yearly means
+    components = VarianceComponents(family="poisson-lognormal", intercept=math.log(5000.0), station_sd=0.5,
+                                    observation_sd=0.02, year_sd=0.25, stations_per_site=1000)
+    scenario = Scenario.from_change(-0.4, 10, side="decline")
+    sd = math.sqrt(0.25**2 + (0.02**2 + 1 / 5000) / stations)
+    return components, scenario, exact_power(scenario.slope, sd, 10)
+
+
+def test_engine_power_approaches_the_exact_noncentral_t_quick():
+    components, scenario, exact = _engine_exact_case(10)
+    assert 0.3 < exact < 0.8
+    result = simulate_power(components, Design(10, 10), scenario, rng=np.random.default_rng(2024),
+                            n_replicates=120, n_workers=2)
+    assert result.n_failed == 0
+    assert set(result.replicates["df"]) == {8.0}          # t on n_years - 2 df, from the engine
+    assert abs(result.power - exact) < 3.5 * math.sqrt(exact * (1 - exact) / 120)
+
+
+@pytest.mark.slow
+def test_engine_power_approaches_the_exact_noncentral_t():
+    components, scenario, exact = _engine_exact_case(20)
+    result = simulate_power(components, Design(20, 10), scenario, rng=np.random.default_rng(77),
+                            n_replicates=1000, n_workers=2)
+    assert result.n_failed == 0
+    assert abs(result.power - exact) < 3.5 * math.sqrt(exact * (1 - exact) / 1000)
+
+
+def _engine_null_case():
+    # no change; a year SD of 0.2 shared by every station, NB-like overdispersion, 10 years
+    return (VarianceComponents.from_mean("poisson-lognormal", 4.0, station_sd=0.6, site_sd=0.2, observation_sd=0.3,
+                                         year_sd=0.2, stations_per_site=8),
+            Scenario(0.0, alpha=0.05, side="two-sided"))
+
+
+def test_engine_type_one_error_with_year_variation_quick():
+    # 80 replicates: the limit 0.05 + 3.5 SE = 0.135.  The engine without the year effect rejects in
+    # 26 of these 80 data sets (0.325, fitter "trend-no-year"), so this cheap check fails if it is lost.
+    components, scenario = _engine_null_case()
+    result = simulate_power(components, Design(24, 10), scenario, rng=np.random.default_rng(5), n_replicates=80,
+                            n_workers=2)
+    assert result.n_failed <= 2
+    assert result.power < 0.05 + 3.5 * math.sqrt(0.05 * 0.95 / result.n_fitted)
+
+
+@pytest.mark.slow
+def test_engine_type_one_error_with_year_variation():
+    # 1000 replicates: the share rejecting lies within 3 MC SE of alpha (0.05 +- 0.021)
+    components, scenario = _engine_null_case()
+    result = simulate_power(components, Design(24, 10), scenario, rng=np.random.default_rng(6), n_replicates=1000,
+                            n_workers=2)
+    assert result.n_failed <= 10
+    assert abs(result.power - 0.05) < 3 * math.sqrt(0.05 * 0.95 / result.n_fitted)

@@ -7,6 +7,7 @@ are simulation checks of the whole path: files -> importer -> database -> long t
 from __future__ import annotations
 
 import json
+import math
 
 import numpy as np
 import pandas as pd
@@ -31,25 +32,24 @@ def test_every_target_is_fitted_with_its_default_family(trends):
         "HEABEL": "binomial", "SILGRA": "binomial"}
 
 
-def test_intervals_cover_the_built_in_trends(trends):
+def test_estimates_lie_within_three_standard_errors_of_the_built_in_trends(trends):
+    # a z limit rather than "every 95 % interval covers the truth", which five species at once pass only
+    # three draws in four; the demo's truth has good and bad years (truth.json year_sd), so the
+    # estimate is the built-in change plus the slope of the year draws
     for species, fitted in trends.items():
-        ac = fitted.result.annual_change
-        assert ac.lower <= TRUTH[species]["annual_change"] <= ac.upper, species
+        z = (fitted.result.slope - math.log1p(TRUTH[species]["annual_change"])) / fitted.result.slope_se
+        assert abs(z) < 3, (species, z)
 
 
-def test_calls_follow_the_built_in_direction(trends):
-    # a rising or declining truth must be called so; a stable truth stable, or unclear where the
-    # year-based t interval (12 years: 10 df) is wider than the margin; never rising or declining
-    for s, t in TRUTH.items():
-        if s.startswith("_"):
-            continue
-        call = trends[s].result.call
-        if t["annual_change"] > 0:
-            assert call == "rising", s
-        elif t["annual_change"] < 0:
-            assert call == "declining", s
-        else:
-            assert call in ("stable", "unclear"), s
+def test_calls_never_contradict_the_built_in_direction(trends):
+    # a rising species is never called declining, nor a declining one rising, nor a flat one either;
+    # "unclear" is honest where the years cannot tell (12 years: the year-based t interval on 10 df can
+    # be wider than the margin).  Demanding "rising" for every rising truth would rest on the draw.
+    for species, fitted in trends.items():
+        change = TRUTH[species]["annual_change"]
+        wrong = {"declining"} if change > 0 else {"rising"} if change < 0 else {"rising", "declining"}
+        assert fitted.result.call not in wrong, (species, fitted.result.call)
+        assert fitted.result.call in ("rising", "declining", "stable", "unclear")
 
 
 def test_species_left_out_where_never_recorded_and_protocol_change_flagged(trends):

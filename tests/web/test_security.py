@@ -271,8 +271,10 @@ def test_a_recorder_works_under_the_recorder_role_and_cannot_touch_the_change_lo
     from sqlalchemy.exc import ProgrammingError
 
     recorder = make_client(engine, url, tmp_path / "web", "recorder")
-    done = recorder.post("/records/correct", {"station": "SM-17", "year": "2021", "field": "GLASED:cover",
-                                              "value": "11", "reason": "typo on the sheet"})
+    visit = next(v for v in records.station_history(url, "SM-17")["visits"] if v["status"] == "done")
+    done = recorder.post("/records/correct", {"station": "SM-17", "year": str(visit["year"]), "field": "GLASED:cover",
+                                              "value": str(visit["values"]["GLASED:cover"] + 1),
+                                              "reason": "typo on the sheet"})
     assert done.status_code == 200 and "(logged)" in done.text
     role_url = web_users.role_urls(url)["recorder"]
     engine_ = create_engine(role_url)
