@@ -354,3 +354,14 @@ def show_southern_demo(folder: Path) -> None:
         click.echo(f"\nField pack for team {day['team']} on {day['date']} ({day['site']}, {day['stations']} "
                    f"stations): {day['folder']}")
     click.echo(f"Calendar: {pack.calendar}")
+
+
+def show_growth(result: dict) -> None:
+    """Print the demo's growth steps: the balanced panel placed and extended, and the quadrat moved."""
+    placed, extended, moved = result["placed"], result["extended"], result["moved"]
+    click.echo(f"\nBalanced panel on site {placed.site}: {len(placed.stations)} quadrats placed (seed {placed.seed}), "
+               f"extended by {len(extended.stations)} along the same Halton order "
+               f"({extended.params['stations_before']} -> {extended.params['stations_after']})")
+    emit(extended.stations, columns=[c for c in ("station", "site", "x", "y", "halton_index")
+                                     if c in extended.stations.columns])
+    click.echo(f"\nRelocated quadrat: {moved.message()}")

@@ -154,6 +154,10 @@ def demo_command(folder: Path, southern: bool, then_serve: bool, port: int) -> N
             shown.columns = [str(c) for c in shown.columns]
             click.echo(f"\nRevisit design {result.notation} (McDonald 2003 notation); X = due")
             emit(shown)
+        if name == "grow":
+            from monitor.cli.commands_plan import show_growth
+
+            show_growth(result)
         if name == "plan":
             click.echo(f"\nSeason {result.year} plan: {result.summary()}")
             emit(result.team_day_table())

@@ -493,7 +493,9 @@ def table_from_rows(rows: list[tuple[int, list[str]]], file: str, *, csv_shape: 
         if issue.row != header_row:
             by_row.setdefault(issue.row, []).append(issue)
     body: list[tuple[int, list[str]]] = []
-    for number, cells in rows[1:]:
+    for at in range(1, len(rows)):
+        number, cells = rows[at]
+        rows[at] = None  # type: ignore[call-overload]  # consumed: the raw row is freed as the body grows
         for issue in by_row.get(number, ()):
             name = raw[issue.column] if issue.column < width else f"column {issue.column + 1}"
             add(number, f"{name} (cell {issue.coordinate})", issue.value, issue.expected)

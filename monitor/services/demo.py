@@ -122,4 +122,7 @@ def analyse(run: DemoRun, *, echo: Callable[[str], None] = lambda _m: None) -> D
 
     echo(f"11. writing the annual report for {latest}")
     run.steps.append(("report", report.write_report(db, latest, folder / "reports" / str(latest), programme_code=code)))
+    from monitor.services.demo_growth import grow
+
+    run.steps.append(("grow", grow(db, code, echo=echo)))
     return run
