@@ -124,8 +124,10 @@ def site_geometry(session: Session, programme_id: int, code: str) -> tuple[M.Sit
     return site, geometry
 
 
-def read_polygons(path: Path, epsg: int, *, code_field: str | None = None) -> list[tuple[str, BaseGeometry]]:
-    """Polygons of a GeoJSON file in the programme CRS: (code or feature number, geometry) per feature."""
+def _geojson_features(path: Path, epsg: int, geometry_types: tuple[str, ...], wanted: str
+                      ) -> tuple[str, list[dict]]:
+    """The features of a GeoJSON file (a FeatureCollection, one Feature, or a bare geometry of
+    ``geometry_types``), refusing a file whose stated CRS is not the programme's: (file name, features)."""
     path = Path(path)
     file = path.name
     try:
@@ -138,15 +140,21 @@ def read_polygons(path: Path, epsg: int, *, code_field: str | None = None) -> li
         features = doc.get("features") or []
     elif isinstance(doc, dict) and doc.get("type") == "Feature":
         features = [doc]
-    elif isinstance(doc, dict) and doc.get("type") in ("Polygon", "MultiPolygon"):
+    elif isinstance(doc, dict) and doc.get("type") in geometry_types:
         features = [{"type": "Feature", "geometry": doc, "properties": {}}]
     else:
-        raise InputError(InputProblem(file, None, "type", None, "a GeoJSON FeatureCollection of polygons"))
+        raise InputError(InputProblem(file, None, "type", None, f"a GeoJSON FeatureCollection of {wanted}"))
     crs_name = ((doc.get("crs") or {}).get("properties") or {}).get("name", "")
     if crs_name:
         m = re.search(r"EPSG:+(\d+)$", str(crs_name))
         if m and int(m.group(1)) != int(epsg):
             raise InputError(InputProblem(file, None, "crs", crs_name, f"the programme's CRS EPSG:{epsg}"))
+    return file, features
+
+
+def read_polygons(path: Path, epsg: int, *, code_field: str | None = None) -> list[tuple[str, BaseGeometry]]:
+    """Polygons of a GeoJSON file in the programme CRS: (code or feature number, geometry) per feature."""
+    file, features = _geojson_features(path, epsg, ("Polygon", "MultiPolygon"), "polygons")
     if not features:
         raise InputError(InputProblem(file, None, "features", None, "at least one polygon"))
     out = []
@@ -171,27 +179,7 @@ def read_polygons(path: Path, epsg: int, *, code_field: str | None = None) -> li
 
 def read_lines(path: Path, epsg: int) -> list[tuple[str, LineString]]:
     """LineStrings of a GeoJSON file in the programme CRS: (code, name or feature number, line) per feature."""
-    path = Path(path)
-    file = path.name
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8-sig"))
-    except OSError as exc:
-        raise InputError(InputProblem(file, None, None, None, f"a readable file ({exc.strerror})")) from None
-    except (json.JSONDecodeError, UnicodeDecodeError):
-        raise InputError(InputProblem(file, None, None, None, "a GeoJSON file (valid UTF-8 JSON)")) from None
-    if isinstance(doc, dict) and doc.get("type") == "FeatureCollection":
-        features = doc.get("features") or []
-    elif isinstance(doc, dict) and doc.get("type") == "Feature":
-        features = [doc]
-    elif isinstance(doc, dict) and doc.get("type") in ("LineString", "MultiLineString"):
-        features = [{"type": "Feature", "geometry": doc, "properties": {}}]
-    else:
-        raise InputError(InputProblem(file, None, "type", None, "a GeoJSON FeatureCollection of LineStrings"))
-    crs_name = ((doc.get("crs") or {}).get("properties") or {}).get("name", "")
-    if crs_name:
-        m = re.search(r"EPSG:+(\d+)$", str(crs_name))
-        if m and int(m.group(1)) != int(epsg):
-            raise InputError(InputProblem(file, None, "crs", crs_name, f"the programme's CRS EPSG:{epsg}"))
+    file, features = _geojson_features(path, epsg, ("LineString", "MultiLineString"), "LineStrings")
     if not features:
         raise InputError(InputProblem(file, None, "features", None, "at least one LineString"))
     out = []
