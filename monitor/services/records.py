@@ -269,8 +269,8 @@ def import_files(db: str | None, paths: list[Path], *, programme_code: str | Non
         for k, path in enumerate(paths):
             try:
                 records, digest = _read(path, day_first, sheet)
-                report = run_with_retries(lambda records=records, digest=digest: _import(
-                    store, programme, records, path.name, digest, False, correct, reason, accept_warnings, who))
+                report = run_with_retries(lambda records=records, digest=digest, name=path.name: _import(
+                    store, programme, records, name, digest, False, correct, reason, accept_warnings, who))
             except MonitorError as exc:
                 return _stopped(reports, paths, k, exc)
             reports.append(report)
@@ -307,10 +307,10 @@ def _stopped(reports: list[ImportReport], paths: list[Path], k: int, exc: Monito
 def _dry_run_files(store: Store, programme: M.Programme, paths: list[Path], correct: bool, reason: str | None,
                    accept_warnings: bool, who: str, day_first: bool | None, sheet: str | None) -> ImportRun:
     reports: list[ImportReport] = []
-    at = 0
+    at = 0  # the file being read when a refusal stops the run
     try:
         with store.session() as session:
-            for at, path in enumerate(paths):
+            for at, path in enumerate(paths):  # noqa: B007 (read by the refusal below)
                 records, digest = _read(path, day_first, sheet)
                 reports.append(_import_in(session, programme, records, path.name, digest, True, correct, reason,
                                           accept_warnings, who))
@@ -933,20 +933,28 @@ def set_value(db: str | None, station: str, year: int, species: str, measure: st
         store.dispose()
 
 
+def _correctable_visit(session, programme: M.Programme, label: str, station: str, year: int,
+                       repeat_no: int) -> tuple[M.Station, M.Visit]:
+    """The stored visit of ``station`` in the ``year`` round that a correction applies to; refused when
+    there is no such visit or its season is certified (locked)."""
+    st = _station(session, programme.id, station, label)
+    rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
+    visit = None if rnd is None else session.exec(select(M.Visit).where(
+        M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
+    if visit is None:
+        raise DataError(f"no visit of {station} in the {year} round"
+                        + (f" with repeat number {repeat_no}" if repeat_no else "")
+                        + "; import the visit from its field sheet first")
+    if rnd.status == "certified":
+        raise LockedError(f"season {year} is certified (locked); unlock it first with "
+                          f"`monitor records unlock {year} --reason \"...\"`")
+    return st, visit
+
+
 def _set_value(store: Store, programme: M.Programme, label: str, station: str, year: int, species: str,
                measure: str, field_: str, number: float, reason: str, repeat_no: int, who: str) -> Change:
     with store.session() as session:
-        st = _station(session, programme.id, station, label)
-        rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
-        visit = None if rnd is None else session.exec(select(M.Visit).where(
-            M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
-        if visit is None:
-            raise DataError(f"no visit of {station} in the {year} round"
-                            + (f" with repeat number {repeat_no}" if repeat_no else "")
-                            + "; import the visit from its field sheet first")
-        if rnd.status == "certified":
-            raise LockedError(f"season {year} is certified (locked); unlock it first with "
-                              f"`monitor records unlock {year} --reason \"...\"`")
+        st, visit = _correctable_visit(session, programme, label, station, year, repeat_no)
         if visit.status not in C.STATUSES_WITH_VALUES:
             raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
                             "(missing is not zero); correct its status from the field sheet first")
@@ -1009,17 +1017,7 @@ def _set_visit(store: Store, programme: M.Programme, label: str, station: str, y
     from monitor.io._tables import Problems
 
     with store.session() as session:
-        st = _station(session, programme.id, station, label)
-        rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
-        visit = None if rnd is None else session.exec(select(M.Visit).where(
-            M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
-        if visit is None:
-            raise DataError(f"no visit of {station} in the {year} round"
-                            + (f" with repeat number {repeat_no}" if repeat_no else "")
-                            + "; import the visit from its field sheet first")
-        if rnd.status == "certified":
-            raise LockedError(f"season {year} is certified (locked); unlock it first with "
-                              f"`monitor records unlock {year} --reason \"...\"`")
+        st, visit = _correctable_visit(session, programme, label, station, year, repeat_no)
         now = utcnow()
         changes: list[Change] = []
         when = visit.date.isoformat()
