@@ -1056,7 +1056,14 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
     quick = not (stage2 or hessian) or will_refine
     obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
     if eng.n_phi <= 6:
-        snap1 = np.r_[np.full(eng.n_sd, 5.0), np.zeros(eng.n_phi - eng.n_sd)]
+        # an SD within 5 log units of its bound (below 1.5e-3) with a flat likelihood is put on the bound;
+        # a Gaussian model's SDs are on the scale of its data (the log of a height varies by 1e-2), so
+        # there "near zero" is judged against the data's spread (never wider than 5 log units)
+        width = 5.0
+        if gaussian:
+            spread = float(np.std(fam.y - eng.offset - spec.X @ beta0))
+            width = min(5.0, 5.0 + np.log(spread)) if spread > 0 else 5.0
+        snap1 = np.r_[np.full(eng.n_sd, width), np.zeros(eng.n_phi - eng.n_sd)]
         res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
                                np.full(eng.n_phi, 1e-3), snap_width=snap1, tol=1e-10 if quick else 1e-13,
                                ftol=1e-9 if quick else 1e-12, quasi=quick)
