@@ -23,8 +23,8 @@ from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.families import family as family_of
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
+from monitor.services.common import current_user
 from monitor.services.executor import open_runner
-from monitor.services.records import current_user
 from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 from monitor.trend import TrendModel, TrendResult
 
