@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from monitor import columns as C
-from monitor.families import FAMILIES, NAMES, describe, families_for, family
+from monitor.families import NAMES, describe, families_for, family
 from monitor.power import Design, Scenario, VarianceComponents, simulate_dataset
 from monitor.trend import TrendModel
 from monitor.trend.families import density
