@@ -7,7 +7,6 @@ The report folder is written to a temporary sibling and moved into place at the 
 from __future__ import annotations
 
 import dataclasses
-
 import datetime as dt
 import json
 from pathlib import Path
@@ -19,11 +18,11 @@ from monitor import columns as C
 from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
-from monitor.report.render import report_files_in
-from monitor.services.exports import generalise_m_of, generalised_positions
 from monitor.report.fits import FittedEntry, fit_rows, fits_note
+from monitor.report.render import report_files_in
 from monitor.services import analyses, estimate, trend
-from monitor.services.records import current_user
+from monitor.services.common import current_user
+from monitor.services.exports import generalise_m_of, generalised_positions
 from monitor.trend import station_changes
 
 REPORT_JSON = "report.json"

@@ -8,7 +8,6 @@ Missed and inaccessible visits are absent from the data, never zeros.
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as dt
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
@@ -23,8 +22,8 @@ from monitor.db import fits as fit_store
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
+from monitor.services.common import current_user
 from monitor.services.executor import open_runner
-from monitor.services.records import current_user
 from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
 from monitor.trend import TrendModel, TrendResult
 
