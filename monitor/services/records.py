@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import datetime as dt
 import getpass
-import json
 import os
 import sys
 import time
@@ -37,6 +36,7 @@ from monitor.io import headers as H
 from monitor.io.hashing import content_hash
 from monitor.io.records import FieldRecords, read_field_records
 from monitor.io.validate import Reference, fill_blank_targets, raise_for_problems, validate_records
+from monitor.settings import programme_settings
 
 KIND_RECORDS = "records"
 T = TypeVar("T")
@@ -103,13 +103,6 @@ def current_user() -> str:
 # --- what the programme holds, for validation ---------------------------------------------------------------
 
 
-def _settings(programme: M.Programme) -> dict:
-    try:
-        return json.loads(programme.settings_json or "{}")
-    except json.JSONDecodeError:
-        return {}
-
-
 def programme_window(session: Session, programme_id: int, year: int) -> tuple[dt.date, dt.date]:
     """The programme-wide season window for a year (a year-specific window wins over the standing one)."""
     rows = session.exec(select(M.SeasonWindow).where(M.SeasonWindow.programme_id == programme_id,
@@ -163,7 +156,7 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
         columns=[C.STATION, C.DATE, H.REPEAT])
     existing[H.REPEAT] = existing[H.REPEAT] > 0
     observers = frozenset(session.exec(select(M.Observer.code).where(M.Observer.programme_id == pid)).all())
-    units = _settings(programme).get("covariate_units")
+    units = dict(programme_settings(programme).covariate_units)
     return Reference(
         stations=pd.DataFrame({C.STATION: [s.code for s in stations], H.RETIRED: [s.retired for s in stations]}),
         species=species,
@@ -1037,8 +1030,7 @@ def _set_visit(store: Store, programme: M.Programme, label: str, station: str, y
                 raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
                                 "(missing is not zero); correct its status from the field sheet first")
             stored = _stored_covariates(session, visit.id)
-            units = _settings(programme).get("covariate_units")
-            units = units if isinstance(units, dict) else {}
+            units = programme_settings(programme).covariate_units
             problems = Problems(label)
             for name, text in covariates.items():
                 known = name in stored or name in units
