@@ -643,6 +643,22 @@ def parse_bool(text: str) -> bool | None:
     return None
 
 
+def parse_typed_value(label: str, field_: str, measure: str, text: str) -> float:
+    """A value typed at the command line or in a form, read as a field sheet's cell would be: presence
+    as 0/1 or yes/no, any other measure as a decimal number; anything else is refused naming ``field_``."""
+    from monitor.columns import MEASURE_PRESENCE
+
+    if measure == MEASURE_PRESENCE:
+        flag = parse_bool(text) if text.strip() else None
+        if flag is None:
+            raise InputError(InputProblem(label, None, field_, text, "presence as 0/1 or yes/no"))
+        return 1.0 if flag else 0.0
+    value = parse_number(text)
+    if value is None:
+        raise InputError(InputProblem(label, None, field_, text, "a number with '.' as decimal mark, |x| <= 1e12"))
+    return value
+
+
 _ISO_DATE = re.compile(r"^(\d{4})-(\d{2})-(\d{2})$")
 _SLASH_DATE = re.compile(r"^(\d{1,2})[/.](\d{1,2})[/.](\d{4})$")
 DATE_RULE = ("an ISO date YYYY-MM-DD, or DD/MM/YYYY where day and month cannot be swapped "

@@ -32,7 +32,7 @@ from monitor.db.models import utcnow
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.io.programme import parse_revisit_rule
 from monitor.quality import quality_flags
-from monitor.services.records import current_user
+from monitor.services.common import current_user
 from monitor.settings import programme_settings
 
 #: note on an open flag that the checks stopped finding (it reopens if they find it again)

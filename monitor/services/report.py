@@ -21,8 +21,8 @@ from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_co
 from monitor.report.fits import FittedEntry, fit_rows, fits_note
 from monitor.report.render import report_files_in
 from monitor.services import analyses, estimate, trend
+from monitor.services.common import current_user
 from monitor.services.exports import generalise_m_of, generalised_positions
-from monitor.services.records import current_user
 from monitor.settings import programme_settings
 from monitor.trend import station_changes
 

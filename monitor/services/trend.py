@@ -22,8 +22,8 @@ from monitor.db import fits as fit_store
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
+from monitor.services.common import current_user
 from monitor.services.executor import open_runner
-from monitor.services.records import current_user
 from monitor.settings import DEFAULT_CHANGE_MARGIN, programme_settings
 from monitor.trend import TrendModel, TrendResult
 

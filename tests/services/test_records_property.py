@@ -28,7 +28,8 @@ from hypothesis import strategies as st
 from sqlalchemy import create_engine, text
 
 from monitor.errors import MonitorError
-from monitor.services import records, setup
+from monitor.services import setup
+from monitor.services.imports import import_records
 from tests.services.misread_files import demo_rows
 
 HEADER, ROWS = demo_rows(4)
@@ -136,7 +137,7 @@ def _check(template: Path, folder: Path, path: Path, rows, accepted_expected: bo
     shutil.copy(template, db)
     before = db.read_bytes()
     try:
-        records.import_records(str(db), path, **kwargs)
+        import_records(str(db), path, **kwargs)
     except MonitorError as exc:
         assert not accepted_expected, f"a good sheet was refused: {exc}"
         assert db.read_bytes() == before  # refused: nothing written
@@ -206,4 +207,4 @@ def test_csv_files_are_stored_as_shown_or_refused(template, tmp_path_factory, da
     _check(template, folder, path, rows, all_good and encoding != "mixed")
     if encoding == "mixed":
         with pytest.raises(MonitorError, match="one encoding throughout"):
-            records.import_records(str(folder / "db.sqlite"), path)
+            import_records(str(folder / "db.sqlite"), path)
