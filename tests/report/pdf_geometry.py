@@ -5,6 +5,7 @@ glyph widths (PDF 1.7, ISO 32000-1, 9.4.4 text space and 9.7.4.3 glyph widths of
 
 from __future__ import annotations
 
+
 def _widths(font):
     """Glyph code -> width [1/1000 of text space], the default width, and bytes per code (2 for a
     Type0 font with Identity-H encoding, as WeasyPrint writes, else 1)."""
