@@ -10,7 +10,7 @@ import click
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
 from monitor.cli.tables import trend_number_rows, write_workbook, xlsx_option
-from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
+from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_YEAR_EFFECT_YEARS, change_margin
 
 
 def _pct(x: float | None) -> str:
@@ -80,7 +80,8 @@ def parallel_options(func):
                                  "cover logit-normal).")
 @click.option("--year-effect", "year_effect", type=click.Choice(["iid", "ar1"]), default=None,
               help="Form of the random year effect shared by all stations: independent years (iid) or an "
-                   "order-1 autoregression, consecutive years alike (ar1). Default: iid from 5 years with data.")
+                   "order-1 autoregression, consecutive years alike (ar1). Default: iid from "
+                   f"{MIN_YEAR_EFFECT_YEARS} years with data.")
 @click.option("--no-year-effect", "no_year_effect", is_flag=True,
               help="Leave out the random year effect (intervals then ignore good and bad years shared by the "
                    "stations, and are too narrow when there are such years).")
