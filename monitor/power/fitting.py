@@ -1,19 +1,19 @@
 """Fit one simulated data set and keep what a power study needs from the fit.
 
-Two fitters:
+The fitters::
 
-``"trend"``    the trend engine's fast path, ``monitor.trend.TrendModel(...).fit(profile=False,
-               indices=False)``: the same model family and random effects a programme's own
+    "trend"    the trend engine's fast path, monitor.trend.TrendModel(...).fit(profile=False,
+               indices=False): the same model family and random effects a programme's own
                analysis would use, the year effect included where the engine puts it by default
                (and a site-by-year effect where the population model has one).  Wald test of the
-               slope against t on the engine's between-year df (``slope_df``; normal without a
+               slope against t on the engine's between-year df (slope_df; normal without a
                year effect).
-``"trend-no-year"`` the same without a year effect (a reference where the truth has none).
-``"ols-log"``  ordinary least squares of the log (counts) or logit (cover) value on year, no random
+    "trend-no-year" the same without a year effect (a reference where the truth has none).
+    "ols-log"  ordinary least squares of the log (counts) or logit (cover) value on year, no random
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
                noncentral-t check, and only valid for data with no station, site or
                overdispersion effects.
-``"yearly-means"`` least squares of the yearly means of the log (counts) or logit (cover) values on
+    "yearly-means" least squares of the yearly means of the log (counts) or logit (cover) values on
                year, t test with n_years - 2 degrees of freedom: the analysis whose power is exactly
                noncentral t when stations are balanced and the noise is normal on that scale
                (Urquhart, Paulsen & Larsen 1998), whatever the year-to-year variation.  A reference.
@@ -53,7 +53,7 @@ FAILED = FitOutcome(math.nan, math.nan, math.inf, math.nan, math.nan, None, Fals
 
 
 def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario, *,
-                     year_random: str | None = None) -> FitOutcome:
+                 year_random: str | None = None) -> FitOutcome:
     """Fit with the trend engine's fast path (no profile intervals, no yearly indices)."""
     from monitor.trend import TrendModel  # imported here: monitor.power works without a fitted engine
 
@@ -142,7 +142,7 @@ def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenari
     q = float(stats.t.isf(0.025, df))
     lower, upper = math.expm1(b - q * se), math.expm1(b + q * se)
     return FitOutcome(b, se, float(df), lower, upper,
-                      _call(lower, upper, scenario.margin, data[col.STATION].nunique(), n))
+                  _call(lower, upper, scenario.margin, data[col.STATION].nunique(), n))
 
 
 def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
@@ -163,7 +163,7 @@ def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: i
 
 
 def fit_trend_engine_without_year(data: pd.DataFrame, components: VarianceComponents,
-                                  scenario: Scenario) -> FitOutcome:
+                              scenario: Scenario) -> FitOutcome:
     """The engine's fast path with no year effect (a reference for models without year variation)."""
     return fit_trend_engine(data, components, scenario, year_random="none")
 
