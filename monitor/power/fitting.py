@@ -5,9 +5,11 @@ The fitters::
     "trend"    the trend engine's fast path, monitor.trend.TrendModel(...).fit(profile=False,
                indices=False): the same model family and random effects a programme's own
                analysis would use, the year effect included where the engine puts it by default
-               (and a site-by-year effect where the population model has one).  Wald test of the
-               slope against t on the engine's between-year df (slope_df; normal without a
-               year effect).
+               (and a site-by-year effect where the population model has one; the year effect
+               as an AR(1) over years where the population model's is, year_rho).  Wald test
+               of the slope against t on the engine's between-year df (slope_df; normal
+               without a year effect) with the standard error the engine's interval and call use
+               (slope_se * se_scale).
     "trend-no-year" the same without a year effect (a reference where the truth has none).
     "ols-log"  ordinary least squares of the log (counts) or logit (cover) value on year, no random
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
@@ -32,6 +34,7 @@ from scipy import stats
 from monitor import columns as col
 from monitor.errors import MonitorError
 from monitor.power.model import Scenario, VarianceComponents
+from monitor.settings import MIN_YEAR_EFFECT_YEARS
 
 
 @dataclass(frozen=True)
@@ -53,11 +56,13 @@ FAILED = FitOutcome(math.nan, math.nan, math.inf, math.nan, math.nan, None, Fals
 
 
 def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario, *,
-                 year_random: str | None = None) -> FitOutcome:
+                     year_random: str | None = None) -> FitOutcome:
     """Fit with the trend engine's fast path (no profile intervals, no yearly indices)."""
     from monitor.trend import TrendModel  # imported here: monitor.power works without a fitted engine
 
     sites = col.SITE in data.columns and data[col.SITE].nunique() >= 2
+    if year_random is None and components.year_rho != 0 and data[col.YEAR].nunique() >= MIN_YEAR_EFFECT_YEARS:
+        year_random = "ar1"   # the programme's analysis of an AR(1) population: --year-effect ar1
     model = TrendModel(
         data,
         measure=components.measure,
@@ -74,7 +79,9 @@ def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenari
     change = result.annual_change
     return FitOutcome(
         slope=float(result.slope),
-        slope_se=float(result.slope_se),
+        # the standard error of the engine's own interval and call: with a year effect the ML one is
+        # scaled to its REML equivalent (TrendResult.se_scale), and the test must use the same
+        slope_se=float(result.slope_se) * float(getattr(result, "se_scale", 1.0)),
         df=float(getattr(result, "slope_df", math.inf)),
         lower=float(change.lower),
         upper=float(change.upper),
@@ -142,7 +149,7 @@ def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenari
     q = float(stats.t.isf(0.025, df))
     lower, upper = math.expm1(b - q * se), math.expm1(b + q * se)
     return FitOutcome(b, se, float(df), lower, upper,
-                  _call(lower, upper, scenario.margin, data[col.STATION].nunique(), n))
+                      _call(lower, upper, scenario.margin, data[col.STATION].nunique(), n))
 
 
 def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
@@ -163,7 +170,7 @@ def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: i
 
 
 def fit_trend_engine_without_year(data: pd.DataFrame, components: VarianceComponents,
-                              scenario: Scenario) -> FitOutcome:
+                                  scenario: Scenario) -> FitOutcome:
     """The engine's fast path with no year effect (a reference for models without year variation)."""
     return fit_trend_engine(data, components, scenario, year_random="none")
 

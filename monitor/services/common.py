@@ -7,7 +7,6 @@ import dataclasses
 import datetime as dt
 import difflib
 import getpass
-import json
 import os
 import time
 from collections.abc import Callable
@@ -47,14 +46,6 @@ def current_user() -> str:
         return os.environ.get("MONITOR_USER") or getpass.getuser()
     except (KeyError, OSError):
         return "unknown"
-
-
-def programme_settings(programme: M.Programme) -> dict:
-    """The programme's stored settings (an unreadable document reads as none)."""
-    try:
-        return json.loads(programme.settings_json or "{}")
-    except json.JSONDecodeError:
-        return {}
 
 
 def run_with_retries(work: Callable[[], T], *, attempts: int = ATTEMPTS, first_wait: float = 0.05) -> T:

@@ -25,10 +25,10 @@ from monitor.services.common import (
     log_change,
     need_reason,
     plain_problems,
-    programme_settings,
     run_with_retries,
     station_by_code,
 )
+from monitor.settings import programme_settings
 from monitor.services.imports import stored_covariates
 
 
@@ -159,8 +159,7 @@ def _set_visit(store: Store, programme: M.Programme, label: str, station: str, y
                 raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
                                 "(missing is not zero); correct its status from the field sheet first")
             stored = stored_covariates(session, visit.id)
-            units = programme_settings(programme).get("covariate_units")
-            units = units if isinstance(units, dict) else {}
+            units = programme_settings(programme).covariate_units
             problems = Problems(label)
             for name, text in covariates.items():
                 known = name in stored or name in units

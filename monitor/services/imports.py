@@ -38,9 +38,9 @@ from monitor.services.common import (
     current_user,
     log_change,
     plain_problems,
-    programme_settings,
     run_with_retries,
 )
+from monitor.settings import programme_settings
 
 KIND_RECORDS = "records"
 
@@ -137,7 +137,7 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
         columns=[C.STATION, C.DATE, H.REPEAT])
     existing[H.REPEAT] = existing[H.REPEAT] > 0
     observers = frozenset(session.exec(select(M.Observer.code).where(M.Observer.programme_id == pid)).all())
-    units = programme_settings(programme).get("covariate_units")
+    units = dict(programme_settings(programme).covariate_units)
     return Reference(
         stations=pd.DataFrame({C.STATION: [s.code for s in stations], H.RETIRED: [s.retired for s in stations]}),
         species=species,

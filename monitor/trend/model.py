@@ -21,7 +21,7 @@ year as a factor (yearly estimates) instead of b1 t.
 The year effect (Piepho & Ogutu 2002; Urquhart, Paulsen & Larsen 1998).  Station-years of
 one year are not independent: the information about a trend comes from the number of
 years.  Rule: the year effect is in the model by default when the series has at least
-YEAR_EFFECT_MIN_YEARS (5, monitor.trend.glmm) years with data, the fewest with which a call is made at all
+YEAR_EFFECT_MIN_YEARS (monitor/settings.py) years with data, the fewest with which a call is made at all
 (a year SD from fewer years is barely estimable; shorter series are called "unclear"
 anyway).  With a year effect the slope's interval, its profile interval and the call use
 a t reference with the between-year (containment) df of the engine
@@ -427,7 +427,7 @@ class TrendModel:
         effects, log-likelihood and AIC reported are those of the factor model.
     year_random : {None, "iid", "ar1", "none"}
         The random year effect of the linear model, crossed with station and site: None
-        (default) is "iid" from YEAR_EFFECT_MIN_YEARS (5) years with data with the Laplace
+        (default) is "iid" from YEAR_EFFECT_MIN_YEARS years with data with the Laplace
         method, else "none"; "ar1" makes consecutive calendar years alike.  Not used in the
         year-factor model, where the year fixed effects take its place.
     site_by_year : bool
@@ -542,7 +542,7 @@ class TrendModel:
                     f"With {len(self.years)} years of data (fewer than {YEAR_EFFECT_MIN_YEARS}) the model has no "
                     "year-to-year effect: the interval assumes years do not fluctuate together and may be too "
                     "narrow.", "info"))
-        elif year_random == "none" and len(self.years) >= YEAR_EFFECT_MIN_YEARS:
+        elif year_random == "none" and default_year_effect(len(self.years)):
             self._notes.append(Diagnostic(
                 "no_year_effect",
                 "The model was asked to leave out the year-to-year effect: if good and bad years are shared "
