@@ -10,15 +10,15 @@ A family object is stateless.  What belongs to one fit (the data, the trials, th
 dispersion) lives in a density object made for that fit (``monitor.trend.families``), so one
 family object serves any number of fits at once.
 
-Families (eta the linear predictor b0 + b1 t + u_station + v_site + w_year, on the link scale)
----------------------------------------------------------------------------------------------
-poisson            y ~ Poisson(exp(eta))                                   counts, log link
-poisson-lognormal  y ~ Poisson(exp(eta + e)),  e ~ N(0, sd_obs^2)          counts, log link
-negbin             y ~ NB2(mean exp(eta), size theta), Var = mu + mu^2/theta counts, log link
-binomial           k ~ Binomial(n, expit(eta + e)),  e optional            k of n, logit link
-logit-normal       logit(cover / 100) = eta + r,  r ~ N(0, sigma^2)        cover, a linear mixed model
-lognormal          log(y) = eta + r,  r ~ N(0, sigma^2)                    positive values, a linear
-                                                                           mixed model on log y
+Families (eta the linear predictor b0 + b1 t + u_station + v_site + w_year, on the link scale)::
+
+    poisson            y ~ Poisson(exp(eta))                                   counts, log link
+    poisson-lognormal  y ~ Poisson(exp(eta + e)),  e ~ N(0, sd_obs^2)          counts, log link
+    negbin             y ~ NB2(mean exp(eta), size theta), Var = mu + mu^2/theta counts, log link
+    binomial           k ~ Binomial(n, expit(eta + e)),  e optional            k of n, logit link
+    logit-normal       logit(cover / 100) = eta + r,  r ~ N(0, sigma^2)        cover, a linear mixed model
+    lognormal          log(y) = eta + r,  r ~ N(0, sigma^2)                    positive values, a linear
+                                                                               mixed model on log y
 
 For the lognormal family exp(b1) - 1 is the annual change of the geometric mean (the median of
 a log-normal value), and the mean over stations and visits is exp(eta + s^2 / 2) with s^2 the

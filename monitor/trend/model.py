@@ -1,23 +1,19 @@
 r"""Trend models for permanent-quadrat monitoring: TrendModel -> TrendResult.
 
 Models (i = a visit of station j in site s in year y; t = y - c, c the mid-point of the
-first and last year with data):
+first and last year with data)::
 
-count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s + w_y
-count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + w_y + e_i,  e_i ~ N(0, sd_obs^2)
-count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s + w_y
-frequency / pin_hits / presence, "binomial"
-                            k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s + w_y (+ e_i)
-cover, "logit-normal"       z_i = logit(p_i) = b0 + b1 t + u_j + v_s + w_y + e_i,
-                            p_i = cover_i / 100, e_i ~ N(0, sigma^2)   (linear mixed model, ML or REML)
-positive values, "lognormal"
-                            log(y_i) = b0 + b1 t + u_j + v_s + w_y + e_i, e_i ~ N(0, sigma^2)
-                            (linear mixed model on log y, ML or REML; exp(b1) - 1 is the annual
-                            change of the geometric mean)
-
-Each family is an object of the registry monitor.families (link, response, dispersion,
-wording); a fit builds its own density object from it (monitor.trend.families), so the
-registry's objects never hold a fit's data or fitted dispersion.
+    count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s + w_y
+    count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + w_y + e_i,  e_i ~ N(0, sd_obs^2)
+    count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s + w_y
+    frequency / pin_hits / presence, "binomial"
+                                k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s + w_y (+ e_i)
+    cover, "logit-normal"       z_i = logit(p_i) = b0 + b1 t + u_j + v_s + w_y + e_i,
+                                p_i = cover_i / 100, e_i ~ N(0, sigma^2)   (linear mixed model, ML or REML)
+    positive values, "lognormal"
+                                log(y_i) = b0 + b1 t + u_j + v_s + w_y + e_i, e_i ~ N(0, sigma^2)
+                                (linear mixed model on log y, ML or REML; exp(b1) - 1 is the annual
+                                change of the geometric mean)
 
 with u_j ~ N(0, sd_station^2), v_s ~ N(0, sd_site^2) (site optional) and w_y the year
 effect: the fluctuation of a year shared by every station (weather), N(0, sd_year^2)
@@ -25,6 +21,10 @@ independently ("iid") or a stationary order-1 autoregression over calendar years
 Optionally a site-by-year effect (sites fluctuate apart), an observer intercept crossed
 with station, a random year slope by site (lme4's (t || site)), extra fixed covariates;
 year as a factor (yearly estimates) instead of b1 t.
+
+Each family is an object of the registry monitor.families (link, response, dispersion,
+wording); a fit builds its own density object from it (monitor.trend.families), so the
+registry's objects never hold a fit's data or fitted dispersion.
 
 The year effect (Piepho & Ogutu 2002; Urquhart, Paulsen & Larsen 1998).  Station-years of
 one year are not independent: the information about a trend comes from the number of
