@@ -48,6 +48,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from monitor import measures
 from monitor.errors import InputError, InputProblem, ProblemCounter
 from monitor.io.headers import canonical_header
 
@@ -557,8 +558,9 @@ def _shape_expected(raw: list[str], cells: list[str], width: int, written_width:
             "row; write every cell, blank ones as nothing between two commas)")
 
 
-_WIDE_RE = re.compile(r"^\s*[^:\s]+\s*:\s*(count|cover|presence|frequency\s*/\s*\d+|pin_hits\s*/\s*\d+)\s*$",
-                      re.IGNORECASE)
+_WIDE_RE = re.compile(r"^\s*[^:\s]+\s*:\s*(" + "|".join(
+    re.escape(m.code) + (r"\s*/\s*\d+" if m.needs_n else "") for m in measures.REGISTRY.values()) + r")\s*$",
+    re.IGNORECASE)
 _COV_RE = re.compile(r"^\s*cov\s*:\s*([^\[\]]+?)\s*(?:\[\s*([^\[\]]*?)\s*\])?\s*$", re.IGNORECASE)
 
 

@@ -21,9 +21,9 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures as registry
 from monitor.errors import InputError, InputProblem, ProblemCounter
 from monitor.io import headers as H
-from monitor.measures import VALUE_RULES
 
 WARNING = "warning"
 
@@ -343,12 +343,12 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
         # ranges per measure: one rule each, from monitor.measures (the phone field sheet checks the same)
         whole = np.isclose(values, np.round(values), rtol=0, atol=1e-9)
         is_ = {m: measures == m for m in C.MEASURES}
-        for measure, value_rule in VALUE_RULES.items():
+        for measure, value_rule in registry.VALUE_RULES.items():
             chosen = is_[measure]
             if not chosen.any():
                 continue
             with np.errstate(invalid="ignore"):
-                outside = values < value_rule.minimum
+                outside = values <= value_rule.minimum if value_rule.above_minimum else values < value_rule.minimum
                 if value_rule.maximum is not None:
                     outside |= values > value_rule.maximum
                 if value_rule.whole:
@@ -358,15 +358,15 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             for i in np.flatnonzero(chosen & outside):
                 add(rows[i], fields[i], _plain(shown[i]),
                     value_rule.wording(None if np.isnan(ns[i]) else int(ns[i])))
-        kn = is_[C.MEASURE_FREQUENCY] | is_[C.MEASURE_PIN_HITS]
+        kn = np.isin(measures, registry.k_of_n_codes())
         distinct_n = np.array([registered.get(pair) for pair in distinct_pairs] or [None], dtype=object)
         programme_n = pd.to_numeric(pd.Series(distinct_n), errors="coerce").to_numpy(dtype=float)[pair_at]
         bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
         for i in np.flatnonzero(bad):
-            unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
+            entry = registry.get(measures[i])
             shown = None if np.isnan(ns[i]) else int(ns[i])
             add(rows[i], fields[i], f"n={shown}",
-                f"n = {int(programme_n[i])} {unit}, the programme's {'grid' if unit == 'cells' else 'frame'} "
+                f"n = {int(programme_n[i])} {entry.trials}, the programme's {entry.trial_source} "
                 f"for {species[i]}")
 
         # species windows (phenology): warnings; month-day worked out once per distinct date

@@ -24,6 +24,7 @@ from importlib import metadata
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import InputError
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
 from monitor.report.fits import FitRow
@@ -558,13 +559,10 @@ def _sig(value: float, digits: int = 3) -> str:
     return f"{rounded:,.{decimals}f}"
 
 
-QUANTITY_LABEL = {
-    "density": ("Density", "per m²"),
-    "total": ("Estimated total", ""),
-    "cover": ("Mean cover", "%"),
-    "frequency": ("Frequency", "of cells"),
-    "presence": ("Stations occupied", "share"),
-}
+# each measure's estimate (monitor/measures.py) and a count's site total: column heading and unit
+QUANTITY_LABEL = {"total": ("Estimated total", "")}
+for _measure in measures.REGISTRY.values():
+    QUANTITY_LABEL.setdefault(_measure.quantity, _measure.quantity_label)
 
 
 def density_unit(value: float) -> tuple[str, float]:
@@ -977,7 +975,7 @@ def build_report_context(
             figures.append(FigureRef(
                 key=f"{stem}-indices", kind="indices",
                 alt=_figure_alt_indices(name, measure_label, first, last, annual_text, marks),
-                caption=(f"Yearly estimates (points, 95% intervals) and fitted trend (line, 95% band), "
+                caption=("Yearly estimates (points, 95% intervals) and fitted trend (line, 95% band), "
                          + (f"as {value_label}." if value_label else f"relative to {first}.")),
             ))
         changes_df = station_changes.get((sp, ms))

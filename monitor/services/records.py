@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.db.models import utcnow
@@ -895,7 +896,7 @@ def parse_value(label: str, field_: str, measure: str, text: str) -> float:
     """A value typed at the command line, read as a field sheet's cell would be."""
     from monitor.io._tables import parse_bool, parse_number
 
-    if measure == C.MEASURE_PRESENCE:
+    if measure in measures.of_kind(measures.KIND_BINARY):
         flag = parse_bool(text) if text.strip() else None
         if flag is None:
             raise InputError(InputProblem(label, None, field_, text, "presence as 0/1 or yes/no"))
