@@ -6,8 +6,12 @@ trend and power stages, 0.02 in the programme record and the CLI).
 
 from __future__ import annotations
 
+import dataclasses
 import inspect
+import math
 import re
+
+import pytest
 
 from monitor import settings
 from tests.conftest import REPO_ROOT
@@ -60,3 +64,127 @@ def test_trend_minimums_are_the_settings():
 
     assert MIN_YEARS == settings.MIN_TREND_YEARS
     assert MIN_STATIONS == settings.MIN_TREND_STATIONS == DESIGN_MIN_STATIONS
+
+
+# --- the one settings object ------------------------------------------------------------------------------
+
+
+def _programme_json(tmp_path, settings_doc):
+    import json
+
+    from monitor.io.blank import programme_document
+
+    doc = programme_document()
+    doc["settings"] = settings_doc
+    path = tmp_path / "programme.json"
+    path.write_text(json.dumps(doc), encoding="utf-8")
+    return path
+
+
+def test_every_settings_key_is_documented_and_loaded():
+    from monitor.io import filespec as FS
+
+    # docs/files.md is generated from FS.SETTINGS: the loader's keys are the page's keys
+    assert tuple(f.name for f in FS.SETTINGS.fields) == settings.SETTINGS_KEYS
+    loaded = set(settings.settings_field_names())
+    assert set(settings.SETTINGS_KEYS + settings.STORED_KEYS) <= loaded | {"required_covariates"}
+    # every attribute but the margin (a key of its own at the top of programme.json) comes from a key
+    assert loaded - {"change_margin"} == set(settings.SETTINGS_KEYS + settings.STORED_KEYS)
+
+
+def test_defaults_are_the_module_constants():
+    loaded, problems = settings.parse_settings({}, file="programme.json")
+    assert problems == []
+    assert loaded == settings.ProgrammeSettings()
+    assert loaded.change_margin == settings.DEFAULT_CHANGE_MARGIN
+    assert loaded.generalise_m == settings.GENERALISE_M
+    assert loaded.setup_minutes == settings.DEFAULT_SETUP_MINUTES
+    assert loaded.time_zone == settings.DEFAULT_TIME_ZONE
+    assert loaded.triggers == () and loaded.field_packs_for_outside_crews is False
+
+
+def test_the_demo_settings_load_typed():
+    import json
+
+    doc = json.loads((REPO_ROOT / "demo_programme" / "programme.json").read_text(encoding="utf-8"))
+    loaded, problems = settings.parse_settings(doc["settings"], file="programme.json",
+                                               margin=doc.get("change_margin"))
+    assert problems == []
+    assert loaded.setup_minutes == float(doc["settings"]["setup_minutes"])
+    assert dict(loaded.minutes_per_quadrat) == {k: float(v) for k, v in doc["settings"]["minutes_per_quadrat"].items()}
+    assert [t.species for t in loaded.triggers] == [t["species"] for t in doc["settings"]["triggers"]]
+    assert loaded.required_covariates == tuple(sorted(doc["settings"]["covariate_units"]))
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        loaded.setup_minutes = 1.0  # type: ignore[misc]
+    with pytest.raises(TypeError):
+        loaded.minutes_per_quadrat["count"] = 1.0  # type: ignore[index]
+
+
+@pytest.mark.parametrize("settings_doc,key,expected", [
+    ({"generalise_m": -5}, "settings.generalise_m", "metres > 0"),
+    ({"setup_minutes": "ten"}, "settings.setup_minutes", "minutes per station"),
+    ({"minutes_per_quadrat": {"count": "six"}}, "settings.minutes_per_quadrat.count", "minutes >= 0"),
+    ({"minutes_per_quadrat": {"height": 3}}, "settings.minutes_per_quadrat.height", "a measure"),
+    ({"field_packs_for_outside_crews": "yes"}, "settings.field_packs_for_outside_crews", "true or false"),
+    ({"covariate_units": ["%"]}, "settings.covariate_units", "an object"),
+    ({"colour": "green"}, "settings.colour", "a known key"),
+    ({"triggers": [{"species": "MARVIO", "measure": "count", "kind": "sideways", "threshold": 0.1,
+                    "objective": "o", "response": "r"}]}, "settings.triggers[0].kind", "one of decline"),
+    ({"triggers": [{"species": "MARVIO", "measure": "count", "kind": "decline", "threshold": 0.4,
+                    "objective": "o", "response": "r"}]}, "settings.triggers[0].years", "whole number"),
+    ({"triggers": [{"species": "MARVIO", "measure": "count", "kind": "decline", "threshold": 40, "years": 10,
+                    "objective": "o", "response": "r"}]}, "settings.triggers[0].threshold", "between 0 and 1"),
+    ({"triggers": [{"species": "MARVIO", "kind": "decline", "threshold": 0.4, "years": 10,
+                    "objective": "o", "response": "r"}]}, "settings.triggers[0].measure", "required"),
+])
+def test_a_bad_setting_is_refused_naming_file_key_and_expectation(tmp_path, settings_doc, key, expected):
+    from monitor.errors import InputError
+    from monitor.io.settings import read_programme_json
+
+    with pytest.raises(InputError) as err:
+        read_programme_json(_programme_json(tmp_path, settings_doc))
+    line = str(err.value)
+    assert "\n" not in line.strip()
+    assert "programme.json" in line and f"'{key}'" in line and expected in line
+
+
+def test_stored_settings_are_checked_when_used():
+    # the services read a stored programme's settings through programme_settings: a bad stored value is an
+    # error naming the programme and key (it used to fall back to a default in one service and not another)
+    from types import SimpleNamespace
+
+    from monitor.errors import InputError
+
+    good = SimpleNamespace(code="HVR", change_margin=0.05,
+                           settings_json='{"generalise_m": 500, "time_zone": "Europe/London"}')
+    loaded = settings.programme_settings(good)
+    assert (loaded.generalise_m, loaded.time_zone, loaded.change_margin) == (500.0, "Europe/London", 0.05)
+    for text, key in (('{"generalise_m": "far"}', "settings.generalise_m"), ("{not json", "settings_json"),
+                      ('{"time_zone": "Mars/Olympus"}', "settings.time_zone")):
+        with pytest.raises(InputError, match=re.escape(f"'{key}'")) as err:
+            settings.programme_settings(SimpleNamespace(code="HVR", change_margin=0.02, settings_json=text))
+        assert "programme HVR" in str(err.value)
+    with pytest.raises(InputError, match="change_margin"):
+        settings.programme_settings(SimpleNamespace(code="HVR", change_margin=1.5, settings_json="{}"))
+
+
+def test_only_the_settings_module_parses_stored_settings():
+    # one reader: no other module decodes programme.settings_json (the set-up loader and the migrations write it)
+    writers = {"monitor/settings.py", "monitor/services/setup.py", "monitor/db/models.py"}
+    offenders = [str(p.relative_to(REPO_ROOT)) for p in (REPO_ROOT / "monitor").rglob("*.py")
+                 if "settings_json" in p.read_text(encoding="utf-8")
+                 and str(p.relative_to(REPO_ROOT)) not in writers]
+    assert offenders == []
+
+
+def test_the_year_effect_rule_is_the_settings():
+    from monitor.power.model import Design
+    from monitor.power.study import analysis_df
+    from monitor.trend.glmm import default_year_effect
+
+    for n in range(2, 9):
+        expected = n >= settings.MIN_YEAR_EFFECT_YEARS
+        assert default_year_effect(n) is settings.year_effect_by_default(n) is expected
+        # the power study's approximation judges the engine's slope on t(n - 2) exactly where it fits one
+        df = analysis_df("trend", Design(n_stations=20, n_years=n), None)
+        assert df == (n - 2 if expected else math.inf)

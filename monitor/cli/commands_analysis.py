@@ -10,7 +10,7 @@ import click
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
 from monitor.cli.tables import trend_number_rows, write_workbook, xlsx_option
-from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
+from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_YEAR_EFFECT_YEARS, change_margin
 
 
 def _pct(x: float | None) -> str:
@@ -80,7 +80,8 @@ def parallel_options(func):
                                  "cover logit-normal).")
 @click.option("--year-effect", "year_effect", type=click.Choice(["iid", "ar1"]), default=None,
               help="Form of the random year effect shared by all stations: independent years (iid) or an "
-                   "order-1 autoregression, consecutive years alike (ar1). Default: iid from 5 years with data.")
+                   "order-1 autoregression, consecutive years alike (ar1). Default: iid from "
+                   f"{MIN_YEAR_EFFECT_YEARS} years with data.")
 @click.option("--no-year-effect", "no_year_effect", is_flag=True,
               help="Leave out the random year effect (intervals then ignore good and bad years shared by the "
                    "stations, and are too narrow when there are such years).")
@@ -346,6 +347,9 @@ def _int_list(text: str) -> list[int]:
                    "without --species the default is 0, with it the fitted value, which this replaces.")
 @click.option("--sd-site-year", type=float, default=None,
               help="SD of each site's own year-to-year fluctuation (link scale); default 0, or the fitted value.")
+@click.option("--year-rho", type=float, default=None,
+              help="Correlation of consecutive years' fluctuations, an AR(1) over years (-1 to 1, e.g. 0.4: "
+                   "good years come in runs); default 0, or the value fitted with --year-effect ar1.")
 @click.option("--trials", type=int, default=None,
               help="Without --species, family binomial: cells in the grid or pins in the frame (1: presence).")
 @click.option("--change", type=float, required=True, help="Total change over --over years, e.g. -0.5 for a 50% fall.")
@@ -369,7 +373,8 @@ def _int_list(text: str) -> list[int]:
               help="Save power against stations, one line per number of years, with the unlimited-stations ceiling.")
 @format_option
 @click.pass_obj
-def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, sd_year, sd_site_year, trials,
+def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_sd, sd_year, sd_site_year, year_rho,
+                  trials,
                   change, over_years, stations, years, revisit, missed, alpha, side, target, replicates, seed,
                   workers, cluster, no_search, figure, as_json, as_csv):
     """Can the design detect the change that matters? Simulated power per design, with the approximation beside it."""
@@ -381,12 +386,16 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
     for name, value in (("--sd-year", sd_year), ("--sd-site-year", sd_site_year)):
         if value is not None and not value >= 0:
             raise click.BadParameter(f"{value}: expected an SD of 0 or more", param_hint=name)
+    if year_rho is not None and not -1 < year_rho < 1:
+        raise click.BadParameter(f"{year_rho}: expected a correlation strictly between -1 and 1",
+                                 param_hint="--year-rho")
     if trials is not None and trials < 1:
         raise click.BadParameter(f"{trials}: expected a whole number of cells or pins, 1 or more",
                                  param_hint="--trials")
     if species:
         components, source = power.components_for(ctx.db, species, programme_code=ctx.programme)
-        changed = {k: v for k, v in (("year_sd", sd_year), ("site_year_sd", sd_site_year)) if v is not None}
+        changed = {k: v for k, v in (("year_sd", sd_year), ("site_year_sd", sd_site_year), ("year_rho", year_rho))
+                   if v is not None}
         if changed:
             components = replace(components, **changed)
             source += " (year-to-year SDs as given)"
@@ -394,7 +403,7 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
         if mean is None:
             raise click.UsageError("give --species (fitted to the programme) or --mean with the SDs")
         sds = {"station_sd": station_sd, "site_sd": site_sd, "year_sd": sd_year or 0.0,
-               "site_year_sd": sd_site_year or 0.0}
+               "site_year_sd": sd_site_year or 0.0, "year_rho": year_rho or 0.0}
         sds["residual_sd" if family == "logit-normal" else "observation_sd"] = obs_sd
         if family == "binomial":
             sds["trials"] = trials if trials is not None else 1

@@ -6,10 +6,9 @@ from pathlib import Path
 
 import click
 
-from monitor.settings import GENERALISE_M
-
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, say
+from monitor.settings import GENERALISE_M
 
 
 @cli.group("records")
@@ -39,15 +38,15 @@ def import_command(ctx: Context, files: tuple[Path, ...], dry_run: bool, correct
 
     Files are imported in order; the first file refused stops the command (the files before it stay
     imported; every file's outcome is reported, with --json too)."""
-    from monitor.services import records
+    from monitor.services.imports import OUTCOME_REFUSED, import_files
 
     fmt = chosen_format(as_json, as_csv)
-    run = records.import_files(ctx.db, list(files), programme_code=ctx.programme, dry_run=dry_run,
+    run = import_files(ctx.db, list(files), programme_code=ctx.programme, dry_run=dry_run,
                                correct=correct, reason=reason, accept_warnings=accept_warnings,
                                day_first=day_first, sheet=sheet)
     if fmt == "table":
         for report in run.reports:
-            if report.outcome not in (records.OUTCOME_REFUSED,):
+            if report.outcome not in (OUTCOME_REFUSED,):
                 say(describe_import(report))
     else:
         emit([r.to_dict() for r in run.reports] if fmt == "json" else
@@ -58,9 +57,9 @@ def import_command(ctx: Context, files: tuple[Path, ...], dry_run: bool, correct
 
 
 def describe_import(report) -> str:
-    from monitor.services import records
+    from monitor.services.imports import OUTCOME_NOT_ATTEMPTED, OUTCOME_NOTHING
 
-    if report.outcome == records.OUTCOME_NOT_ATTEMPTED:
+    if report.outcome == OUTCOME_NOT_ATTEMPTED:
         return f"{report.file}: not attempted (an earlier file was refused)"
     if report.already_imported:
         return f"{report.file}: already imported, nothing to do ({report.warnings[0]})"
@@ -70,7 +69,7 @@ def describe_import(report) -> str:
              f"{report.observations_added} values, {report.covariates_added} covariate values; "
              f"{report.visits_unchanged} visits unchanged; "
              f"{len(report.changes)} stored values {'would change' if report.dry_run else 'corrected'}"
-             + ("; nothing to apply, nothing recorded" if report.outcome == records.OUTCOME_NOTHING else "")]
+             + ("; nothing to apply, nothing recorded" if report.outcome == OUTCOME_NOTHING else "")]
     lines += [f"  change: {c.line()}" for c in report.changes]
     lines += [f"  accepted warning: {w}" for w in report.warnings]
     return "\n".join(lines)
@@ -81,9 +80,9 @@ def describe_import(report) -> str:
 @click.pass_obj
 def certify_command(ctx: Context, year: int) -> None:
     """Certify (lock) season YEAR after review: its records then change only after an unlock."""
-    from monitor.services import records
+    from monitor.services.locks import set_lock
 
-    say(records.set_lock(ctx.db, year, lock=True, programme_code=ctx.programme))
+    say(set_lock(ctx.db, year, lock=True, programme_code=ctx.programme))
 
 
 @records_group.command("unlock")
@@ -92,9 +91,9 @@ def certify_command(ctx: Context, year: int) -> None:
 @click.pass_obj
 def unlock_command(ctx: Context, year: int, reason: str) -> None:
     """Unlock a certified season YEAR, with a reason that goes to the change log."""
-    from monitor.services import records
+    from monitor.services.locks import set_lock
 
-    say(records.set_lock(ctx.db, year, lock=False, reason=reason, programme_code=ctx.programme))
+    say(set_lock(ctx.db, year, lock=False, reason=reason, programme_code=ctx.programme))
 
 
 @records_group.command("compare")
@@ -105,9 +104,9 @@ def compare_command(first: Path, second: Path, as_json: bool, as_csv: bool) -> N
     """Double entry: list every mismatch between two keyings FIRST and SECOND of the same sheets
     (station, date, species, field, both values, both rows).  Nothing is stored; exit 1 if they differ."""
     from monitor.errors import DataError
-    from monitor.services import records
+    from monitor.services.double_entry import compare_files
 
-    mismatches = records.compare_files(first, second)
+    mismatches = compare_files(first, second)
     fmt = chosen_format(as_json, as_csv)
     if fmt != "table" or len(mismatches):
         emit(mismatches, fmt)
@@ -132,9 +131,9 @@ def set_command(ctx: Context, station: str, year: int, species: str, measure: st
     """Add or correct one VALUE of SPECIES (by MEASURE) at STATION's visit in season YEAR, audited.
 
     The value is checked like an imported one; a certified season must be unlocked first."""
-    from monitor.services import records
+    from monitor.services.corrections import set_value
 
-    change = records.set_value(ctx.db, station, year, species, measure, value, reason=reason, repeat_no=repeat_no,
+    change = set_value(ctx.db, station, year, species, measure, value, reason=reason, repeat_no=repeat_no,
                                programme_code=ctx.programme)
     if change.old == change.new:
         say(f"{change.station} {change.date}: {change.field} is already {change.new:g}; nothing changed")
@@ -157,7 +156,7 @@ def set_command(ctx: Context, station: str, year: int, species: str, measure: st
 def set_visit_command(ctx: Context, station: str, year: int, protocol: str | None, covariates: tuple[str, ...],
                       reason: str, repeat_no: int) -> None:
     """Correct the protocol or covariates of STATION's visit in season YEAR, audited."""
-    from monitor.services import records
+    from monitor.services.corrections import set_visit
 
     values = {}
     for item in covariates:
@@ -165,7 +164,7 @@ def set_visit_command(ctx: Context, station: str, year: int, protocol: str | Non
         if not sep or not name.strip():
             raise click.BadParameter(f"{item!r}: expected NAME=VALUE", param_hint="--covariate")
         values[name.strip()] = value.strip()
-    changes = records.set_visit(ctx.db, station, year, reason=reason, protocol=protocol, covariates=values,
+    changes = set_visit(ctx.db, station, year, reason=reason, protocol=protocol, covariates=values,
                                 repeat_no=repeat_no, programme_code=ctx.programme)
     if not changes:
         say(f"{station} {year}: nothing changed (already as given)")
@@ -186,9 +185,9 @@ def set_visit_command(ctx: Context, station: str, year: int, protocol: str | Non
 def photo_command(ctx: Context, station: str, photo_path: str, visit_date, bearing: float | None,
                   height: float | None, notes: str) -> None:
     """Link a photo to STATION (and to its visit on --visit-date) with its framing, for repeat photos."""
-    from monitor.services import records
+    from monitor.services.photos import add_photo
 
-    photo_id = records.add_photo(ctx.db, station, path=photo_path, visit_date=visit_date.date() if visit_date else None,
+    photo_id = add_photo(ctx.db, station, path=photo_path, visit_date=visit_date.date() if visit_date else None,
                                  bearing=bearing, height=height, notes=notes, programme_code=ctx.programme)
     say(f"photo {photo_id} linked to {station}" + (f" (visit of {visit_date:%Y-%m-%d})" if visit_date else ""))
 
@@ -207,9 +206,9 @@ def station_group() -> None:
 @click.pass_obj
 def retire_command(ctx: Context, code: str, reason: str, replaced_by: str | None, when) -> None:
     """Retire station CODE with a reason and an optional replacement; its records stay."""
-    from monitor.services import records
+    from monitor.services.stations import retire_station
 
-    say(records.retire_station(ctx.db, code, reason=reason, replaced_by=replaced_by,
+    say(retire_station(ctx.db, code, reason=reason, replaced_by=replaced_by,
                                date=when.date() if when else None, programme_code=ctx.programme))
 
 
@@ -220,9 +219,9 @@ def retire_command(ctx: Context, code: str, reason: str, replaced_by: str | None
 def history_command(ctx: Context, code: str, as_json: bool) -> None:
     """Station CODE's full history: visits with observers and values, corrections, management events,
     photos and quality flags."""
-    from monitor.services import records
+    from monitor.services.history import station_history
 
-    history = records.station_history(ctx.db, code, programme_code=ctx.programme)
+    history = station_history(ctx.db, code, programme_code=ctx.programme)
     if as_json:
         emit(history, "json")
         return

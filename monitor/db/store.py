@@ -43,6 +43,8 @@ class Store:
     engine: Engine
     connection: Connection | None = field(default=None, repr=False)  # set inside a read snapshot
     shared: bool = False                                             # a snapshot's store: dispose() leaves it open
+    #: tables derived once per snapshot (a shared store only: its data cannot change while it is open)
+    memo: dict = field(default_factory=dict, repr=False)
 
     @classmethod
     def open(cls, path_or_url: str | None = None, *, check: bool = True) -> Store:

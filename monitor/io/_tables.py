@@ -39,12 +39,12 @@ from __future__ import annotations
 import codecs
 import csv
 import datetime as dt
-import io
+import itertools
 import math
 import os
 import re
 import zipfile
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -58,18 +58,23 @@ MAX_FIELD_CHARS = 100_000
 
 @dataclass
 class RawTable:
-    """A file read as strings: canonical header names, the headers as written, and numbered rows."""
+    """A file read as strings: canonical header names, the headers as written, and numbered rows.
+
+    ``rows`` is a list, or, read with ``stream=True``, an iterator that reads the file as it is consumed
+    (once): the shape problems of its rows reach ``pending`` as they are read.
+    """
 
     file: str
     raw_headers: list[str]                  # as written (stripped)
     headers: list[str]                      # canonical (see headers.HEADER_ALIASES), same order
-    rows: list[tuple[int, list[str]]] = field(default_factory=list)  # (row number, cells as strings)
+    rows: Iterable[tuple[int, list[str]]] = field(default_factory=list)  # (row number, cells as strings)
     header_row: int = 1
     pending: ProblemCounter = field(default_factory=ProblemCounter)  # shape problems found while reading
     sheet: str | None = None                # the workbook sheet read (None for a CSV)
 
     def problems(self) -> Problems:
-        """A problem collector for this file, already holding the problems found while reading it."""
+        """A problem collector for this file, holding the problems found while reading it (for a stream:
+        the rows read so far)."""
         collector = Problems(self.file)
         collector.absorb(self.pending)
         return collector
@@ -204,13 +209,23 @@ def _not_a_table(data: bytes, path: Path, file: str) -> None:
 
 
 # --- CSV -----------------------------------------------------------------------------------------
-def _csv_rows(text: str, file: str) -> list[tuple[int, list[str]]]:
-    """Split CSV text (RFC 4180) into (line number, cells); blank lines dropped."""
+def _lines(text: str) -> Iterator[str]:
+    """The text's lines, each with its '\\n', one at a time (no copy of the whole text)."""
+    start, end = 0, len(text)
+    while start < end:
+        stop = text.find("\n", start)
+        stop = end if stop < 0 else stop + 1
+        yield text[start:stop]
+        start = stop
+
+
+def _csv_rows(text: str, file: str) -> Iterator[tuple[int, list[str]]]:
+    """Split CSV text (RFC 4180) into (line number, cells), one row at a time; blank lines dropped."""
     # csv.field_size_limit is process-global; we guard length ourselves instead of raising it.
-    text = text.replace("\r\n", "\n").replace("\r", "\n")
+    if "\r" in text:
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
     _check_separator(text, file)
-    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
-    out: list[tuple[int, list[str]]] = []
+    reader = csv.reader(_lines(text), strict=True)
     start = 1
     while True:
         try:
@@ -224,13 +239,13 @@ def _csv_rows(text: str, file: str) -> list[tuple[int, list[str]]]:
         start = reader.line_num + 1
         if not any(c.strip() for c in cells):
             continue
-        out.append((line, cells))
-    return out
+        yield line, cells
 
 
 def _check_separator(text: str, file: str) -> None:
     """A file separated by semicolons or tabs (what spreadsheet programs write in some locales) is named so."""
-    lines = [line for line in text.split("\n", 20)[:20] if line.strip()]
+    lines = [line for line, _ in zip(_lines(text), range(20)) if line.strip()]
+    lines = [line.rstrip("\n") for line in lines]
     if not lines:
         return
     header = lines[0]
@@ -334,64 +349,82 @@ def _sheet_has_cells(worksheet) -> bool:
 
 
 def _xlsx_rows(path: Path, file: str, sheet: str | None = None
-               ) -> tuple[list[tuple[int, list[str]]], list[CellIssue], str]:
-    """The chosen sheet's rows as text, the cells that hold no readable value, and the sheet's name.
+               ) -> tuple[Iterator[tuple[int, list[str], list[CellIssue]]], str]:
+    """The chosen sheet's rows as text, each with the cells that hold no readable value, one row at a time,
+    and the sheet's name.
 
     The workbook is opened twice (both read-only, streaming): once for the values, with the results of
     formulas as the spreadsheet program last stored them, and once for the formulas themselves, so that a
-    formula with no stored result is told apart from a blank cell.
+    formula with no stored result is told apart from a blank cell.  The sheet is chosen (or refused) at
+    once; the rows are read as the iterator is consumed, and the workbooks closed at its end.
     """
     try:
         import openpyxl
     except ImportError:  # pragma: no cover - a declared dependency
         raise InputError(InputProblem(file, None, None, None, "openpyxl installed to read .xlsx")) from None
-    out: list[tuple[int, list[str]]] = []
-    issues: list[CellIssue] = []
+    books = []
     try:
-        values_book = openpyxl.load_workbook(path, read_only=True, data_only=True)
-        formula_book = openpyxl.load_workbook(path, read_only=True, data_only=False)
-        try:
-            values_sheet = _pick_sheet(values_book, sheet, file)
-            name = values_sheet.title
-            formula_sheet = formula_book[name]
-            values_sheet.reset_dimensions()
-            formula_sheet.reset_dimensions()
-            for number, (cells, formulas) in enumerate(zip(values_sheet.iter_rows(), formula_sheet.iter_rows(),
-                                                           strict=False), start=1):
-                texts = []
-                for k, cell in enumerate(cells):
-                    value = cell.value
-                    kind = getattr(cell, "data_type", None)
-                    if value is None and k < len(formulas) and getattr(formulas[k], "data_type", None) == _FORMULA_TYPE:
-                        issues.append(CellIssue(number, k, f"{_column_letter(k)}{number}", str(formulas[k].value),
-                                                "a value: the formula has no stored result (the file was written "
-                                                "by a program that does not calculate); open and save it in a "
-                                                "spreadsheet program, or type the value"))
-                        texts.append("")
-                        continue
-                    if kind == _ERROR_TYPE:
-                        issues.append(CellIssue(number, k, f"{_column_letter(k)}{number}", str(value),
-                                                "a value, not a spreadsheet error"))
-                        texts.append("")
-                        continue
-                    texts.append(_cell_text(value, getattr(cell, "number_format", None)))
-                if not any(c.strip() for c in texts) and not (issues and issues[-1].row == number):
-                    continue
-                out.append((number, texts))
-        finally:
-            values_book.close()
-            formula_book.close()
-    except InputError:
+        books.append(openpyxl.load_workbook(path, read_only=True, data_only=True))
+        books.append(openpyxl.load_workbook(path, read_only=True, data_only=False))
+        values_sheet = _pick_sheet(books[0], sheet, file)
+        name = values_sheet.title
+        formula_sheet = books[1][name]
+        values_sheet.reset_dimensions()
+        formula_sheet.reset_dimensions()
+    except BaseException as exc:
+        for book in books:
+            book.close()
+        _workbook_error(exc, file)
         raise
-    except (zipfile.BadZipFile, KeyError, OSError, ValueError, IndexError, TypeError, EOFError,
-            AttributeError) as exc:
+    return _xlsx_row_stream(values_sheet, formula_sheet, books, file), name
+
+
+def _workbook_error(exc: BaseException, file: str) -> None:
+    """Raise the one-line refusal for a workbook that cannot be read (a damaged file is the user's file)."""
+    if isinstance(exc, InputError) or not isinstance(exc, Exception):
+        return
+    if isinstance(exc, (zipfile.BadZipFile, KeyError, OSError, ValueError, IndexError, TypeError, EOFError,
+                        AttributeError)):
         raise InputError(InputProblem(file, None, None, type(exc).__name__,
                                       "a complete, readable .xlsx workbook (the file looks truncated "
                                       "or is not an Excel 2007+ workbook)")) from None
-    except Exception as exc:  # noqa: BLE001 - any parser failure in a damaged workbook is the user's file
-        raise InputError(InputProblem(file, None, None, type(exc).__name__,
-                                      "a complete, readable .xlsx workbook")) from None
-    return out, issues, name
+    # any other parser failure in a damaged workbook is the user's file too
+    raise InputError(InputProblem(file, None, None, type(exc).__name__,
+                                  "a complete, readable .xlsx workbook")) from None
+
+
+def _xlsx_row_stream(values_sheet, formula_sheet, books: list, file: str
+                     ) -> Iterator[tuple[int, list[str], list[CellIssue]]]:
+    try:
+        for number, (cells, formulas) in enumerate(zip(values_sheet.iter_rows(), formula_sheet.iter_rows(),
+                                                       strict=False), start=1):
+            texts = []
+            issues: list[CellIssue] = []
+            for k, cell in enumerate(cells):
+                value = cell.value
+                kind = getattr(cell, "data_type", None)
+                if value is None and k < len(formulas) and getattr(formulas[k], "data_type", None) == _FORMULA_TYPE:
+                    issues.append(CellIssue(number, k, f"{_column_letter(k)}{number}", str(formulas[k].value),
+                                            "a value: the formula has no stored result (the file was written "
+                                            "by a program that does not calculate); open and save it in a "
+                                            "spreadsheet program, or type the value"))
+                    texts.append("")
+                    continue
+                if kind == _ERROR_TYPE:
+                    issues.append(CellIssue(number, k, f"{_column_letter(k)}{number}", str(value),
+                                            "a value, not a spreadsheet error"))
+                    texts.append("")
+                    continue
+                texts.append(_cell_text(value, getattr(cell, "number_format", None)))
+            if not any(c.strip() for c in texts) and not issues:
+                continue
+            yield number, texts, issues
+    except BaseException as exc:
+        _workbook_error(exc, file)
+        raise
+    finally:
+        for book in books:
+            book.close()
 
 
 def _column_letter(index: int) -> str:
@@ -405,12 +438,17 @@ def _column_letter(index: int) -> str:
 
 
 # --- table -----------------------------------------------------------------------------------------
-def read_raw_table(source: str | os.PathLike[str], *, file: str | None = None, sheet: str | None = None) -> RawTable:
+def read_raw_table(source: str | os.PathLike[str], *, file: str | None = None, sheet: str | None = None,
+                   stream: bool = False) -> RawTable:
     """Read a CSV, or one sheet of an .xlsx, into a :class:`RawTable` (rules in the module docstring).
 
     Raises InputError for an empty file, an unreadable file, a missing header, duplicated header
     names (after case-folding and alias mapping), a row whose cells do not line up with the header,
     a formula without a stored result, or a workbook whose sheet to read is not clear.
+
+    With ``stream=True`` the header is read at once and the rows as ``table.rows`` is iterated (once):
+    memory then holds the file's text (a CSV) but not its rows, and the rows' problems reach
+    ``table.pending`` as they are met, so take ``table.problems()`` after reading them.
     """
     path = Path(source)
     label = file or file_label(path)
@@ -427,25 +465,26 @@ def read_raw_table(source: str | os.PathLike[str], *, file: str | None = None, s
                                                                      "a CSV file has no sheets"))
     if is_workbook:
         del data
-        rows, issues, name = _xlsx_rows(path, label, sheet)
-        table = table_from_rows(rows, label, csv_shape=False, issues=issues)
+        rows, name = _xlsx_rows(path, label, sheet)
+        table = table_from_rows(rows, label, csv_shape=False)
         table.sheet = name
-        return table
-    text, _ = decode_bytes(data, label)
-    del data
-    rows = _csv_rows(text, label)
-    del text
-    return table_from_rows(rows, label)
+    else:
+        text, _ = decode_bytes(data, label)
+        del data
+        table = table_from_rows(((number, cells, ()) for number, cells in _csv_rows(text, label)), label)
+    if not stream:
+        table.rows = list(table.rows)
+    return table
 
 
-def _title_rows(rows: list[tuple[int, list[str]]], file: str) -> None:
+def _title_rows(rows: list[tuple[int, list[str], object]], file: str) -> None:
     """Refuse one-cell rows above the header (a sheet's title), saying so."""
     first = 0
     while first < len(rows) - 1 and sum(1 for c in rows[first][1] if c.strip()) == 1:
         first += 1
     if first == 0 or sum(1 for c in rows[first][1] if c.strip()) < 2:
         return
-    number, cells = rows[0]
+    number, cells, _issues = rows[0]
     title = next(c for c in cells if c.strip()).strip()
     raise InputError(InputProblem(file, number, None, title,
                                   f"the header (column names) on the first row; row {number} looks like a title "
@@ -458,17 +497,25 @@ def _wide_key(name: str) -> str:
     return re.sub(r"\s+", "", name).lower()
 
 
-def table_from_rows(rows: list[tuple[int, list[str]]], file: str, *, csv_shape: bool = True,
-                    issues: list[CellIssue] | None = None) -> RawTable:
+def table_from_rows(rows: Iterable[tuple[int, list[str], Iterable[CellIssue]]], file: str, *,
+                    csv_shape: bool = True) -> RawTable:
+    """The table of ``rows`` (row number, cells, the cells that hold no readable value): the header read and
+    checked at once, the body an iterator that checks each row's shape as it is read."""
     problems = ProblemCounter()
 
     def add(row, field_, value, expected):
         problems.add(InputProblem(file, row, field_, value, expected))
 
-    if not rows:
+    rows = iter(rows)
+    head: list[tuple[int, list[str], Iterable[CellIssue]]] = []
+    for row in rows:  # the rows up to the first that is not a single cell: a title above the header shows there
+        head.append(row)
+        if sum(1 for c in row[1] if c.strip()) != 1:
+            break
+    if not head:
         raise InputError(InputProblem(file, None, None, None, "a header row; the file has only blank lines"))
-    _title_rows(rows, file)
-    header_row, header_cells = rows[0]
+    _title_rows(head, file)
+    header_row, header_cells, header_issues = head[0]
     written_width = len(header_cells)
     # trailing empty header cells are common in spreadsheets; drop them when their column is empty
     while header_cells and not header_cells[-1].strip():
@@ -486,37 +533,32 @@ def table_from_rows(rows: list[tuple[int, list[str]]], file: str, *, csv_shape: 
             add(header_row, raw[i], raw[i], f"each column once; it repeats column {seen[key] + 1} ('{raw[seen[key]]}')")
         seen.setdefault(key, i)
     width = len(raw)
-    for issue in issues or ():
-        if issue.row == header_row:
-            add(issue.row, f"cell {issue.coordinate}", issue.value, issue.expected)
-    by_row: dict[int, list[CellIssue]] = {}
-    for issue in issues or ():
-        if issue.row != header_row:
-            by_row.setdefault(issue.row, []).append(issue)
-    body: list[tuple[int, list[str]]] = []
-    for at in range(1, len(rows)):
-        number, cells = rows[at]
-        rows[at] = None  # type: ignore[call-overload]  # consumed: the raw row is freed as the body grows
-        for issue in by_row.get(number, ()):
-            name = raw[issue.column] if issue.column < width else f"column {issue.column + 1}"
-            add(number, f"{name} (cell {issue.coordinate})", issue.value, issue.expected)
-        if csv_shape and not width <= len(cells) <= written_width:
-            # a row ending inside the header's own trailing empty cells still lines up; any other count not
-            add(number, _shape_field(raw, cells, width), None, _shape_expected(raw, cells, width, written_width))
-            continue
-        extra = cells[width:]
-        if any(c.strip() for c in extra):
-            at = width + next(k for k, c in enumerate(extra) if c.strip())
-            add(number, f"column {_column_letter(at)}", cells[at].strip(),
-                f"cells only under a header; column {_column_letter(at)} has no header name")
-            continue
-        cells = [c.strip() for c in cells[:width]] + [""] * max(0, width - len(cells))
-        long_cell = next((c for c in cells if len(c) > MAX_FIELD_CHARS), None)
-        if long_cell is not None:
-            add(number, None, long_cell[:20] + "...", f"cells of at most {MAX_FIELD_CHARS} characters")
-            continue
-        body.append((number, cells))
-    return RawTable(file=file, raw_headers=raw, headers=canonical, rows=body, header_row=header_row,
+    for issue in header_issues:
+        add(issue.row, f"cell {issue.coordinate}", issue.value, issue.expected)
+
+    def body() -> Iterator[tuple[int, list[str]]]:
+        for number, cells, issues in itertools.chain(head[1:], rows):
+            for issue in issues:
+                name = raw[issue.column] if issue.column < width else f"column {issue.column + 1}"
+                add(number, f"{name} (cell {issue.coordinate})", issue.value, issue.expected)
+            if csv_shape and not width <= len(cells) <= written_width:
+                # a row ending inside the header's own trailing empty cells still lines up; any other count not
+                add(number, _shape_field(raw, cells, width), None, _shape_expected(raw, cells, width, written_width))
+                continue
+            extra = cells[width:]
+            if any(c.strip() for c in extra):
+                at = width + next(k for k, c in enumerate(extra) if c.strip())
+                add(number, f"column {_column_letter(at)}", cells[at].strip(),
+                    f"cells only under a header; column {_column_letter(at)} has no header name")
+                continue
+            cells = [c.strip() for c in cells[:width]] + [""] * max(0, width - len(cells))
+            long_cell = next((c for c in cells if len(c) > MAX_FIELD_CHARS), None)
+            if long_cell is not None:
+                add(number, None, long_cell[:20] + "...", f"cells of at most {MAX_FIELD_CHARS} characters")
+                continue
+            yield number, cells
+
+    return RawTable(file=file, raw_headers=raw, headers=canonical, rows=body(), header_row=header_row,
                     pending=problems)
 
 
@@ -643,6 +685,20 @@ def parse_bool(text: str) -> bool | None:
     if t in NO:
         return False
     return None
+
+
+def parse_typed_value(label: str, field_: str, measure: str, text: str) -> float:
+    """A value typed at the command line or in a form, read as a field sheet's cell would be: presence
+    as 0/1 or yes/no, any other measure as a decimal number; anything else is refused naming ``field_``."""
+    if measure in measures.of_kind(measures.KIND_BINARY):
+        flag = parse_bool(text) if text.strip() else None
+        if flag is None:
+            raise InputError(InputProblem(label, None, field_, text, "presence as 0/1 or yes/no"))
+        return 1.0 if flag else 0.0
+    value = parse_number(text)
+    if value is None:
+        raise InputError(InputProblem(label, None, field_, text, "a number with '.' as decimal mark, |x| <= 1e12"))
+    return value
 
 
 _ISO_DATE = re.compile(r"^(\d{4})-(\d{2})-(\d{2})$")

@@ -14,13 +14,18 @@ from dataclasses import dataclass
 from monitor import columns as C
 from monitor import measures
 from monitor.io import headers as H
-from monitor.settings import DEFAULT_CHANGE_MARGIN
+from monitor.settings import (
+    DEFAULT_CHANGE_MARGIN,
+    DEFAULT_PROTOCOL_DESCRIPTION,
+    DEFAULT_SETUP_MINUTES,
+    FIELD_PACKS_OUTSIDE,
+    GENERALISE_M,
+    TRIGGER_KINDS,
+)
 
 # the vocabulary of management events (the events reader refuses any other kind)
 EVENT_KINDS = ("grazing", "cutting", "mowing", "burning", "flooding", "drought", "scrub_clearance",
                "herbicide", "trampling", "other")
-# the kinds of management trigger (monitor.report.triggers checks them against this)
-TRIGGER_KINDS = ("decline", "upper_bound_below")
 YES_NO = ("yes", "no")
 
 
@@ -111,12 +116,39 @@ PROGRAMME = FileSpec(
           "The margin of annual change that matters to management (a trend inside it is 'stable').",
           "fraction a year"),
         F("settings", "object", False, '{"minutes_per_quadrat": {"count": 6}, "triggers": [...]}',
-          "Further settings: minutes_per_quadrat (per measure), setup_minutes, covariate_units, "
-          "required_covariates, and triggers (see the trigger keys below)."),
+          "Further settings (see the settings keys below), checked when the file is read."),
         F("protocols", "list of objects", False,
           '[{"code": "P1", "description": "10-pin frame", "effective_from": "2015-01-01"}]',
           "Protocol versions with the date each took effect, and optionally the measures a version "
           'changed ("measures": ["frequency"]): the report notes a change only on those measures.'),
+    ),
+    "monitor setup all FOLDER",
+)
+
+SETTINGS = FileSpec(
+    "settings", "programme.json: settings", "JSON",
+    "The programme's further settings; every key may be left out (its default applies). A value of the "
+    "wrong kind is refused naming the key, when the file is read and whenever the stored settings are used.",
+    (
+        F("minutes_per_quadrat", "object: measure -> number >= 0", False, '{"count": 6, "cover": 4}',
+          "Minutes to record one species' measure in one quadrat, for the season planner; measures left out "
+          "take the planner's defaults.", "min"),
+        F("setup_minutes", "number >= 0", False, f"{DEFAULT_SETUP_MINUTES:g}",
+          f"Minutes per station for relocating, marking and photographs (default {DEFAULT_SETUP_MINUTES:g}).", "min"),
+        F("covariate_units", "object: name -> text", False, '{"soil_moisture": "%"}',
+          "Visit covariates recorded on field sheets, with their units."),
+        F("required_covariates", "list of names", False, '["soil_moisture"]',
+          "Covariates every visit must carry (quality check); default: every covariate with a unit."),
+        F("triggers", "list of objects", False, "[...]", "Management triggers (see the trigger keys below)."),
+        F("generalise_m", "number > 0", False, f"{GENERALISE_M:g}",
+          "Grid cell to whose centre stations of sensitive species are moved in exports, report maps and "
+          f"outside crews' field packs (default {GENERALISE_M:g}).", "m"),
+        F(FIELD_PACKS_OUTSIDE, "true/false", False, "false",
+          "Whether field packs are for crews from outside the programme (sensitive stations generalised)."),
+        F("email", "text", False, "monitoring@example.org", "Contact address in exported archives' metadata."),
+        F("licence", "text", False, "CC-BY-4.0", "Licence of exported archives."),
+        F("protocol_description", "text", False, DEFAULT_PROTOCOL_DESCRIPTION,
+          "The protocol named in exported archives' metadata."),
     ),
     "monitor setup all FOLDER",
 )
@@ -308,7 +340,7 @@ CREW_TEAM = FileSpec(
 
 # the set-up folder, in the order `monitor setup all` loads it
 SETUP_FOLDER = (PROGRAMME, SITES, PANELS, STATIONS, SPECIES, WINDOWS, OBSERVERS, EVENTS)
-ALL_FILES = SETUP_FOLDER + (TRIGGER, RECORDS, CREWS, CREW_TEAM)
+ALL_FILES = SETUP_FOLDER + (SETTINGS, TRIGGER, RECORDS, CREWS, CREW_TEAM)
 REQUIRED_IN_FOLDER = ("programme", "sites", "stations", "species")
 
 

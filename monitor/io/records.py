@@ -17,6 +17,7 @@ A blank value cell means "not recorded" and yields no observation; ``0`` is a re
 from __future__ import annotations
 
 import datetime as dt
+import itertools
 import os
 import re
 from dataclasses import dataclass
@@ -47,6 +48,9 @@ from monitor.errors import ProblemCounter
 
 WIDE = "wide"
 LONG = "long"
+#: rows of a wide sheet read at a time: memory holds one chunk of the file's rows as strings, the frames
+#: of what was read, and the first problems (a million-row sheet of garbage stays within about 200 MB)
+CHUNK_ROWS = 20_000
 NUMBER_EXPECTED = "a number with '.' as decimal mark, |x| <= 1e12"
 
 VISIT_COLUMNS = [C.STATION, C.DATE, C.YEAR, H.OBSERVERS, C.VISIT_STATUS, H.REPEAT, C.PROTOCOL, H.NOTES,
@@ -146,8 +150,8 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
     InputError
         With every problem found (file, row, field, value, expected).
     """
-    table = read_raw_table(source, sheet=sheet)
-    problems = table.problems()
+    table = read_raw_table(source, sheet=sheet, stream=True)  # the rows are read chunk by chunk below
+    problems = Problems(table.file)  # the header's problems; the rows' own come after the rows are read
     found = detect_layout(table)
     if layout is None:
         if found is None:
@@ -180,13 +184,16 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
     required, optional = (VISIT_REQUIRED, VISIT_OPTIONAL) if layout == WIDE else (LONG_REQUIRED, LONG_OPTIONAL)
     missing = check_columns(base_table, required, optional + sorted(special), problems)
     if missing:
-        problems.raise_if_any()
+        for _row in table.rows:  # the shape of every row is checked and listed all the same
+            pass
+        _in_file_order(table, problems).raise_if_any()
 
-    reader = _Reader(table, problems, day_first, cov_columns)
+    reader = _Reader(table, Problems(table.file), day_first, cov_columns)
     if layout == WIDE:
         reader.read_wide(value_columns)
     else:
         reader.read_long()
+    problems = _in_file_order(table, problems, reader.problems)
     if not keep_going:
         problems.raise_if_any()
     visits = reader.visit_frame if reader.visit_frame is not None else pd.DataFrame(reader.visits,
@@ -202,6 +209,16 @@ def read_field_records(source: str | os.PathLike[str], *, layout: str | None = N
     return FieldRecords(table.file, layout, visits, observations, covariates, table.sheet,
                         problems.counter if problems.has_errors else None,
                         tuple(dict.fromkeys(name for name, _unit in cov_columns.values())))
+
+
+def _in_file_order(table: RawTable, header: Problems, rows: Problems | None = None) -> Problems:
+    """Every problem in the order a whole-file reading meets them: the file's shape (found while its rows were
+    read), then the header's, then the rows' values."""
+    problems = table.problems()
+    problems.absorb(header.counter)
+    if rows is not None:
+        problems.absorb(rows.counter)
+    return problems
 
 
 def covariate_number(text: str, unit: str | None, problems, row: int, field: str) -> float | None:
@@ -336,26 +353,38 @@ class _Reader:
 
     # layouts ------------------------------------------------------------------------------------
     def read_wide(self, value_columns: dict[int, tuple[str, str, int | None]]) -> None:
-        """Read the wide layout column by column (fast for big sheets).
+        """Read the wide layout column by column (fast for big sheets), :data:`CHUNK_ROWS` rows at a time
+        (memory holds one chunk of the file's rows, not all of them).
 
         The result, and the problems with their order, are those of reading row by row: visit fields,
         then value cells and covariate cells in header order, then a repeated station and date.
         """
-        t = self.table
-        rows = t.rows
-        if not rows:
-            return
-        numbers = [number for number, _ in rows]
-        columns = list(zip(*(cells for _, cells in rows), strict=True))
         keyed = _KeyedProblems(self.problems.file)
         collector, self.problems = self.problems, keyed  # type: ignore[assignment]
+        visit_frames: list[pd.DataFrame] = []
+        observation_frames: list[pd.DataFrame] = []
         try:
-            good = self._wide_visit_fields(numbers, columns, keyed)
-            kept = self._wide_new_visits(numbers, good, keyed)
-            self._wide_values(numbers, columns, value_columns, kept, keyed)
-            self._wide_covariates(numbers, columns, kept, keyed)
+            rows = iter(self.table.rows)
+            while chunk := list(itertools.islice(rows, CHUNK_ROWS)):
+                numbers = [number for number, _ in chunk]
+                columns = list(zip(*(cells for _, cells in chunk), strict=True))
+                del chunk
+                good = self._wide_visit_fields(numbers, columns, keyed)
+                kept = self._wide_new_visits(numbers, good, keyed)
+                if self.visit_frame is not None:
+                    visit_frames.append(self.visit_frame)
+                self._wide_values(numbers, columns, value_columns, kept, keyed)
+                if self.observation_frame is not None:
+                    observation_frames.append(self.observation_frame)
+                self._wide_covariates(numbers, columns, kept, keyed)
+                self.visit_frame = self.observation_frame = None
         finally:
             self.problems = collector
+        if visit_frames:
+            self.visit_frame = pd.concat(visit_frames, ignore_index=True) if len(visit_frames) > 1 else visit_frames[0]
+        if observation_frames:
+            self.observation_frame = (pd.concat(observation_frames, ignore_index=True) if len(observation_frames) > 1
+                                      else observation_frames[0])
         collector.absorb(keyed.counter)
 
     def _wide_visit_fields(self, numbers: list[int], columns: list[tuple[str, ...]],
@@ -423,6 +452,7 @@ class _Reader:
         """Keep the first visit of each station and date (a repeated one is a problem), as new_visit does."""
         keyed.phase = (3, 0)
         raw_date = self.raw(C.DATE)
+        self.visits_by_index = {}
         kept = []
         for i, (station, date, *_rest, number) in good.items():
             key = (station, date)

@@ -11,7 +11,7 @@ from typing import Any
 from monitor.errors import InputError, InputProblem
 from monitor.io import filespec as FS
 from monitor.io.programme import parse_epsg, projected_crs_problem
-from monitor.settings import DEFAULT_CHANGE_MARGIN
+from monitor.settings import margin_problem, parse_settings, time_zone_problem
 
 REQUIRED = tuple(FS.PROGRAMME.required())   # the one definition of the file (docs/files.md)
 OPTIONAL = tuple(FS.PROGRAMME.optional())
@@ -23,7 +23,7 @@ def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
     Keys: code, name, crs_epsg (a projected CRS in metres) required; description, organisation,
     contact, default_quadrat_width_m / _length_m (> 0, metres), blanks_mean_zero, allow_lone_working
     (true/false), change_margin (margin of change that matters, fraction a year, > 0), settings
-    (object), protocols (list of {code, description, effective_from ISO date}).
+    (object, checked by :func:`monitor.settings.parse_settings`), protocols (list of {code, description, effective_from ISO date}).
     """
     path = Path(source)
     file = path.name
@@ -60,18 +60,15 @@ def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
     for key in ("default_quadrat_width_m", "default_quadrat_length_m"):
         if key in doc and not (isinstance(doc[key], (int, float)) and not isinstance(doc[key], bool) and doc[key] > 0):
             bad(key, doc[key], "a quadrat side in metres > 0")
-    if "change_margin" in doc and not (
-        isinstance(doc["change_margin"], (int, float)) and not isinstance(doc["change_margin"], bool)
-        and 0 < doc["change_margin"] < 1
-    ):
-        bad("change_margin", doc["change_margin"], f"a fraction a year above 0 and below 1 (e.g. {DEFAULT_CHANGE_MARGIN:g})")
+    if "change_margin" in doc and margin_problem(doc["change_margin"]):
+        bad("change_margin", doc["change_margin"], margin_problem(doc["change_margin"]))
     for key in ("blanks_mean_zero", "allow_lone_working"):
         if key in doc and not isinstance(doc[key], bool):
             bad(key, doc[key], "true or false")
     if "time_zone" in doc:
         out["time_zone"] = _time_zone(doc["time_zone"], bad)
-    if "settings" in doc and not isinstance(doc["settings"], dict):
-        bad("settings", type(doc["settings"]).__name__, "a JSON object")
+    if "settings" in doc:  # checked as the database will hold it: one rule (monitor/settings.py)
+        problems.extend(parse_settings(doc["settings"], file=file)[1])
     protocols = []
     for i, item in enumerate(doc.get("protocols", []) or []):
         field = f"protocols[{i}]"
@@ -101,13 +98,8 @@ def read_programme_json(source: str | os.PathLike[str]) -> dict[str, Any]:
 
 def _time_zone(value: object, bad) -> str | None:
     """An IANA time zone name (e.g. Europe/London), checked against the zone database."""
-    import zoneinfo
-
-    if isinstance(value, str) and value.strip():
-        try:
-            zoneinfo.ZoneInfo(value.strip())
-            return value.strip()
-        except (zoneinfo.ZoneInfoNotFoundError, ValueError):
-            pass
-    bad("time_zone", value, "an IANA time zone name such as Europe/London or UTC")
-    return None
+    why = time_zone_problem(value)
+    if why:
+        bad("time_zone", value, why)
+        return None
+    return str(value).strip()

@@ -18,6 +18,21 @@ import pandas as pd
 SHEET_NAME_LIMIT = 31  # Excel's limit on a sheet name (common practice)
 
 
+def is_missing(value: object) -> bool:
+    """None, NaN, pd.NA or NaT: a cell with nothing in it."""
+    if value is None:
+        return True
+    try:
+        return bool(pd.isna(value))
+    except (TypeError, ValueError):  # a list or tuple is a value, not a missing one
+        return False
+
+
+def cell_text(value: object) -> str:
+    """A cell as text: ``""`` for a missing value, otherwise ``str(value)``."""
+    return "" if is_missing(value) else str(value)
+
+
 def _cell_value(value: object) -> object:
     if value is None or value is pd.NA or value is pd.NaT:
         return None

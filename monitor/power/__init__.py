@@ -29,11 +29,12 @@ from monitor.power.approximation import (
     approximate_detectable_change,
     approximate_power,
     gerrodette_exponential_power,
-    index_variance,
-    years_needed,
     gerrodette_linear_power,
+    index_variance,
+    slope_variance,
     variance_factor,
     yearly_index_sd,
+    years_needed,
 )
 from monitor.power.model import (
     FAMILIES,
@@ -66,5 +67,5 @@ __all__ = [
     "approximate_power", "compare_designs", "components_from_trend", "design_grid", "detectable_change",
     "gerrodette_exponential_power", "gerrodette_linear_power", "parse_revisit", "plot_power",
     "reject_null", "results_frame", "simulate_dataset", "simulate_power", "smallest_design",
-    "variance_factor", "yearly_index_sd", "index_variance", "years_needed", "trials_from_data",
+    "variance_factor", "yearly_index_sd", "index_variance", "slope_variance", "years_needed", "trials_from_data",
 ]

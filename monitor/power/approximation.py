@@ -43,7 +43,14 @@ import numpy as np
 from scipy import optimize, stats
 
 from monitor.errors import DesignError
-from monitor.power.model import Design, Scenario, VarianceComponents, mean_share_visited, scaled_components
+from monitor.power.model import (
+    Design,
+    Scenario,
+    VarianceComponents,
+    mean_share_visited,
+    scaled_components,
+    year_correlation,
+)
 
 CV_MODELS = ("constant", "poisson", "sd")
 
@@ -244,6 +251,35 @@ def index_variance(components: VarianceComponents, design: Design, annual_change
     return s["year_sd"] ** 2 + s["site_year_sd"] ** 2 / design.sites_for(components) + sd_stations**2
 
 
+def slope_variance(components: VarianceComponents, design: Design, annual_change: float = 0.0, *,
+                   unlimited_stations: bool = False) -> float:
+    """Link-scale variance of the least-squares slope of the yearly indices on year.
+
+    Notes
+    -----
+    The yearly indices ``ybar = X b + d`` (X: intercept and year, N consecutive years) have
+    covariance ``Sigma = s_year^2 R + (s_site_year^2 / J + w / m) I`` with ``R_tt' = rho^|t - t'|``
+    (``components.year_rho``; R = I for independent years) and the stations' part of
+    :func:`index_variance` on the diagonal.  The ordinary least-squares slope then has
+
+        var(b1) = [(X'X)^-1 X' Sigma X (X'X)^-1]_11 = c' Sigma c,   c_t = (t - tbar) / S_xx,
+
+    the variance of the least-squares (not the generalised least-squares) slope of the yearly
+    means.  With independent years it is Urquhart et al.'s ``[s_year^2 + (...)/m] / S_xx``.  For a
+    straight-line trend under stationary autocorrelation least squares loses little against GLS
+    (Grenander 1954, from memory: it is asymptotically efficient for polynomial trends), so the
+    same figure stands for the engine's AR(1) fit.  Positive rho makes neighbouring years alike,
+    which a trend cannot tell from a slope: var(b1) grows with rho.
+    """
+    n = design.n_years
+    total = index_variance(components, design, annual_change, unlimited_stations=unlimited_stations)
+    t = np.arange(n, dtype=float)
+    c = (t - t.mean()) / float(np.sum((t - t.mean()) ** 2))
+    year = scaled_components(components, design)["year_sd"] ** 2
+    sigma = year * year_correlation(n, components.year_rho) + (total - year) * np.eye(n)
+    return float(c @ sigma @ c)
+
+
 def _t_power(ncp: float, df: float, alpha: float, side: str) -> float:
     """Power of a t test on ``df`` degrees of freedom with noncentrality ``ncp`` (scipy.stats.nct)."""
     if side == "two-sided":
@@ -257,10 +293,11 @@ def _t_power(ncp: float, df: float, alpha: float, side: str) -> float:
     raise DesignError(f"test side {side!r}: expected two-sided, decline or rise")
 
 
-def _power_from_sd(slope: float, sd: float, n_years: int, df: float, alpha: float, side: str) -> float:
-    if sd <= 0:
+def _power_from_se(slope: float, se: float, df: float, alpha: float, side: str) -> float:
+    """Power of the test of the slope with standard error ``se`` (t on ``df``; normal when inf)."""
+    if se <= 0:
         return 1.0 if _signed(slope, side) > 0 else float(alpha)
-    ncp = slope * math.sqrt(n_years * (n_years - 1) * (n_years + 1) / 12) / sd
+    ncp = slope / se
     if math.isinf(df):
         # Gerrodette's exponential case with ln(1 + CV^2) = sd^2, written on the log scale directly
         return float(stats.norm.cdf(_signed(ncp, side) - _z_alpha(alpha, side)))
@@ -284,7 +321,8 @@ def approximate_power(components: VarianceComponents, design: Design, scenario: 
     -----
     The programme's yearly index is treated as one survey a year with link-scale variance
     ``sd^2`` from :func:`index_variance` (year effect, site-by-year effect and the stations'
-    noise).  Without year variation ``power = Phi(|ln(1 + r)| sqrt(N (N^2 - 1) / 12) / sd - z_alpha)``
+    noise); the slope's variance is :func:`slope_variance` (``sd^2 / S_xx`` for independent years,
+    the least-squares slope's ``c' Sigma c`` for AR(1) year effects).  Without year variation ``power = Phi(|ln(1 + r)| sqrt(N (N^2 - 1) / 12) / sd - z_alpha)``
     for N survey years (Gerrodette 1987).  With it the test is the t test of the regression of the
     yearly indices on year: ``T ~ t'(N - 2, ncp = ln(1 + r) sqrt(S_xx) / sd)`` (noncentral t;
     scipy.stats.nct), exact for a balanced design when the station noise is normal on the link
@@ -303,12 +341,15 @@ def approximate_power(components: VarianceComponents, design: Design, scenario: 
     if df is None:
         df = float(n - 2) if yearly else math.inf
     sd = math.sqrt(index_variance(components, design, scenario.annual_change))
-    power = _power_from_sd(scenario.slope, sd, n, df, scenario.alpha, scenario.side)
-    sd_limit = math.sqrt(index_variance(components, design, scenario.annual_change, unlimited_stations=True))
-    ceiling = _power_from_sd(scenario.slope, sd_limit, n, df, scenario.alpha, scenario.side)
+    se = math.sqrt(slope_variance(components, design, scenario.annual_change))
+    power = _power_from_se(scenario.slope, se, df, scenario.alpha, scenario.side)
+    se_limit = math.sqrt(slope_variance(components, design, scenario.annual_change, unlimited_stations=True))
+    ceiling = _power_from_se(scenario.slope, se_limit, df, scenario.alpha, scenario.side)
     cv = math.sqrt(math.expm1(sd**2)) if sd < 25 else math.inf
     label = ("approximation (Urquhart et al. 1998 variance, noncentral t on n_years - 2 df)" if not math.isinf(df)
              else "approximation (Gerrodette 1987, exponential change, regression on the log scale)")
+    if components.year_rho != 0 and components.year_sd > 0:
+        label = label[:-1] + f"; AR(1) year effects, rho {components.year_rho:g}: variance of the least-squares slope)"
     return Approximation(power=power, cv_year=cv, visits_per_year=visits, sd_per_visit=sd_visit, sd_index=sd,
                          df=df, ceiling=ceiling, label=label)
 

@@ -5,9 +5,11 @@ Two fitters:
 ``"trend"``    the trend engine's fast path, ``monitor.trend.TrendModel(...).fit(profile=False,
                indices=False)``: the same model family and random effects a programme's own
                analysis would use, the year effect included where the engine puts it by default
-               (and a site-by-year effect where the population model has one).  Wald test of the
-               slope against t on the engine's between-year df (``slope_df``; normal without a
-               year effect).
+               (and a site-by-year effect where the population model has one; the year effect
+               as an AR(1) over years where the population model's is, ``year_rho``).  Wald test
+               of the slope against t on the engine's between-year df (``slope_df``; normal
+               without a year effect) with the standard error the engine's interval and call use
+               (``slope_se * se_scale``).
 ``"trend-no-year"`` the same without a year effect (a reference where the truth has none).
 ``"ols-log"``  ordinary least squares of the log (counts) or logit (cover) value on year, no random
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
@@ -32,6 +34,7 @@ from scipy import stats
 from monitor import columns as col
 from monitor.errors import MonitorError
 from monitor.power.model import Scenario, VarianceComponents
+from monitor.settings import MIN_YEAR_EFFECT_YEARS
 
 
 @dataclass(frozen=True)
@@ -58,6 +61,8 @@ def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenari
     from monitor.trend import TrendModel  # imported here: monitor.power works without a fitted engine
 
     sites = col.SITE in data.columns and data[col.SITE].nunique() >= 2
+    if year_random is None and components.year_rho != 0 and data[col.YEAR].nunique() >= MIN_YEAR_EFFECT_YEARS:
+        year_random = "ar1"   # the programme's analysis of an AR(1) population: --year-effect ar1
     model = TrendModel(
         data,
         measure=components.measure,
@@ -74,7 +79,9 @@ def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenari
     change = result.annual_change
     return FitOutcome(
         slope=float(result.slope),
-        slope_se=float(result.slope_se),
+        # the standard error of the engine's own interval and call: with a year effect the ML one is
+        # scaled to its REML equivalent (TrendResult.se_scale), and the test must use the same
+        slope_se=float(result.slope_se) * float(getattr(result, "se_scale", 1.0)),
         df=float(getattr(result, "slope_df", math.inf)),
         lower=float(change.lower),
         upper=float(change.upper),

@@ -5,7 +5,8 @@ scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey yea
 
     eta_ijt = b0 + log(a) [counts only] + beta * t + u_i + v_j + w_t + g_jt + e_ijt
     u_i ~ N(0, (s_station * a**-b)^2),  v_j ~ N(0, s_site^2),  e_ijt ~ N(0, (s_obs * a**-b)^2)
-    w_t ~ N(0, s_year^2)       one fluctuation a year shared by every station (weather: good and bad years)
+    w_t ~ N(0, s_year^2)       one fluctuation a year shared by every station (weather: good and bad years);
+                               independent, or a stationary AR(1) over years: corr(w_t, w_t') = rho^|t - t'|
     g_jt ~ N(0, s_site_year^2) a site's own fluctuation in year t
 
     poisson-lognormal  y ~ Poisson(exp(eta))
@@ -35,6 +36,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field, replace
 
+import numpy as np
 import pandas as pd
 
 from monitor import columns as col
@@ -74,6 +76,10 @@ class VarianceComponents:
         Residual SD for logit-normal and lognormal [link scale].
     year_sd : float
         SD of the year effect shared by every station (w_t) [link scale].
+    year_rho : float
+        Correlation of consecutive years' effects: 0 (default) independent years, else a stationary
+        order-1 autoregression with corr(w_t, w_t') = year_rho^|t - t'| (the trend engine's
+        ``--year-effect ar1``); -1 < year_rho < 1.
     site_year_sd : float
         SD of the site-by-year effect (g_jt) [link scale].
     theta : float or None
@@ -107,6 +113,7 @@ class VarianceComponents:
     quadrat_area: float | None = None
     stations_per_site: float = 10.0
     cover_resolution: float | None = None
+    year_rho: float = 0.0
 
     def __post_init__(self) -> None:
         if self.family not in FAMILIES:
@@ -115,6 +122,9 @@ class VarianceComponents:
             value = getattr(self, name)
             if not (value >= 0 and math.isfinite(value)):
                 raise DesignError(f"{name} must be a finite number >= 0, got {value!r}")
+        if not (-1 < self.year_rho < 1):
+            raise DesignError(f"year_rho (AR(1) correlation of consecutive years) must lie strictly between "
+                              f"-1 and 1, got {self.year_rho!r}")
         if self.family == "negbin" and not (self.theta is not None and self.theta > 0):
             raise DesignError("negbin needs theta > 0 (NB2 size)")
         if self.family in ("logit-normal", "lognormal") and self.residual_sd <= 0:
@@ -159,7 +169,8 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
     """Variance components and mean level taken from a fitted ``monitor.trend.TrendResult``.
 
     Uses ``result.family``, ``result.measure``, ``result.random_sd`` (keys ``station``, ``site``,
-    ``observation``, and ``year`` and ``site_year`` where the model carried a year effect),
+    ``observation``, and ``year`` and ``site_year`` where the model carried a year effect), the AR(1)
+    correlation ``result.rho["year"]`` where the year effect was fitted as ``ar1``,
     ``result.dispersion`` (NB2 size or logit-normal residual SD), and the fitted level in the first
     year from ``result.fitted_trend`` when present, else from the intercept and slope in
     ``result.params``.
@@ -188,6 +199,7 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
         observation_sd=sd("observation"),
         year_sd=sd("year"),
         site_year_sd=sd("site_year"),
+        year_rho=_year_rho(result),
         measure=measure,
         quadrat_area=quadrat_area,
         stations_per_site=(n_stations / n_sites) if n_sites else max(1.0, float(n_stations)),
@@ -206,6 +218,38 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
                                   "give it (trials)")
         kwargs["trials"] = int(trials)
     return VarianceComponents(**kwargs)
+
+
+def _year_rho(result: object) -> float:
+    """The fitted AR(1) correlation of the year effect (0 when the year effect was independent or absent)."""
+    if getattr(result, "year_random", "none") != "ar1":
+        return 0.0
+    value = (getattr(result, "rho", None) or {}).get("year", 0.0)
+    return float(value) if value is not None and math.isfinite(float(value)) else 0.0
+
+
+def year_correlation(n_years: int, rho: float) -> np.ndarray:
+    """Correlation matrix of the year effects over ``n_years`` consecutive years: rho^|t - t'|."""
+    lag = np.abs(np.subtract.outer(np.arange(n_years), np.arange(n_years)))
+    return np.power(float(rho), lag) if rho != 0 else np.eye(n_years)
+
+
+def ar1_series(z: np.ndarray, rho: float) -> np.ndarray:
+    """A stationary AR(1) series of unit variance from independent standard normal draws ``z``.
+
+    ``w_0 = z_0``, ``w_t = rho w_(t-1) + sqrt(1 - rho^2) z_t``: var(w_t) = 1 and corr(w_t, w_t') =
+    rho^|t - t'| (Box & Jenkins, from memory).  With rho = 0 it returns ``z`` itself, so independent
+    years draw exactly what they drew before the option existed (common random numbers).
+    """
+    z = np.asarray(z, float)
+    if rho == 0 or z.size == 0:
+        return z
+    w = np.empty_like(z)
+    w[0] = z[0]
+    innovation = math.sqrt(1.0 - rho * rho)
+    for t in range(1, z.size):
+        w[t] = rho * w[t - 1] + innovation * z[t]
+    return w
 
 
 def trials_from_data(data: pd.DataFrame, measure: str) -> int | None:
@@ -443,6 +487,8 @@ __all__ = [
     "Design",
     "components_from_trend",
     "scaled_components",
+    "year_correlation",
+    "ar1_series",
     "trials_from_data",
     "mean_share_visited",
 ]

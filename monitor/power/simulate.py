@@ -7,7 +7,7 @@ import pandas as pd
 
 from monitor import columns as col
 from monitor import measures
-from monitor.power.model import Design, Scenario, VarianceComponents, scaled_components
+from monitor.power.model import Design, Scenario, VarianceComponents, ar1_series, scaled_components
 
 
 def simulate_dataset(components: VarianceComponents, design: Design, scenario: Scenario,
@@ -35,7 +35,8 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
     Notes
     -----
     ``eta_ijt = b0 + log(a) + beta*t + u_i + v_j + w_t + g_jt + e_ijt`` with the family's response;
-    see ``monitor.power.model``.  The year effects ``w_t``, the station, site and site-by-year
+    see ``monitor.power.model``.  The year effects ``w_t`` are independent or, with
+    ``components.year_rho``, a stationary AR(1) over the years (:func:`monitor.power.model.ar1_series`).  The year effects ``w_t``, the station, site and site-by-year
     effects, the missed visits and the observation noise each come from a stream of their own
     spawned from ``rng``, so two designs simulated from the same seed share their year effects.  Stations are listed site by site (station k in site
     ``floor(k * n_sites / n_stations)``), and panels are dealt along that list so every site
@@ -50,7 +51,8 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
     # overlap (common random numbers: the same good and bad years whatever the number of stations)
     years_rng, stations_rng, sites_rng, missed_rng, noise_rng = rng.spawn(5)
 
-    year_effect = years_rng.normal(0.0, 1.0, n_yr) * s["year_sd"]
+    # independent years, or a stationary AR(1) over years (components.year_rho) from the same draws
+    year_effect = ar1_series(years_rng.normal(0.0, 1.0, n_yr), components.year_rho) * s["year_sd"]
     station_effect = stations_rng.normal(0.0, 1.0, n_st) * s["station_sd"]
     site_effect = sites_rng.normal(0.0, 1.0, n_sites) * s["site_sd"]
     site_year_effect = sites_rng.normal(0.0, 1.0, (n_sites, n_yr)) * s["site_year_sd"]

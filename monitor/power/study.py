@@ -46,7 +46,7 @@ from monitor.power.approximation import (
 from monitor.power.fitting import FITTERS, fit_one
 from monitor.power.model import Design, Scenario, VarianceComponents
 from monitor.power.simulate import simulate_dataset
-from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_YEAR_EFFECT_YEARS
+from monitor.settings import DEFAULT_CHANGE_MARGIN, year_effect_by_default
 
 Progress = Callable[[int, int], None] | None
 
@@ -261,7 +261,7 @@ def analysis_df(fitter: str, design: Design, components: VarianceComponents) -> 
     (``MIN_YEAR_EFFECT_YEARS``) and then judges the slope on t with n_years - 2 df; the yearly-means
     reference always does; the others use a normal reference.  None: the approximation's own rule.
     """
-    if fitter == "yearly-means" or (fitter == "trend" and design.n_years >= MIN_YEAR_EFFECT_YEARS):
+    if fitter == "yearly-means" or (fitter == "trend" and year_effect_by_default(design.n_years)):
         return float(design.n_years - 2)
     if fitter in ("trend", "trend-no-year", "ols-log"):
         return math.inf

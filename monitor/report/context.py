@@ -30,7 +30,7 @@ from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
 from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
-from monitor.settings import DEFAULT_CHANGE_MARGIN
+from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_TREND_STATIONS, MIN_TREND_YEARS
 from monitor.report.wording import (
     LevelNumbers,
     level_sentence,
@@ -1174,8 +1174,8 @@ def _methods(families: set[str], margins: set[float], software: Mapping[str, str
         "call compares the 95% interval of the annual change with zero and with a margin of "
         f"{margin_text}, the smallest change this programme treats as mattering: declining or rising "
         "when the interval lies clearly on one side, stable when it lies within the margin, unclear "
-        "otherwise, including whenever fewer than 10 stations or 5 seasons are available (after Dixon & "
-        "Pechmann 2005)."
+        f"otherwise, including whenever fewer than {MIN_TREND_STATIONS} stations or {MIN_TREND_YEARS} seasons "
+        "are available (after Dixon & Pechmann 2005)."
     )
     return Methods((first, second), margin_text, REFERENCES, software_versions(software))
 

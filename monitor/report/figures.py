@@ -337,7 +337,10 @@ def _scale_bar(ax: Axes) -> None:
     """A scale bar in the lower right corner, its length a round number of metres (or km)."""
     from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
 
-    ax.figure.canvas.draw_idle()
+    # the limits once the equal aspect has widened them (for the box as it stands, before the layout: the bar
+    # is drawn in data units, so it is true whatever the final box; only its round length is chosen here).
+    # Not a full draw of the figure: that solved the layout and drew everything once more than needed.
+    ax.apply_aspect()
     x0, x1 = ax.get_xlim()
     length = nice_length(abs(x1 - x0))
     label = f"{length / 1000:g} km" if length >= 1000 else f"{length:g} m"

@@ -102,8 +102,10 @@ def draw_figures(context: ReportContext, *, dpi: int = 130, svg: bool = True,
     for done, (section, ref) in enumerate(refs, start=1):
         fig = draw_figure(section, ref, context)
         png = figure_png(fig, dpi)
-        # the layout is settled by the first save; keep it rather than solving it again for the SVG
-        fig.set_layout_engine("none")
+        # the layout is settled by the first save; keep it rather than solving it again for the SVG.  No engine
+        # at all (not "none", a placeholder engine): with any engine, saving draws the figure twice, once only
+        # to lay it out (the SVG is byte for byte the same either way)
+        fig.set_layout_engine(None)
         out.append(DrawnFigure(ref, png, figure_svg(fig) if svg else None))
         del fig
         if progress is not None:

@@ -38,8 +38,9 @@ from dataclasses import dataclass
 
 from monitor.errors import InputError
 from monitor.report.wording import percent
+from monitor.settings import TRIGGER_KINDS as TRIGGER_KINDS  # the one list (monitor/settings.py)
+from monitor.settings import trigger_problem
 
-TRIGGER_KINDS = ("decline", "upper_bound_below")
 Z95 = 1.959963984540054  # scipy.stats.norm.ppf(0.975)
 
 
@@ -73,13 +74,10 @@ class Trigger:
     years: int | None = None
 
     def __post_init__(self) -> None:
-        if self.kind not in TRIGGER_KINDS:
-            raise InputError(f"trigger kind one of {', '.join(TRIGGER_KINDS)} (got {self.kind!r})")
-        if self.kind == "decline":
-            if self.years is None or int(self.years) < 1:
-                raise InputError("a decline trigger needs years >= 1")
-            if not 0 < self.threshold < 1:
-                raise InputError("a decline trigger's threshold is a share between 0 and 1, e.g. 0.3")
+        wrong = trigger_problem(self.kind, self.threshold, self.years)  # the settings loader's rule
+        if wrong:
+            value = getattr(self, wrong[0])
+            raise InputError(f"trigger {wrong[0]}: got {value!r}; expected {wrong[1]}")
 
     def describe(self) -> str:
         """The threshold in words."""

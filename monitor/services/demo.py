@@ -19,13 +19,13 @@ from monitor.services import (
     estimate,
     power,
     quality,
-    records,
     report,
     schedule,
     setup,
     summary,
     trend,
 )
+from monitor.services.imports import import_records
 
 #: the season the demo plans: the one after its last season of records
 DEMO_SEASON = 2027
@@ -67,7 +67,7 @@ def build_programme(folder: Path, *, echo: Callable[[str], None] = lambda _m: No
 
     sheets = sorted((source / "records").glob("season_*.csv"))
     echo(f"3. importing {len(sheets)} seasons of field sheets through the records importer")
-    imports = [records.import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
+    imports = [import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
     run.steps.append(("imports", imports))
     echo("4. checking the stored records (quality flags)")
     run.steps.append(("quality", quality.run_checks(db, code)))

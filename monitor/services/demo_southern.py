@@ -121,7 +121,8 @@ def run_southern_demo(folder: Path, *, echo: Callable[[str], None] = lambda _m: 
     Thursdays, holidays blocked), and the field pack and calendar of the
     first team-day in January.
     """
-    from monitor.services import records, schedule, setup
+    from monitor.services import schedule, setup
+    from monitor.services.imports import import_records
 
     folder = Path(folder)
     if folder.exists() and any(folder.iterdir()):
@@ -136,7 +137,7 @@ def run_southern_demo(folder: Path, *, echo: Callable[[str], None] = lambda _m: 
     sheets = [p for p in sorted((source / "records").glob("season_*.csv"))
               if int(p.stem.split("_")[1]) <= last_season]
     echo(f"3. importing {len(sheets)} seasons of field sheets (January visits belong to December's round)")
-    imports = [records.import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
+    imports = [import_records(db, sheet, programme_code=code, who="demo") for sheet in sheets]
     season = last_season + 1
     echo(f"4. stations due in season {season} (December {season} to February {season + 1})")
     due = schedule.due_for_season(db, season, programme_code=code)

@@ -9,7 +9,6 @@ cell before conversion to WGS84, and the record says so (the same rule as :mod:`
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 
@@ -22,7 +21,7 @@ from monitor.io import headers as H
 from monitor.io.dwca import ProgrammeMetadata, write_dwca
 from monitor.io.spatial import stations_geojson, write_geojson
 from monitor.io.tidy import write_tidy_csv
-from monitor.settings import GENERALISE_M
+from monitor.settings import DEFAULT_PROTOCOL_DESCRIPTION, GENERALISE_M, programme_settings
 
 GEOJSON_PROPERTIES = [C.STATION, C.SITE, C.PANEL, "placement", C.TRANSECT, C.DISTANCE, C.QUADRAT_AREA, "state",
                       "established", "retired", "coordinate_uncertainty_m", "data_generalizations"]
@@ -63,11 +62,7 @@ def generalise(x: float, y: float, cell_m: float) -> tuple[float, float]:
 
 def generalise_m_of(programme) -> float:
     """The programme's own generalisation cell (settings ``generalise_m``), else :data:`GENERALISE_M`."""
-    try:
-        value = float(json.loads(programme.settings_json or "{}").get("generalise_m", GENERALISE_M))
-    except (TypeError, ValueError, json.JSONDecodeError, AttributeError):
-        return GENERALISE_M
-    return value if math.isfinite(value) and value > 0 else GENERALISE_M
+    return programme_settings(programme).generalise_m
 
 
 def generalised_positions(store: Store, programme_id: int, stations: pd.DataFrame, cell_m: float) -> pd.DataFrame:
@@ -139,17 +134,14 @@ def export_geojson(db: str | None, path: Path, *, programme_code: str | None = N
 def programme_metadata(programme) -> ProgrammeMetadata:
     """The programme's description as the archive's metadata (eml.xml); ``settings`` may add an email,
     a licence and a protocol description."""
-    try:
-        settings = json.loads(programme.settings_json or "{}")
-    except json.JSONDecodeError:
-        settings = {}
-    extra = {k: str(settings[k]) for k in ("email", "licence") if settings.get(k)}
+    settings = programme_settings(programme)
+    extra = {"licence": settings.licence} if settings.licence else {}
     return ProgrammeMetadata(
         code=programme.code, title=programme.name,
         abstract=programme.description or programme.name,
         creator=programme.contact or programme.organisation or programme.code,
-        organisation=programme.organisation or "", email=extra.pop("email", ""),
-        protocol=str(settings.get("protocol_description") or "permanent quadrat monitoring"),
+        organisation=programme.organisation or "", email=settings.email,
+        protocol=settings.protocol_description or DEFAULT_PROTOCOL_DESCRIPTION,
         geographic_description=programme.name, **extra,
     )
 

@@ -74,7 +74,8 @@ def add_station(db: str | None, code: str, *, site: str, x: float, y: float, pla
                 accuracy_m: float | None = None, marker: str | None = None, relocation_notes: str | None = None,
                 programme_code: str | None = None) -> dict:
     """Add one station, checked exactly as a row of a stations file would be; logged in the change log."""
-    from monitor.services import records, setup
+    from monitor.services import setup
+    from monitor.services.common import current_user, log_change
 
     store = Store.open(db)
     try:
@@ -104,8 +105,8 @@ def add_station(db: str | None, code: str, *, site: str, x: float, y: float, pla
                 setup.load_stations(session, prog, path, report)
                 station = session.exec(select(M.Station).where(M.Station.programme_id == programme.id,
                                                                M.Station.code == code)).one()
-                records._log(session, programme.id, "station", station.id, "station", None, code,
-                             "added at the command line", records.current_user(), utcnow())
+                log_change(session, programme.id, "station", station.id, "station", None, code,
+                           "added at the command line", current_user(), utcnow())
         return {"station": code, "site": site, "x": float(x), "y": float(y)}
     finally:
         store.dispose()

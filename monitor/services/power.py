@@ -74,6 +74,7 @@ class PowerStudy:
     def to_dict(self) -> dict:
         return {"source": self.source, "target": self.target,
                 "components": {"family": self.components.family, "year_sd": self.components.year_sd,
+                               "year_rho": self.components.year_rho,
                                "site_year_sd": self.components.site_year_sd,
                                "station_sd": self.components.station_sd, "site_sd": self.components.site_sd,
                                "observation_sd": self.components.observation_sd,

@@ -21,7 +21,6 @@ has none.
 from __future__ import annotations
 
 import datetime as dt
-import json
 from dataclasses import dataclass
 
 import pandas as pd
@@ -33,7 +32,8 @@ from monitor.db.models import utcnow
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.io.programme import parse_revisit_rule
 from monitor.quality import quality_flags
-from monitor.services.records import current_user
+from monitor.services.common import current_user
+from monitor.settings import programme_settings
 
 #: note on an open flag that the checks stopped finding (it reopens if they find it again)
 AUTO_CLEARED = "no longer found by the checks on"
@@ -102,14 +102,7 @@ def check_inputs(store: Store, programme: M.Programme) -> dict:
     panels["visit_years"] = [a for a, _ in rules]
     panels["rest_years"] = [b for _, b in rules]
     covariates = queries.visit_covariates(store, pid)
-    try:
-        settings = json.loads(programme.settings_json or "{}")
-    except json.JSONDecodeError:
-        settings = {}
-    required = settings.get("required_covariates")
-    if not isinstance(required, list):
-        units = settings.get("covariate_units")
-        required = sorted(units) if isinstance(units, dict) else []
+    required = list(programme_settings(programme).required_covariates)
     return {"table": table, "visits": visits, "stations": stations, "panels": panels, "covariates": covariates,
             "required_covariates": required}
 

@@ -28,6 +28,7 @@ from monitor.db import models as M
 from monitor.db.models import utcnow
 from monitor.design.lineage import Relocation, lineage_keys
 from monitor.errors import DataError, InputError, InputProblem
+from monitor.services.common import current_user, need_reason
 
 LABEL = "station move"
 #: a moved quadrat that lands this far outside its site's boundary is refused [m] (a GNSS fix near the edge
@@ -73,11 +74,7 @@ def move_station(db: str | None, code: str, *, to: tuple[float, float], reason: 
     before the station was set out or not after its last visit, the new position is outside the site, or
     the new code is taken.
     """
-    from monitor.services.records import current_user
-
-    if not (reason and reason.strip()):
-        raise InputError(InputProblem(LABEL, None, "--reason", None, "a reason for the move (it goes to the change log)"))
-    reason = reason.strip()
+    reason = need_reason(LABEL, reason, "a reason for the move (it goes to the change log)")
     who = who or current_user()
     store = Store.open(db)
     try:

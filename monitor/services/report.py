@@ -7,7 +7,6 @@ The report folder is written to a temporary sibling and moved into place at the 
 from __future__ import annotations
 
 import dataclasses
-
 import datetime as dt
 import json
 from pathlib import Path
@@ -20,11 +19,12 @@ from monitor import measures
 from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
-from monitor.report.render import report_files_in
-from monitor.services.exports import generalise_m_of, generalised_positions
 from monitor.report.fits import FittedEntry, fit_rows, fits_note
+from monitor.report.render import report_files_in
 from monitor.services import analyses, estimate, trend
-from monitor.services.records import current_user
+from monitor.services.common import current_user
+from monitor.services.exports import generalise_m_of, generalised_positions
+from monitor.settings import programme_settings
 from monitor.trend import station_changes
 
 REPORT_JSON = "report.json"
@@ -34,25 +34,10 @@ def default_folder(year: int) -> Path:
     return Path("reports") / str(year)
 
 
-def _settings(programme) -> dict:
-    try:
-        return json.loads(programme.settings_json or "{}")
-    except json.JSONDecodeError:
-        return {}
-
-
-def triggers_of(programme, file: str = "programme settings") -> list[Trigger]:
-    """Management triggers set in advance, from the programme's settings ("triggers": [...])."""
-    out = []
-    for i, item in enumerate(_settings(programme).get("triggers", []) or []):
-        try:
-            out.append(Trigger(species=item["species"], measure=item["measure"], objective=item["objective"],
-                               kind=item["kind"], threshold=float(item["threshold"]), response=item["response"],
-                               years=item.get("years")))
-        except (KeyError, TypeError, ValueError) as exc:
-            raise InputError(InputProblem(file, None, f"triggers[{i}]", item,
-                                          f"species, measure, objective, kind, threshold, response ({exc})")) from None
-    return out
+def triggers_of(programme) -> list[Trigger]:
+    """Management triggers set in advance, from the programme's settings ("triggers": [...], checked when
+    the settings are loaded)."""
+    return [Trigger(**dataclasses.asdict(t)) for t in programme_settings(programme).triggers]
 
 
 def _estimate_rows(table: pd.DataFrame) -> pd.DataFrame:
@@ -298,6 +283,7 @@ def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_
                 raise InputError(InputProblem("report", None, "--site", site, "a site code of the programme"))
             stations = stations[stations[C.SITE] == site]
         placements = stations.loc[stations["state"] == "in_service", "placement"]
+        settings = programme_settings(programme)
         meta = ProgrammeInfo(
             name=programme.name,
             reserve=programme.organisation or programme.name,
@@ -305,7 +291,7 @@ def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_
             placement=placements.mode().iloc[0] if len(placements) else C.PLACEMENT_RANDOM,
             crs=f"EPSG:{programme.crs_epsg}",
             prepared_by=programme.contact,
-            margin=programme.change_margin,
+            margin=settings.change_margin,
         )
         first = min(t.result.years[0] for t in trends)
         gradients = {}
@@ -347,7 +333,7 @@ def _write_report(db: str | None, year: int, out_dir: Path | None, *, programme_
                              for t in trends if t.data is not None},
             gradients=gradients,
             method_changes=_method_changes(store, programme.id, first, year,
-                                           _settings(programme).get("protocol_measures")),
+                                           settings.protocol_measures),
             species_names={t.species: t.common_name for t in trends if t.common_name},
             corrections=_corrections_since(store, programme.id, (previous_doc or {}).get("generated")),
             generated=dt.date.today().isoformat(),

@@ -50,7 +50,7 @@ from monitor.schedule.season import (
 )
 from monitor.services import relocation
 from monitor.services.design import StoredPanels, as_date, default_first_year, fresh_seed
-from monitor.settings import FIELD_PACKS_OUTSIDE
+from monitor.settings import programme_settings
 
 #: a start point (car park, base) may lie this far outside the sites and still count as inside the
 #: reserve [m] (common practice: parking at the reserve's edge)
@@ -61,14 +61,6 @@ WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 
 
 # --- what a season needs from the store ---------------------------------------------------------------------
-
-
-def _settings(programme: M.Programme) -> dict:
-    try:
-        value = json.loads(programme.settings_json or "{}")
-    except json.JSONDecodeError:
-        return {}
-    return value if isinstance(value, dict) else {}
 
 
 def _window_for(windows: pd.DataFrame, year: int, species: str | None) -> tuple[str, str] | None:
@@ -85,22 +77,9 @@ def _window_for(windows: pd.DataFrame, year: int, species: str | None) -> tuple[
 
 def effort_settings(programme: M.Programme) -> S.EffortSettings:
     """Minutes per quadrat by measure and set-up minutes from the programme settings (defaults fill gaps)."""
-    settings = _settings(programme)
-    minutes = dict(DEFAULT_MINUTES)
-    given = settings.get("minutes_per_quadrat") or {}
-    if not isinstance(given, dict):
-        raise DataError("programme setting minutes_per_quadrat must map measures to minutes")
-    for measure, value in given.items():
-        try:
-            minutes[str(measure)] = float(value)
-        except (TypeError, ValueError):
-            raise DataError(f"programme setting minutes_per_quadrat.{measure} is not a number") from None
-    setup = settings.get("setup_minutes", 10.0)
-    try:
-        setup = float(setup)
-    except (TypeError, ValueError):
-        raise DataError("programme setting setup_minutes is not a number") from None
-    return S.EffortSettings(setup_min=setup, minutes_per_measure=minutes)
+    settings = programme_settings(programme)
+    return S.EffortSettings(setup_min=settings.setup_minutes,
+                            minutes_per_measure={**DEFAULT_MINUTES, **settings.minutes_per_quadrat})
 
 
 @dataclass
@@ -145,8 +124,6 @@ def season_inputs(store: Store, programme: M.Programme, year: int,
         season_window = _parse_window(stored[0], stored[1], f"the programme's {year} season window")
     species = queries.species(store, pid)
     species = species[species[C.MEASURE].notna()]
-    species_names = {str(r[C.SPECIES]): str(r["common_name"]) for r in species.to_dict(orient="records")
-                     if r.get("common_name") and not pd.isna(r["common_name"])}
     targets = [(str(r[C.SPECIES]), str(r[C.MEASURE]), None if pd.isna(r["n"]) else int(r["n"]))
                for r in species.to_dict(orient="records")]
     species_windows = {}
@@ -708,7 +685,7 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
         site_names = {str(k): str(v) for k, v in queries.sites(store, programme.id).set_index("site")["name"].items()
                       if v is not None and not pd.isna(v)}
         if generalise_sensitive is None:
-            generalise_sensitive = _settings(programme).get(FIELD_PACKS_OUTSIDE) is True
+            generalise_sensitive = programme_settings(programme).field_packs_for_outside_crews
         if generalise_sensitive:  # packs for crews outside the programme: positions as every export gives them
             from monitor.services.exports import generalise_m_of, generalised_positions
 
@@ -720,8 +697,7 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
                      if r.get("common_name") and not pd.isna(r["common_name"])}
     targets = [(str(r[C.SPECIES]), str(r[C.MEASURE]), None if pd.isna(r["n"]) else int(r["n"]))
                for r in species.to_dict(orient="records")]
-    units = _settings(programme).get("covariate_units") or {}
-    covariates = [(str(k), str(v)) for k, v in sorted(units.items())] if isinstance(units, dict) else []
+    covariates = sorted(programme_settings(programme).covariate_units.items())
     stations = stations.rename(columns={"relocation_notes": fieldpack.RELOCATION})
     # a relocated quadrat's sheet says which station it continues, how far it moved and when
     stations[fieldpack.RELOCATION] = [
@@ -759,7 +735,7 @@ def write_field_packs(db: str | None, year: int, folder: Path, *, team: str | No
     sub = dataclasses.replace(plan, team_days=tuple(chosen))
     calendar.write_text(fieldpack.team_day_calendar(sub, crs=programme.crs_epsg, dtstamp=now,
                                                     programme=programme.code,
-                                                    time_zone=_settings(programme).get("time_zone") or "UTC"),
+                                                    time_zone=programme_settings(programme).time_zone),
                         encoding="utf-8", newline="")
     return PackResult(folder=folder, calendar=calendar, team_days=written)
 

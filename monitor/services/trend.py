@@ -23,9 +23,9 @@ from monitor.db import fits as fit_store
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
+from monitor.services.common import current_user
 from monitor.services.executor import open_runner
-from monitor.services.records import current_user
-from monitor.settings import DEFAULT_CHANGE_MARGIN, change_margin
+from monitor.settings import DEFAULT_CHANGE_MARGIN, programme_settings
 from monitor.trend import TrendModel, TrendResult
 
 
@@ -126,7 +126,7 @@ def analysis_frame(long: pd.DataFrame, measure: str) -> tuple[pd.DataFrame, list
 class ModelChoices:
     """How the trend models are built (the CLI's options): see ``monitor.trend.TrendModel``.
 
-    ``year_random`` None follows the engine's rule (a year effect from 5 years with data);
+    ``year_random`` None follows the engine's rule (a year effect from ``MIN_YEAR_EFFECT_YEARS`` years with data, monitor/settings.py);
     ``observation_effect`` None lets the overdispersion test decide for k-of-n data.
     """
 
@@ -245,7 +245,7 @@ def _fit_programme(db: str | None, *, programme_code: str | None, species: list[
                 continue
             long[C.LINEAGE] = long[C.STATION].map(chains)
             data, species_notes = analysis_frame(long, measure)
-            options = {"margin": change_margin(programme.change_margin), "choices": choices}
+            options = {"margin": programme_settings(programme).change_margin, "choices": choices}
             overall = FitTask(sp, measure, AREA_ALL, "", options, data)
             tasks.append(overall)
             notes[(sp, measure)] = species_notes

@@ -98,7 +98,8 @@ from scipy.linalg import lapack
 from scipy.optimize import minimize
 
 from monitor.errors import Diagnostic
-from monitor.settings import MIN_YEAR_EFFECT_YEARS as YEAR_EFFECT_MIN_YEARS
+from monitor.settings import MIN_YEAR_EFFECT_YEARS as YEAR_EFFECT_MIN_YEARS  # noqa: F401 (named here too)
+from monitor.settings import year_effect_by_default
 
 from .families import Family, Gaussian
 
@@ -144,7 +145,7 @@ class Term:
 
 def default_year_effect(n_years_with_data: int) -> bool:
     """Whether a series gets the year random effect by default (YEAR_EFFECT_MIN_YEARS)."""
-    return int(n_years_with_data) >= YEAR_EFFECT_MIN_YEARS
+    return year_effect_by_default(n_years_with_data)
 
 
 def year_terms(year_index: np.ndarray, n_years: int, structure: str = "iid",

@@ -21,7 +21,7 @@ year as a factor (yearly estimates) instead of b1 t.
 The year effect (Piepho & Ogutu 2002; Urquhart, Paulsen & Larsen 1998).  Station-years of
 one year are not independent: the information about a trend comes from the number of
 years.  Rule: the year effect is in the model by default when the series has at least
-YEAR_EFFECT_MIN_YEARS (5, monitor.trend.glmm) years with data, the fewest with which a call is made at all
+YEAR_EFFECT_MIN_YEARS (monitor/settings.py) years with data, the fewest with which a call is made at all
 (a year SD from fewer years is barely estimable; shorter series are called "unclear"
 anyway).  With a year effect the slope's interval, its profile interval and the call use
 a t reference with the between-year (containment) df of the engine
@@ -239,6 +239,7 @@ class TrendResult:
     level_change: LevelChange | None = None
     base_year: int | None = None
     no_index_years: tuple[int, ...] = ()
+    params_df: pd.Series | None = field(default=None, repr=False)
 
     @property
     def model_label(self) -> str:
@@ -260,24 +261,51 @@ class TrendResult:
             return f"t, {self.slope_df:g} df"
         return "normal (z)"
 
+    def _coef_reference(self) -> tuple[np.ndarray, np.ndarray]:
+        """Per fixed effect: the reference df (inf: normal) and the factor on its standard error.
+
+        The same rule as the slope's Wald interval and call (``_coefficient_reference``): a
+        fixed effect that is constant within years (intercept, slope, year-level covariates)
+        has the t reference with the between-year df and, for an ML fit, the standard error
+        scaled by sqrt(n_years / df); the others the normal reference, unscaled.
+        """
+        df = (np.full(len(self.params), math.inf) if self.params_df is None
+              else np.asarray(self.params_df.reindex(self.params.index), float))
+        if self.params_df is None and math.isfinite(self.slope_df):
+            # a result built without per-coefficient df: the slope's reference for the slope and intercept
+            for name in (SLOPE, INTERCEPT):
+                if name in self.params.index:
+                    df[list(self.params.index).index(name)] = self.slope_df
+        scale = np.array([_coefficient_reference(float(k), self.n_years, self.reml)[1] for k in df])
+        return df, scale
+
     def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
         """Wald intervals of the fixed effects (link scale): columns lower, upper.
 
-        The slope and intercept use the t reference with ``slope_df`` degrees of freedom
-        and the standard error times ``se_scale`` (see ``df_method``) when the model has a
-        year effect; the other fixed effects a normal reference.
+        The reference is the one of the slope's Wald interval and call: with a year effect the
+        fixed effects constant within years (intercept, slope) use the t reference with the
+        between-year (containment) df, n_years - 2 for a straight-line trend, and the standard
+        error times sqrt(n_years / df) (ML fits; ``se_scale`` for the slope; see ``df_method``);
+        the other fixed effects, and every fixed effect without a year effect, the normal (z).
         """
-        q = np.full(len(self.params), norm.ppf(1 - alpha / 2))
-        if math.isfinite(self.slope_df):
-            for name in (SLOPE, INTERCEPT):
-                if name in self.params.index:
-                    q[list(self.params.index).index(name)] = t_dist.ppf(1 - alpha / 2, self.slope_df) * self.se_scale
+        df, scale = self._coef_reference()
+        q = np.array([norm.ppf(1 - alpha / 2) if not math.isfinite(k) else t_dist.ppf(1 - alpha / 2, k)
+                      for k in df]) * scale
         return pd.DataFrame({"lower": self.params - q * self.bse, "upper": self.params + q * self.bse})
 
     def to_frame(self) -> pd.DataFrame:
-        """Fixed effects as a table: estimate, se, lower, upper (95 %, Wald)."""
+        """Fixed effects as a table: estimate, se, lower, upper (95 %, Wald), df, se_scale, reference.
+
+        ``se`` is the maximum likelihood standard error; the interval is estimate -/+ quantile x
+        se x ``se_scale``; ``df`` is the t reference's degrees of freedom (inf for the normal)
+        and ``reference`` says it in words ("t, 10 df, SE x 1.095" or "normal (z)").
+        """
         ci = self.conf_int()
-        return pd.DataFrame({"estimate": self.params, "se": self.bse, "lower": ci["lower"], "upper": ci["upper"]})
+        df, scale = self._coef_reference()
+        words = [("normal (z)" if not math.isfinite(k) else
+                  f"t, {k:g} df" + ("" if s == 1.0 else f", SE x {s:.4g}")) for k, s in zip(df, scale)]
+        return pd.DataFrame({"estimate": self.params, "se": self.bse, "lower": ci["lower"], "upper": ci["upper"],
+                             "df": df, "se_scale": scale, "reference": words}, index=self.params.index)
 
     def to_dict(self) -> dict:
         """A JSON-ready dict (see TREND_API.md)."""
@@ -358,7 +386,7 @@ class TrendResult:
             lab = "NB2 size" if self.family == "negbin" else "residual SD"
             lines.append(f"  {lab}: {self.dispersion:.4g}")
         lines.append(f"  log-likelihood {self.loglik:.3f} ({'REML' if self.reml else 'ML'}), AIC {self.aic:.2f}, df {self.df}")
-        lines.append(self.to_frame().to_string(float_format=lambda v: f"{v:.5g}"))
+        lines.append(self.to_frame().drop(columns=["df", "se_scale"]).to_string(float_format=lambda v: f"{v:.5g}"))
         for d in self.diagnostics:
             lines.append(f"  [{d.severity}] {d.code}: {d.message}")
         return "\n".join(lines)
@@ -385,7 +413,7 @@ class TrendModel:
         effects, log-likelihood and AIC reported are those of the factor model.
     year_random : {None, "iid", "ar1", "none"}
         The random year effect of the linear model, crossed with station and site: None
-        (default) is "iid" from YEAR_EFFECT_MIN_YEARS (5) years with data with the Laplace
+        (default) is "iid" from YEAR_EFFECT_MIN_YEARS years with data with the Laplace
         method, else "none"; "ar1" makes consecutive calendar years alike.  Not used in the
         year-factor model, where the year fixed effects take its place.
     site_by_year : bool
@@ -500,7 +528,7 @@ class TrendModel:
                     f"With {len(self.years)} years of data (fewer than {YEAR_EFFECT_MIN_YEARS}) the model has no "
                     "year-to-year effect: the interval assumes years do not fluctuate together and may be too "
                     "narrow.", "info"))
-        elif year_random == "none" and len(self.years) >= YEAR_EFFECT_MIN_YEARS:
+        elif year_random == "none" and default_year_effect(len(self.years)):
             self._notes.append(Diagnostic(
                 "no_year_effect",
                 "The model was asked to leave out the year-to-year effect: if good and bad years are shared "
@@ -765,6 +793,8 @@ class TrendModel:
         params = pd.Series(primary.beta, index=pspec.x_names, name="estimate")
         bse = pd.Series(np.sqrt(np.diag(primary.vcov)), index=pspec.x_names, name="se")
         vcov = pd.DataFrame(primary.vcov, index=pspec.x_names, columns=pspec.x_names)
+        params_df = pd.Series(np.full(len(pspec.x_names), math.inf) if primary.coef_df is None
+                              else np.asarray(primary.coef_df, float), index=pspec.x_names, name="df")
         diags += self._data_diagnostics(spec_lin, fit_lin, eps, od)
         lo_c, hi_c = (prof.lower, prof.upper) if prof is not None else (annual.lower, annual.upper)
         call, reason = classify_call(lo_c, hi_c, self.margin, n_st, n_years)
@@ -788,7 +818,7 @@ class TrendModel:
             cover_transform=cover_transform_text(eps) if self.measure == C.MEASURE_COVER else None,
             change_scale=CHANGE_SCALE[self.family], natural_unit=natural.unit, yearly=yearly, trend_line=line,
             level_change=level, base_year=self.base_year if fit_fac is not None else None,
-            no_index_years=tuple(sorted(self.no_index_years)))
+            no_index_years=tuple(sorted(self.no_index_years)), params_df=params_df)
 
     # ------------------------------------------------------------------ observation-level effect
     def _choose_observation_effect(self, diags: list[Diagnostic]) -> tuple[bool, tuple | None]:
@@ -1001,11 +1031,20 @@ def _reference(fit: GlmmFit, j: int, n_years: int, reml: bool) -> tuple[float, f
     df = math.inf if coef_df is None else float(coef_df[j])
     if not math.isfinite(df):
         return float(norm.ppf(0.975)), math.inf, str(getattr(fit, "df_method", "z")), 1.0
-    scale = 1.0 if reml else math.sqrt(n_years / df)
+    scale = _coefficient_reference(df, n_years, reml)[1]
     words = str(getattr(fit, "df_method", f"t, {df:g} df"))
     if not reml:
         words += f"; standard error scaled by sqrt({n_years}/{df:g}) for the ML year variance (REML-equivalent)"
     return float(t_dist.ppf(0.975, df)) * scale, df, words, scale
+
+
+def _coefficient_reference(df: float, n_years: int, reml: bool) -> tuple[float, float]:
+    """(df, standard-error factor) of one fixed effect: (inf, 1) for the normal reference; for
+    the t reference with between-year df, sqrt(n_years / df) after an ML fit and 1 after REML
+    (see _reference)."""
+    if not math.isfinite(df):
+        return math.inf, 1.0
+    return df, (1.0 if reml else math.sqrt(n_years / df))
 
 
 def _estimator(fit: GlmmFit, model: TrendModel, full: bool) -> str:

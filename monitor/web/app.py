@@ -339,7 +339,7 @@ class WorkspaceApp:
             raise Forbidden("This opening link is not valid (it works once). Restart `monitor serve` for a new one.",
                             401)
         self.token_used = True
-        from monitor.services.records import current_user
+        from monitor.services.common import current_user
 
         fresh = self.sessions.renew(ctx.session, current_user(), "owner")
         response = ctx.redirect("/")

@@ -15,6 +15,7 @@ import pandas as pd
 
 from monitor import columns as C
 from monitor.errors import DataError, InputError, InputProblem
+from monitor.io.sheets import is_missing
 from monitor.security import new_token, safe_file
 from monitor.web import drawing
 
@@ -27,13 +28,8 @@ if TYPE_CHECKING:  # pragma: no cover
 
 def number_text(value: Any) -> str:
     """A cell as text: blanks for missing values, whole numbers without '.0'."""
-    if value is None:
+    if is_missing(value):
         return ""
-    try:
-        if pd.isna(value):
-            return ""
-    except (TypeError, ValueError):
-        pass
     if isinstance(value, float):
         if value.is_integer():
             return str(int(value))
@@ -113,10 +109,11 @@ def stations(ctx: Ctx):
 
 
 def station(ctx: Ctx):
-    from monitor.services import records, workspace
+    from monitor.services import workspace
+    from monitor.services.history import station_history
 
     code = ctx.request.path_params["code"]
-    history = records.station_history(ctx.db, code, programme_code=_programme(ctx))
+    history = station_history(ctx.db, code, programme_code=_programme(ctx))
     visits = history["visits"]
     keys = sorted({k for v in visits for k in v["values"]})
     series = []
@@ -273,12 +270,12 @@ def _preview(path: Path, problems: list[InputProblem]) -> dict[str, Any]:
 
 
 def records_check(ctx: Ctx):
-    from monitor.services import records as records_service
+    from monitor.services.imports import import_records
 
     token, pending = _pending(ctx)
     path = Path(pending["path"])
     try:
-        report = records_service.import_records(
+        report = import_records(
             ctx.db, path, programme_code=_programme(ctx), dry_run=True, correct=pending["correct"],
             reason=pending["reason"] or None, accept_warnings=pending["accept_warnings"], who=ctx.who)
     except InputError as exc:
@@ -297,10 +294,10 @@ def _problem_row(p: InputProblem) -> dict[str, str]:
 
 
 def records_import(ctx: Ctx):
-    from monitor.services import records as records_service
+    from monitor.services.imports import import_records
 
     token, pending = _pending(ctx)
-    report = records_service.import_records(
+    report = import_records(
         ctx.db, Path(pending["path"]), programme_code=_programme(ctx), correct=pending["correct"],
         reason=pending["reason"] or None, accept_warnings=pending["accept_warnings"], who=ctx.who)
     ctx.session.uploads.pop(token, None)
@@ -315,12 +312,12 @@ def records_import(ctx: Ctx):
 
 
 def records_correct(ctx: Ctx):
-    from monitor.services import records as records_service
+    from monitor.services.corrections import set_value
 
     station = _text(ctx, "station")
     field = _text(ctx, "field")
     species, _, measure = field.partition(":")
-    change = records_service.set_value(ctx.db, station, _int(ctx, "year"), species, measure, _text(ctx, "value"),
+    change = set_value(ctx.db, station, _int(ctx, "year"), species, measure, _text(ctx, "value"),
                                        reason=_text(ctx, "reason"), who=ctx.who, programme_code=_programme(ctx))
     ctx.app.forget()
     if change.old == change.new:
@@ -335,17 +332,17 @@ def records_correct(ctx: Ctx):
 
 
 def records_certify(ctx: Ctx):
-    from monitor.services import records as records_service
+    from monitor.services.locks import set_lock
 
-    ctx.flash("ok", records_service.set_lock(ctx.db, _int(ctx, "year"), lock=True, who=ctx.who,
+    ctx.flash("ok", set_lock(ctx.db, _int(ctx, "year"), lock=True, who=ctx.who,
                                              programme_code=_programme(ctx)))
     return ctx.redirect("/records")
 
 
 def records_unlock(ctx: Ctx):
-    from monitor.services import records as records_service
+    from monitor.services.locks import set_lock
 
-    ctx.flash("ok", records_service.set_lock(ctx.db, _int(ctx, "year"), lock=False, reason=_text(ctx, "reason"),
+    ctx.flash("ok", set_lock(ctx.db, _int(ctx, "year"), lock=False, reason=_text(ctx, "reason"),
                                              who=ctx.who, programme_code=_programme(ctx)))
     return ctx.redirect("/records")
 

@@ -40,7 +40,8 @@ def main() -> None:
     parser.add_argument("--keep", type=Path, default=None)
     args = parser.parse_args()
 
-    from monitor.services import records, report, setup, trend
+    from monitor.services import report, setup, trend
+    from monitor.services.imports import import_records
 
     work = args.keep or Path(tempfile.mkdtemp(prefix="bench_fits_"))
     size = generate(work / "files", args.scale)
@@ -48,7 +49,7 @@ def main() -> None:
     setup.init_database(db)
     setup.setup_folder(db, work / "files")
     for sheet in sorted((work / "files" / "records").glob("season_*.csv")):
-        records.import_records(db, sheet, who="benchmark")
+        import_records(db, sheet, who="benchmark")
     print(f"programme: {size}")
     year = FIRST_YEAR + SEASONS - 1
 

@@ -4,7 +4,7 @@ An invented programme of 10,000 annual stations gets a 20-season wide field shee
 five target values each = 1,000,000 observation rows).  Two copies of the same freshly set-up database
 are used side by side in one run:
 
-* import: ``monitor.services.records.import_records`` on the CSV: hashing, reading, whole-file
+* import: ``monitor.services.imports.import_records`` on the CSV: hashing, reading, whole-file
   validation against the programme, planning, writing, commit;
 * raw: Python's ``sqlite3`` ``executemany`` of the same rows (import batch, rounds, visits, observers of
   each visit, observations) into the same tables, the tuples prepared before the clock starts.
@@ -27,7 +27,8 @@ from pathlib import Path
 
 import numpy as np
 
-from monitor.services import records, setup
+from monitor.services import setup
+from monitor.services.imports import import_records
 from tests.services.test_records_data import SPECIES_COLUMNS, make_programme, sheet_rows, write_sheet
 
 MEASURES = [(c.split(":")[0], c.split(":")[1].split("/")[0], int(c.split("/")[1]) if "/" in c else None)
@@ -118,7 +119,7 @@ def main() -> None:
 
         raw_seconds = raw_insert(raw, years, visits, observations, teams)
         start = time.perf_counter()
-        report = records.import_records(str(imported), sheet, who="bench")
+        report = import_records(str(imported), sheet, who="bench")
         import_seconds = time.perf_counter() - start
         assert report.observations_added == len(observations), (report.observations_added, len(observations))
         a, b = counts(imported), counts(raw)

@@ -11,7 +11,7 @@ species.csv, observers.csv, panels.csv, windows.csv) and one wide field sheet pe
 runs in a process of its own, so that its peak memory is its own:
 
   setup      ``monitor.services.setup``: create the schema and load the set-up files
-  import     ``monitor.services.records.import_records`` on the 25 season sheets, one after another
+  import     ``monitor.services.imports.import_records`` on the 25 season sheets, one after another
              (the first and the last season's times are printed too: a growing gap would mean each
              import pays for what is already stored)
   quality    ``monitor.services.quality.run_checks`` on everything stored
@@ -172,7 +172,8 @@ def _maxrss_mb() -> float:
 
 
 def run_stage(stage: str, db: str, folder: Path, use_tracemalloc: bool) -> dict:
-    from monitor.services import quality, records, report, schedule, setup, trend  # noqa: F401 (loaded: base)
+    from monitor.services import quality, report, schedule, setup, trend  # noqa: F401 (loaded: base)
+    from monitor.services.imports import import_records
 
     base = _maxrss_mb()
     if use_tracemalloc:
@@ -188,7 +189,7 @@ def run_stage(stage: str, db: str, folder: Path, use_tracemalloc: bool) -> dict:
         times = []
         for sheet in sorted((folder / "records").glob("season_*.csv")):
             t0 = time.perf_counter()
-            got = records.import_records(db, sheet, who="benchmark")
+            got = import_records(db, sheet, who="benchmark")
             times.append(time.perf_counter() - t0)
             assert got.visits_added > 0, got
         extra = {"first_season_s": round(times[0], 2), "last_season_s": round(times[-1], 2)}

@@ -9,7 +9,8 @@ import pytest
 import sqlalchemy as sa
 
 from monitor.db import Store, migrate
-from monitor.services import records, schedule, setup
+from monitor.services import schedule, setup
+from monitor.services.imports import import_records
 
 PLAN_TABLES = ("season_plan", "season_plan_team", "season_plan_team_day")
 
@@ -36,7 +37,7 @@ def _settings(store: Store) -> dict:
 @pytest.fixture
 def planned_db(db_url, demo_source):
     setup.setup_folder(db_url, demo_source)
-    records.import_records(db_url, demo_source / "records" / "season_2026.csv")
+    import_records(db_url, demo_source / "records" / "season_2026.csv")
     schedule.plan_season(db_url, 2027, teams=2, seed=5)
     schedule.plan_season(db_url, 2028, teams=2, seed=6, hours_per_day=6.0)
     return db_url

@@ -11,7 +11,8 @@ import threading
 import time
 
 from monitor.db import Store, queries, read_snapshot
-from monitor.services import records, trend
+from monitor.services import trend
+from monitor.services.imports import import_records
 from tests.conftest import REPO_ROOT
 
 SEASONS = REPO_ROOT / "demo_programme" / "records"
@@ -22,13 +23,13 @@ def _visits(store: Store) -> int:
 
 
 def test_reads_inside_a_snapshot_do_not_see_an_import_committed_meanwhile(programme_db):
-    records.import_records(programme_db, SEASONS / "season_2024.csv")
+    import_records(programme_db, SEASONS / "season_2024.csv")
     done = threading.Event()
     errors: list[BaseException] = []
 
     def importer():
         try:
-            records.import_records(programme_db, SEASONS / "season_2025.csv")
+            import_records(programme_db, SEASONS / "season_2025.csv")
         except BaseException as exc:  # noqa: BLE001 - reported by the test
             errors.append(exc)
         finally:
@@ -54,13 +55,13 @@ def test_reads_inside_a_snapshot_do_not_see_an_import_committed_meanwhile(progra
 
 
 def test_a_trend_run_fits_every_species_from_the_same_snapshot(programme_db):
-    records.import_records(programme_db, SEASONS / "season_2023.csv")
-    records.import_records(programme_db, SEASONS / "season_2024.csv")
+    import_records(programme_db, SEASONS / "season_2023.csv")
+    import_records(programme_db, SEASONS / "season_2024.csv")
     started = []
 
     def progress(i, n, species):
         if i == 1 and not started:  # after the first species is fitted, another user imports a season
-            thread = threading.Thread(target=records.import_records,
+            thread = threading.Thread(target=import_records,
                                       args=(programme_db, SEASONS / "season_2025.csv"))
             thread.start()
             started.append(thread)

@@ -25,7 +25,7 @@ def main(job_path: str) -> int:
     # the commands' database work, not the interpreter's start-up
     from monitor.cli.main import main as monitor_main
     from monitor.db import Store
-    from monitor.services import records  # noqa: F401
+    from monitor.services import imports  # noqa: F401
 
     Store.open(job["db"]).dispose()
     Path(job["ready"]).write_text(str(os.getpid()))

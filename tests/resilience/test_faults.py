@@ -1,8 +1,8 @@
 """Faults: a killed correction or report, a read-only database, a full disk.
 
 * SIGKILL (signal 9, which cannot be caught) while ``monitor records set`` or ``monitor records import
-  --correct`` holds its corrected values and change-log rows in an open transaction (the test hook
-  MONITOR_TEST_PAUSE_AFTER_VISITS makes it say so and wait) leaves every row of every table as before, on
+  --correct`` holds its corrected values and change-log rows in an open transaction (run through
+  tests/resilience/paused_monitor.py, which installs a pause at the services' fault-injection points) leaves every row of every table as before, on
   SQLite (the file's bytes too, once the hot journal is rolled back: https://www.sqlite.org/atomiccommit.html)
   and on PostgreSQL (an uncommitted transaction of a lost connection is rolled back).
 * SIGKILL while ``monitor report`` writes its figures leaves the report folder already in place exactly as
@@ -34,8 +34,9 @@ from pathlib import Path
 import pytest
 
 from monitor.db.engine import MAX_PAGES_HOOK
-from monitor.services import records
+from monitor.services.imports import import_records
 from tests.conftest import REPO_ROOT
+from tests.resilience.paused_monitor import command, wait_for_pause
 from tests.resilience.tables import season_rows, write_rows
 from tests.services import test_records_data as shared
 from tests.services.test_records_data import DEMO, Template, build_demo, dump
@@ -45,26 +46,16 @@ demo_template = shared.demo_template  # fixture: the demo with seasons 2015-2023
 
 def _env(**extra: str) -> dict[str, str]:
     env = {**os.environ, "PYTHONPATH": str(REPO_ROOT)}
-    for name in (records.PAUSE_HOOK, MAX_PAGES_HOOK):
-        env.pop(name, None)
+    env.pop(MAX_PAGES_HOOK, None)
     env.update(extra)
     return env
 
 
-def _monitor(db: str, *args: str, env: dict | None = None, **popen) -> subprocess.Popen:
-    return subprocess.Popen([sys.executable, "-m", "monitor", "--db", db, *args], stdout=subprocess.PIPE,
+def _monitor(db: str, *args: str, env: dict | None = None, pause: float | None = None, **popen) -> subprocess.Popen:
+    """``monitor ARGS``; with ``pause``, stopping that long at each fault-injection point (transaction open)."""
+    program = [sys.executable, "-m", "monitor"] if pause is None else command(pause)
+    return subprocess.Popen([*program, "--db", db, *args], stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True, env=env or _env(), cwd=REPO_ROOT, **popen)
-
-
-def _wait_for_hook(process: subprocess.Popen, timeout: float = 120.0) -> str:
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        line = process.stderr.readline()
-        if records.PAUSE_HOOK in line:
-            return line
-        if not line and process.poll() is not None:
-            raise AssertionError(f"the command ended before writing: {process.returncode} {process.stderr.read()}")
-    raise AssertionError("the command never reached the pause hook")
 
 
 def _kill(process: subprocess.Popen) -> None:
@@ -114,9 +105,9 @@ def test_a_correction_killed_mid_way_leaves_the_database_as_before(demo_template
         expected = f"{changed} visits corrected"
     before = dump(db)
     before_bytes = Path(db).read_bytes() if demo_template.engine == "sqlite" else None
-    process = _monitor(db, *args, env=_env(**{records.PAUSE_HOOK: "60"}))
+    process = _monitor(db, *args, pause=60)
     try:
-        assert expected in _wait_for_hook(process)
+        assert expected in wait_for_pause(process)
         _kill(process)
     finally:
         if process.poll() is None:
@@ -258,7 +249,7 @@ def test_a_full_database_page_limit_gives_one_line_and_changes_nothing(sqlite_de
     assert _one_line_error(err) == "error: database error, nothing was written: database or disk is full"
     assert Path(db).read_bytes() == before
     # with room again, the same sheet imports
-    assert records.import_records(db, DEMO / "records" / "season_2024.csv").visits_added > 0
+    assert import_records(db, DEMO / "records" / "season_2024.csv").visits_added > 0
 
 
 def _user_namespaces() -> bool:

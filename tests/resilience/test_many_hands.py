@@ -139,7 +139,6 @@ def _start(folder: Path, name: str, db: str, commands: list[dict]) -> tuple[subp
     ready = folder / f"{name}.ready"
     job.write_text(json.dumps({"db": db, "ready": str(ready), "go": str(folder / "go"), "commands": commands}))
     env = {**os.environ, "PYTHONPATH": str(REPO_ROOT)}
-    env.pop("MONITOR_TEST_PAUSE_AFTER_VISITS", None)
     process = subprocess.Popen([sys.executable, "-m", "tests.resilience.crew", str(job)], cwd=REPO_ROOT, env=env,
                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     return process, ready
@@ -197,11 +196,11 @@ def test_eight_crews_at_once_equal_a_serial_run(base, tmp_path, monkeypatch):
     assert got == records_by_key(serial)
 
     # every value exactly once: the demo's unsplit season files imported one after another, corrected
-    from monitor.services import records
+    from monitor.services.imports import import_records
 
     reference = base.copy()
     for year in NEW:
-        records.import_records(reference, DEMO / "records" / f"season_{year}.csv", who="reference")
+        import_records(reference, DEMO / "records" / f"season_{year}.csv", who="reference")
     expected = {row[:5]: row[5:] for row in records_by_key(reference)["observation"]}
     for station, year, field, _old, new, _reason, _who in corrections:
         species, measure = field.split(":")

@@ -128,10 +128,11 @@ def test_transect_along_a_drawn_line(programme_db, tmp_path, capsys):
 
 
 def test_season_plan_over_paths_and_plans_compared(programme_db, tmp_path, capsys):
-    from monitor.services import records, schedule
+    from monitor.services import schedule
+    from monitor.services.imports import import_records
     from tests.conftest import REPO_ROOT
 
-    records.import_records(programme_db, REPO_ROOT / "demo_programme" / "records" / "season_2026.csv")
+    import_records(programme_db, REPO_ROOT / "demo_programme" / "records" / "season_2026.csv")
     # an invented track network joining the four sites' car parks (sites.geojson base points) and crossing them
     track = LineString([(511985, 5741990), (512200, 5742130), (512505, 5742030), (512650, 5742130),
                         (512545, 5742310), (512640, 5742390), (512065, 5742350), (512230, 5742420)])

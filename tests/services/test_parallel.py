@@ -12,7 +12,8 @@ from sqlalchemy import text
 
 from monitor.db import Store
 from monitor.power import VarianceComponents
-from monitor.services import power, records, trend
+from monitor.services import power, trend
+from monitor.services.common import current_user
 from monitor.services.executor import open_runner
 from tests.services.test_stored_fits import _same
 
@@ -70,7 +71,7 @@ def test_a_dask_cluster_gives_the_local_numbers_and_the_submitter_stores_them(de
         stored = store.frame("SELECT fitted_by, area_kind FROM stored_fit")
     finally:
         store.dispose()
-    assert len(stored) == len(remote) and set(stored["fitted_by"]) == {records.current_user()}
+    assert len(stored) == len(remote) and set(stored["fitted_by"]) == {current_user()}
     # stored centrally, so the next run reuses them without the cluster
     again = trend.fit_programme(demo_copy, species=SPECIES, by="site", workers=1)
     assert all(t.reused for t in again)

@@ -132,9 +132,10 @@ def test_assign_panels_spreads_new_stations_over_a_split_design(programme_db):
 
 
 def test_placed_stations_are_not_overdue_for_rounds_before_they_existed(programme_db, demo_source):
-    from monitor.services import records, schedule
+    from monitor.services import schedule
+    from monitor.services.imports import import_records
 
-    records.import_records(programme_db, demo_source / "records" / "season_2026.csv")
+    import_records(programme_db, demo_source / "records" / "season_2026.csv")
     placed = design.place_stations(programme_db, "WE", "random", n=3, seed=9, panel="ANNUAL")
     due = schedule.due_for_season(programme_db, 2027).set_index(C.STATION)
     for code in placed.stations[C.STATION]:

@@ -16,7 +16,8 @@ from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DesignError
 from monitor.schedule import fieldpack
-from monitor.services import records, schedule, setup
+from monitor.services import schedule, setup
+from monitor.services.imports import import_records
 from tests.conftest import REPO_ROOT, table_counts
 
 YEARS = (2024, 2025, 2026)
@@ -27,7 +28,7 @@ def season_db(db_url, demo_source):
     """The demo programme with its last three seasons of records."""
     setup.setup_folder(db_url, demo_source)
     for year in YEARS:
-        records.import_records(db_url, demo_source / "records" / f"season_{year}.csv")
+        import_records(db_url, demo_source / "records" / f"season_{year}.csv")
     return db_url
 
 
@@ -209,7 +210,7 @@ def test_field_pack_is_read_back_by_the_records_importer(season_db, demo_source,
     sheet = tmp_path / "keyed_2027.csv"
     filled.to_csv(sheet, index=False)
     before = table_counts(season_db)
-    report = records.import_records(season_db, sheet, accept_warnings=True)
+    report = import_records(season_db, sheet, accept_warnings=True)
     assert report.visits_added == len(first.stations)
     # the only warning allowed is a visit date still in the future on the day the test runs
     assert all("not after today" in w for w in report.warnings)
@@ -300,5 +301,5 @@ def test_xlsx_entry_sheet_has_drop_downs_and_is_read_back(season_db, tmp_path):
                 sheet.cell(r, header.index(name) + 1, 30 if name.startswith("cov:") else 1)
     book.save(path)
     # the plan is for a season still to come, so dates "after today" are warnings to accept
-    report = records.import_records(season_db, path, accept_warnings=True)
+    report = import_records(season_db, path, accept_warnings=True)
     assert report.visits_added == day["stations"]

@@ -15,7 +15,8 @@ import pytest
 from monitor import columns as C
 from monitor.db import Store
 from monitor.errors import DataError, InputError
-from monitor.services import quality, records
+from monitor.services import quality
+from monitor.services.corrections import set_value
 from tests.services import test_records_data as shared
 from tests.services.test_records_data import DEMO, dump
 
@@ -46,7 +47,7 @@ def test_a_jump_is_flagged_once_resolved_and_not_raised_again(demo_db):
     station, old = _typical_station()
     first = quality.run_checks(demo_db, current_year=2024)
     assert first.new == first.found == len(first.open_flags)
-    records.set_value(demo_db, station, 2022, "MARVIO", "count", "500", reason="test: keying slip")
+    set_value(demo_db, station, 2022, "MARVIO", "count", "500", reason="test: keying slip")
     run = quality.run_checks(demo_db, current_year=2024)
     jump = _jumps(run, station)
     assert list(jump[C.YEAR]) == [2022] and list(jump[C.SPECIES]) == ["MARVIO"] and run.new == 1
@@ -67,10 +68,10 @@ def test_a_jump_is_flagged_once_resolved_and_not_raised_again(demo_db):
 
 def test_correcting_the_value_clears_the_open_flag(demo_db):
     station, old = _typical_station()
-    records.set_value(demo_db, station, 2022, "MARVIO", "count", "500", reason="test: keying slip")
+    set_value(demo_db, station, 2022, "MARVIO", "count", "500", reason="test: keying slip")
     flagged = quality.run_checks(demo_db, current_year=2024)
     flag_id = int(_jumps(flagged, station)["id"].iloc[0])
-    records.set_value(demo_db, station, 2022, "MARVIO", "count", str(old), reason="back to the paper sheet")
+    set_value(demo_db, station, 2022, "MARVIO", "count", str(old), reason="back to the paper sheet")
     cleared = quality.run_checks(demo_db, current_year=2024)
     assert cleared.cleared == 1 and _jumps(cleared, station).empty
     row = cleared.all_flags[cleared.all_flags["id"] == flag_id].iloc[0]

@@ -7,7 +7,8 @@ import pytest
 from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import InputError, LockedError
-from monitor.services import records
+from monitor.services.imports import import_records
+from monitor.services.locks import set_lock
 from tests.conftest import table_counts
 
 
@@ -31,16 +32,16 @@ def _edit_first_value(text: str, column: str, new: str) -> tuple[str, str, str]:
 
 
 def test_import_then_reimport_is_a_no_op(programme_db, demo_source):
-    first = records.import_records(programme_db, _sheet(demo_source))
+    first = import_records(programme_db, _sheet(demo_source))
     assert first.visits_added == 36 and first.observations_added > 100
     counts = table_counts(programme_db)
-    again = records.import_records(programme_db, _sheet(demo_source))
+    again = import_records(programme_db, _sheet(demo_source))
     assert again.already_imported and again.visits_added == 0
     assert table_counts(programme_db) == counts
 
 
 def test_missed_and_inaccessible_visits_store_no_values(programme_db, demo_source):
-    records.import_records(programme_db, _sheet(demo_source, 2019))
+    import_records(programme_db, _sheet(demo_source, 2019))
     store = Store.open(programme_db)
     pid = store.programme().id
     outcomes = queries.visit_outcomes(store, pid)
@@ -57,23 +58,23 @@ def test_missed_and_inaccessible_visits_store_no_values(programme_db, demo_sourc
 
 def test_dry_run_writes_nothing(programme_db, demo_source):
     before = table_counts(programme_db)
-    report = records.import_records(programme_db, _sheet(demo_source), dry_run=True)
+    report = import_records(programme_db, _sheet(demo_source), dry_run=True)
     assert report.dry_run and report.visits_added == 36
     assert table_counts(programme_db) == before
 
 
 def test_changing_a_stored_value_needs_correct_and_reason(programme_db, demo_source, tmp_path):
-    records.import_records(programme_db, _sheet(demo_source))
+    import_records(programme_db, _sheet(demo_source))
     text, station, old = _edit_first_value(_sheet(demo_source).read_text(), "MARVIO:count", "977")
     changed = tmp_path / "season_2024_fixed.csv"
     changed.write_text(text)
     before = table_counts(programme_db)
     with pytest.raises(InputError, match="--correct"):
-        records.import_records(programme_db, changed)
+        import_records(programme_db, changed)
     assert table_counts(programme_db) == before
     with pytest.raises(InputError, match="reason"):
-        records.import_records(programme_db, changed, correct=True, reason="  ")
-    report = records.import_records(programme_db, changed, correct=True, reason="keying error, paper sheet says 977",
+        import_records(programme_db, changed, correct=True, reason="  ")
+    report = import_records(programme_db, changed, correct=True, reason="keying error, paper sheet says 977",
                                     who="checker")
     assert [(c.station, c.field, c.old, c.new) for c in report.changes] == [(station, "MARVIO:count", float(old), 977.0)]
     store = Store.open(programme_db)
@@ -88,17 +89,17 @@ def test_changing_a_stored_value_needs_correct_and_reason(programme_db, demo_sou
 
 
 def test_certified_season_is_locked_until_unlocked_with_reason(programme_db, demo_source, tmp_path):
-    records.import_records(programme_db, _sheet(demo_source))
-    records.set_lock(programme_db, 2024, lock=True, who="reviewer")
+    import_records(programme_db, _sheet(demo_source))
+    set_lock(programme_db, 2024, lock=True, who="reviewer")
     text, _station, _old = _edit_first_value(_sheet(demo_source).read_text(), "MARVIO:count", "977")
     changed = tmp_path / "late_fix.csv"
     changed.write_text(text)
     with pytest.raises(LockedError, match="certified"):
-        records.import_records(programme_db, changed, correct=True, reason="late fix")
+        import_records(programme_db, changed, correct=True, reason="late fix")
     with pytest.raises(InputError):
-        records.set_lock(programme_db, 2024, lock=False, reason="")
-    records.set_lock(programme_db, 2024, lock=False, reason="late correction from the paper sheet", who="reviewer")
-    records.import_records(programme_db, changed, correct=True, reason="late fix")
+        set_lock(programme_db, 2024, lock=False, reason="")
+    set_lock(programme_db, 2024, lock=False, reason="late correction from the paper sheet", who="reviewer")
+    import_records(programme_db, changed, correct=True, reason="late fix")
     store = Store.open(programme_db)
     log = store.frame("SELECT table_name, field, old_value, new_value, reason FROM change_log ORDER BY id")
     store.dispose()
@@ -114,6 +115,6 @@ def test_an_unknown_station_fails_the_whole_file(programme_db, demo_source, tmp_
     bad.write_text(text.replace(first_station + ",", "XX-99,", 1))
     before = table_counts(programme_db)
     with pytest.raises(InputError) as info:
-        records.import_records(programme_db, bad)
+        import_records(programme_db, bad)
     assert "XX-99" in str(info.value) and "row 2" in str(info.value)
     assert table_counts(programme_db) == before

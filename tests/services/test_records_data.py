@@ -206,11 +206,12 @@ class Template:
 
 def build_demo(url: str, seasons=range(2015, 2024)) -> None:
     """The invented demo programme with the given seasons imported through the importer."""
-    from monitor.services import records, setup
+    from monitor.services import setup
+    from monitor.services.imports import import_records
 
     setup.setup_folder(url, DEMO)
     for year in seasons:
-        records.import_records(url, DEMO / "records" / f"season_{year}.csv", who="fixture")
+        import_records(url, DEMO / "records" / f"season_{year}.csv", who="fixture")
 
 
 import pytest  # noqa: E402  (fixtures shared by the records, quality and export tests)

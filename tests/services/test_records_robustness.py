@@ -1,12 +1,12 @@
 """An import is all or nothing even when its process is killed, and two imports at once both land.
 
 * SIGKILL: ``python -m monitor records import`` on a generated sheet is killed (signal 9, which cannot be
-  caught) while its transaction is open and its visits are written (the test hook
-  MONITOR_TEST_PAUSE_AFTER_VISITS makes it say so and wait); the database is then exactly as before
+  caught) while its transaction is open and its visits are written (run through
+  tests/resilience/paused_monitor.py, which installs a pause at the services' fault-injection point); the database is then exactly as before
   (every row of every table, and on SQLite the file's bytes once its rollback journal is replayed, as
   SQLite's atomic commit guarantees: https://www.sqlite.org/atomiccommit.html).
 * Concurrency: two processes import two different sheets of the same seasons into one database at the
-  same time; both finish, and every visit and value of both files is stored once.  The pause hook holds
+  same time; both finish, and every visit and value of both files is stored once.  The pause holds
   the first import's transaction open while it has created the season's rounds, so the second must wait
   for or race it (round creation is ``INSERT ... ON CONFLICT DO NOTHING``; transient failures retried).
 
@@ -18,16 +18,17 @@ from __future__ import annotations
 import os
 import signal
 import subprocess
-import sys
-import time
 from pathlib import Path
 
 import numpy as np
 import pytest
 
 from monitor.errors import MonitorError
-from monitor.services import records, setup
+from monitor.services import setup
+from monitor.services.common import run_with_retries
+from monitor.services.imports import import_records
 from tests.conftest import REPO_ROOT
+from tests.resilience.paused_monitor import command, wait_for_pause
 from tests.services.test_records_data import (
     Template,
     dump,
@@ -52,25 +53,11 @@ def generated(request, tmp_path_factory):
     template.close()
 
 
-def _monitor(db: str, *args: str, pause: float | None = None) -> subprocess.Popen:
+def _monitor(db: str, *args: str, pause: float) -> subprocess.Popen:
+    """``monitor records import ARGS`` pausing ``pause`` seconds once its visits are written (uncommitted)."""
     env = {**os.environ, "PYTHONPATH": str(REPO_ROOT)}
-    env.pop(records.PAUSE_HOOK, None)
-    if pause is not None:
-        env[records.PAUSE_HOOK] = str(pause)
-    return subprocess.Popen([sys.executable, "-m", "monitor", "--db", db, "records", "import", *args],
+    return subprocess.Popen([*command(pause), "--db", db, "records", "import", *args],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env, cwd=REPO_ROOT)
-
-
-def _wait_for_hook(process: subprocess.Popen, timeout: float = 120.0) -> str:
-    """Read stderr until the pause hook's line (the import has written its visits, uncommitted)."""
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        line = process.stderr.readline()
-        if records.PAUSE_HOOK in line:
-            return line
-        if not line and process.poll() is not None:
-            raise AssertionError(f"import ended before writing: {process.returncode} {process.stderr.read()}")
-    raise AssertionError("the import never reached the pause hook")
 
 
 def test_an_import_killed_mid_way_leaves_the_database_as_before(generated):
@@ -82,7 +69,7 @@ def test_an_import_killed_mid_way_leaves_the_database_as_before(generated):
     before_bytes = Path(db).read_bytes() if template.engine == "sqlite" else None
     process = _monitor(db, str(sheet), pause=60)
     try:
-        line = _wait_for_hook(process)
+        line = wait_for_pause(process)
         assert f"{5 * N_STATIONS} visits written" in line
         process.send_signal(signal.SIGKILL)
         process.wait(timeout=30)
@@ -98,7 +85,7 @@ def test_an_import_killed_mid_way_leaves_the_database_as_before(generated):
     if before_bytes is not None:
         assert Path(db).read_bytes() == before_bytes
     # and the same file imports completely afterwards
-    report = records.import_records(db, sheet)
+    report = import_records(db, sheet)
     assert report.visits_added == 5 * N_STATIONS
 
 
@@ -112,7 +99,7 @@ def test_two_imports_at_the_same_time_both_land_completely(generated):
               for k, part in enumerate((codes[:half], codes[half:]))]
     first = _monitor(db, str(sheets[0]), pause=1.5)
     try:
-        _wait_for_hook(first)  # the first holds new rounds 2010-2012 in an open transaction ...
+        wait_for_pause(first)  # the first holds new rounds 2010-2012 in an open transaction ...
         second = _monitor(db, str(sheets[1]), pause=0.2)  # ... while the second starts
         outs = [p.communicate(timeout=180) for p in (first, second)]
     finally:
@@ -163,7 +150,7 @@ def test_transient_failures_are_retried_and_others_are_not():
             raise _wrapped("40P01")
         return "done"
 
-    assert records.run_with_retries(flaky, first_wait=0.001) == "done" and len(calls) == 3
+    assert run_with_retries(flaky, first_wait=0.001) == "done" and len(calls) == 3
     calls.clear()
 
     def wrong():
@@ -171,5 +158,5 @@ def test_transient_failures_are_retried_and_others_are_not():
         raise _wrapped("23514")
 
     with pytest.raises(MonitorError):
-        records.run_with_retries(wrong, first_wait=0.001)
+        run_with_retries(wrong, first_wait=0.001)
     assert len(calls) == 1

@@ -12,7 +12,9 @@ import json
 
 from monitor import columns as C
 from monitor.db import Store, queries
-from monitor.services import exports, records, setup
+from monitor.services import exports, setup
+from monitor.services.history import station_history
+from monitor.services.imports import import_records
 from tests.services.test_records_data import HEADER, make_programme, write_sheet
 
 
@@ -30,7 +32,7 @@ def test_blank_is_zero_only_on_done_visits_and_missing_stays_missing(db_url, tmp
         [codes[3], "2020-06-22", "", "inaccessible", "no", "", "flooded", "", "", "", "", ""],
     ]
     assert len(rows[0]) == len(HEADER)
-    report = records.import_records(db_url, write_sheet(tmp_path / "s.csv", rows))
+    report = import_records(db_url, write_sheet(tmp_path / "s.csv", rows))
     assert report.visits_added == 4 and report.observations_added == 5 + 1
     store = Store.open(db_url)
     try:
@@ -45,7 +47,7 @@ def test_blank_is_zero_only_on_done_visits_and_missing_stays_missing(db_url, tmp
     assert list(partial[C.SPECIES]) == ["MARVIO"]
     assert not set(long[C.STATION]) & {codes[2], codes[3]}
     assert set(visits[C.STATION]) == set(codes)  # the missing visits are stored, as visits without values
-    history = records.station_history(db_url, codes[2])
+    history = station_history(db_url, codes[2])
     assert history["visits"][0]["status"] == "missed" and history["visits"][0]["values"] == {}
     paths = exports.export_csv(db_url, tmp_path / "csv")
     lines = paths["observations"].read_text().splitlines()

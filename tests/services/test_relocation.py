@@ -8,7 +8,9 @@ import math
 from monitor import columns as C
 from monitor.cli.main import main
 from monitor.db import Store, queries
-from monitor.services import records, relocation, schedule, setup, trend
+from monitor.services import relocation, schedule, setup, trend
+from monitor.services.history import station_history
+from monitor.services.imports import import_records
 from tests.cli.test_plan_cli import _refused
 
 
@@ -52,7 +54,7 @@ def test_move_keeps_history_links_and_logs(programme_db, capsys):
     # moving the new one again keeps the lineage of the first
     relocation.move_station(programme_db, "SM-12R", to=(to[0], to[1] + 2.0), reason="flood scour",
                             date=dt.date(2026, 4, 1), who="test")
-    history = records.station_history(programme_db, "SM-12R2")
+    history = station_history(programme_db, "SM-12R2")
     assert list(history["lineage"]["from_station"]) == ["SM-12", "SM-12R"]
     assert list(history["lineage"]["distance_m"]) == [5.0, 2.0]
     assert main(["--db", programme_db, "station", "history", "SM-12R2"]) == 0
@@ -85,7 +87,7 @@ def test_trend_treats_the_moved_pair_as_one_station(db_url, demo_source):
         if year >= 2021:
             text = path.read_text().replace("WE-03,", "WE-03R,")
             path = _copy(path, text, db_url)
-        records.import_records(db_url, path)
+        import_records(db_url, path)
     fits = {t.species: t for t in trend.fit_programme(db_url, species=["MARVIO"])}
     marvio = fits["MARVIO"]
     # MARVIO grows in SM and WE (truth.json); WE-03 and WE-03R are one station of the model
@@ -118,7 +120,7 @@ def _copy(path, text, db_url):
 
 def test_field_sheet_shows_the_lineage(db_url, demo_source, tmp_path):
     setup.setup_folder(db_url, demo_source)
-    records.import_records(db_url, demo_source / "records" / "season_2026.csv")
+    import_records(db_url, demo_source / "records" / "season_2026.csv")
     relocation.move_station(db_url, "SM-T03", to=_shift(db_url, "SM-T03", 2.0), reason="bank collapse",
                             date=dt.date(2026, 10, 1), who="test")
     schedule.plan_season(db_url, 2027, teams=2, seed=3)

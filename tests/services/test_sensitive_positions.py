@@ -12,7 +12,8 @@ import pytest
 from lxml import etree
 
 from monitor.db import Store, queries
-from monitor.services import exports, records, report, schedule, setup
+from monitor.services import exports, report, schedule, setup
+from monitor.services.imports import import_records
 from monitor.settings import GENERALISE_M
 
 
@@ -66,7 +67,7 @@ def test_report_maps_show_sensitive_stations_generalised(demo_db, tmp_path, monk
 def season_db(db_url, demo_source):
     setup.setup_folder(db_url, demo_source)
     for year in (2024, 2025, 2026):
-        records.import_records(db_url, demo_source / "records" / f"season_{year}.csv")
+        import_records(db_url, demo_source / "records" / f"season_{year}.csv")
     return db_url
 
 

@@ -14,7 +14,7 @@ import pytest
 
 from monitor import columns as C
 from monitor.db import Store, queries
-from monitor.services import records, schedule, setup
+from monitor.services import schedule, setup
 from monitor.services.demo_southern import (
     SOUTHERN_BLOCKED,
     run_southern_demo,
@@ -22,6 +22,7 @@ from monitor.services.demo_southern import (
     shift_month_day,
     write_southern_variant,
 )
+from monitor.services.imports import import_records
 
 SEASONS = (2023, 2024, 2025)
 
@@ -42,7 +43,7 @@ def both(tmp_path, db_url, demo_source):
     for db, folder in ((db_url, demo_source), (south, south_files)):
         setup.setup_folder(db, folder)
         for year in SEASONS:
-            records.import_records(db, folder / "records" / f"season_{year}.csv")
+            import_records(db, folder / "records" / f"season_{year}.csv")
     return db_url, south
 
 

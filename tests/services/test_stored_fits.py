@@ -5,13 +5,15 @@ from __future__ import annotations
 
 import dataclasses
 import json
-import shutil
 
 import pandas as pd
 import pytest
 
 from monitor.db import Store
-from monitor.services import analyses, records, setup, trend
+from monitor.services import analyses, trend
+from monitor.services.common import current_user
+from monitor.services.corrections import set_value
+from monitor.services.imports import import_records
 
 SPECIES = ["CHAORC", "HEABEL"]  # a count (Poisson-lognormal) and a frequency (binomial) series of the demo
 
@@ -33,12 +35,12 @@ def filled_db(programme_db, demo_source, tmp_path):
     """The demo on each engine, with every season but half of 2026's sheet imported (the rest comes late)."""
     for sheet in sorted((demo_source / "records").glob("season_20*.csv")):
         if sheet.name != "season_2026.csv":
-            records.import_records(programme_db, sheet, who="test")
+            import_records(programme_db, sheet, who="test")
     lines = (demo_source / "records" / "season_2026.csv").read_text().splitlines(keepends=True)
     half = len(lines) // 2
     (tmp_path / "season_2026_a.csv").write_text("".join(lines[:half]))
     (tmp_path / "season_2026_b.csv").write_text(lines[0] + "".join(lines[half:]))
-    records.import_records(programme_db, tmp_path / "season_2026_a.csv", who="test")
+    import_records(programme_db, tmp_path / "season_2026_a.csv", who="test")
     return programme_db
 
 
@@ -66,7 +68,7 @@ def test_stored_fits_are_reused_equal_a_refit_and_are_refitted_after_a_correctio
     assert len(_stored_rows(filled_db)) == 2
 
     # a correction of one CHAORC value: CHAORC is fitted again, HEABEL still reused
-    records.set_value(filled_db, "CB-12", 2024, "CHAORC", "count", "7", reason="recount from the photo",
+    set_value(filled_db, "CB-12", 2024, "CHAORC", "count", "7", reason="recount from the photo",
                       who="test")
     corrected = trend.fit_programme(filled_db, species=SPECIES, workers=1)
     assert [t.reused for t in corrected] == [False, True]
@@ -75,13 +77,13 @@ def test_stored_fits_are_reused_equal_a_refit_and_are_refitted_after_a_correctio
     _same(corrected[1], first[1])
 
     # a late sheet for 2026: both series gain visits, both are fitted again
-    records.import_records(filled_db, tmp_path / "season_2026_b.csv", who="test")
+    import_records(filled_db, tmp_path / "season_2026_b.csv", who="test")
     late = trend.fit_programme(filled_db, species=SPECIES, workers=1)
     assert [t.reused for t in late] == [False, False]
     assert late[0].result.n_obs > corrected[0].result.n_obs and late[1].result.n_obs > first[1].result.n_obs
     rows = _stored_rows(filled_db)
     assert len(rows) == 5 and rows["data_fingerprint"].nunique() == 5
-    assert set(rows["fitted_by"]) == {records.current_user()}
+    assert set(rows["fitted_by"]) == {current_user()}
 
 
 def test_another_option_is_another_fit(filled_db):

@@ -7,7 +7,8 @@ import csv
 import json
 
 from monitor.cli.main import main
-from monitor.services import records, report, setup, trend
+from monitor.services import report, setup, trend
+from monitor.services.imports import import_records
 from tests.conftest import REPO_ROOT
 
 SEASONS = REPO_ROOT / "demo_programme" / "records"
@@ -16,7 +17,7 @@ SEASONS = REPO_ROOT / "demo_programme" / "records"
 def _programme_with_a_new_species(db: str, tmp_path) -> None:
     setup.setup_folder(db, REPO_ROOT / "demo_programme")
     for year in (2021, 2022, 2023):
-        records.import_records(db, SEASONS / f"season_{year}.csv")
+        import_records(db, SEASONS / f"season_{year}.csv")
     new = tmp_path / "new_species.csv"
     new.write_text("code,scientific_name,common_name,measure\nNEWSP,Novella invented,new plant (invented),count\n")
     setup.load_file(db, "species", new)
@@ -28,7 +29,7 @@ def _programme_with_a_new_species(db: str, tmp_path) -> None:
         writer.writerow([*rows[0], "NEWSP:count"])
         for k, row in enumerate(rows[1:]):
             writer.writerow([*row, str(k % 3) if row[3] in ("done", "partial") else ""])
-    records.import_records(db, sheet)
+    import_records(db, sheet)
 
 
 def test_a_one_season_species_is_too_short_to_call_and_the_rest_stand(db_url, tmp_path, capsys):

@@ -61,6 +61,61 @@ def test_trend_with_year_effect_uses_t_reference():
     assert r.slope_se > 1.5 * r0.slope_se
 
 
+def test_conf_int_and_frame_use_the_reference_of_the_slope_interval():
+    # The fixed-effect table and conf_int() use the reference of the Wald interval and call:
+    # t with the between-year (containment) df, 12 years - 2 = 10, quantile from scipy.stats.t,
+    # and the ML standard error scaled by sqrt(12 / 10); estimates and SEs against glmmTMB 1.1.5
+    # glmmTMB(count_nb ~ t + (1|site) + (1|station) + (1|fyear), nbinom2)
+    r = TrendModel(nb_frame(), "count", family="negbin").fit(profile=False, indices=False, fast=False)
+    ref = REF["negbin_year"]
+    q = t.ppf(0.975, 10) * math.sqrt(12 / 10)
+    ci, frame = r.conf_int(), r.to_frame()
+    for ours, theirs in (("year", "t"), ("(Intercept)", "(Intercept)")):
+        est, se = ref["fixef"][theirs], ref["se"][theirs]
+        assert ci.loc[ours, "lower"] == pytest.approx(est - q * se, abs=2e-4), ours
+        assert ci.loc[ours, "upper"] == pytest.approx(est + q * se, abs=2e-4), ours
+        assert frame.loc[ours, "df"] == 10 and frame.loc[ours, "se_scale"] == pytest.approx(math.sqrt(1.2))
+        assert frame.loc[ours, "reference"] == "t, 10 df, SE x 1.095"
+    # the same bounds as the annual change (exp(b1) - 1) that the call reads
+    assert math.expm1(ci.loc["year", "lower"]) == pytest.approx(r.annual_change.lower, rel=1e-12)
+    assert math.expm1(ci.loc["year", "upper"]) == pytest.approx(r.annual_change.upper, rel=1e-12)
+    assert list(frame.columns) == ["estimate", "se", "lower", "upper", "df", "se_scale", "reference"]
+    # 90 % intervals take scipy's 0.95 quantile
+    assert r.conf_int(0.10).loc["year", "upper"] == pytest.approx(
+        r.slope + t.ppf(0.95, 10) * math.sqrt(1.2) * r.slope_se, rel=1e-12)
+    # a covariate that varies within years keeps the normal reference, unscaled
+    rng = np.random.default_rng(3)
+    d = nb_frame().assign(wet=lambda x: rng.normal(0, 1, len(x)))
+    rc = TrendModel(d, "count", family="negbin", covariates=["wet"]).fit(profile=False, indices=False, fast=False)
+    fc = rc.to_frame()
+    assert math.isinf(fc.loc["wet", "df"]) and fc.loc["wet", "reference"] == "normal (z)"
+    assert rc.conf_int().loc["wet", "lower"] == pytest.approx(
+        rc.params["wet"] - norm.ppf(0.975) * rc.bse["wet"], rel=1e-12)
+    assert fc.loc["year", "df"] == 10
+
+
+def test_conf_int_of_reml_and_ml_cover_against_lmer():
+    # lme4 1.1-31 lmer(z ~ t + (1|site) + (1|station) + (1|fyear)), REML and ML: the REML interval is
+    # estimate -/+ t(0.975, 10) x its SE (no scaling); the ML one scales the ML SE by sqrt(12 / 10)
+    cover = YEAR.assign(cover_pct=100 / (1 + np.exp(-YEAR["z"])))
+    for reml, key, scale in ((True, "gaussian_year_reml", 1.0), (False, "gaussian_year_ml", math.sqrt(1.2))):
+        r = TrendModel(cover, "cover", reml=reml).fit(profile=False, indices=False, fast=False)
+        ref = REF[key]
+        ci = r.conf_int()
+        q = t.ppf(0.975, 10) * scale
+        for ours, theirs in (("year", "t"), ("(Intercept)", "(Intercept)")):
+            est, se = ref["fixef"][theirs], ref["se"][theirs]
+            # z in the fixture is rounded to 6 decimals before the logistic: 1e-4 on the estimates
+            assert ci.loc[ours, "lower"] == pytest.approx(est - q * se, abs=2e-4), (key, ours)
+            assert ci.loc[ours, "upper"] == pytest.approx(est + q * se, abs=2e-4), (key, ours)
+        assert r.to_frame().loc["year", "reference"] == ("t, 10 df" if reml else "t, 10 df, SE x 1.095")
+    # without a year effect: the normal reference everywhere
+    r0 = TrendModel(cover, "cover", year_random="none").fit(profile=False, indices=False, fast=False)
+    f0 = r0.to_frame()
+    assert (f0["reference"] == "normal (z)").all() and (f0["se_scale"] == 1.0).all()
+    assert r0.conf_int().loc["year", "lower"] == pytest.approx(r0.slope - norm.ppf(0.975) * r0.slope_se, rel=1e-12)
+
+
 def test_profile_interval_uses_t_quantile():
     m = TrendModel(YEAR, "frequency")   # occupied of 20 cells, binomial with a year effect
     r = m.fit(profile=True, indices=False)

@@ -19,12 +19,13 @@ PASSWORDS = {"owner": "owner-password-1", "recorder": "recorder-password-1", "re
 
 
 def _build(url: str) -> None:
-    from monitor.services import records, setup
+    from monitor.services import setup
+    from monitor.services.imports import import_records
 
     setup.init_database(url)
     setup.setup_folder(url, REPO_ROOT / "demo_programme")
     for year in STORED_SEASONS:
-        records.import_records(url, RECORDS / f"season_{year}.csv", who="test")
+        import_records(url, RECORDS / f"season_{year}.csv", who="test")
 
 
 @pytest.fixture(scope="module", params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])

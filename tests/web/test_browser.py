@@ -14,7 +14,9 @@ import pandas as pd
 import pytest
 
 from monitor.cli.main import main
-from monitor.services import records, web_users
+from monitor.services import web_users
+from monitor.services.history import station_history
+from monitor.services.imports import import_records
 from monitor.web.app import WebConfig, create_app
 from tests.conftest import POSTGRES_URL, _postgres_database, table_counts
 from tests.web.conftest import PASSWORDS, RECORDS, _build
@@ -236,7 +238,7 @@ def test_offline_phone_sheet_fill_reload_export_and_import(chromium, tmp_path):
     assert main(["--db", db, "records", "import", str(exported), "--accept-warnings"]) == 0
     assert table_counts(db)["observation"] == before["observation"] + 3 * sum(f["kind"] == "value" for f in fields)
     for k, code in enumerate(stations):
-        history = records.station_history(db, code)
+        history = station_history(db, code)
         visit = next(v for v in history["visits"] if v["year"] == 2027)
         assert visit["status"] == "done" and visit["notes"] == notes[k]
         assert visit["observers"] == ";".join(data["members"])
@@ -264,7 +266,7 @@ def test_a_reader_signs_in_and_is_refused_an_upload(chromium, tmp_path):
     try:
         setup.init_database(url)
         setup.setup_folder(url, Path(RECORDS).parent)
-        records.import_records(url, RECORDS / "season_2026.csv", who="test")
+        import_records(url, RECORDS / "season_2026.csv", who="test")
         backup.setup_access(url)
         web_users.add_user(url, "rhea", "reader", PASSWORDS["reader"])
         config = WebConfig(db=url, workdir=tmp_path / "web", shared=True, role_db=web_users.role_urls(url))

@@ -10,7 +10,9 @@ import zipfile
 import pandas as pd
 import pytest
 
-from monitor.services import quality, records, schedule, workspace
+from monitor.services import quality, schedule, workspace
+from monitor.services.corrections import set_value
+from monitor.services.history import station_history
 from tests.conftest import table_counts
 from tests.web.conftest import RECORDS
 
@@ -27,7 +29,7 @@ def test_every_page_shows_the_programme(owner, programme):
     for code in workspace.reserve(url)["stations"]["station"]:
         assert f'href="/stations/{code}"' in stations.text
     # the station page: every stored value of the station's visits is in its table (values from the service)
-    history = records.station_history(url, "SM-17")
+    history = station_history(url, "SM-17")
     page = owner.get("/stations/SM-17")
     assert page.status_code == 200
     for visit in history["visits"]:
@@ -90,7 +92,7 @@ def test_upload_clean_sheet_dry_run_then_import_on_confirmation(owner, programme
     assert list((tmp_path / "web" / "uploads").iterdir()) == []  # the saved upload goes once it is stored
     sheet = pd.read_csv(RECORDS / "season_2020.csv", dtype=str, keep_default_na=False)
     row = sheet[sheet["status"] == "done"].iloc[0]
-    history = records.station_history(url, row["station"])
+    history = station_history(url, row["station"])
     stored = next(v for v in history["visits"] if v["date"].isoformat() == row["date"])
     for column in [c for c in sheet.columns if ":" in c and not c.startswith("cov:")]:
         key = column.split("/")[0]
@@ -112,14 +114,14 @@ def test_correct_certify_and_unlock(owner, programme):
     page = owner.post("/records/correct", {"station": "SM-17", "year": "2024", "field": "MARVIO:count",
                                            "value": str(after), "reason": "recount from the photo"})
     assert page.status_code == 200 and f"corrected {before} -&gt; {after} (logged)" in page.text
-    history = records.station_history(url, "SM-17")
+    history = station_history(url, "SM-17")
     assert history["visits"][-1]["values"]["MARVIO:count"] == after
     assert "recount from the photo" in history["changes"]["reason"].tolist()
     # without a reason: refused, nothing changed
     refused = owner.post("/records/correct", {"station": "SM-17", "year": "2024", "field": "MARVIO:count",
                                               "value": str(after + 3), "reason": ""})
     assert refused.status_code == 400 and "reason" in refused.text
-    assert records.station_history(url, "SM-17")["visits"][-1]["values"]["MARVIO:count"] == after
+    assert station_history(url, "SM-17")["visits"][-1]["values"]["MARVIO:count"] == after
     certified = owner.post("/records/certify", {"year": "2024"})
     assert "season 2024 certified (locked)" in certified.text
     seasons = workspace.seasons(url).set_index("year")
@@ -191,8 +193,8 @@ def test_a_trend_is_fitted_again_after_the_records_change_elsewhere(owner, progr
     fitted = [k for k in cache if k[:2] == ("trend", "GLASED")]
     assert owner.get("/trends/GLASED").status_code == 200
     assert [k for k in cache if k[:2] == ("trend", "GLASED")] == fitted  # reused while nothing changed
-    done = next(v for v in records.station_history(url, "SM-17")["visits"] if v["status"] == "done")
-    records.set_value(url, "SM-17", done["year"], "GLASED", "cover", str(done["values"]["GLASED:cover"] + 1),
+    done = next(v for v in station_history(url, "SM-17")["visits"] if v["status"] == "done")
+    set_value(url, "SM-17", done["year"], "GLASED", "cover", str(done["values"]["GLASED:cover"] + 1),
                       reason="recount, from the command line")
     assert owner.get("/trends/GLASED").status_code == 200
     assert len([k for k in cache if k[:2] == ("trend", "GLASED")]) == len(fitted) + 1

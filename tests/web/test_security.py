@@ -10,7 +10,9 @@ import pytest
 from starlette.testclient import TestClient
 
 from monitor.security import SignInLimiter, hash_password, safe_file, verify_password
-from monitor.services import records, web_users
+from monitor.services import web_users
+from monitor.services.history import station_history
+from monitor.services.imports import import_records
 from monitor.web.app import SESSION_COOKIE, WebConfig, create_app
 from tests.conftest import table_counts
 from tests.web.conftest import HOSTILE, PASSWORDS, RECORDS, make_client
@@ -259,7 +261,7 @@ def test_a_reader_may_read_but_never_upload_or_correct(programme, tmp_path):
     from monitor.errors import AccessError
 
     with pytest.raises(AccessError):
-        records.import_records(web_users.role_urls(url)["reader"], sheet, who="test")
+        import_records(web_users.role_urls(url)["reader"], sheet, who="test")
     assert table_counts(url) == before
 
 
@@ -271,7 +273,7 @@ def test_a_recorder_works_under_the_recorder_role_and_cannot_touch_the_change_lo
     from sqlalchemy.exc import ProgrammingError
 
     recorder = make_client(engine, url, tmp_path / "web", "recorder")
-    visit = next(v for v in records.station_history(url, "SM-17")["visits"] if v["status"] == "done")
+    visit = next(v for v in station_history(url, "SM-17")["visits"] if v["status"] == "done")
     done = recorder.post("/records/correct", {"station": "SM-17", "year": str(visit["year"]), "field": "GLASED:cover",
                                               "value": str(visit["values"]["GLASED:cover"] + 1),
                                               "reason": "typo on the sheet"})

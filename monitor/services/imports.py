@@ -1,4 +1,4 @@
-"""Field records: import a season's sheets, correct stored values with an audit trail, lock seasons.
+"""Importing a season's field sheets: read and check the whole file, compare it with what is stored, write.
 
 An import is all or nothing.  It reads and checks the whole file first (``monitor.io.records`` and
 ``monitor.io.validate``), compares it with what is stored, and only then writes, in one transaction:
@@ -15,47 +15,34 @@ Missing is never zero: a missed or inaccessible visit is stored with no observat
 from __future__ import annotations
 
 import datetime as dt
-import getpass
-import json
-import os
-import sys
-import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TypeVar
 
 import numpy as np
 import pandas as pd
 
 from monitor import columns as C
-from monitor import measures
 from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.db.models import utcnow
-from monitor.errors import MAX_LISTED, DataError, InputError, InputProblem, LockedError, MonitorError
+from monitor.errors import MAX_LISTED, InputError, InputProblem, LockedError, MonitorError
 from monitor.io import headers as H
 from monitor.io.hashing import content_hash
 from monitor.io.records import FieldRecords, read_field_records
+from monitor.io.sheets import cell_text
 from monitor.io.validate import Reference, fill_blank_targets, raise_for_problems, validate_records
+from monitor.services import faults
+from monitor.services.common import (
+    Change,
+    current_user,
+    log_change,
+    plain_problems,
+    run_with_retries,
+)
+from monitor.settings import programme_settings
 
 KIND_RECORDS = "records"
-T = TypeVar("T")
-
-
-@dataclass
-class Change:
-    """One stored value that an import or correction changes."""
-
-    station: str
-    year: int
-    date: str
-    field: str
-    old: object
-    new: object
-
-    def line(self) -> str:
-        return f"{self.station} {self.date}: {self.field} {self.old!r} -> {self.new!r}"
 
 
 OUTCOME_IMPORTED = "imported"              # committed
@@ -94,21 +81,7 @@ class ImportReport:
         }
 
 
-def current_user() -> str:
-    try:
-        return os.environ.get("MONITOR_USER") or getpass.getuser()
-    except (KeyError, OSError):
-        return "unknown"
-
-
 # --- what the programme holds, for validation ---------------------------------------------------------------
-
-
-def _settings(programme: M.Programme) -> dict:
-    try:
-        return json.loads(programme.settings_json or "{}")
-    except json.JSONDecodeError:
-        return {}
 
 
 def programme_window(session: Session, programme_id: int, year: int) -> tuple[dt.date, dt.date]:
@@ -164,7 +137,7 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
         columns=[C.STATION, C.DATE, H.REPEAT])
     existing[H.REPEAT] = existing[H.REPEAT] > 0
     observers = frozenset(session.exec(select(M.Observer.code).where(M.Observer.programme_id == pid)).all())
-    units = _settings(programme).get("covariate_units")
+    units = dict(programme_settings(programme).covariate_units)
     return Reference(
         stations=pd.DataFrame({C.STATION: [s.code for s in stations], H.RETIRED: [s.retired for s in stations]}),
         species=species,
@@ -184,39 +157,6 @@ def build_reference(session: Session, programme: M.Programme, years: list[int]) 
 
 #: Test hook, not for users: when set to a number of seconds, an import that has written its visits, an import
 #: that has applied its corrections (and written none), or ``set_value`` once it has written its value and the
-#: change-log row (each inside its still open transaction) says so on stderr and sleeps that long, so that a
-#: test can kill the process at that moment and show that nothing of the command is left in the database.
-PAUSE_HOOK = "MONITOR_TEST_PAUSE_AFTER_VISITS"
-#: attempts of one import when the database reports a transient failure (serialization failure, deadlock,
-#: a busy SQLite file, a round or visit created first by a concurrent import)
-ATTEMPTS = 6
-
-
-def _text(value: object) -> str:
-    if value is None:
-        return ""
-    try:
-        if pd.isna(value):
-            return ""
-    except (TypeError, ValueError):
-        pass
-    return str(value)
-
-
-def run_with_retries(work: Callable[[], T], *, attempts: int = ATTEMPTS, first_wait: float = 0.05) -> T:
-    """Run one transaction's work, again from the start when it failed for a transient reason.
-
-    The wait doubles after each failed attempt (exponential backoff), offset by the process id so that
-    two processes that collided do not retry in step.
-    """
-    for attempt in range(attempts):
-        try:
-            return work()
-        except MonitorError as exc:
-            if attempt == attempts - 1 or not queries.retryable(exc):
-                raise
-            time.sleep(first_wait * (2 ** attempt) * (1 + (os.getpid() % 11) / 11))
-    raise AssertionError("unreachable")  # pragma: no cover
 
 
 def import_records(db: str | None, path: Path, *, programme_code: str | None = None, dry_run: bool = False,
@@ -417,7 +357,7 @@ def _protocol_problems(session: Session, programme_id: int, visits: pd.DataFrame
     known = set(session.exec(select(M.ProtocolVersion.code).where(M.ProtocolVersion.programme_id == programme_id)).all())
     out = []
     for code, row in zip(visits[C.PROTOCOL], visits[H.SOURCE_ROW], strict=True):
-        code = _text(code)
+        code = cell_text(code)
         if code and code not in known:
             out.append(InputProblem(file, int(row), C.PROTOCOL, code,
                                     f"a protocol version of the programme ({', '.join(sorted(known)) or 'none'})"))
@@ -464,12 +404,12 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
         C.DATE: visits[C.DATE].to_numpy(dtype=object),
         "status": visits[C.VISIT_STATUS].to_numpy(dtype=object),
         "repeat": visits[H.REPEAT].fillna(False).astype(bool).to_numpy(),
-        "notes": [x if isinstance(x, str) else _text(x) for x in visits[H.NOTES]],
+        "notes": [x if isinstance(x, str) else cell_text(x) for x in visits[H.NOTES]],
         "observer_ids": [ids_of(team) for team in visits[H.OBSERVERS]],
         "source_row": visits[H.SOURCE_ROW].astype(int).to_numpy(),
     })
     v["protocol_id"] = [protocol_ids.get(code) if code else protocol_default.get(year)
-                        for code, year in zip((_text(x) for x in visits[C.PROTOCOL]), v[C.YEAR], strict=True)]
+                        for code, year in zip((cell_text(x) for x in visits[C.PROTOCOL]), v[C.YEAR], strict=True)]
     v["existing_id"] = pd.array([None] * len(v), dtype="Int64")
 
     stored = pd.DataFrame(columns=["id", "station_id", "round_id", "date", "repeat_no"])
@@ -530,7 +470,7 @@ def _plan(session: Session, programme: M.Programme, file: str, visits: pd.DataFr
         plan.new_covariates = pd.DataFrame({
             "at": at[keep],
             "name": c["name"].to_numpy(dtype=object),
-            "unit": [_text(u) for u in c[H.UNIT]],
+            "unit": [cell_text(u) for u in c[H.UNIT]],
             "value": c[H.VALUE].astype(float).to_numpy(),
         })
 
@@ -575,7 +515,7 @@ def _plan_stored(session: Session, matched: pd.DataFrame, observations: pd.DataF
     status, protocol, observers and notes alike."""
     obs_by_visit = {k: g for k, g in observations.groupby([C.STATION, C.DATE], sort=False)} if len(observations) else {}
     cov_by_visit = {k: g for k, g in covariates.groupby([C.STATION, C.DATE], sort=False)} if len(covariates) else {}
-    stated_protocol = [bool(_text(code)) for code in visits[C.PROTOCOL]]  # by position, as matched's index
+    stated_protocol = [bool(cell_text(code)) for code in visits[C.PROTOCOL]]  # by position, as matched's index
     for index, r in zip(matched.index, matched.to_dict(orient="records"), strict=True):
         station, date, year = r[C.STATION], r[C.DATE], int(r[C.YEAR])
         rows_obs = obs_by_visit.get((station, date))
@@ -590,7 +530,7 @@ def _plan_stored(session: Session, matched: pd.DataFrame, observations: pd.DataF
                  "value": float(o[H.VALUE]), "n": None if pd.isna(o[H.N]) else int(o[H.N])}
                 for o in rows_obs.to_dict(orient="records")],
             "covariates": {} if rows_cov is None else {
-                c["name"]: (float(c[H.VALUE]), _text(c[H.UNIT])) for c in rows_cov.to_dict(orient="records")},
+                c["name"]: (float(c[H.VALUE]), cell_text(c[H.UNIT])) for c in rows_cov.to_dict(orient="records")},
             "covariate_names": set(covariate_names),
         }
         existing = session.get(M.Visit, int(r["existing_id"]))
@@ -621,7 +561,7 @@ def _default_protocol(session: Session, programme_id: int) -> dict[int, int]:
     return _ByYear()
 
 
-def _stored_covariates(session: Session, visit_id: int) -> dict[str, M.Covariate]:
+def stored_covariates(session: Session, visit_id: int) -> dict[str, M.Covariate]:
     return {c.name: c for c in session.exec(select(M.Covariate).where(M.Covariate.visit_id == visit_id)).all()}
 
 
@@ -675,7 +615,7 @@ def _compare(session: Session, visit: M.Visit, row: dict, species_ids: dict, obs
             change(label, old.value, None)
         elif old.value != new["value"] or (old.n or None) != (new["n"] or None):
             change(label, old.value, new["value"])
-    for name, old, new, _unit in _covariate_changes(_stored_covariates(session, visit.id), row):
+    for name, old, new, _unit in _covariate_changes(stored_covariates(session, visit.id), row):
         change(f"cov:{name}", old, new)
     stored_observers = set(session.exec(select(M.VisitObserver.observer_id)
                                         .where(M.VisitObserver.visit_id == visit.id)).all())
@@ -709,7 +649,7 @@ def _write(session: Session, programme: M.Programme, file_name: str, digest: str
                                      [int(x) for x in new["repeat_no"]],
                                      [None if x is None or pd.isna(x) else int(x) for x in new["protocol_id"]],
                                      new["notes"].tolist(), [batch.id] * len(new), strict=True)))
-        _pause_hook(f"{len(new)} visits written")
+        faults.reached(f"{len(new)} visits written")
         id_of = {(s, r, k): i for i, s, r, k in queries.batch_visits(session, batch.id)}
         id_at = np.zeros(int(new.index.max()) + 1, dtype=np.int64)  # visit id by position in the file
         id_at[new.index.to_numpy()] = [id_of[(int(s), r, int(k))] for s, r, k in
@@ -735,7 +675,7 @@ def _write(session: Session, programme: M.Programme, file_name: str, digest: str
         _apply_update(session, programme.id, visit_id, row, reason or "", who, now)
     session.flush()
     if plan.updates and not len(new):
-        _pause_hook(f"{len(plan.updates)} visits corrected")
+        faults.reached(f"{len(plan.updates)} visits corrected")
     new_years = {int(y) for y in plan.new[C.YEAR].unique()} if len(plan.new) else set()
     _refresh_planned_outcomes(session, programme.id, sorted(new_years | {int(r["year"]) for _i, r in plan.updates}))
     return True
@@ -754,24 +694,13 @@ def _refresh_planned_outcomes(session: Session, programme_id: int, years: list[i
     refresh_outcomes(session, programme_id, years)
 
 
-def _pause_hook(what: str) -> None:
-    seconds = os.environ.get(PAUSE_HOOK)
-    if not seconds:
-        return
-    print(f"{PAUSE_HOOK}: {what}, transaction open; pausing {seconds} s",
-          file=sys.stderr, flush=True)
-    time.sleep(float(seconds))
-
-
 def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict, reason: str, who: str,
                   now: dt.datetime) -> None:
     """Bring a stored visit to the file's version, logging every changed value."""
     visit = session.get(M.Visit, visit_id)
 
     def log(table: str, row_id: int, field_: str, old: object, new: object) -> None:
-        session.add(M.ChangeLog(programme_id=programme_id, table_name=table, row_id=row_id, field=field_,
-                                old_value=None if old is None else str(old), new_value=None if new is None else str(new),
-                                reason=reason, changed_by=who, changed_at=now))
+        log_change(session, programme_id, table, row_id, field_, old, new, reason, who, now)
 
     for field_ in ("date", "status", "notes"):
         old, new = getattr(visit, field_), row[field_]
@@ -782,7 +711,7 @@ def _apply_update(session: Session, programme_id: int, visit_id: int, row: dict,
         codes = dict(session.exec(select(M.ProtocolVersion.id, M.ProtocolVersion.code)).all())
         log("visit", visit.id, "protocol", codes.get(visit.protocol_id), codes.get(row["protocol_id"]))
         visit.protocol_id = row["protocol_id"]
-    stored_cov = _stored_covariates(session, visit.id)
+    stored_cov = stored_covariates(session, visit.id)
     for name, old, new, unit in _covariate_changes(stored_cov, row):
         if old is None:
             added = M.Covariate(station_id=visit.station_id, visit_id=visit.id, name=name, unit=unit or "", value=new)
@@ -830,416 +759,3 @@ def _species_code(session: Session, species_id: int) -> str:
 
 
 # --- certification ------------------------------------------------------------------------------------------
-
-
-def set_lock(db: str | None, year: int, *, lock: bool, reason: str | None = None, who: str | None = None,
-             programme_code: str | None = None) -> str:
-    """Certify (lock) a season after review, or unlock it with a reason (logged)."""
-    who = who or current_user()
-    if not lock and not (reason and reason.strip()):
-        raise InputError(InputProblem("--reason", None, None, None, "a reason to unlock a certified season"))
-    store = Store.open(db)
-    try:
-        programme = store.programme(programme_code)
-        with store.session() as session:
-            rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
-            if rnd is None:
-                raise DataError(f"no round for season {year} in programme {programme.code}")
-            old = rnd.status
-            new = "certified" if lock else "open"
-            if old == new:
-                return f"season {year} is already {'certified' if lock else 'open'}"
-            rnd.status = new
-            rnd.certified_by = who if lock else None
-            rnd.certified_at = utcnow() if lock else None
-            session.add(M.ChangeLog(programme_id=programme.id, table_name="round", row_id=rnd.id, field="status",
-                                    old_value=old, new_value=new, reason=reason or "certified after review",
-                                    changed_by=who, changed_at=utcnow()))
-            return f"season {year} {'certified (locked)' if lock else 'unlocked'}"
-    finally:
-        store.dispose()
-
-
-# --- office commands: one value, one photo, one station -------------------------------------------------------
-
-
-def _closest(code: str, choices: list[str]) -> str:
-    import difflib
-
-    close = difflib.get_close_matches(code, choices, n=3, cutoff=0.5)
-    return f"; closest: {', '.join(close)}" if close else ""
-
-
-def _station(session: Session, programme_id: int, code: str, label: str) -> M.Station:
-    station = session.exec(select(M.Station).where(M.Station.programme_id == programme_id,
-                                                   M.Station.code == code)).first()
-    if station is None:
-        codes = list(session.exec(select(M.Station.code).where(M.Station.programme_id == programme_id)).all())
-        raise InputError(InputProblem(label, None, "STATION", code, "a station of the programme" + _closest(code, codes)))
-    return station
-
-
-def _need_reason(label: str, reason: str | None, why: str) -> str:
-    if not (reason and reason.strip()):
-        raise InputError(InputProblem(label, None, "--reason", None, why))
-    return reason.strip()
-
-
-def _log(session: Session, programme_id: int, table: str, row_id: int, field_: str, old: object, new: object,
-         reason: str, who: str, when: dt.datetime) -> None:
-    session.add(M.ChangeLog(programme_id=programme_id, table_name=table, row_id=row_id, field=field_,
-                            old_value=None if old is None else str(old), new_value=None if new is None else str(new),
-                            reason=reason, changed_by=who, changed_at=when))
-
-
-def parse_value(label: str, field_: str, measure: str, text: str) -> float:
-    """A value typed at the command line, read as a field sheet's cell would be."""
-    from monitor.io._tables import parse_bool, parse_number
-
-    if measure in measures.of_kind(measures.KIND_BINARY):
-        flag = parse_bool(text) if text.strip() else None
-        if flag is None:
-            raise InputError(InputProblem(label, None, field_, text, "presence as 0/1 or yes/no"))
-        return 1.0 if flag else 0.0
-    value = parse_number(text)
-    if value is None:
-        raise InputError(InputProblem(label, None, field_, text, "a number with '.' as decimal mark, |x| <= 1e12"))
-    return value
-
-
-def set_value(db: str | None, station: str, year: int, species: str, measure: str, value: str, *, reason: str | None,
-              repeat_no: int = 0, who: str | None = None, programme_code: str | None = None) -> Change:
-    """Add or correct one value of one stored visit, with a reason that goes to the change log.
-
-    The value is checked as an imported one would be (same range rules per measure), the season must not be
-    certified, and the visit must be one that carries values (done or partial: missing is never zero).
-    Returns the change made (old is None when the value is added).
-    """
-    label = "records set"
-    reason = _need_reason(label, reason, "a reason for the change (it goes to the change log)")
-    who = who or current_user()
-    measure = measure.strip().lower()
-    field_ = f"{species}:{measure}"
-    if measure not in C.MEASURES:
-        raise InputError(InputProblem(label, None, "MEASURE", measure, f"one of {', '.join(C.MEASURES)}"))
-    number = parse_value(label, field_, measure, value)
-    store = Store.open(db)
-    try:
-        programme = store.programme(programme_code)
-        # run again from the start when the database reports a transient failure (a deadlock or
-        # serialization failure with a concurrent import, a busy SQLite file), as the import does
-        return run_with_retries(lambda: _set_value(store, programme, label, station, year, species, measure,
-                                                   field_, number, reason, repeat_no, who))
-    finally:
-        store.dispose()
-
-
-def _correctable_visit(session, programme: M.Programme, label: str, station: str, year: int,
-                       repeat_no: int) -> tuple[M.Station, M.Visit]:
-    """The stored visit of ``station`` in the ``year`` round that a correction applies to; refused when
-    there is no such visit or its season is certified (locked)."""
-    st = _station(session, programme.id, station, label)
-    rnd = session.exec(select(M.Round).where(M.Round.programme_id == programme.id, M.Round.year == year)).first()
-    visit = None if rnd is None else session.exec(select(M.Visit).where(
-        M.Visit.station_id == st.id, M.Visit.round_id == rnd.id, M.Visit.repeat_no == repeat_no)).first()
-    if visit is None:
-        raise DataError(f"no visit of {station} in the {year} round"
-                        + (f" with repeat number {repeat_no}" if repeat_no else "")
-                        + "; import the visit from its field sheet first")
-    if rnd.status == "certified":
-        raise LockedError(f"season {year} is certified (locked); unlock it first with "
-                          f"`monitor records unlock {year} --reason \"...\"`")
-    return st, visit
-
-
-def _set_value(store: Store, programme: M.Programme, label: str, station: str, year: int, species: str,
-               measure: str, field_: str, number: float, reason: str, repeat_no: int, who: str) -> Change:
-    with store.session() as session:
-        st, visit = _correctable_visit(session, programme, label, station, year, repeat_no)
-        if visit.status not in C.STATUSES_WITH_VALUES:
-            raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
-                            "(missing is not zero); correct its status from the field sheet first")
-        target = session.exec(select(M.Target, M.Species).join(M.Species, M.Species.id == M.Target.species_id)
-                              .where(M.Target.programme_id == programme.id, M.Species.code == species,
-                                     M.Target.measure == measure)).first()
-        if target is None:
-            registered = [f"{c}:{m}" for c, m in session.exec(
-                select(M.Species.code, M.Target.measure).join(M.Target, M.Target.species_id == M.Species.id)
-                .where(M.Species.programme_id == programme.id)).all()]
-            raise InputError(InputProblem(label, None, "SPECIES MEASURE", field_,
-                                          "a species and measure of the programme" + _closest(field_, registered)))
-        tgt, sp = target
-        _check_range(label, field_, station, visit, sp.code, measure, number, tgt.n)
-        obs = session.exec(select(M.Observation).where(M.Observation.visit_id == visit.id,
-                                                       M.Observation.species_id == sp.id,
-                                                       M.Observation.measure == measure)).first()
-        old = None if obs is None else obs.value
-        change = Change(station, year, visit.date.isoformat(), field_, old, number)
-        if old == number:
-            return change
-        now = utcnow()
-        if obs is None:
-            obs = M.Observation(visit_id=visit.id, species_id=sp.id, measure=measure, value=number, n=tgt.n)
-            session.add(obs)
-        else:
-            obs.value, obs.n = number, tgt.n
-        session.flush()
-        _log(session, programme.id, "observation", obs.id, "value", old, number, reason, who, now)
-        session.flush()
-        _pause_hook("1 value corrected")
-        return change
-
-
-def set_visit(db: str | None, station: str, year: int, *, reason: str | None, protocol: str | None = None,
-              covariates: dict[str, str] | None = None, repeat_no: int = 0, who: str | None = None,
-              programme_code: str | None = None) -> list[Change]:
-    """Correct a stored visit's protocol and covariates (``{"soil_moisture": "31.5"}``; ``""`` removes one),
-    each change logged with the reason.  The season must not be certified.  Returns the changes made."""
-    from monitor.io.records import covariate_number
-
-    label = "records set-visit"
-    reason = _need_reason(label, reason, "a reason for the change (it goes to the change log)")
-    covariates = dict(covariates or {})
-    if protocol is None and not covariates:
-        raise InputError(InputProblem(label, None, "--protocol/--covariate", None,
-                                      "something to change: --protocol CODE or --covariate NAME=VALUE"))
-    who = who or current_user()
-    store = Store.open(db)
-    try:
-        programme = store.programme(programme_code)
-        return run_with_retries(lambda: _set_visit(store, programme, label, station, year, protocol, covariates,
-                                                   reason, repeat_no, who, covariate_number))
-    finally:
-        store.dispose()
-
-
-def _set_visit(store: Store, programme: M.Programme, label: str, station: str, year: int, protocol: str | None,
-               covariates: dict[str, str], reason: str, repeat_no: int, who: str, covariate_number) -> list[Change]:
-    from monitor.io._tables import Problems
-
-    with store.session() as session:
-        st, visit = _correctable_visit(session, programme, label, station, year, repeat_no)
-        now = utcnow()
-        changes: list[Change] = []
-        when = visit.date.isoformat()
-        if protocol is not None:
-            codes = dict(session.exec(select(M.ProtocolVersion.code, M.ProtocolVersion.id)
-                                      .where(M.ProtocolVersion.programme_id == programme.id)).all())
-            if protocol not in codes:
-                raise InputError(InputProblem(label, None, "--protocol", protocol,
-                                              f"a protocol version of the programme ({', '.join(sorted(codes)) or 'none'})"))
-            old_code = next((c for c, i in codes.items() if i == visit.protocol_id), None)
-            if old_code != protocol:
-                _log(session, programme.id, "visit", visit.id, "protocol", old_code, protocol, reason, who, now)
-                visit.protocol_id = codes[protocol]
-                changes.append(Change(station, year, when, "protocol", old_code, protocol))
-        if covariates:
-            if visit.status not in C.STATUSES_WITH_VALUES:
-                raise DataError(f"the {year} visit of {station} is {visit.status}: it carries no values "
-                                "(missing is not zero); correct its status from the field sheet first")
-            stored = _stored_covariates(session, visit.id)
-            units = _settings(programme).get("covariate_units")
-            units = units if isinstance(units, dict) else {}
-            problems = Problems(label)
-            for name, text in covariates.items():
-                known = name in stored or name in units
-                if not known:
-                    problems.add(None, f"cov:{name}", name, "a covariate of the programme"
-                                 + _closest(name, sorted(set(units) | set(stored))))
-                    continue
-                unit = stored[name].unit if name in stored else (units.get(name) or "")
-                if not text.strip():
-                    if name in stored:
-                        old = stored[name].value
-                        _log(session, programme.id, "covariate", stored[name].id, f"cov:{name}", old, None, reason,
-                             who, now)
-                        session.delete(stored[name])
-                        changes.append(Change(station, year, when, f"cov:{name}", old, None))
-                    continue
-                value = covariate_number(text, unit, problems, None, f"cov:{name}")
-                if value is None:
-                    continue
-                if name in stored:
-                    old = stored[name].value
-                    if old != value:
-                        _log(session, programme.id, "covariate", stored[name].id, f"cov:{name}", old, value, reason,
-                             who, now)
-                        stored[name].value = value
-                        changes.append(Change(station, year, when, f"cov:{name}", old, value))
-                else:
-                    added = M.Covariate(station_id=st.id, visit_id=visit.id, name=name, unit=unit or "", value=value)
-                    session.add(added)
-                    session.flush()
-                    _log(session, programme.id, "covariate", added.id, f"cov:{name}", None, value, reason, who, now)
-                    changes.append(Change(station, year, when, f"cov:{name}", None, value))
-            problems.raise_if_any()
-        session.flush()
-        return changes
-
-
-def _check_range(label: str, field_: str, station: str, visit: M.Visit, species: str, measure: str, value: float,
-                 n: int | None) -> None:
-    """The import's own range rules (monitor.io.validate) applied to one value."""
-    visits = pd.DataFrame({C.STATION: [station], C.DATE: [visit.date], C.YEAR: [visit.date.year],
-                           H.OBSERVERS: [()], C.VISIT_STATUS: [visit.status], H.REPEAT: [visit.repeat_no > 0],
-                           C.PROTOCOL: [None], H.NOTES: [None]})
-    observations = pd.DataFrame({C.STATION: [station], C.DATE: [visit.date], C.SPECIES: [species],
-                                 C.MEASURE: [measure], H.VALUE: [value], H.N: pd.array([n], dtype="Int64"),
-                                 H.SOURCE_FIELD: [field_]})
-    reference = Reference(stations=pd.DataFrame({C.STATION: [station], H.RETIRED: [None]}),
-                          species=pd.DataFrame({C.SPECIES: [species], C.MEASURE: [measure],
-                                                H.N: pd.array([n], dtype="Int64")}),
-                          today=dt.date.max)
-    covariates = pd.DataFrame(columns=[C.STATION, C.DATE, "name", H.UNIT, H.VALUE])
-    errors = [p for p in validate_records(visits, observations, covariates, reference, file=label)
-              if p.severity == "error"]
-    if errors:
-        raise InputError(plain_problems(errors))
-
-
-def plain_problems(problems: list[InputProblem]) -> list[InputProblem]:
-    """The same problems with numpy scalars shown as plain numbers (``130.0``, not ``np.float64(130.0)``)."""
-    import dataclasses
-
-    out = []
-    for p in problems:
-        value = p.value.item() if isinstance(p.value, np.generic) else p.value
-        out.append(dataclasses.replace(p, value=value) if value is not p.value else p)
-    return out
-
-
-def add_photo(db: str | None, station: str, *, path: str, visit_date: dt.date | None = None,
-              bearing: float | None = None, height: float | None = None, notes: str = "",
-              programme_code: str | None = None) -> int:
-    """Link a photo (by file path) to a station, and to its visit on ``visit_date``; return the photo's id.
-
-    Bearing [degrees from north, 0 to < 360] and camera height [m] let repeat photos be framed alike.
-    """
-    label = "records photo"
-    if not path or not path.strip():
-        raise InputError(InputProblem(label, None, "--path", path, "the photo's file path"))
-    if bearing is not None and not (0 <= bearing < 360):
-        raise InputError(InputProblem(label, None, "--bearing", bearing, "a bearing in degrees, 0 to less than 360"))
-    if height is not None and not (0 <= height <= 100):
-        raise InputError(InputProblem(label, None, "--height", height, "a camera height in metres, 0 to 100"))
-    store = Store.open(db)
-    try:
-        programme = store.programme(programme_code)
-        with store.session() as session:
-            st = _station(session, programme.id, station, label)
-            visit_id = None
-            if visit_date is not None:
-                visits = session.exec(select(M.Visit).where(M.Visit.station_id == st.id)).all()
-                same_day = [v for v in visits if v.date == visit_date]
-                if not same_day:
-                    dates = ", ".join(sorted(v.date.isoformat() for v in visits)[-5:]) or "none stored"
-                    raise InputError(InputProblem(label, None, "--visit-date", visit_date.isoformat(),
-                                                  f"the date of a stored visit of {station} (latest: {dates})"))
-                visit_id = min(same_day, key=lambda v: v.repeat_no).id
-            photo = M.Photo(station_id=st.id, visit_id=visit_id, path=path.strip(), bearing_deg=bearing,
-                            height_m=height, notes=notes or "")
-            session.add(photo)
-            session.flush()
-            return int(photo.id)
-    finally:
-        store.dispose()
-
-
-def retire_station(db: str | None, code: str, *, reason: str | None, replaced_by: str | None = None,
-                   date: dt.date | None = None, who: str | None = None, programme_code: str | None = None) -> str:
-    """Retire a station (from ``date``, default today), with a reason and an optional replacement; logged.
-
-    Its stored visits stay; imports refuse visits on or after the retirement date.
-    """
-    label = "station retire"
-    reason = _need_reason(label, reason, "a reason for retiring the station (it goes to the change log)")
-    who = who or current_user()
-    date = date or dt.date.today()
-    store = Store.open(db)
-    try:
-        programme = store.programme(programme_code)
-        with store.session() as session:
-            st = _station(session, programme.id, code, label)
-            if st.state != "in_service":
-                raise DataError(f"station {code} is already {st.state} (since {st.retired})")
-            if st.established is not None and date < st.established:
-                raise InputError(InputProblem(label, None, "--date", date.isoformat(),
-                                              f"a date on or after the station was established ({st.established})"))
-            later = [v.date for v in session.exec(select(M.Visit).where(M.Visit.station_id == st.id)).all()
-                     if v.date >= date]
-            if later:
-                raise InputError(InputProblem(label, None, "--date", date.isoformat(),
-                                              f"a date after the station's last visit ({max(later).isoformat()})"))
-            replacement = None
-            if replaced_by is not None:
-                replacement = _station(session, programme.id, replaced_by, label)
-                if replacement.id == st.id:
-                    raise InputError(InputProblem(label, None, "--replaced-by", replaced_by, "another station"))
-                if replacement.state != "in_service":
-                    raise InputError(InputProblem(label, None, "--replaced-by", replaced_by, "a station in service"))
-            now = utcnow()
-            for field_, old, new in (("state", st.state, "retired"), ("retired", None, date.isoformat()),
-                                     ("retired_reason", st.retired_reason or None, reason),
-                                     ("replaced_by", None, replaced_by)):
-                if old != new:
-                    _log(session, programme.id, "station", st.id, field_, old, new, reason, who, now)
-            st.state, st.retired, st.retired_reason = "retired", date, reason
-            st.replaced_by_id = replacement.id if replacement is not None else None
-            return (f"station {code} retired from {date.isoformat()}"
-                    + (f", replaced by {replaced_by}" if replaced_by else ""))
-    finally:
-        store.dispose()
-
-
-def station_history(db: str | None, code: str, *, programme_code: str | None = None) -> dict:
-    """A station's full history: the station, every visit with its observers and values, corrections
-    (change log), management events at the station or its site, photos, quality flags, and the
-    relocations of the chain it belongs to (lineage).
-
-    Values are keyed ``SPECIES:measure``; a missed or inaccessible visit has none (missing, not zero).
-    """
-    from monitor.services.relocation import lineage_history
-
-    store = Store.open(db)
-    try:
-        programme = store.programme(programme_code)
-        with store.session() as session:
-            st = _station(session, programme.id, code, "station history")
-        info = queries.stations(store, programme.id)
-        info = info[info[C.STATION] == code].drop(columns=["placement_seed"]).iloc[0].to_dict()
-        visits = queries.visits_table(store, programme.id, station=code)
-        values = queries.observations_table(store, programme.id)
-        values = values[values["visit_id"].isin(set(visits["visit_id"]))]
-        by_visit: dict[int, dict[str, float]] = {}
-        for vid, sp, me, value in zip(values["visit_id"], values[C.SPECIES], values[C.MEASURE], values["value"],
-                                      strict=True):
-            by_visit.setdefault(int(vid), {})[f"{sp}:{me}"] = float(value)
-        visit_rows = [{
-            C.YEAR: int(v[C.YEAR]), C.DATE: v[C.DATE], C.VISIT_STATUS: v[C.VISIT_STATUS], "repeat_no": int(v["repeat_no"]),
-            C.PROTOCOL: v[C.PROTOCOL], "observers": ";".join(v["observers"]), "notes": v["notes"] or "",
-            "values": by_visit.get(int(v["visit_id"]), {}),
-        } for v in visits.to_dict(orient="records")]
-        flags = queries.quality_flag_rows(store, programme.id)
-        flags = flags[flags[C.STATION] == code].drop(columns=[C.STATION])
-        return {
-            "station": info,
-            "visits": visit_rows,
-            "changes": queries.station_change_log(store, st.id),
-            "events": queries.station_events(store, st.id),
-            "photos": queries.station_photos(store, st.id),
-            "quality_flags": flags.reset_index(drop=True),
-            "lineage": lineage_history(store, programme.id, code),
-        }
-    finally:
-        store.dispose()
-
-
-def compare_files(first: Path, second: Path) -> pd.DataFrame:
-    """Double entry: every mismatch between two independent keyings of the same sheets (nothing stored).
-
-    Columns: station, date, species, field, value_a, value_b, row_a, row_b (see
-    :func:`monitor.io.double_entry.compare_entries`).
-    """
-    from monitor.io.double_entry import compare_entries
-
-    return compare_entries(Path(first), Path(second))
