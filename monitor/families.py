@@ -44,20 +44,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from monitor import columns as C
+from monitor import measures
 from monitor.errors import EstimationError, InputError
 
-# The kind of value a measure records, which decides the families that can model it.  The
-# measure registry (monitor/measures.py) is the natural owner of this; it stays here until
-# the registry carries it.  A new measure adds its kind here.
-COUNT, K_OF_N, COVER, POSITIVE = "count", "k of n", "cover", "positive"
-MEASURE_KIND = {
-    C.MEASURE_COUNT: COUNT,
-    C.MEASURE_FREQUENCY: K_OF_N,
-    C.MEASURE_PIN_HITS: K_OF_N,
-    C.MEASURE_PRESENCE: K_OF_N,
-    C.MEASURE_COVER: COVER,
-}
+# the kinds of value a family models are the measure registry's kinds (monitor/measures.py)
+COUNT, PERCENT, K_OF_N, BINARY, POSITIVE = (measures.KIND_COUNT, measures.KIND_PERCENT, measures.KIND_K_OF_N,
+                                            measures.KIND_BINARY, measures.KIND_POSITIVE)
 
 _ETA_MAX = 700.0
 
@@ -92,7 +84,7 @@ class ModelFamily:
     Attributes
     ----------
     name : the name used in files, options and results ("negbin", ...)
-    kinds : the kinds of value it models (``MEASURE_KIND``: count, k of n, cover, positive)
+    kinds : the kinds of value it models (the measure registry's ``Measure.kind``)
     link : the link of the linear predictor; for the Gaussian families (logit-normal,
         lognormal) the transform of the value that the linear mixed model is fitted to
     density : the engine's distribution of the response on the fitted scale
@@ -141,7 +133,9 @@ class ModelFamily:
         return False
 
     def serves(self, measure: str) -> bool:
-        return MEASURE_KIND.get(measure) in self.kinds
+        """Whether the family can model the values of a measure (by the measure's kind)."""
+        entry = measures.REGISTRY.get(measure)
+        return entry is not None and entry.kind in self.kinds
 
     def variance(self, mu, dispersion: float | None = None, trials=1.0):
         """Var(y) as a function of the mean on the response scale (McCullagh & Nelder 1989, table 2.1)."""
@@ -297,10 +291,10 @@ FAMILIES: dict[str, ModelFamily] = {f.name: f for f in (
              observation_effect="always"),
     _NegativeBinomial("negbin", (COUNT,), LOG, "negbin", "count", "negative binomial counts (log link)",
                       dispersion_name="NB2 size", dispersion_field="theta"),
-    _Binomial("binomial", (K_OF_N,), LOGIT, "binomial", "odds", "binomial k-of-n (logit link)",
+    _Binomial("binomial", (K_OF_N, BINARY), LOGIT, "binomial", "odds", "binomial k-of-n (logit link)",
               observation_effect="optional",
               overdispersed_alternative="the binomial model with an observation-level effect"),
-    _LogitNormal("logit-normal", (COVER,), LOGIT, "gaussian", "odds of cover",
+    _LogitNormal("logit-normal", (PERCENT,), LOGIT, "gaussian", "odds of cover",
                  "a linear mixed model on the logit of percent cover",
                  dispersion_name="residual SD", dispersion_field="residual_sd",
                  rate_note="For cover the rates are changes in the odds of cover, cover / (100 − cover); when "
@@ -331,8 +325,9 @@ def describe(name: str) -> str:
 
 
 def families_for(measure: str) -> tuple[str, ...]:
-    """The families that can model a measure, in registry order."""
-    return tuple(f.name for f in FAMILIES.values() if f.serves(measure))
+    """The families a measure may be fitted with: its registry entry's (``monitor.measures``)."""
+    entry = measures.REGISTRY.get(measure)
+    return () if entry is None else tuple(entry.families)
 
 
 def logit_cover(cover_pct: np.ndarray, cover_adjust: float | None = None) -> tuple[np.ndarray, float | None]:

@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as col
+from monitor import measures
 from monitor.families import family as family_of
 from monitor.power.model import Design, Scenario, VarianceComponents, ar1_series, scaled_components
 
@@ -74,11 +75,11 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
         frame[col.SITE] = np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_idx]
     frame[col.YEAR] = design.first_year + year_idx
     # the family draws the response (its observation noise first); the measure names the columns
-    columns = col.MEASURE_COLUMNS[components.measure]
-    frame[columns[0]] = fam.simulate(
+    entry = measures.get(components.measure)
+    frame[entry.value_column] = fam.simulate(
         eta, rng, observation_sd=s["observation_sd"],
         dispersion=None if fam.dispersion_field is None else s[fam.dispersion_field],
         trials=components.trials, resolution=components.cover_resolution)
-    if len(columns) > 1:   # k of n: the number of cells or pins
-        frame[columns[1]] = np.full(n, components.trials)
+    if entry.trials_column is not None:   # k of n: the number of cells or pins
+        frame[entry.trials_column] = np.full(n, components.trials)
     return pd.DataFrame(frame)

@@ -98,11 +98,11 @@ from scipy.stats import chi2, norm
 from scipy.stats import t as t_dist
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.families import NAMES, ModelFamily, families_for
 from monitor.families import family as family_of
 from monitor.families import logit_cover as logit_cover
-from monitor.measures import VALUE_RULES
 
 from .call import DEFAULT_MARGIN, MIN_STATIONS, MIN_YEARS, classify_call
 from .families import Poisson, density
@@ -120,31 +120,22 @@ OVERDISPERSION_RATIO = 1.2
 OVERDISPERSION_P = 0.01
 LOW_COVERAGE_FRACTION = 0.5  # common practice: a year with < half the median stations visited
 NO_OBSERVER = "(not recorded)"   # the observer level of visits whose observer cell is blank
-NATURAL_UNIT = {
-    C.MEASURE_COVER: "% cover",
-    C.MEASURE_FREQUENCY: "% of cells occupied",
-    C.MEASURE_PIN_HITS: "% of pins hitting",
-    C.MEASURE_PRESENCE: "% of stations occupied",
-}
+NATURAL_UNIT = {code: m.level_unit for code, m in measures.REGISTRY.items() if m.level_unit is not None}
 CHANGE_LABEL = {"count": "annual change", "odds": "annual change in the odds",
                 "odds of cover": "annual change in the odds of cover",
                 "geometric mean": "annual change in the geometric mean"}
 
 
 def default_family(measure: str) -> str:
-    """The default response family for a measure.
+    """The default response family for a measure: its registry entry's (``monitor.measures``).
 
     count -> "poisson-lognormal"; frequency, pin_hits, presence -> "binomial" (with an
     observation-level effect where the data are overdispersed, see TrendModel);
     cover -> "logit-normal".
     """
-    if measure == C.MEASURE_COUNT:
-        return "poisson-lognormal"
-    if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS, C.MEASURE_PRESENCE):
-        return "binomial"
-    if measure == C.MEASURE_COVER:
-        return "logit-normal"
-    raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
+    if measure not in measures.REGISTRY:
+        raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
+    return measures.REGISTRY[measure].family
 
 
 @dataclass(frozen=True)
@@ -486,7 +477,7 @@ class TrendModel:
             raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
         family = default_family(measure) if family is None else family
         fam = family_of(family)
-        if not fam.serves(measure):
+        if fam.name not in families_for(measure):
             raise InputError(f"family {family!r} does not fit measure {measure!r}; "
                              f"expected one of {', '.join(families_for(measure))}")
         if year_effect not in ("linear", "factor"):
@@ -585,20 +576,20 @@ class TrendModel:
             if np.any(~np.isfinite(arr)):
                 problems.append(InputProblem("<trend data>", None, c, None, "numbers"))
         if not problems:
-            if self.measure == C.MEASURE_COUNT:
-                a = v[C.COUNT]
-                if np.any(a < 0) or np.any(a != np.round(a)):
-                    problems.append(InputProblem("<trend data>", None, C.COUNT, None, "non-negative whole counts"))
-            elif self.measure == C.MEASURE_COVER:
-                a = v[C.COVER]
-                if np.any(a < 0) or np.any(a > 100):
-                    problems.append(InputProblem("<trend data>", None, C.COVER, None, "cover between 0 and 100 %"))
-            elif self.measure == C.MEASURE_PRESENCE:
-                if not np.all(np.isin(v[C.PRESENT], (0, 1))):
-                    problems.append(InputProblem("<trend data>", None, C.PRESENT, None, "0 or 1"))
-            else:
-                k, n = value_cols
-                if np.any(v[n] <= 0) or np.any(v[k] < 0) or np.any(v[k] > v[n]) or np.any(v[k] != np.round(v[k])):
+            # each value column's rule from the registry (monitor/measures.py); k at most n
+            entry = measures.REGISTRY[self.measure]
+            for r in entry.column_rules:
+                a = v[r.column]
+                bad = (a <= r.minimum) if r.above_minimum else (a < r.minimum)
+                if r.maximum is not None:
+                    bad |= a > r.maximum
+                if r.whole:
+                    bad |= a != np.round(a)
+                if np.any(bad):
+                    problems.append(InputProblem("<trend data>", None, r.column, None, r.expected))
+            if entry.trials_column is not None and not problems:
+                k, n = entry.columns
+                if np.any(v[k] > v[n]):
                     problems.append(InputProblem("<trend data>", None, k, None, f"whole numbers from 0 to '{n}' (> 0)"))
         if problems:
             raise InputError(problems)
@@ -629,15 +620,16 @@ class TrendModel:
     def _degenerate_years(self) -> dict[int, str]:
         """Years whose every value is 0 ("zero") or every k = n ("full"): no yearly estimate exists there."""
         d = self.data
-        if self.fam.gaussian:   # a linear mixed model on a transformed value has no such years
-            return {}
-        kc = C.MEASURE_COLUMNS[self.measure][0]
+        entry = measures.REGISTRY[self.measure]
+        if entry.kind not in (measures.KIND_COUNT, measures.KIND_K_OF_N, measures.KIND_BINARY):
+            return {}   # continuous values (cover, lengths) have no all-zero or all-full year
+        kc = entry.value_column
         k = d.groupby(C.YEAR)[kc].sum()
         out = {int(y): "zero" for y in k.index[k.to_numpy() == 0]}
-        if self.measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
-            n = d.groupby(C.YEAR)[C.MEASURE_COLUMNS[self.measure][1]].sum()
+        if entry.trials_column is not None:
+            n = d.groupby(C.YEAR)[entry.trials_column].sum()
             out.update({int(y): "full" for y in k.index[k.to_numpy() == n.to_numpy()]})
-        elif self.measure == C.MEASURE_PRESENCE:
+        elif entry.kind == measures.KIND_BINARY:
             n = d.groupby(C.YEAR)[kc].size()
             out.update({int(y): "full" for y in k.index[k.to_numpy() == n.to_numpy()]})
         return out
@@ -1116,8 +1108,7 @@ class _NaturalScale:
             else:
                 self.unit = "mean count per quadrat"
         elif self.fam.log_scale:   # a positive value: its mean in the measure's own unit
-            rule = VALUE_RULES.get(self.measure)
-            self.unit = f"mean {self.measure}" + (f" ({rule.unit})" if rule is not None else "")
+            self.unit = NATURAL_UNIT.get(self.measure, f"mean {self.measure}")
         else:                      # a share: percent
             self.unit = NATURAL_UNIT[self.measure]
             self.scale = self.top = 100.0
