@@ -5,7 +5,7 @@
 :class:`monitor.errors.InputProblem` (severity "error", or "warning" for the checks a user may accept
 with a flag: a date in the future, a date outside the round's or the species' season window).
 
-Range rules per measure (design.md, "measure"): count a whole number >= 0; cover a percent 0-100;
+Range rules per measure (monitor/measures.py; common practice): count a whole number >= 0; cover a percent 0-100;
 frequency and pin hits a whole k with 0 <= k <= n and n the programme's grid or frame; presence 0 or 1.
 Vectorised over the observations so that a million rows validate in seconds.
 """
@@ -193,7 +193,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     Parameters
     ----------
     visits, observations, covariates : DataFrame
-        Canonical frames (FIELD_LAYOUT.md), e.g. from :func:`monitor.io.records.read_field_records`.
+        Canonical frames (``monitor.io.records``), e.g. from :func:`monitor.io.records.read_field_records`.
     reference : Reference
         What the programme holds.
     file : str, optional

@@ -3,7 +3,7 @@
 Data are simulated (invented reserve, sites, species codes).  Trend results
 come from the project's own engine, ``monitor.trend.TrendModel``, when it is
 importable; otherwise from a stand-in built on statsmodels' GLM (Poisson,
-station fixed effects) with the same attributes as TREND_API's TrendResult.
+station fixed effects) with the same attributes as monitor.trend.TrendResult.
 """
 
 from __future__ import annotations
@@ -57,7 +57,7 @@ class _Interval:
 
 @dataclass(frozen=True)
 class StandInTrend:
-    """TREND_API-shaped result computed with statsmodels GLM (Poisson, station fixed effects)."""
+    """A result shaped as monitor.trend.TrendResult, computed with statsmodels GLM (Poisson, station fixed effects)."""
 
     measure: str
     family: str
@@ -84,7 +84,7 @@ class StandInTrend:
 
 
 def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: int) -> tuple[str, str]:
-    # Equivalence logic after Dixon & Pechmann (2005), as TREND_API describes classify_call.
+    # Equivalence logic after Dixon & Pechmann (2005), as monitor/trend/call.py:classify_call describes it.
     if n_stations < 10 or n_years < 5:
         return C.CALL_UNCLEAR, "too few stations or seasons"
     if -margin < lower and upper < margin:

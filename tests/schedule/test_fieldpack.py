@@ -36,7 +36,7 @@ SCHEMA = etree.XMLSchema(etree.parse(str(ROOT / "tests" / "io" / "gpx11_subset.x
 EPSG = 32633  # UTM 33N; invented reserve near easting 500 km
 X0, Y0 = 500000.0, 5000000.0
 
-# the agreed wide field-sheet layout (FIELD_LAYOUT.md, "Wide field sheet layout"), transcribed
+# the agreed wide field-sheet layout (docs/files.md, "field records"), transcribed
 FIXED = ["station", "date", "observers", "status", "repeat", "protocol", "notes"]
 VALUE_PATTERNS = [
     r"^[A-Z0-9]+:count$",

@@ -167,7 +167,7 @@ def _fill(entry: pd.DataFrame, day: dt.date, members: tuple[str, ...]) -> pd.Dat
         else:  # a visit covariate
             values = [f"{30 + i}" for i in range(len(filled))]
         filled[column] = values
-    # one station missed: all its value boxes stay blank (FIELD_LAYOUT.md)
+    # one station missed: all its value boxes stay blank (docs/files.md, "field records")
     filled.loc[filled.index[-1], "status"] = "missed"
     filled.loc[filled.index[-1], "observers"] = ""
     filled.loc[filled.index[-1], list(filled.columns[len(fieldpack.BASE_HEADERS):])] = ""
@@ -181,7 +181,7 @@ def test_field_pack_is_read_back_by_the_records_importer(season_db, demo_source,
     folder = tmp_path / "packs" / f"{first.date.isoformat()}_{first.team}_{first.site}"
     assert [d["folder"] for d in pack.team_days] == [str(folder)]
 
-    # the printed sheet's table headers are the wide layout of FIELD_LAYOUT.md, in the entry sheet's order
+    # the printed sheet's table headers are the wide layout of docs/files.md ("field records"), in the entry sheet's order
     page = html.fromstring((folder / "field_sheet.html").read_text())
     # (a species' common name is printed under its header, in a span of its own)
     headers = [th.text_content().strip().removesuffix(th.xpath("string(.//span[@class='label'])")).strip()
