@@ -18,7 +18,7 @@ from monitor.errors import DesignError
 from monitor.schedule import fieldpack
 from monitor.services import schedule, setup
 from monitor.services.imports import import_records
-from tests.conftest import REPO_ROOT, table_counts
+from tests.conftest import GPX_SCHEMA, table_counts
 
 YEARS = (2024, 2025, 2026)
 
@@ -252,7 +252,7 @@ def test_field_pack_gpx_and_calendar_follow_their_standards(season_db, tmp_path)
     plan = schedule.plan_season(season_db, 2027, teams=2, seed=5)
     pack = schedule.write_field_packs(season_db, 2027, tmp_path / "packs")
     assert len(pack.team_days) == len(plan.plan.team_days)
-    schema = etree.XMLSchema(etree.parse(str(REPO_ROOT / "tests" / "io" / "gpx11_subset.xsd")))
+    schema = etree.XMLSchema(etree.parse(str(GPX_SCHEMA)))  # the official GPX 1.1 schema
     for day in pack.team_days:
         doc = etree.parse(str(tmp_path / "packs" / day["folder"].rsplit("/", 1)[1] / "route.gpx"))
         # GPX 1.1 (TopoGrafix 2004): valid against the schema; start point plus one waypoint per station
