@@ -179,13 +179,6 @@ def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference
             for v, t in zip(visit_at.tolist(), target_at.tolist(), strict=True)]
 
 
-def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
-    md = f"{date.month:02d}-{date.day:02d}"
-    if start <= end:
-        return start <= md <= end
-    return md >= start or md <= end  # wraps the new year
-
-
 def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariates: pd.DataFrame,
                      reference: Reference, *, file: str | None = None) -> list[InputProblem]:
     """Check a season's records against the programme; return every problem found.
