@@ -2,7 +2,7 @@ r"""Maximum-likelihood fitting of generalized linear mixed models (the trend eng
 
 Model
 -----
-For observation i (a visit of station j(i) in site s(i), recorded by observer o(i))
+For observation i (a visit of station j(i) in site s(i), recorded by observer o(i))::
 
     eta_i = offset_i + x_i' beta + sd_station * u_station[j(i)]
             + sum_terms sd_term * z_term,i * u_term[level_term(i)]
@@ -21,7 +21,7 @@ years get a t reference with between-year df (``coefficient_df``).
 
 Laplace approximation
 ---------------------
-With h(u) = sum_i log f(y_i | eta_i) - |u|^2 / 2 and H = -d2h/du2 at the mode u^,
+With ``h(u) = sum_i log f(y_i | eta_i) - |u|^2 / 2`` and ``H = -d2h/du2`` at the mode u^::
 
     log L(beta, sd) ~= h(u^) - log det(H) / 2.
 
@@ -74,7 +74,11 @@ Estimators and convergence
 ``GlmmFit.estimator`` names what was computed (``ESTIMATORS``): "ml-laplace" / "ml-agq"
 (stage 2), "ml-exact" / "reml-exact" (Gaussian), or "joint-mode" (stage 1 only: the
 fast path, not a maximum likelihood estimate of beta).  ``converged`` is judged from
-numbers: the search's own stopping rule, or else the scaled gradient (GRADIENT_TOL).
+numbers, never from an optimiser's message: the search's own numerical stopping rule
+(Newton decrement, relative decrease of one step; for L-BFGS-B the projected gradient and
+the last relative decrease, recomputed from its iterates), or else the largest scaled
+gradient at the end (GRADIENT_TOL).  Every tuning value (tolerances, difference steps,
+starting values, bounds) is a named module constant with the reason for its value beside it.
 
 References
 ----------
@@ -104,10 +108,116 @@ from monitor.settings import year_effect_by_default
 from .families import Family, Gaussian
 
 LOG_SD_MIN = np.log(1e-5)   # lower bound of every log-SD (an SD of 1e-5 is "zero" on the link scale)
-LOG_SD_MAX = np.log(50.0)
+LOG_SD_MAX = np.log(50.0)   # upper bound: an SD of 50 on a log or logit scale is far beyond any real data
 ATANH_RHO_MAX = 3.8         # |rho| <= tanh(3.8) = 0.999 for an AR(1) correlation (searched as atanh(rho))
+# log NB2 size and log residual SD: wide enough never to bind on real data (a size of 1e7 is Poisson)
 LOG_DISP_BOUNDS = {"negbin": (np.log(1e-3), np.log(1e7)), "gaussian": (np.log(1e-8), np.log(1e8))}
 
+# --- tuning of the optimiser --------------------------------------------------------------------
+# Each value below was chosen for a reason stated beside it; the R reference fits
+# (tests/trend/test_trend_*reference*.py, 1e-4 on the fixed effects) are the check that they do
+# their job, and tests/benchmarks/bench_year_effect.py the check of their cost.
+
+# Starting values.  Random-effect SDs of ecological count data on the log scale lie mostly
+# between 0.1 and 1; 0.5 starts every search within a factor of 5 of the answer.
+START_SD = 0.5
+START_RESIDUAL_FRACTION = 0.7   # Gaussian: residual SD starts at 0.7 of the GLM's (the rest goes to the SDs)
+START_NB_SIZE_POISSONLIKE = 100.0     # NB2 size when the GLM shows no excess variance (near Poisson)
+START_NB_SIZE_RANGE = (0.05, 1e5)     # the moment estimate clipped to sizes the data can tell apart
+
+# PIRLS (the inner Newton iterations for the modes of the random effects).
+PIRLS_MAX_ITER = 60          # Newton converges quadratically: 5-15 iterations from a cold start
+# Newton decrement g' H^-1 g below which one more full step puts the mode within about
+# decrement^2 of the truth (quadratic convergence): 1e-7 gives the log-likelihood to ~1e-14.
+PIRLS_DECREMENT_TOL = 1e-7
+PIRLS_MAX_HALVINGS = 30      # 2^-30 ~ 1e-9 of a Newton step: smaller steps change nothing
+PIRLS_ACCEPT_RTOL = 1e-12    # a step is kept unless h falls by more than rounding (relative)
+
+# Numerical derivatives over the outer parameters (log-SDs, atanh rho, log dispersion; beta).
+# Central differences have error O(h^2) from the third derivative plus O(eps / h) from rounding
+# of a log-likelihood accurate to ~1e-12 relative: a step of 1e-3 to 2e-3 on a log-SD balances
+# the two for second derivatives (eps^(1/4) ~ 1e-4 times the scale of the curvature).
+STAGE1_STEP = 1e-3           # stage 1 projected Newton (gradient and Hessian)
+LBFGS_STEP = 1e-4            # stage 1 L-BFGS-B (gradient only: eps^(1/3) ~ 5e-6, kept larger for noise)
+STAGE2_STEP_PHI = 2e-3       # stage 2, variance parameters
+STAGE2_STEP_BETA_SE = 2e-2   # stage 2, beta: 2 % of its conditional standard error ...
+STAGE2_STEP_BETA_MIN = 1e-7  # ... but never below this (a coefficient with a tiny SE)
+VARIANCE_FLOOR = 1e-16       # floor under a conditional variance before its square root
+
+# Stage 1 search.  Projected Newton (a difference Hessian: k(k+1)/2 extra evaluations a step)
+# pays for itself up to about 6 parameters; beyond, L-BFGS-B (2k evaluations a step) is cheaper.
+STAGE1_NEWTON_MAX_PARAMS = 6
+# (tol on the Newton decrement, ftol on the relative decrease) of the Newton search: "quick"
+# when stage 2 refines the answer or for the fast path, "precise" when stage 1 is the answer
+# (the Gaussian model, exact ML / REML): the decrement is twice the distance to the optimum in
+# log-likelihood, so 1e-13 relative is the answer to rounding.
+STAGE1_NEWTON_TOL = {"quick": (1e-10, 1e-9), "precise": (1e-13, 1e-12)}
+# (ftol, gtol) of L-BFGS-B, in the same two modes
+STAGE1_LBFGS_TOL = {"quick": (1e-10, 1e-4), "precise": (1e-13, 1e-7)}
+LBFGS_MAX_ITER = 300         # far beyond the 20-60 iterations these searches take
+LBFGS_MAX_LINESEARCH = 40    # line-search steps; the default 20 gives up too early on flat ridges
+
+# A log-SD within SNAP_LOG_WIDTH of its lower bound whose gradient is flat (|g| < FLAT_AT_BOUND)
+# is moved onto the bound: exp(log(1e-5) + 5) = 1.5e-3, an SD too small to matter on the link scale.
+SNAP_LOG_WIDTH = 5.0
+FLAT_AT_BOUND = 1e-3         # log-likelihood change per unit of log-SD that counts as flat
+AT_BOUND_LOG_WIDTH = 0.5     # within this of the bound an SD is reported as 0 (1.65e-5 on the link scale)
+BOUND_EPS = 1e-9             # a parameter this close to a bound is on it
+
+# Projected Newton (_newton_bounded).
+NEWTON_MAX_ITER = 60
+NEWTON_MAX_STEP = 3.0        # cap on a step in log-SD: a factor of e^3 = 20 in an SD at once
+NEWTON_TOL = 1e-10           # default stopping decrement (relative to max(1, |f|))
+NEWTON_FTOL = 1e-9           # default stopping relative decrease of f over one step
+NEWTON_MAX_HALVINGS = 40     # 2^-40 of a step ~ 1e-12: below the noise of the evaluations
+# Saddle-free Newton: eigenvalues of the difference Hessian below this fraction of the largest
+# are raised to it, so that a flat or wrongly curved direction takes a bounded step.
+EIGEN_FLOOR = 1e-6
+EIGEN_FLOOR_ABS = 1e-8       # ... and the largest is taken as at least this
+# When no step along the Newton direction decreases f, the search is at the optimum to within
+# the noise of the evaluations if the decrement is below this (relative): 1e-6 in log-likelihood
+# moves the estimates by ~1e-3 standard errors.
+STALL_DECREMENT = 1e-6
+TINY_MOVE = 1e-7             # a step this small (largest coordinate) ...
+TINY_MOVE_DECREASE = 1e-2    # ... lowering f by less than this fraction of tol ends the search
+BFGS_CURVATURE_MIN = 1e-12   # s'y below this: the BFGS update would not stay positive definite
+
+# Stage 2 (all parameters).  Above NEWTON_MAX_DIM parameters it goes block-wise.
+NEWTON_MAX_DIM = 14          # 14 parameters: a 105-evaluation Hessian, about the cost of 4 block rounds
+STAGE2_TOL = 1e-12           # stopping decrement: the estimate to ~1e-6 standard errors
+STAGE2_FTOL = 1e-14          # stopping relative decrease
+STAGE2_MAX_STEP = 2.0        # stage 1 already put the variances near their optimum
+STAGE2_REUSE_BELOW = 1e-2    # keep the Hessian once the decrement is below this (it changes by O(step))
+STAGE2_MAX_ITER = 40
+BLOCKWISE_MAX_ROUNDS = 25    # block-coordinate rounds for many fixed effects (a long year factor)
+BLOCKWISE_MAX_HALVINGS = 30
+BLOCKWISE_TOL = 1e-12        # stopping decrement, relative to max(BLOCKWISE_TOL_SCALE, |f|)
+BLOCKWISE_TOL_SCALE = 1e3
+
+# Starting GLM (glm_fit).
+GLM_MAX_ITER = 100
+GLM_RIDGE = 1e-10            # keeps X' W X invertible for a column with no information (all-zero counts)
+GLM_MAX_HALVINGS = 40
+GLM_FTOL = 1e-12             # relative change of the log-likelihood ...
+GLM_XTOL = 1e-9              # ... and of beta that end the GLM iterations
+
+# Regularisation of the dense Newton block when the fixed effects are not identified at a point
+# (a relative 1e-8 on the diagonal: far below any information the data carry).
+RIDGE_NOT_IDENTIFIED = 1e-8
+
+# A fit counts as converged when its search met its own numerical stopping rule or, failing
+# that, when no parameter's scaled gradient exceeds GRADIENT_TOL at the end: the change of the
+# log-likelihood per unit of a log-SD (or atanh rho, log dispersion), or per standard error of
+# a fixed effect.  Near a maximum a scaled gradient g puts the estimate about g standard errors
+# from it, so 1e-3 is far below anything reported.  SDs on (or within AT_BOUND_LOG_WIDTH of)
+# their lower bound are left out: their likelihood is flat there, and an SD creeping towards
+# zero is an answer (reported as 0), not a failure.
+GRADIENT_TOL = 1e-3
+GRADIENT_STEP = 1e-4         # difference step of that check (scaled by each parameter's scale)
+
+# A fixed-effect column counts as constant within years (a year-level effect, t reference) when it
+# differs from its yearly means by at most this, relative to its largest value: rounding only.
+WITHIN_YEAR_ATOL = 1e-10
 
 TERM_STRUCTURES = ("iid", "ar1")
 
@@ -386,18 +496,11 @@ def _ar1_precision_mv(v, rho):
     return c * out
 
 
-def _bincount2(index, n_levels, values):
-    """Per-level column sums of a 2-d array: out[g, k] = sum_{i: index_i = g} values[i, k]."""
-    k = values.shape[1]
-    flat = (index[:, None] * k + np.arange(k)).ravel()
-    return np.bincount(flat, weights=values.ravel(), minlength=n_levels * k).reshape(n_levels, k)
-
-
 class _Factor:
     """Block-eliminated factorisation of the Newton matrix (see module notes)."""
 
     __slots__ = ("d", "wt", "A", "C", "L", "m", "m_re", "logdet_u", "logdet_beta", "s_o", "s_st", "w",
-                 "D", "ok", "s_c", "E", "T", "Scv")
+                 "D", "s_c", "E", "T", "Scv")
 
 
 class LaplaceEngine:
@@ -548,7 +651,6 @@ class LaplaceEngine:
         f.wt = w / f.d
         f.A = 1.0 + s_st * s_st * np.bincount(self.st, weights=f.wt, minlength=self.n_st)
         logdet = float(np.sum(np.log(f.d)) + np.sum(np.log(f.A)))
-        f.ok = True
         f.s_c = D.s_c
         M = D.gram(f.wt) if m else None
         C = D.station_cross(f.wt) * s_st if m else None
@@ -582,9 +684,8 @@ class LaplaceEngine:
             logdet += self._prior_add(M)
             f.L, info = _potrf(M)
             if info != 0:
-                # fixed effects not identified at this point: regularise slightly, flag it
-                f.ok = False
-                M[np.diag_indices(m)] += 1e-8 * (1.0 + np.abs(np.diag(M)))
+                # fixed effects not identified at this point: regularise slightly
+                M[np.diag_indices(m)] += RIDGE_NOT_IDENTIFIED * (1.0 + np.abs(np.diag(M)))
                 f.L, info = _potrf(M)
                 if info != 0:
                     raise np.linalg.LinAlgError("Newton matrix not positive definite")
@@ -647,106 +748,74 @@ class LaplaceEngine:
         return x_o, x_st, y, x_c
 
     # ------------------------------------------------------------------ PIRLS
-    def pirls(self, phi, beta=None, tol=1e-11, max_iter=60):
+    def pirls(self, phi, beta=None, max_iter=PIRLS_MAX_ITER):
         """Newton iterations for the conditional modes (and beta when ``beta`` is None).
 
-        Returns (h, factor, eta, converged).  Updates the warm-start state.
+        Steps: set up the problem at these variance parameters (_PirlsProblem), start from the
+        better of the warm start and zero (_pirls_start), take Newton steps with step halving
+        (_pirls_line_search) until the Newton decrement falls below PIRLS_DECREMENT_TOL, then
+        one last full step, and keep the modes as the next call's warm start (_pirls_keep).
+        Returns (h, factor, eta, converged).
         """
-        s_st, s_terms, s_o = self.unpack(phi)
-        full = beta is None
-        D = self._design(s_terms, full)
-        s_c = D.s_c
-        cells = self.cell is not None
-        base = self.offset.copy()
-        if not full:
-            for k in range(self.p):
-                base += beta[k] * self.XT[k]
-        u_st = self.u_st.copy() if s_st > 0 else np.zeros(self.n_st)
-        v = np.concatenate([self.u_re, self.beta]) if full else self.u_re.copy()
-        u_o = self.u_o.copy() if s_o > 0 else None
-        u_c = self.u_c.copy() if cells else None
-
-        def eta_of(u_st, v, u_o, u_c):
-            e = base + s_st * u_st[self.st]
-            if v.size:
-                e = e + D.matvec(v)
-            if u_o is not None:
-                e = e + s_o * u_o
-            if u_c is not None:
-                e = e + s_c * u_c[self.cell_idx]
-            return e
-
-        def h_of(eta, u_st, v, u_o, u_c):
-            pen = _dot(u_st, u_st) + _dot(v[:self.m_re], self._prior_mv(v[:self.m_re]))
-            if u_o is not None:
-                pen += _dot(u_o, u_o)
-            if u_c is not None:
-                pen += _dot(u_c, u_c)
-            return float(np.sum(self.fam.loglik(eta)) - 0.5 * pen)
-
-        eta = eta_of(u_st, v, u_o, u_c)
-        h = h_of(eta, u_st, v, u_o, u_c)
-        # a warm start made for other variance values can be far off: compare with u = 0
-        z_st = np.zeros_like(u_st)
-        z_v = v.copy()
-        z_v[:self.m_re] = 0
-        z_o = None if u_o is None else np.zeros_like(u_o)
-        z_c = None if u_c is None else np.zeros_like(u_c)
-        z_eta = eta_of(z_st, z_v, z_o, z_c)
-        z_h = h_of(z_eta, z_st, z_v, z_o, z_c)
-        if not np.isfinite(h) or z_h > h:
-            u_st, v, u_o, u_c, eta, h = z_st, z_v, z_o, z_c, z_eta, z_h
+        prob = _PirlsProblem(self, phi, beta)
+        modes = self._pirls_start(prob)
+        eta = prob.eta(modes)
+        h = prob.h(eta, modes)
         converged = False
+        f = None                       # the factor at eta, while it is up to date
         for _ in range(max_iter):
             d1, w = self.fam.derivs(eta)
-            f = self._factor(w, s_st, s_o, D)
-            g_st = s_st * np.bincount(self.st, weights=d1, minlength=self.n_st) - u_st
-            g_v = D.rmatvec(d1) if v.size else np.zeros(0)
-            g_v[:self.m_re] -= self._prior_mv(v[:self.m_re])
-            g_o = s_o * d1 - u_o if u_o is not None else None
-            g_c = s_c * np.bincount(self.cell_idx, weights=d1, minlength=self.n_cell) - u_c if cells else None
-            x_o, x_st, x_v, x_c = self._solve(f, g_o, g_st, g_v, g_c)
-            decrement = (_dot(g_st, x_st) + _dot(g_v, x_v) + (_dot(g_o, x_o) if u_o is not None else 0.0)
-                         + (_dot(g_c, x_c) if cells else 0.0))
-            if decrement < 1e-7:
-                # close enough for Newton's quadratic convergence: take this last full step
-                # and factor at the new point, so that the log-determinant (which is first
-                # order in any error of u) is evaluated at the mode to machine precision
-                u_st = u_st + x_st
-                v = v + x_v
-                u_o = u_o + x_o if u_o is not None else None
-                u_c = u_c + x_c if cells else None
-                eta = eta_of(u_st, v, u_o, u_c)
-                h = h_of(eta, u_st, v, u_o, u_c)
-                d1, w = self.fam.derivs(eta)
-                f = self._factor(w, s_st, s_o, D)
+            f = self._factor(w, prob.s_st, prob.s_o, prob.D)
+            grad = prob.gradient(d1, modes)
+            x_o, x_st, x_v, x_c = self._solve(f, grad[2], grad[0], grad[1], grad[3])
+            step = (x_st, x_v, x_o, x_c)      # ordered as the modes
+            if _modes_dot(grad, step) < PIRLS_DECREMENT_TOL:
+                # close enough for Newton's quadratic convergence: take this last full step and
+                # factor at the new point, so that the log-determinant (first order in any error
+                # of u) is evaluated at the mode to machine precision
+                modes = _modes_axpy(modes, 1.0, step)
+                eta = prob.eta(modes)
+                h = prob.h(eta, modes)
+                f = None
                 converged = True
                 break
-            step = 1.0
-            for _half in range(30):
-                n_st_ = u_st + step * x_st
-                n_v = v + step * x_v
-                n_o = u_o + step * x_o if u_o is not None else None
-                n_c = u_c + step * x_c if cells else None
-                n_eta = eta_of(n_st_, n_v, n_o, n_c)
-                n_h = h_of(n_eta, n_st_, n_v, n_o, n_c)
-                if np.isfinite(n_h) and n_h >= h - 1e-12 * max(1.0, abs(h)):
-                    break
-                step *= 0.5
-            else:
-                break
-            u_st, v, u_o, u_c, eta, h = n_st_, n_v, n_o, n_c, n_eta, n_h
-        else:
+            moved = _pirls_line_search(prob, modes, step, h)
+            if moved is None:
+                break                  # no step keeps h: stay (f is the factor here)
+            modes, eta, h = moved
+            f = None
+        if f is None:
             d1, w = self.fam.derivs(eta)
-            f = self._factor(w, s_st, s_o, D)
+            f = self._factor(w, prob.s_st, prob.s_o, prob.D)
         if not converged:
             self.pirls_failures += 1
-        # save warm start
-        if s_st > 0:
+        self._pirls_keep(prob, modes, f, eta)
+        return h, f, eta, converged
+
+    def _pirls_start(self, prob: _PirlsProblem) -> tuple:
+        """The warm start, or zero random effects when those give a higher h (a warm start made
+        for other variance values can be far off).  Modes: (u_station, v, u_obs, u_cell)."""
+        u_st = self.u_st.copy() if prob.s_st > 0 else np.zeros(self.n_st)
+        v = np.concatenate([self.u_re, self.beta]) if prob.full else self.u_re.copy()
+        u_o = self.u_o.copy() if prob.s_o > 0 else None
+        u_c = self.u_c.copy() if prob.cells else None
+        warm = (u_st, v, u_o, u_c)
+        z_v = v.copy()
+        z_v[:self.m_re] = 0
+        zero = (np.zeros_like(u_st), z_v, None if u_o is None else np.zeros_like(u_o),
+                None if u_c is None else np.zeros_like(u_c))
+        h_warm = prob.h(prob.eta(warm), warm)
+        h_zero = prob.h(prob.eta(zero), zero)
+        return zero if (not np.isfinite(h_warm) or h_zero > h_warm) else warm
+
+    def _pirls_keep(self, prob: _PirlsProblem, modes: tuple, f: _Factor, eta: np.ndarray) -> None:
+        """Keep the modes as the next call's warm start, and the factor and eta at them."""
+        u_st, v, u_o, u_c = modes
+        if prob.s_st > 0:
             self.u_st = u_st
-        if cells:
+        if prob.cells:
             self.u_c = u_c
-        if full:
+        if prob.full:
             self.u_re, self.beta = v[:self.m_re].copy(), v[self.m_re:].copy()
         else:
             self.u_re = v.copy()
@@ -754,7 +823,6 @@ class LaplaceEngine:
             self.u_o = u_o
         self.last_factor = f
         self.last_eta = eta
-        return h, f, eta, converged
 
     # ------------------------------------------------------------------ objectives
     def loglik_profiled(self, phi) -> float:
@@ -790,6 +858,84 @@ class LaplaceEngine:
         return float(per.sum())
 
 
+class _PirlsProblem:
+    """PIRLS at one value of the variance parameters (and of beta, or beta free).
+
+    h(u) = sum log f(y | eta(u)) - u' P u / 2 over the modes (u_station, v, u_obs, u_cell):
+    v holds the dense-block random effects and, when beta is free, beta; P is the prior
+    precision (identity, AR(1) blocks for the year effect).
+    """
+
+    def __init__(self, eng: LaplaceEngine, phi, beta):
+        self.eng = eng
+        self.s_st, s_terms, self.s_o = eng.unpack(phi)
+        self.full = beta is None
+        self.D = eng._design(s_terms, self.full)
+        self.s_c = self.D.s_c
+        self.cells = eng.cell is not None
+        base = eng.offset.copy()
+        if not self.full:
+            for k in range(eng.p):
+                base += beta[k] * eng.XT[k]
+        self.base = base
+
+    def eta(self, modes) -> np.ndarray:
+        u_st, v, u_o, u_c = modes
+        eng = self.eng
+        e = self.base + self.s_st * u_st[eng.st]
+        if v.size:
+            e = e + self.D.matvec(v)
+        if u_o is not None:
+            e = e + self.s_o * u_o
+        if u_c is not None:
+            e = e + self.s_c * u_c[eng.cell_idx]
+        return e
+
+    def h(self, eta, modes) -> float:
+        u_st, v, u_o, u_c = modes
+        m_re = self.eng.m_re
+        pen = _dot(u_st, u_st) + _dot(v[:m_re], self.eng._prior_mv(v[:m_re]))
+        if u_o is not None:
+            pen += _dot(u_o, u_o)
+        if u_c is not None:
+            pen += _dot(u_c, u_c)
+        return float(np.sum(self.eng.fam.loglik(eta)) - 0.5 * pen)
+
+    def gradient(self, d1, modes) -> tuple:
+        """dh/d(modes) given d1 = d log f / d eta, in the order of the modes."""
+        u_st, v, u_o, u_c = modes
+        eng = self.eng
+        g_st = self.s_st * np.bincount(eng.st, weights=d1, minlength=eng.n_st) - u_st
+        g_v = self.D.rmatvec(d1) if v.size else np.zeros(0)
+        g_v[:eng.m_re] -= eng._prior_mv(v[:eng.m_re])
+        g_o = self.s_o * d1 - u_o if u_o is not None else None
+        g_c = (self.s_c * np.bincount(eng.cell_idx, weights=d1, minlength=eng.n_cell) - u_c) if self.cells else None
+        return g_st, g_v, g_o, g_c
+
+
+def _modes_dot(a: tuple, b: tuple) -> float:
+    """Sum of the inner products of two mode tuples (None parts skipped)."""
+    return sum(_dot(x, y) for x, y in zip(a, b, strict=True) if x is not None)
+
+
+def _modes_axpy(modes: tuple, t: float, step: tuple) -> tuple:
+    """modes + t * step, part by part."""
+    return tuple(None if u is None else u + t * x for u, x in zip(modes, step, strict=True))
+
+
+def _pirls_line_search(prob: _PirlsProblem, modes: tuple, step: tuple, h: float):
+    """Halve the Newton step until h does not decrease (beyond rounding); None when no step does."""
+    t = 1.0
+    for _ in range(PIRLS_MAX_HALVINGS):
+        cand = _modes_axpy(modes, t, step)
+        eta = prob.eta(cand)
+        hc = prob.h(eta, cand)
+        if np.isfinite(hc) and hc >= h - PIRLS_ACCEPT_RTOL * max(1.0, abs(h)):
+            return cand, eta, hc
+        t *= 0.5
+    return None
+
+
 # ---------------------------------------------------------------------- helpers
 def num_hessian(fun, x, h, f0=None):
     """Central-difference gradient and Hessian of a scalar function.
@@ -822,14 +968,22 @@ def num_hessian(fun, x, h, f0=None):
     return f0, g, H
 
 
-def _bounded_minimize(fun, x0, bounds, h, maxiter=300, ftol=1e-13, gtol=1e-7):
-    """L-BFGS-B on ``fun`` with central-difference gradients (one-sided at a bound)."""
+def _bounded_minimize(fun, x0, bounds, h, maxiter=LBFGS_MAX_ITER, ftol=STAGE1_LBFGS_TOL["precise"][0],
+                      gtol=STAGE1_LBFGS_TOL["precise"][1]):
+    """L-BFGS-B on ``fun`` with central-difference gradients (one-sided at a bound).
+
+    The verdict is ours, from the numbers, not scipy's: converged when the largest projected
+    gradient at the end is at most ``gtol`` or the last iteration lowered ``fun`` by at most
+    ``ftol`` relative (L-BFGS-B's own two criteria, recomputed from the iterates).
+    """
     lo = np.array([b[0] for b in bounds])
     hi = np.array([b[1] for b in bounds])
+    seen: dict[bytes, float] = {}
 
     def fg(x):
         x = np.clip(x, lo, hi)
         f0 = fun(x)
+        seen[x.tobytes()] = f0
         g = np.zeros_like(x)
         for i in range(len(x)):
             xp, xm = x.copy(), x.copy()
@@ -844,9 +998,27 @@ def _bounded_minimize(fun, x0, bounds, h, maxiter=300, ftol=1e-13, gtol=1e-7):
             g[i] = (fp - fm) / (up + dn)
         return f0, g
 
+    iterates: list[float] = []
+
+    def record(xk):
+        f = seen.get(np.clip(xk, lo, hi).tobytes())
+        if f is not None:
+            iterates.append(f)
+
     x0 = np.clip(np.asarray(x0, float), lo, hi)
-    return minimize(fg, x0, jac=True, method="L-BFGS-B", bounds=bounds,
-                    options={"maxiter": maxiter, "ftol": ftol, "gtol": gtol, "maxls": 40})
+    res = minimize(fg, x0, jac=True, method="L-BFGS-B", bounds=bounds, callback=record,
+                   options={"maxiter": maxiter, "ftol": ftol, "gtol": gtol, "maxls": LBFGS_MAX_LINESEARCH})
+    x = np.clip(np.asarray(res.x, float), lo, hi)
+    g = np.asarray(res.jac, float)
+    projected = np.where((x <= lo + BOUND_EPS) & (g > 0), 0.0, np.where((x >= hi - BOUND_EPS) & (g < 0), 0.0, g))
+    pg = float(np.max(np.abs(projected))) if projected.size else 0.0
+    if x0.tobytes() in seen:
+        iterates.insert(0, seen[x0.tobytes()])
+    change = (iterates[-2] - iterates[-1]) / max(abs(iterates[-2]), abs(iterates[-1]), 1.0) \
+        if len(iterates) >= 2 else np.inf
+    ok = pg <= gtol or change <= ftol
+    msg = "converged" if ok else f"stopped with projected gradient {pg:.2g} and last relative change {change:.2g}"
+    return _Result(x, float(res.fun), ok, msg, int(res.nit))
 
 
 class _Result:
@@ -854,7 +1026,8 @@ class _Result:
         self.x, self.fun, self.success, self.message, self.nit = x, fun, success, message, nit
 
 
-def _num_gradient(fun, x, h, f0):
+def _num_gradient(fun, x, h):
+    """Central-difference gradient of ``fun`` at ``x`` with steps ``h``."""
     g = np.zeros(len(x))
     for i in range(len(x)):
         e = np.zeros(len(x))
@@ -863,8 +1036,8 @@ def _num_gradient(fun, x, h, f0):
     return g
 
 
-def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ftol=1e-9, quasi=False,
-                    reuse_below=0.0, flat_at_bound=1e-3, snap_width=0.0):
+def _newton_bounded(fun, x0, lo, hi, h, tol=NEWTON_TOL, max_iter=NEWTON_MAX_ITER, max_step=NEWTON_MAX_STEP,
+                    ftol=NEWTON_FTOL, quasi=False, reuse_below=0.0, snap_width=0.0):
     """Projected Newton's method with a central-difference Hessian, for a few bounded parameters.
 
     Parameters on a bound whose gradient points outwards (or is flat there: a variance
@@ -875,8 +1048,13 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
     central-difference gradients (the fast path).  With ``reuse_below`` > 0 the
     Hessian is kept (only the gradient refreshed) once the Newton decrement falls
     below it: near the optimum it changes by O(step).  Parameters within ``snap_width``
-    of their lower bound with a flat gradient are moved onto it.
-    Returns a result with x, fun, success, message, nit, hess (last Hessian) and active.
+    of their lower bound with a flat gradient (FLAT_AT_BOUND) are moved onto it.
+
+    Convergence is judged from numbers: the Newton decrement below ``tol``, the decrease of
+    one step below ``ftol`` (both relative to max(1, |f|)), or, when no step along the Newton
+    direction decreases f, a decrement below STALL_DECREMENT.  ``message`` only says which,
+    for people.  Returns a result with x, fun, success, message, nit, hess (last Hessian),
+    hess_at (where it was computed) and active (parameters held on a bound).
     """
     lo, hi = np.asarray(lo, float), np.asarray(hi, float)
     x = np.clip(np.asarray(x0, float), lo, hi)
@@ -892,25 +1070,23 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
             f0, g, H = num_hessian(fun, x, h, f0=f0)
             hess_at = x.copy()
         elif g is None:
-            g = _num_gradient(fun, x, h, f0)
+            g = _num_gradient(fun, x, h)
         # a variance parameter drifting down a flat likelihood towards zero: put it on its
-        # bound (an SD below about 1e-3 on the link scale is no random effect at all)
-        snap = (x < lo + snap_width) & (np.abs(g) < flat_at_bound) & (x > lo)
+        # bound (an SD below about 1.5e-3 on the link scale is no random effect at all: SNAP_LOG_WIDTH)
+        snap = (x < lo + snap_width) & (np.abs(g) < FLAT_AT_BOUND) & (x > lo)
         if np.any(snap):
             x = x.copy()
             x[snap] = lo[snap]
             f0 = fun(x)
-        at_lo = x <= lo + 1e-9
-        at_hi = x >= hi - 1e-9
-        active = (at_lo & (g > -flat_at_bound)) | (at_hi & (g < flat_at_bound))
+        at_lo = x <= lo + BOUND_EPS
+        at_hi = x >= hi - BOUND_EPS
+        active = (at_lo & (g > -FLAT_AT_BOUND)) | (at_hi & (g < FLAT_AT_BOUND))
         free = ~active
         if not np.any(free):
             ok, msg = True, "all parameters on bounds"
             break
         gf, Hf = g[free], H[np.ix_(free, free)]
-        ev, vec = np.linalg.eigh((Hf + Hf.T) / 2)
-        lam = np.maximum(np.abs(ev), 1e-6 * max(1e-8, np.abs(ev).max()))
-        step_f = -vec @ ((vec.T @ gf) / lam)
+        step_f = _saddle_free_step(gf, Hf)
         decrement = float(-gf @ step_f)
         if decrement < tol * scale:
             ok, msg = True, "converged"
@@ -921,7 +1097,7 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
         step = np.zeros_like(x)
         step[free] = step_f
         t, improved = 1.0, False
-        for _h in range(40):
+        for _h in range(NEWTON_MAX_HALVINGS):
             cand = np.clip(x + t * step, lo, hi)
             fc = fun(cand)
             if np.isfinite(fc) and fc < f0:
@@ -934,21 +1110,21 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
                 decrement = np.inf
                 continue
             # no decrease at all: at the optimum to within the noise of the evaluations
-            ok = decrement < 1e-6 * scale
+            ok = decrement < STALL_DECREMENT * scale
             msg = "converged" if ok else "no further decrease along the Newton direction"
             break
         moved = np.max(np.abs(cand - x))
         x_old, g_old = x, g
         x, f_prev, f0 = cand, f0, fc
         g = None
-        if f_prev - f0 < ftol * scale or (f_prev - f0 < tol * 1e-2 * scale and moved < 1e-7):
+        if f_prev - f0 < ftol * scale or (f_prev - f0 < TINY_MOVE_DECREASE * tol * scale and moved < TINY_MOVE):
             ok, msg = True, "converged"
             break
         if quasi:
-            g = _num_gradient(fun, x, h, f0)
+            g = _num_gradient(fun, x, h)
             s_, y_ = x - x_old, g - g_old
             sy = float(s_ @ y_)
-            if sy > 1e-12:
+            if sy > BFGS_CURVATURE_MIN:
                 Bs = H @ s_
                 H = H - np.outer(Bs, Bs) / float(s_ @ Bs) + np.outer(y_, y_) / sy
             else:
@@ -960,7 +1136,14 @@ def _newton_bounded(fun, x0, lo, hi, h, tol=1e-10, max_iter=60, max_step=3.0, ft
     return res
 
 
-def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = 100):
+def _saddle_free_step(g, H):
+    """-|H|^-1 g with the absolute eigenvalues of the symmetrised H, floored at EIGEN_FLOOR of the largest."""
+    ev, vec = np.linalg.eigh((H + H.T) / 2)
+    lam = np.maximum(np.abs(ev), EIGEN_FLOOR * max(EIGEN_FLOOR_ABS, np.abs(ev).max()))
+    return -vec @ ((vec.T @ g) / lam)
+
+
+def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max_iter: int = GLM_MAX_ITER):
     """Plain GLM by Newton's method (observed information): the starting values.  Returns beta."""
     n, p = X.shape
     off = np.zeros(n) if offset is None else offset
@@ -971,17 +1154,17 @@ def glm_fit(family: Family, X: np.ndarray, offset: np.ndarray | None = None, max
         eta = off + X @ beta
         d, w = family.derivs(eta)
         g = np.einsum("ij,i->j", X, d)
-        H = np.einsum("ij,ik->jk", X, w[:, None] * X) + 1e-10 * np.eye(p)
+        H = np.einsum("ij,ik->jk", X, w[:, None] * X) + GLM_RIDGE * np.eye(p)
         step = np.linalg.solve(H, g)
         t = 1.0
-        for _h in range(40):
+        for _h in range(GLM_MAX_HALVINGS):
             nb = beta + t * step
             nll = np.sum(family.loglik(off + X @ nb))
-            if np.isfinite(nll) and nll >= ll - 1e-12 * abs(ll):
+            if np.isfinite(nll) and nll >= ll - GLM_FTOL * abs(ll):
                 break
             t *= 0.5
         beta, ll_old, ll = nb, ll, nll
-        if abs(ll - ll_old) < 1e-12 * max(1, abs(ll)) and np.max(np.abs(t * step)) < 1e-9:
+        if abs(ll - ll_old) < GLM_FTOL * max(1, abs(ll)) and np.max(np.abs(t * step)) < GLM_XTOL:
             break
     return beta
 
@@ -1016,17 +1199,60 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
 
     Notes
     -----
-    See the module docstring for the model, the approximation and the algorithm.
+    See the module docstring for the model, the approximation and the algorithm.  The steps:
+    starting values (_starting_values), stage 1 over the variance parameters (_stage1),
+    stage 2 over all parameters (_stage2) where it applies, the convergence verdict from the
+    numbers (_stage1_verdict, _stage2_verdict), the fixed effects and their covariance at
+    the estimate (_at_estimate), and the result (_assemble).
     """
-    fam = spec.family
-    gaussian = isinstance(fam, Gaussian)
+    gaussian = isinstance(spec.family, Gaussian)
     if reml and not gaussian:
         raise ValueError("REML applies to the Gaussian (logit-normal) family only")
     if n_agq > 1 and (spec.terms or spec.olre or not spec.station_effect):
         raise ValueError("adaptive Gauss-Hermite quadrature needs a single grouping factor (station)")
     eng = LaplaceEngine(spec, reml=reml, n_agq=n_agq)
     diags: list[Diagnostic] = []
-    # --- starting values from a GLM
+    phi0 = _starting_values(eng, start, start_beta)
+    # stage 1 only has to be precise when it is the answer (fast path: enough for the power
+    # analysis; Gaussian family: exact ML / REML); otherwise stage 2 refines it
+    do_stage2 = (not gaussian) and (stage2 or n_agq > 1)
+    quick = not (stage2 or hessian) or do_stage2
+    res1 = _stage1(eng, phi0, quick)
+    phi = np.asarray(res1.x)
+    ll = eng.loglik_profiled(phi)
+    beta = eng.beta.copy()
+    H_info = None
+    if do_stage2:
+        vcov_cond = _conditional_vcov(eng.last_factor, eng)
+        phi, beta, ll, H_info, ok2, msg = _stage2(eng, phi, beta, vcov_cond, hessian)
+        converged, max_grad = _stage2_verdict(eng, phi, beta, ok2, msg, diags)
+    else:
+        converged, max_grad = _stage1_verdict(eng, phi, res1, diags)
+        if not res1.success:
+            ll = eng.loglik_profiled(phi)
+    at_bound = [i for i in range(eng.n_sd) if phi[i] <= LOG_SD_MIN + AT_BOUND_LOG_WIDTH]
+    names = spec.sd_names()
+    for i in at_bound:
+        diags.append(Diagnostic("variance_at_bound",
+                                f"The {names[i]} standard deviation is estimated at (or near) zero; "
+                                "that random effect adds nothing to these data.", "info"))
+    beta, eta, u_station, vcov, vcov_method = _at_estimate(eng, phi, beta, do_stage2, hessian, H_info, diags)
+    reml_ll = eng.loglik_profiled(phi) if reml else None
+    if eng.pirls_failures:
+        diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
+                                f"reach full precision {eng.pirls_failures} time(s).", "info"))
+    return _assemble(eng, phi, beta, eta, u_station, vcov, vcov_method, at_bound,
+                     ll if not reml else reml_ll, reml_ll, converged, max_grad, diags, do_stage2)
+
+
+def _starting_values(eng: LaplaceEngine, start, start_beta) -> np.ndarray:
+    """beta from a plain GLM (or ``start_beta``), kept as the engine's warm start; returns phi0.
+
+    Every SD starts at START_SD (Gaussian: half the GLM's residual SD, the residual SD at
+    START_RESIDUAL_FRACTION of it), AR(1) correlations at 0, the NB2 size at the moment
+    estimate of the GLM's excess variance.
+    """
+    spec, fam = eng.spec, eng.fam
     if start_beta is not None:
         beta0 = np.asarray(start_beta, float)
     else:
@@ -1035,120 +1261,135 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
         beta0 = glm_fit(fam, spec.X, eng.offset)
     eng.beta = beta0.copy()
     if start is not None:
-        phi0 = np.asarray(start, float).copy()
-    else:
-        eta_glm = eng.offset + spec.X @ beta0
-        if gaussian:
-            sig = float(np.std(fam.y - eta_glm)) or 1.0
-            phi0 = np.r_[np.full(eng.n_sd, np.log(0.5 * sig)), np.zeros(eng.n_rho), np.log(0.7 * sig)]
-        else:
-            phi0 = np.r_[np.full(eng.n_sd, np.log(0.5)), np.zeros(eng.n_rho)]
-            if fam.has_dispersion:  # NB2: moment estimate of the size from the GLM
-                mu = np.exp(eta_glm)
-                excess = np.mean((fam.y - mu) ** 2 - mu)
-                th = np.mean(mu ** 2) / excess if excess > 0 else 100.0
-                phi0 = np.r_[phi0, np.log(np.clip(th, 0.05, 1e5))]
+        return np.asarray(start, float).copy()
+    eta_glm = eng.offset + spec.X @ beta0
+    if isinstance(fam, Gaussian):
+        sig = float(np.std(fam.y - eta_glm)) or 1.0
+        return np.r_[np.full(eng.n_sd, np.log(START_SD * sig)), np.zeros(eng.n_rho),
+                     np.log(START_RESIDUAL_FRACTION * sig)]
+    phi0 = np.r_[np.full(eng.n_sd, np.log(START_SD)), np.zeros(eng.n_rho)]
+    if fam.has_dispersion:  # NB2: moment estimate of the size from the GLM
+        mu = np.exp(eta_glm)
+        excess = np.mean((fam.y - mu) ** 2 - mu)
+        th = np.mean(mu ** 2) / excess if excess > 0 else START_NB_SIZE_POISSONLIKE
+        phi0 = np.r_[phi0, np.log(np.clip(th, *START_NB_SIZE_RANGE))]
+    return phi0
+
+
+def _stage1(eng: LaplaceEngine, phi0, quick: bool):
+    """Maximise the profiled Laplace (or REML) log-likelihood over the variance parameters.
+
+    Projected Newton for up to STAGE1_NEWTON_MAX_PARAMS parameters, L-BFGS-B beyond; ``quick``
+    (a stage 2 follows, or the fast path) stops at the looser tolerances.
+    """
     bounds = eng.bounds()
-    hphi = np.full(eng.n_phi, 1e-4)
-    # --- stage 1: variance parameters, beta at the PIRLS mode
-    # stage 1 only has to be precise when it is the answer (fast path: enough for the
-    # power analysis; Gaussian family: exact ML / REML); otherwise stage 2 refines it
-    will_refine = (not gaussian) and (stage2 or n_agq > 1)
-    quick = not (stage2 or hessian) or will_refine
-    obj1 = lambda x: -eng.loglik_profiled(x)  # noqa: E731
-    if eng.n_phi <= 6:
-        snap1 = np.r_[np.full(eng.n_sd, 5.0), np.zeros(eng.n_phi - eng.n_sd)]
-        res1 = _newton_bounded(obj1, phi0, [b[0] for b in bounds], [b[1] for b in bounds],
-                               np.full(eng.n_phi, 1e-3), snap_width=snap1, tol=1e-10 if quick else 1e-13,
-                               ftol=1e-9 if quick else 1e-12, quasi=quick)
-    else:
-        res1 = _bounded_minimize(obj1, phi0, bounds, hphi, ftol=1e-10 if quick else 1e-13,
-                                 gtol=1e-4 if quick else 1e-7)
-    phi = np.asarray(res1.x)
-    ll = eng.loglik_profiled(phi)
-    beta = eng.beta.copy()
-    do_stage2 = (not gaussian) and (stage2 or n_agq > 1)
-    names = spec.sd_names()
-    vcov = _conditional_vcov(eng.last_factor, eng)
-    vcov_method = "conditional"
-    lo_b = np.array([b[0] for b in bounds])
-    hi_b = np.array([b[1] for b in bounds])
-    max_grad = 0.0
-    converged = True
-    if do_stage2:
-        phi, beta, ll, H_info, ok2, msg = _stage2(eng, phi, beta, vcov, hessian)
-        if not ok2:
-            # the search's own stopping rule was not met: judge the point by its gradient
-            se = np.sqrt(np.maximum(np.diag(_conditional_vcov_at(eng, phi, beta)), 1e-16))
-            fun2 = lambda xx: -eng.loglik_beta(xx[:eng.n_phi], xx[eng.n_phi:])  # noqa: E731
-            max_grad, worst = _gradient_check(fun2, np.r_[phi, beta], np.r_[np.ones(eng.n_phi), se],
-                                              np.r_[lo_b, np.full(eng.p, -np.inf)],
-                                              np.r_[hi_b, np.full(eng.p, np.inf)], eng.n_sd)
-            if max_grad > GRADIENT_TOL:
-                converged = False
-                par = (names + spec.rho_names() + ["dispersion"] + list(spec.x_names))[worst] \
-                    if worst < eng.n_phi else spec.x_names[worst - eng.n_phi]
-                diags.append(Diagnostic("not_converged", "The joint search over fixed effects and variances "
-                                        f"stopped ({msg}) where the log-likelihood still changes by {max_grad:.2g} "
-                                        f"per standard error of '{par}'."))
-    elif not res1.success:
-        max_grad, worst = _gradient_check(obj1, phi, np.ones(eng.n_phi), lo_b, hi_b, eng.n_sd)
-        if max_grad > GRADIENT_TOL:
-            converged = False
-            par = (names + spec.rho_names() + ["dispersion"])[worst]
-            diags.append(Diagnostic("not_converged", "The search over the variance parameters stopped where the "
-                                    f"log-likelihood still changes by {max_grad:.2g} per unit of log '{par}'."))
-        ll = eng.loglik_profiled(phi)
-    at_bound = [i for i in range(eng.n_sd) if phi[i] <= LOG_SD_MIN + 0.5]
-    for i in at_bound:
-        diags.append(Diagnostic("variance_at_bound",
-                                f"The {names[i]} standard deviation is estimated at (or near) zero; "
-                                "that random effect adds nothing to these data.", "info"))
-    # conditional information at the estimate (joint mode of u given beta)
-    if do_stage2:
-        eng.pirls(phi, beta=beta)
-        eta = eng.last_eta.copy()
-        u_station = eng.u_st.copy()
-        vcov = _conditional_vcov_at(eng, phi, beta)
-        if hessian:
-            if H_info is not None:
-                vcov, vcov_method = H_info, "hessian"
-            elif len(beta) + eng.n_phi > NEWTON_MAX_DIM:
-                diags.append(Diagnostic("conditional_se",
-                                        f"With {len(beta)} fixed effects the standard errors use the conditional "
-                                        "information at the estimates (X' V^-1 X)^-1 rather than the full Hessian.",
-                                        "info"))
-            else:
-                diags.append(Diagnostic("hessian_not_positive",
-                                        "The likelihood's curvature matrix is not positive definite (or was not "
-                                        "computed); standard errors use the conditional information instead."))
-    else:
+    lo, hi = [b[0] for b in bounds], [b[1] for b in bounds]
+    obj = lambda x: -eng.loglik_profiled(x)  # noqa: E731
+    if eng.n_phi <= STAGE1_NEWTON_MAX_PARAMS:
+        snap = np.r_[np.full(eng.n_sd, SNAP_LOG_WIDTH), np.zeros(eng.n_phi - eng.n_sd)]
+        tol, ftol = STAGE1_NEWTON_TOL["quick" if quick else "precise"]
+        return _newton_bounded(obj, phi0, lo, hi, np.full(eng.n_phi, STAGE1_STEP), snap_width=snap, tol=tol,
+                               ftol=ftol, quasi=quick)
+    ftol, gtol = STAGE1_LBFGS_TOL["quick" if quick else "precise"]
+    return _bounded_minimize(obj, phi0, bounds, np.full(eng.n_phi, LBFGS_STEP), ftol=ftol, gtol=gtol)
+
+
+def _bounds_arrays(eng: LaplaceEngine, with_beta: bool) -> tuple[np.ndarray, np.ndarray]:
+    lo = np.array([b[0] for b in eng.bounds()])
+    hi = np.array([b[1] for b in eng.bounds()])
+    if with_beta:
+        lo, hi = np.r_[lo, np.full(eng.p, -np.inf)], np.r_[hi, np.full(eng.p, np.inf)]
+    return lo, hi
+
+
+def _stage2_verdict(eng: LaplaceEngine, phi, beta, ok: bool, msg: str, diags: list) -> tuple[bool, float]:
+    """Converged when the search met its own numerical stopping rule; otherwise judged by the
+    largest scaled gradient at the point it stopped (GRADIENT_TOL).  Returns (converged, max_grad)."""
+    if ok:
+        return True, 0.0
+    spec = eng.spec
+    se = np.sqrt(np.maximum(np.diag(_conditional_vcov_at(eng, phi, beta)), VARIANCE_FLOOR))
+    fun = lambda xx: -eng.loglik_beta(xx[:eng.n_phi], xx[eng.n_phi:])  # noqa: E731
+    lo, hi = _bounds_arrays(eng, True)
+    max_grad, worst = _gradient_check(fun, np.r_[phi, beta], np.r_[np.ones(eng.n_phi), se], lo, hi, eng.n_sd)
+    if max_grad <= GRADIENT_TOL:
+        return True, max_grad
+    par = (spec.sd_names() + spec.rho_names() + ["dispersion"])[worst] if worst < eng.n_phi \
+        else spec.x_names[worst - eng.n_phi]
+    diags.append(Diagnostic("not_converged", "The joint search over fixed effects and variances "
+                            f"stopped ({msg}) where the log-likelihood still changes by {max_grad:.2g} "
+                            f"per standard error of '{par}'."))
+    return False, max_grad
+
+
+def _stage1_verdict(eng: LaplaceEngine, phi, res, diags: list) -> tuple[bool, float]:
+    """As _stage2_verdict, for the search over the variance parameters alone."""
+    if res.success:
+        return True, 0.0
+    spec = eng.spec
+    lo, hi = _bounds_arrays(eng, False)
+    obj = lambda x: -eng.loglik_profiled(x)  # noqa: E731
+    max_grad, worst = _gradient_check(obj, phi, np.ones(eng.n_phi), lo, hi, eng.n_sd)
+    if max_grad <= GRADIENT_TOL:
+        return True, max_grad
+    par = (spec.sd_names() + spec.rho_names() + ["dispersion"])[worst]
+    diags.append(Diagnostic("not_converged", "The search over the variance parameters stopped where the "
+                            f"log-likelihood still changes by {max_grad:.2g} per unit of log '{par}'."))
+    return False, max_grad
+
+
+def _at_estimate(eng: LaplaceEngine, phi, beta, do_stage2: bool, hessian: bool, H_info, diags: list):
+    """The modes, linear predictor and fixed-effect covariance at the estimate.
+
+    Returns (beta, eta, u_station, vcov, vcov_method): the Hessian's inverse where stage 2
+    gave one, else the conditional information (X' V^-1 X)^-1 at the estimate.
+    """
+    if not do_stage2:
         eng.pirls(phi)
-        beta = eng.beta.copy()
-        eta = eng.last_eta.copy()
-        u_station = eng.u_st.copy()
-        vcov = _conditional_vcov(eng.last_factor, eng)
-    reml_ll = eng.loglik_profiled(phi) if reml else None
-    if eng.pirls_failures:
-        diags.append(Diagnostic("pirls_slow", "The inner Newton iterations for the random effects did not "
-                                f"reach full precision {eng.pirls_failures} time(s).", "info"))
-    s_st, s_terms, s_o = eng.unpack(phi)
-    # an SD held on its lower bound is reported as 0 (as lme4 reports a singular fit)
+        return (eng.beta.copy(), eng.last_eta.copy(), eng.u_st.copy(),
+                _conditional_vcov(eng.last_factor, eng), "conditional")
+    eng.pirls(phi, beta=beta)
+    eta = eng.last_eta.copy()
+    u_station = eng.u_st.copy()
+    vcov = _conditional_vcov_at(eng, phi, beta)
+    if not hessian:
+        return beta, eta, u_station, vcov, "conditional"
+    if H_info is not None:
+        return beta, eta, u_station, H_info, "hessian"
+    if len(beta) + eng.n_phi > NEWTON_MAX_DIM:
+        diags.append(Diagnostic("conditional_se",
+                                f"With {len(beta)} fixed effects the standard errors use the conditional "
+                                "information at the estimates (X' V^-1 X)^-1 rather than the full Hessian.",
+                                "info"))
+    else:
+        diags.append(Diagnostic("hessian_not_positive",
+                                "The likelihood's curvature matrix is not positive definite (or was not "
+                                "computed); standard errors use the conditional information instead."))
+    return beta, eta, u_station, vcov, "conditional"
+
+
+def _assemble(eng: LaplaceEngine, phi, beta, eta, u_station, vcov, vcov_method, at_bound, loglik, reml_ll,
+              converged, max_grad, diags, do_stage2) -> GlmmFit:
+    """The GlmmFit: SDs (an SD held on its lower bound is reported as 0, as lme4 reports a singular
+    fit), AR(1) correlations, reference df, estimator label and the Pearson statistic."""
+    spec, fam = eng.spec, eng.fam
+    _, _, s_o = eng.unpack(phi)
+    names = spec.sd_names()
     sd = {nm: (0.0 if i in at_bound else float(np.exp(v)))
           for i, (nm, v) in enumerate(zip(names, phi[:eng.n_sd], strict=True))}
     rho = {spec.terms[a].name: float(eng.rho[a]) for a in eng.ar1}
     n_par = eng.p + eng.n_phi
     eta_fam = eta if eng.u_o is None or s_o == 0 else eta - s_o * eng.u_o
     coef_df, df_method = coefficient_df(spec)
-    if gaussian:
-        estimator = "reml-exact" if reml else "ml-exact"
+    if isinstance(fam, Gaussian):
+        estimator = "reml-exact" if eng.reml else "ml-exact"
     elif do_stage2:
-        estimator = "ml-agq" if n_agq > 1 else "ml-laplace"
+        estimator = "ml-agq" if eng.n_agq > 1 else "ml-laplace"
     else:
         estimator = "joint-mode"
     return GlmmFit(beta=beta, vcov=vcov, x_names=list(spec.x_names), sd=sd,
                    dispersion=(float(fam.dispersion) if fam.has_dispersion else None),
-                   loglik=float(ll if not reml else reml_ll), reml_criterion=reml_ll, df=n_par,
+                   loglik=float(loglik), reml_criterion=reml_ll, df=n_par,
                    converged=converged, diagnostics=diags, phi=phi, u_station=u_station, eta=eta,
                    n_evaluations=eng.n_eval, vcov_method=vcov_method, rho=rho, coef_df=coef_df,
                    df_method=df_method, estimator=estimator,
@@ -1156,17 +1397,7 @@ def fit_glmm(spec: GlmmSpec, reml: bool = False, n_agq: int = 1, hessian: bool =
                    max_gradient=float(max_grad))
 
 
-# A fit counts as converged when its search met its own stopping rule or, failing that,
-# when no parameter's scaled gradient exceeds GRADIENT_TOL at the end: the change of the
-# log-likelihood per unit of a log-SD (or atanh rho, log dispersion), or per standard
-# error of a fixed effect.  Near a maximum a scaled gradient g puts the estimate about g
-# standard errors from it, so 1e-3 is far below anything reported.  SDs on (or within
-# 0.5 of) their lower bound are left out: their likelihood is flat there, and an SD
-# creeping towards zero is an answer (reported as 0), not a failure.
-GRADIENT_TOL = 1e-3
-
-
-def _gradient_check(fun, x, scale, lo, hi, n_sd, h=1e-4):
+def _gradient_check(fun, x, scale, lo, hi, n_sd, h=GRADIENT_STEP):
     """Largest |d fun / d x_i| * scale_i over the free parameters (projected at bounds).
 
     Returns (value, index of the worst parameter).
@@ -1175,7 +1406,7 @@ def _gradient_check(fun, x, scale, lo, hi, n_sd, h=1e-4):
     f0 = fun(x)
     worst, gmax = 0, 0.0
     for i in range(len(x)):
-        if i < n_sd and x[i] <= LOG_SD_MIN + 0.5:
+        if i < n_sd and x[i] <= LOG_SD_MIN + AT_BOUND_LOG_WIDTH:
             continue
         hi_ = h * scale[i]
         up = min(hi_, hi[i] - x[i])
@@ -1229,16 +1460,13 @@ def coefficient_df(spec: GlmmSpec) -> tuple[np.ndarray, str]:
         m = np.bincount(idx, weights=X[:, k], minlength=year.n_levels)[has] / cnt[has]
         full = np.zeros(year.n_levels)
         full[has] = m
-        const[k] = np.allclose(X[:, k], full[idx], rtol=0, atol=1e-10 * (1 + np.max(np.abs(X[:, k]))))
+        const[k] = np.allclose(X[:, k], full[idx], rtol=0, atol=WITHIN_YEAR_ATOL * (1 + np.max(np.abs(X[:, k]))))
         means[:, k] = m
     r = int(np.linalg.matrix_rank(means[:, const])) if const.any() else 0
     df = max(G - r, 1)
     out = np.full(p, np.inf)
     out[const] = df
     return out, f"t, between-year (containment) df = {G} years - {r} year-level fixed effects = {df}"
-
-
-NEWTON_MAX_DIM = 14   # above this many (beta, variance) parameters stage 2 goes block-wise
 
 
 def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
@@ -1253,9 +1481,10 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
     x = np.r_[phi, beta]
     lo = np.r_[[b[0] for b in eng.bounds()], np.full(eng.p, -np.inf)]
     hi = np.r_[[b[1] for b in eng.bounds()], np.full(eng.p, np.inf)]
-    free = np.array([i for i in range(k) if phi[i] > LOG_SD_MIN + 0.5 or i >= eng.n_sd] + list(range(k, k + eng.p)))
-    se = np.sqrt(np.maximum(np.diag(vcov_cond), 1e-16))
-    step_h = np.r_[np.full(k, 2e-3), np.maximum(2e-2 * se, 1e-7)][free]
+    free = np.array([i for i in range(k) if phi[i] > LOG_SD_MIN + AT_BOUND_LOG_WIDTH or i >= eng.n_sd]
+                    + list(range(k, k + eng.p)))
+    se = np.sqrt(np.maximum(np.diag(vcov_cond), VARIANCE_FLOOR))
+    step_h = np.r_[np.full(k, STAGE2_STEP_PHI), np.maximum(STAGE2_STEP_BETA_SE * se, STAGE2_STEP_BETA_MIN)][free]
 
     def fun(xs):
         xx = x.copy()
@@ -1265,9 +1494,10 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
     xs = x[free].copy()
     if len(free) > NEWTON_MAX_DIM:
         return _stage2_blockwise(eng, x, free, lo, hi, step_h)
-    snap = np.where(free < eng.n_sd, 5.0, 0.0)
-    res = _newton_bounded(fun, xs, lo[free], hi[free], step_h, tol=1e-12, ftol=1e-14, max_step=2.0,
-                          reuse_below=1e-2, max_iter=40, snap_width=snap)
+    snap = np.where(free < eng.n_sd, SNAP_LOG_WIDTH, 0.0)
+    res = _newton_bounded(fun, xs, lo[free], hi[free], step_h, tol=STAGE2_TOL, ftol=STAGE2_FTOL,
+                          max_step=STAGE2_MAX_STEP, reuse_below=STAGE2_REUSE_BELOW, max_iter=STAGE2_MAX_ITER,
+                          snap_width=snap)
     xs, f0 = res.x, res.fun
     x[free] = xs
     vb = None
@@ -1293,7 +1523,7 @@ def _stage2(eng: LaplaceEngine, phi, beta, vcov_cond, want_hessian):
     return x[:k], x[k:], -f0, vb, bool(res.success), res.message
 
 
-def _stage2_blockwise(eng: LaplaceEngine, x, free, lo, hi, step_h, max_rounds=25):
+def _stage2_blockwise(eng: LaplaceEngine, x, free, lo, hi, step_h, max_rounds=BLOCKWISE_MAX_ROUNDS):
     """Stage 2 with many fixed effects (e.g. a year factor): alternate Newton-type steps.
 
     beta: gradient by central differences, curvature from the conditional information
@@ -1319,12 +1549,12 @@ def _stage2_blockwise(eng: LaplaceEngine, x, free, lo, hi, step_h, max_rounds=25
             xx = x.copy()
             xx[beta_idx] = b
             return f_all(xx)
-        gb = _num_gradient(fb, x[beta_idx], hb, f0)
+        gb = _num_gradient(fb, x[beta_idx], hb)
         V = _conditional_vcov_at(eng, x[:k], x[k:])
         step = -V @ gb
         dec_b = float(-gb @ step)
         t = 1.0
-        for _h in range(30):
+        for _h in range(BLOCKWISE_MAX_HALVINGS):
             cand = x.copy()
             cand[beta_idx] = x[beta_idx] + t * step
             fc = f_all(cand)
@@ -1340,12 +1570,10 @@ def _stage2_blockwise(eng: LaplaceEngine, x, free, lo, hi, step_h, max_rounds=25
                 xx[fphi] = np.clip(ph, lo[fphi], hi[fphi])
                 return f_all(xx)
             f0, gp, Hp = num_hessian(fp, x[fphi], hphi, f0=f0)
-            ev, vec = np.linalg.eigh((Hp + Hp.T) / 2)
-            lam = np.maximum(np.abs(ev), 1e-6 * max(1e-8, np.abs(ev).max()))
-            sp_ = -vec @ ((vec.T @ gp) / lam)
+            sp_ = _saddle_free_step(gp, Hp)
             dec_p = float(-gp @ sp_)
             t = 1.0
-            for _h in range(30):
+            for _h in range(BLOCKWISE_MAX_HALVINGS):
                 cand = x.copy()
                 cand[fphi] = np.clip(x[fphi] + t * sp_, lo[fphi], hi[fphi])
                 fc = f_all(cand)
@@ -1353,7 +1581,7 @@ def _stage2_blockwise(eng: LaplaceEngine, x, free, lo, hi, step_h, max_rounds=25
                     x, f0 = cand, fc
                     break
                 t *= 0.5
-        if dec_b + dec_p < 1e-12 * max(1e3, abs(f0)):
+        if dec_b + dec_p < BLOCKWISE_TOL * max(BLOCKWISE_TOL_SCALE, abs(f0)):
             ok, msg = True, "converged"
             break
     return x[:k], x[k:], -f0, None, ok, msg
