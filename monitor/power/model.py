@@ -1,7 +1,7 @@
 """What a power study is made of: the population model, the change to detect, the design.
 
 The population model is the one the trend engine fits (``monitor.trend``), written on the link
-scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey year):
+scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey year)::
 
     eta_ijt = b0 + log(a) [counts only] + beta * t + u_i + v_j + w_t + g_jt + e_ijt
     u_i ~ N(0, (s_station * a**-b)^2),  v_j ~ N(0, s_site^2),  e_ijt ~ N(0, (s_obs * a**-b)^2)
@@ -228,7 +228,7 @@ def _year_rho(result: object) -> float:
 
 
 def year_correlation(n_years: int, rho: float) -> np.ndarray:
-    """Correlation matrix of the year effects over ``n_years`` consecutive years: rho^|t - t'|."""
+    """Correlation matrix of the year effects over ``n_years`` consecutive years: ``rho^|t - t'|``."""
     lag = np.abs(np.subtract.outer(np.arange(n_years), np.arange(n_years)))
     return np.power(float(rho), lag) if rho != 0 else np.eye(n_years)
 

@@ -80,7 +80,7 @@ def station_jumps(table: pd.DataFrame, *, threshold: float = JUMP_THRESHOLD, min
         Long analysis table: station, year, species, measure and ``value`` (or the measure columns of
         monitor.columns.MEASURE_COLUMNS).  Several values in one year are averaged first.
     threshold : float
-        Flag when |z| exceeds it; 3.5 after Iglewicz & Hoaglin (1993).
+        Flag when ``|z|`` exceeds it; 3.5 after Iglewicz & Hoaglin (1993).
     min_history : int
         Other years needed before a value can be judged.
     min_scale : float

@@ -40,16 +40,15 @@ from monitor.report.wording import (
     MethodChange,
     TrendNumbers,
     caveat_sentences,
-    change_with_interval,
     decline_advice,
     detectable_change_not_computed_sentence,
     detectable_fall_sentence,
     percent,
     plain_measures,
-    rate_with_interval,
     season_label,
     signed_percent,
     significant,
+    summary_texts,
     total_floor_note,
     trend_sentence,
     whole,
@@ -199,6 +198,8 @@ class SummaryRow:
     margin: float
     trigger_state: str
     trigger_text: str
+    call_line: str = ""
+    share_change: Interval | None = None  # percentage points, first year against last (shares only)
 
     def to_dict(self) -> dict:
         return {
@@ -215,6 +216,7 @@ class SummaryRow:
             "family": self.family,
             "margin": self.margin,
             "trigger": self.trigger_state,
+            **({"share_change_points": self.share_change.to_dict()} if self.share_change is not None else {}),
         }
 
 
@@ -910,32 +912,33 @@ def build_report_context(
         else:
             trigger_state, trigger_text = "not fired", "Not fired"
         anchor = f"sp-{i + 1}"
-        # k-of-n and cover rates are changes in the odds: labelled so wherever they are printed
+        # k-of-n and cover rates are changes in the odds: labelled so wherever they are printed, and a
+        # share's row leads with the change of the share itself (percentage points)
         odds = str(_attr(result, "change_scale", "count") or "count") != "count"
-        annual_text = rate_with_interval(annual.estimate, annual.lower, annual.upper)
-        if odds:
-            annual_text = annual_text.replace(" a year ", " a year in the odds ", 1)
+        numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last,
+                               call, margin)
+        level = _level_numbers(_attr(result, "level_change"))
+        texts = summary_texts(numbers, period.lower, period.upper, odds=odds, level=level)
+        annual_text = texts.annual_text
+        share_change = (Interval(level.difference, level.difference_lower, level.difference_upper)
+                        if odds and level is not None and level.is_share else None)
         row = SummaryRow(
             species=sp, species_name=name, measure=ms, measure_label=measure_label, anchor=anchor,
             call=call, call_label=CALL_LABEL.get(call, call), marker=CALL_MARKER.get(call, "?"),
             annual_change=annual, period_change=period,
             annual_text=annual_text,
-            period_text=change_with_interval(period.estimate, period.lower, period.upper),
-            annual_estimate_text=f"{signed_percent(annual.estimate)} a year" + (" in the odds" if odds else ""),
-            annual_ci_text=(f"95% CI {signed_percent(annual.lower).rstrip('%')} to "
-                            f"{signed_percent(annual.upper).rstrip('%')}"),
-            period_estimate_text=signed_percent(period.estimate, 0),
-            period_ci_text=(f"95% CI {signed_percent(period.lower, 0).rstrip('%')} to "
-                            f"{signed_percent(period.upper, 0).rstrip('%')}"),
+            period_text=texts.period_text,
+            annual_estimate_text=texts.annual_estimate_text,
+            annual_ci_text=texts.annual_ci_text,
+            period_estimate_text=texts.period_estimate_text,
+            period_ci_text=texts.period_ci_text,
             first_year=first, last_year=last, n_stations=n_stations, n_years=n_years,
             n_obs=int(_attr(result, "n_obs", 0)), family=family, margin=margin,
             trigger_state=trigger_state, trigger_text=trigger_text,
+            call_line=texts.call_line, share_change=share_change,
         )
         summary.append(row)
 
-        numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last,
-                               call, margin)
-        level = _level_numbers(_attr(result, "level_change"))
         if odds and level is not None:
             paragraph = odds_trend_sentence(name, ms, numbers, level)
         else:

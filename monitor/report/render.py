@@ -27,6 +27,7 @@ from pathlib import Path
 import jinja2
 
 from monitor.errors import InputError, InputProblem, MonitorError
+from monitor.report import reuse
 from monitor.report.context import FigureRef, ReportContext, SpeciesSection
 from monitor.report.figures import (
     data_uri,
@@ -69,44 +70,70 @@ def environment(directory: Path | None = None) -> jinja2.Environment:
 
 @dataclass(frozen=True)
 class DrawnFigure:
-    """A drawn figure: its reference, PNG bytes and SVG bytes (None when SVG is not wanted)."""
+    """A drawn figure: its reference, PNG bytes and SVG bytes (None when SVG is not wanted).
+
+    ``digest`` identifies what was drawn and how (``monitor.report.reuse``; None: not identifiable);
+    ``reused`` says the bytes come from the report this one replaces.
+    """
 
     ref: FigureRef
     png: bytes
     svg: bytes | None
+    digest: str | None = None
+    reused: bool = False
 
 
-def draw_figure(section: SpeciesSection, ref: FigureRef, context: ReportContext):
-    """Draw one figure of a species section and return the matplotlib Figure."""
+def figure_call(section: SpeciesSection, ref: FigureRef, context: ReportContext) -> tuple[Callable, tuple, dict]:
+    """What draws one figure of a species section: the plotting function and its arguments."""
     s = section.summary
     if ref.kind == "indices":
         label = MEASURE_LABEL.get(s.measure, s.measure)
         if section.value_label:   # yearly estimates and trend on the measure's own scale
-            return plot_indices(section.indices, section.fitted_trend, marks=section.marks,
-                                ylabel=section.value_label[0].upper() + section.value_label[1:], reference=None)
-        return plot_indices(section.indices, section.fitted_trend, marks=section.marks,
-                            ylabel=f"Index of {label} ({s.first_year} = 1)")
+            return plot_indices, (section.indices, section.fitted_trend), {
+                "marks": section.marks, "ylabel": section.value_label[0].upper() + section.value_label[1:],
+                "reference": None}
+        return plot_indices, (section.indices, section.fitted_trend), {
+            "marks": section.marks, "ylabel": f"Index of {label} ({s.first_year} = 1)"}
     if ref.kind == "map":
-        return plot_station_map(section.stations, section.station_changes, context.sites)
+        return plot_station_map, (section.stations, section.station_changes, context.sites), {}
     if ref.kind == "gradient":
         g = section.gradient
-        return plot_gradient(g.frame, gradient_label=g.gradient_label, value_label=g.value_label)
+        return plot_gradient, (g.frame,), {"gradient_label": g.gradient_label, "value_label": g.value_label}
     raise ValueError(f"unknown figure kind {ref.kind!r}")
 
 
+def draw_figure(section: SpeciesSection, ref: FigureRef, context: ReportContext):
+    """Draw one figure of a species section and return the matplotlib Figure."""
+    function, args, kwargs = figure_call(section, ref, context)
+    return function(*args, **kwargs)
+
+
 def draw_figures(context: ReportContext, *, dpi: int = 130, svg: bool = True,
-                 progress: Callable[[int, int], None] | None = None) -> list[DrawnFigure]:
-    """Draw every figure in the context (PNG, and SVG unless ``svg=False``)."""
+                 progress: Callable[[int, int], None] | None = None,
+                 previous: dict[str, tuple[str, bytes, bytes | None]] | None = None) -> list[DrawnFigure]:
+    """Draw every figure in the context (PNG, and SVG unless ``svg=False``).
+
+    ``previous`` holds the figures of the report being replaced (``reuse.reusable``): a figure whose
+    digest equals the one recorded for its key is taken from there instead of drawn again.
+    """
     refs = [(section, ref) for section in context.species for ref in section.figures]
     out = []
     for done, (section, ref) in enumerate(refs, start=1):
-        fig = draw_figure(section, ref, context)
+        function, args, kwargs = figure_call(section, ref, context)
+        digest = reuse.digest(function, args, kwargs, dpi=dpi, svg=svg)
+        earlier = (previous or {}).get(ref.key)
+        if digest is not None and earlier is not None and earlier[0] == digest:
+            out.append(DrawnFigure(ref, earlier[1], earlier[2], digest, reused=True))
+            if progress is not None:
+                progress(done, len(refs))
+            continue
+        fig = function(*args, **kwargs)
         png = figure_png(fig, dpi)
         # the layout is settled by the first save; keep it rather than solving it again for the SVG.  No engine
         # at all (not "none", a placeholder engine): with any engine, saving draws the figure twice, once only
         # to lay it out (the SVG is byte for byte the same either way)
         fig.set_layout_engine(None)
-        out.append(DrawnFigure(ref, png, figure_svg(fig) if svg else None))
+        out.append(DrawnFigure(ref, png, figure_svg(fig) if svg else None, digest))
         del fig
         if progress is not None:
             progress(done, len(refs))
@@ -172,11 +199,15 @@ def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: in
         figures_dir = tmp / FIGURES
         figures_dir.mkdir()
         images: dict[str, str] = {}
-        for drawn in draw_figures(context, dpi=dpi, svg=svg, progress=progress):
+        recorded: dict[str, dict] = {}
+        previous = reuse.reusable(out_dir, MARKER, FIGURES) if ours is not None else {}
+        for drawn in draw_figures(context, dpi=dpi, svg=svg, progress=progress, previous=previous):
             (figures_dir / f"{drawn.ref.key}.png").write_bytes(drawn.png)
             if drawn.svg is not None:
                 (figures_dir / f"{drawn.ref.key}.svg").write_bytes(drawn.svg)
             images[drawn.ref.key] = data_uri(drawn.png)
+            if drawn.digest is not None:
+                recorded[drawn.ref.key] = reuse.record(drawn.digest, drawn.png, drawn.svg)
         html = render_html(context, images, templates)
         (tmp / INDEX).write_text(html, encoding="utf-8")
         if pdf:
@@ -184,8 +215,8 @@ def render_report(context: ReportContext, out_dir: str | os.PathLike, *, dpi: in
         numbers = json.dumps(context.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
         (tmp / NUMBERS).write_text(numbers + "\n", encoding="utf-8")
         written = sorted(str(p.relative_to(tmp).as_posix()) for p in tmp.rglob("*") if p.is_file())
-        (tmp / MARKER).write_text(json.dumps({"written_by": "monitor report", "files": written}, indent=1) + "\n",
-                                  encoding="utf-8")
+        (tmp / MARKER).write_text(json.dumps({"written_by": "monitor report", "files": written,
+                                              "figures": recorded}, indent=1) + "\n", encoding="utf-8")
         os.chmod(tmp, 0o755)
         if ours is None or _only(out_dir, ours):
             _swap_into_place(tmp, out_dir)

@@ -25,6 +25,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from monitor import columns as C
+from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
 
@@ -61,8 +62,8 @@ CALL_MARKER = {
 }
 
 # Below these the trend engine calls a series "unclear" (TREND_API classify_call); the report says why.
-FEW_STATIONS = 10
-SHORT_SERIES = 5
+FEW_STATIONS = MIN_TREND_STATIONS
+SHORT_SERIES = MIN_TREND_YEARS
 # An observation-level SD above this on the log scale (a typical visit-to-visit factor of
 # exp(0.5) ~ 1.65 beyond Poisson noise) is worth telling a reader about.  Project convention.
 OVERDISPERSION_SD = 0.5
@@ -459,6 +460,59 @@ def odds_trend_sentence(name: str, measure: str, numbers: TrendNumbers, level: L
         head = f"For {subject[0].lower() + subject[1:]} we cannot yet say which way the trend is going."
     return (f"{head} {share} In {odds} the estimate is {_point_phrase(n.annual_estimate)} "
             f"(95% CI {ci}).")
+
+
+@dataclass(frozen=True)
+class SummaryTexts:
+    """The words of one summary-table row and of the call line above a species' section.
+
+    ``period_*`` is the column that leads the row: the change over the period in percent for counts,
+    and for shares (frequency, pin hits, presence, cover) the change of the share itself in percentage
+    points; ``annual_*`` is the annual rate, labelled "in the odds" where the model's rate is one.
+    """
+
+    annual_text: str
+    period_text: str
+    annual_estimate_text: str
+    annual_ci_text: str
+    period_estimate_text: str
+    period_ci_text: str
+    call_line: str
+
+
+def summary_texts(numbers: TrendNumbers, period_lower: float, period_upper: float, *, odds: bool,
+                  level: LevelNumbers | None) -> SummaryTexts:
+    """The summary row's cells and the species' call line from a trend's numbers.
+
+    A share's model rate is a change in the odds, which is not the change of the share (a share
+    falling from 90 % to 73 % has odds falling 13 % a year): for such a trend the row leads with the
+    share's change in percentage points on the fitted trend, first year against last, with its
+    interval (``level``), and the odds rate follows, labelled as odds.
+    """
+    n = numbers
+    annual_text = rate_with_interval(n.annual_estimate, n.annual_lower, n.annual_upper)
+    in_odds = " in the odds" if odds else ""
+    if odds:
+        annual_text = annual_text.replace(" a year ", " a year in the odds ", 1)
+    annual_estimate = f"{signed_percent(n.annual_estimate)} a year{in_odds}"
+    annual_ci = f"95% CI {signed_percent(n.annual_lower).rstrip('%')} to {signed_percent(n.annual_upper).rstrip('%')}"
+    years = f"{n.first_year}–{n.last_year}"
+    if odds and level is not None and level.is_share:
+        period_estimate = f"{_points(level.difference, level)} percentage points"
+        period_ci = f"95% CI {_points(level.difference_lower, level)} to {_points(level.difference_upper, level)}"
+        what = "cover" if level.unit == "% cover" else "share"
+        period_text = (f"{what} {_level(level.first, level)} to {_level(level.last, level)}: "
+                       f"{period_estimate} ({period_ci})")
+        call_line = f"{period_text} over {years} · {annual_text}"
+    else:
+        period_estimate = signed_percent(n.period_estimate, 0) + in_odds
+        period_ci = (f"95% CI {signed_percent(period_lower, 0).rstrip('%')} to "
+                     f"{signed_percent(period_upper, 0).rstrip('%')}")
+        period_text = change_with_interval(n.period_estimate, period_lower, period_upper)
+        if odds:
+            period_text = period_text.replace(" (95% CI", " in the odds (95% CI", 1)
+        call_line = f"{annual_text} · over {years}: {period_text}"
+    return SummaryTexts(annual_text, period_text, annual_estimate, annual_ci, period_estimate, period_ci, call_line)
 
 
 # --------------------------------------------------------------------------- numbers in prose and tables

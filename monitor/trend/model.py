@@ -1,15 +1,15 @@
 r"""Trend models for permanent-quadrat monitoring: TrendModel -> TrendResult.
 
 Models (i = a visit of station j in site s in year y; t = y - c, c the mid-point of the
-first and last year with data):
+first and last year with data)::
 
-count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s + w_y
-count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + w_y + e_i,  e_i ~ N(0, sd_obs^2)
-count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s + w_y
-frequency / pin_hits / presence, "binomial"
-                            k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s + w_y (+ e_i)
-cover, "logit-normal"       z_i = logit(p_i) = b0 + b1 t + u_j + v_s + w_y + e_i,
-                            p_i = cover_i / 100, e_i ~ N(0, sigma^2)   (linear mixed model, ML or REML)
+    count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s + w_y
+    count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + w_y + e_i,  e_i ~ N(0, sd_obs^2)
+    count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s + w_y
+    frequency / pin_hits / presence, "binomial"
+                                k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s + w_y (+ e_i)
+    cover, "logit-normal"       z_i = logit(p_i) = b0 + b1 t + u_j + v_s + w_y + e_i,
+                                p_i = cover_i / 100, e_i ~ N(0, sigma^2)   (linear mixed model, ML or REML)
 
 with u_j ~ N(0, sd_station^2), v_s ~ N(0, sd_site^2) (site optional) and w_y the year
 effect: the fluctuation of a year shared by every station (weather), N(0, sd_year^2)

@@ -86,6 +86,26 @@ def test_stored_fits_are_reused_equal_a_refit_and_are_refitted_after_a_correctio
     assert set(rows["fitted_by"]) == {current_user()}
 
 
+def test_the_report_from_stored_fits_says_what_the_refitting_report_says(filled_db, tmp_path):
+    """The stored-fit path of ``monitor report`` against its refit path (``--refit``): the same numbers
+    and words, the same figures byte for byte; only the fits' times and reused flags differ."""
+    from monitor.report.render import FIGURES, NUMBERS
+    from monitor.services import report
+
+    refitted = report.write_report(filled_db, 2026, tmp_path / "refit" / "2026", species="CHAORC", refit=True,
+                                   pdf=False)
+    stored = report.write_report(filled_db, 2026, tmp_path / "stored" / "2026", species="CHAORC", pdf=False)
+    a, b = (json.loads((f / NUMBERS).read_text()) for f in (refitted, stored))
+    assert [f["reused"] for f in a["fits"]] == [False] and [f["reused"] for f in b["fits"]] == [True]
+    for doc in (a, b):
+        for fit in doc["fits"]:
+            del fit["reused"], fit["fitted"]
+    assert a == b
+    assert a["summary"][0]["annual_change"]["estimate"] is not None  # the comparison held numbers
+    figures = [{p.name: p.read_bytes() for p in (f / FIGURES).iterdir()} for f in (refitted, stored)]
+    assert figures[0] == figures[1] and len(figures[0]) >= 2
+
+
 def test_another_option_is_another_fit(filled_db):
     one = trend.fit_programme(filled_db, species=["CHAORC"], workers=1)
     other = trend.fit_programme(filled_db, species=["CHAORC"], workers=1, family="negbin")
