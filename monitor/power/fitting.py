@@ -1,21 +1,21 @@
 """Fit one simulated data set and keep what a power study needs from the fit.
 
-Two fitters:
+The fitters::
 
-``"trend"``    the trend engine's fast path, ``monitor.trend.TrendModel(...).fit(profile=False,
-               indices=False)``: the same model family and random effects a programme's own
+    "trend"    the trend engine's fast path, monitor.trend.TrendModel(...).fit(profile=False,
+               indices=False): the same model family and random effects a programme's own
                analysis would use, the year effect included where the engine puts it by default
                (and a site-by-year effect where the population model has one; the year effect
-               as an AR(1) over years where the population model's is, ``year_rho``).  Wald test
-               of the slope against t on the engine's between-year df (``slope_df``; normal
+               as an AR(1) over years where the population model's is, year_rho).  Wald test
+               of the slope against t on the engine's between-year df (slope_df; normal
                without a year effect) with the standard error the engine's interval and call use
-               (``slope_se * se_scale``).
-``"trend-no-year"`` the same without a year effect (a reference where the truth has none).
-``"ols-log"``  ordinary least squares of the log (counts) or logit (cover) value on year, no random
+               (slope_se * se_scale).
+    "trend-no-year" the same without a year effect (a reference where the truth has none).
+    "ols-log"  ordinary least squares of the log (counts) or logit (cover) value on year, no random
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
                noncentral-t check, and only valid for data with no station, site or
                overdispersion effects.
-``"yearly-means"`` least squares of the yearly means of the log (counts) or logit (cover) values on
+    "yearly-means" least squares of the yearly means of the log (counts) or logit (cover) values on
                year, t test with n_years - 2 degrees of freedom: the analysis whose power is exactly
                noncentral t when stations are balanced and the noise is normal on that scale
                (Urquhart, Paulsen & Larsen 1998), whatever the year-to-year variation.  A reference.

@@ -1,7 +1,7 @@
 """What a power study is made of: the population model, the change to detect, the design.
 
 The population model is the one the trend engine fits (``monitor.trend``), written on the link
-scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey year):
+scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey year)::
 
     eta_ijt = b0 + log(a) [counts only] + beta * t + u_i + v_j + w_t + g_jt + e_ijt
     u_i ~ N(0, (s_station * a**-b)^2),  v_j ~ N(0, s_site^2),  e_ijt ~ N(0, (s_obs * a**-b)^2)
@@ -40,6 +40,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as col
+from monitor import measures
 from monitor.errors import DesignError, EstimationError
 from monitor.power.panels import RevisitDesign, parse_revisit
 from monitor.settings import DEFAULT_CHANGE_MARGIN
@@ -208,7 +209,7 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
     if family == "logit-normal":
         kwargs["residual_sd"] = float(dispersion)
     if family == "binomial":
-        if measure == col.MEASURE_PRESENCE:
+        if measure in measures.of_kind(measures.KIND_BINARY):
             trials = 1
         elif trials is None and data is not None:
             trials = trials_from_data(data, measure)
@@ -228,7 +229,7 @@ def _year_rho(result: object) -> float:
 
 
 def year_correlation(n_years: int, rho: float) -> np.ndarray:
-    """Correlation matrix of the year effects over ``n_years`` consecutive years: rho^|t - t'|."""
+    """Correlation matrix of the year effects over ``n_years`` consecutive years: ``rho^|t - t'|``."""
     lag = np.abs(np.subtract.outer(np.arange(n_years), np.arange(n_years)))
     return np.power(float(rho), lag) if rho != 0 else np.eye(n_years)
 
@@ -256,9 +257,10 @@ def trials_from_data(data: pd.DataFrame, measure: str) -> int | None:
 
     None when the table carries no n column for the measure or no value in it.
     """
-    column = {col.MEASURE_FREQUENCY: col.CELLS, col.MEASURE_PIN_HITS: col.PINS}.get(measure)
+    entry = measures.get(measure)
+    column = entry.trials_column
     if column is None:
-        return 1 if measure == col.MEASURE_PRESENCE else None
+        return 1 if entry.kind == measures.KIND_BINARY else None
     if column not in data.columns or col.YEAR not in data.columns:
         return None
     known = data.dropna(subset=[column])

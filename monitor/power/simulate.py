@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as col
+from monitor import measures
 from monitor.power.model import Design, Scenario, VarianceComponents, ar1_series, scaled_components
 
 
@@ -82,18 +83,14 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
         # NB2 as a gamma-Poisson mixture: lambda ~ Gamma(shape theta, scale mu/theta)
         frame[col.COUNT] = rng.poisson(rng.gamma(theta, mu / theta))
     elif family == "lognormal":
-        frame[col.COUNT] = np.exp(eta + rng.normal(0.0, 1.0, n) * s["residual_sd"])
+        frame[measures.get(components.measure).value_column] = np.exp(eta + rng.normal(0.0, 1.0, n) * s["residual_sd"])
     elif family == "binomial":
         eta = eta + rng.normal(0.0, 1.0, n) * s["observation_sd"]
         k = rng.binomial(components.trials, 1.0 / (1.0 + np.exp(-eta)))
-        if components.measure == col.MEASURE_PRESENCE:
-            frame[col.PRESENT] = k
-        elif components.measure == col.MEASURE_PIN_HITS:
-            frame[col.HITS] = k
-            frame[col.PINS] = np.full(n, components.trials)
-        else:
-            frame[col.OCCUPIED] = k
-            frame[col.CELLS] = np.full(n, components.trials)
+        entry = measures.get(components.measure)   # the measure's k (and n) columns, from the registry
+        frame[entry.value_column] = k
+        if entry.trials_column is not None:
+            frame[entry.trials_column] = np.full(n, components.trials)
     elif family == "logit-normal":
         z = eta + rng.normal(0.0, 1.0, n) * s["residual_sd"]
         cover = 100.0 / (1.0 + np.exp(-z))

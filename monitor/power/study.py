@@ -2,7 +2,7 @@
 
 For each design, R data sets are simulated from the population model (``monitor.power.model``)
 with the scenario's steady change, each is fitted (by default with the trend engine's fast path),
-and the test of no trend is made at level alpha on the stated side:
+and the test of no trend is made at level alpha on the stated side::
 
     two-sided  reject when |T| > q(1 - alpha/2)
     decline    reject when T < -q(1 - alpha)

@@ -24,6 +24,7 @@ from importlib import metadata
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import InputError
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
 from monitor.report.fits import FitRow
@@ -560,13 +561,10 @@ def _sig(value: float, digits: int = 3) -> str:
     return f"{rounded:,.{decimals}f}"
 
 
-QUANTITY_LABEL = {
-    "density": ("Density", "per m²"),
-    "total": ("Estimated total", ""),
-    "cover": ("Mean cover", "%"),
-    "frequency": ("Frequency", "of cells"),
-    "presence": ("Stations occupied", "share"),
-}
+# each measure's estimate (monitor/measures.py) and a count's site total: column heading and unit
+QUANTITY_LABEL = {"total": ("Estimated total", "")}
+for _measure in measures.REGISTRY.values():
+    QUANTITY_LABEL.setdefault(_measure.quantity, _measure.quantity_label)
 
 
 def density_unit(value: float) -> tuple[str, float]:

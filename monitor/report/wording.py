@@ -25,26 +25,16 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from monitor import columns as C
+from monitor import measures
 from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
 
-# Words for each measure, used as the subject of a sentence ("Numbers of X fell ...").
-MEASURE_SUBJECT = {
-    C.MEASURE_COUNT: "Numbers of {name}",
-    C.MEASURE_COVER: "Cover of {name}",
-    C.MEASURE_FREQUENCY: "Frequency of {name} (share of grid cells occupied)",
-    C.MEASURE_PIN_HITS: "Pin-frame hits on {name}",
-    C.MEASURE_PRESENCE: "The share of stations holding {name}",
-}
+# Words for each measure (monitor/measures.py): the subject of a sentence ("Numbers of X fell ..."),
+# and its name inside a sentence ("pin hits").
+MEASURE_SUBJECT = {code: m.subject for code, m in measures.REGISTRY.items()}
 
-MEASURE_LABEL = {
-    C.MEASURE_COUNT: "count",
-    C.MEASURE_COVER: "cover",
-    C.MEASURE_FREQUENCY: "frequency",
-    C.MEASURE_PIN_HITS: "pin hits",
-    C.MEASURE_PRESENCE: "presence",
-}
+MEASURE_LABEL = {code: m.label for code, m in measures.REGISTRY.items()}
 
 CALL_LABEL = {
     C.CALL_RISING: "Rising",
@@ -446,7 +436,7 @@ def odds_trend_sentence(name: str, measure: str, numbers: TrendNumbers, level: L
     """
     subject = measure_subject(measure, name)
     n = numbers
-    odds = "the odds of cover" if measure == C.MEASURE_COVER else "the odds"
+    odds = "the odds of cover" if measure in measures.of_kind(measures.KIND_PERCENT) else "the odds"
     ci = directed_interval_phrase(n.annual_lower, n.annual_upper)
     share = level_sentence(level)
     if n.call == C.CALL_DECLINING and level.difference < 0:

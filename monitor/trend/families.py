@@ -12,11 +12,13 @@ Each family gives, for a linear predictor ``eta`` on the link scale,
 
 Families
 --------
-poisson    l = y*eta - exp(eta) - log(y!)                                  (log link)
-binomial   l = k*eta - n*log(1 + exp(eta)) + log C(n, k)                   (logit link)
-negbin     NB2 with size theta, mean mu = exp(eta), Var = mu + mu^2/theta
-           l = lgamma(y+theta) - lgamma(theta) - log(y!) + theta*log(theta/(theta+mu)) + y*log(mu/(theta+mu))
-gaussian   l = -log(sigma) - log(2*pi)/2 - (y - eta)^2 / (2 sigma^2)        (identity link)
+::
+
+    poisson    l = y*eta - exp(eta) - log(y!)                                  (log link)
+    binomial   l = k*eta - n*log(1 + exp(eta)) + log C(n, k)                   (logit link)
+    negbin     NB2 with size theta, mean mu = exp(eta), Var = mu + mu^2/theta
+               l = lgamma(y+theta) - lgamma(theta) - log(y!) + theta*log(theta/(theta+mu)) + y*log(mu/(theta+mu))
+    gaussian   l = -log(sigma) - log(2*pi)/2 - (y - eta)^2 / (2 sigma^2)        (identity link)
 
 References
 ----------

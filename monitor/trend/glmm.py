@@ -2,7 +2,7 @@ r"""Maximum-likelihood fitting of generalized linear mixed models (the trend eng
 
 Model
 -----
-For observation i (a visit of station j(i) in site s(i), recorded by observer o(i))
+For observation i (a visit of station j(i) in site s(i), recorded by observer o(i))::
 
     eta_i = offset_i + x_i' beta + sd_station * u_station[j(i)]
             + sum_terms sd_term * z_term,i * u_term[level_term(i)]
@@ -21,7 +21,7 @@ years get a t reference with between-year df (``coefficient_df``).
 
 Laplace approximation
 ---------------------
-With h(u) = sum_i log f(y_i | eta_i) - |u|^2 / 2 and H = -d2h/du2 at the mode u^,
+With ``h(u) = sum_i log f(y_i | eta_i) - |u|^2 / 2`` and ``H = -d2h/du2`` at the mode u^::
 
     log L(beta, sd) ~= h(u^) - log det(H) / 2.
 

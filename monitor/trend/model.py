@@ -1,15 +1,15 @@
 r"""Trend models for permanent-quadrat monitoring: TrendModel -> TrendResult.
 
 Models (i = a visit of station j in site s in year y; t = y - c, c the mid-point of the
-first and last year with data):
+first and last year with data)::
 
-count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s + w_y
-count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + w_y + e_i,  e_i ~ N(0, sd_obs^2)
-count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s + w_y
-frequency / pin_hits / presence, "binomial"
-                            k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s + w_y (+ e_i)
-cover, "logit-normal"       z_i = logit(p_i) = b0 + b1 t + u_j + v_s + w_y + e_i,
-                            p_i = cover_i / 100, e_i ~ N(0, sigma^2)   (linear mixed model, ML or REML)
+    count, "poisson"            log E[y_i] = b0 + b1 t + u_j + v_s + w_y
+    count, "poisson-lognormal"  log E[y_i | e_i] = b0 + b1 t + u_j + v_s + w_y + e_i,  e_i ~ N(0, sd_obs^2)
+    count, "negbin"             y_i ~ NB2(mu_i, theta), log mu_i = b0 + b1 t + u_j + v_s + w_y
+    frequency / pin_hits / presence, "binomial"
+                                k_i ~ Bin(n_i, p_i), logit p_i = b0 + b1 t + u_j + v_s + w_y (+ e_i)
+    cover, "logit-normal"       z_i = logit(p_i) = b0 + b1 t + u_j + v_s + w_y + e_i,
+                                p_i = cover_i / 100, e_i ~ N(0, sigma^2)   (linear mixed model, ML or REML)
 
 with u_j ~ N(0, sd_station^2), v_s ~ N(0, sd_site^2) (site optional) and w_y the year
 effect: the fluctuation of a year shared by every station (weather), N(0, sd_year^2)
@@ -89,6 +89,7 @@ from scipy.stats import chi2, norm
 from scipy.stats import t as t_dist
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 
 from .call import DEFAULT_MARGIN, MIN_STATIONS, MIN_YEARS, classify_call
@@ -96,13 +97,7 @@ from .families import Binomial, Gaussian, NegativeBinomial, Poisson
 from .glmm import YEAR_EFFECT_MIN_YEARS, GlmmFit, GlmmSpec, Term, default_year_effect, fit_glmm, year_terms
 
 FAMILIES = ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal")
-_FAMILIES_FOR = {
-    C.MEASURE_COUNT: ("poisson", "poisson-lognormal", "negbin"),
-    C.MEASURE_FREQUENCY: ("binomial",),
-    C.MEASURE_PIN_HITS: ("binomial",),
-    C.MEASURE_PRESENCE: ("binomial",),
-    C.MEASURE_COVER: ("logit-normal",),
-}
+_FAMILIES_FOR = {code: m.families for code, m in measures.REGISTRY.items()}   # from the registry
 YEAR_RANDOM = ("iid", "ar1", "none")   # the year effect: independent, AR(1) over calendar years, none
 SLOPE = "year"          # name of the slope parameter (per year, link scale)
 INTERCEPT = "(Intercept)"
@@ -116,12 +111,7 @@ LOW_COVERAGE_FRACTION = 0.5  # common practice: a year with < half the median st
 NO_OBSERVER = "(not recorded)"   # the observer level of visits whose observer cell is blank
 _GH_X, _GH_W = np.polynomial.hermite_e.hermegauss(40)
 _GH_W = _GH_W / math.sqrt(2 * math.pi)     # E[f(Z)], Z ~ N(0, 1) = sum w_k f(x_k)
-NATURAL_UNIT = {
-    C.MEASURE_COVER: "% cover",
-    C.MEASURE_FREQUENCY: "% of cells occupied",
-    C.MEASURE_PIN_HITS: "% of pins hitting",
-    C.MEASURE_PRESENCE: "% of stations occupied",
-}
+NATURAL_UNIT = {code: m.level_unit for code, m in measures.REGISTRY.items() if m.level_unit is not None}
 CHANGE_SCALE = {
     "poisson": "count", "poisson-lognormal": "count", "negbin": "count",
     "binomial": "odds", "logit-normal": "odds of cover",
@@ -129,19 +119,15 @@ CHANGE_SCALE = {
 
 
 def default_family(measure: str) -> str:
-    """The default response family for a measure.
+    """The default response family for a measure: its registry entry's (``monitor.measures``).
 
     count -> "poisson-lognormal"; frequency, pin_hits, presence -> "binomial" (with an
     observation-level effect where the data are overdispersed, see TrendModel);
     cover -> "logit-normal".
     """
-    if measure == C.MEASURE_COUNT:
-        return "poisson-lognormal"
-    if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS, C.MEASURE_PRESENCE):
-        return "binomial"
-    if measure == C.MEASURE_COVER:
-        return "logit-normal"
-    raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
+    if measure not in measures.REGISTRY:
+        raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
+    return measures.REGISTRY[measure].family
 
 
 @dataclass(frozen=True)
@@ -583,20 +569,20 @@ class TrendModel:
             if np.any(~np.isfinite(arr)):
                 problems.append(InputProblem("<trend data>", None, c, None, "numbers"))
         if not problems:
-            if self.measure == C.MEASURE_COUNT:
-                a = v[C.COUNT]
-                if np.any(a < 0) or np.any(a != np.round(a)):
-                    problems.append(InputProblem("<trend data>", None, C.COUNT, None, "non-negative whole counts"))
-            elif self.measure == C.MEASURE_COVER:
-                a = v[C.COVER]
-                if np.any(a < 0) or np.any(a > 100):
-                    problems.append(InputProblem("<trend data>", None, C.COVER, None, "cover between 0 and 100 %"))
-            elif self.measure == C.MEASURE_PRESENCE:
-                if not np.all(np.isin(v[C.PRESENT], (0, 1))):
-                    problems.append(InputProblem("<trend data>", None, C.PRESENT, None, "0 or 1"))
-            else:
-                k, n = value_cols
-                if np.any(v[n] <= 0) or np.any(v[k] < 0) or np.any(v[k] > v[n]) or np.any(v[k] != np.round(v[k])):
+            # each value column's rule from the registry (monitor/measures.py); k at most n
+            entry = measures.REGISTRY[self.measure]
+            for r in entry.column_rules:
+                a = v[r.column]
+                bad = (a <= r.minimum) if r.above_minimum else (a < r.minimum)
+                if r.maximum is not None:
+                    bad |= a > r.maximum
+                if r.whole:
+                    bad |= a != np.round(a)
+                if np.any(bad):
+                    problems.append(InputProblem("<trend data>", None, r.column, None, r.expected))
+            if entry.trials_column is not None and not problems:
+                k, n = entry.columns
+                if np.any(v[k] > v[n]):
                     problems.append(InputProblem("<trend data>", None, k, None, f"whole numbers from 0 to '{n}' (> 0)"))
         if problems:
             raise InputError(problems)
@@ -627,15 +613,16 @@ class TrendModel:
     def _degenerate_years(self) -> dict[int, str]:
         """Years whose every value is 0 ("zero") or every k = n ("full"): no yearly estimate exists there."""
         d = self.data
-        if self.measure == C.MEASURE_COVER:
-            return {}
-        kc = C.MEASURE_COLUMNS[self.measure][0]
+        entry = measures.REGISTRY[self.measure]
+        if entry.kind not in (measures.KIND_COUNT, measures.KIND_K_OF_N, measures.KIND_BINARY):
+            return {}   # continuous values (cover, lengths) have no all-zero or all-full year
+        kc = entry.value_column
         k = d.groupby(C.YEAR)[kc].sum()
         out = {int(y): "zero" for y in k.index[k.to_numpy() == 0]}
-        if self.measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
-            n = d.groupby(C.YEAR)[C.MEASURE_COLUMNS[self.measure][1]].sum()
+        if entry.trials_column is not None:
+            n = d.groupby(C.YEAR)[entry.trials_column].sum()
             out.update({int(y): "full" for y in k.index[k.to_numpy() == n.to_numpy()]})
-        elif self.measure == C.MEASURE_PRESENCE:
+        elif entry.kind == measures.KIND_BINARY:
             n = d.groupby(C.YEAR)[kc].size()
             out.update({int(y): "full" for y in k.index[k.to_numpy() == n.to_numpy()]})
         return out
