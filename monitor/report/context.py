@@ -9,7 +9,7 @@ comparison and for anyone who wants the figures without the page.
 
 Nothing here fits a model or touches a database: trend results come in
 already fitted (``monitor.trend.TrendResult`` or any object with the same
-attributes, see TREND_API), station changes come in already computed.
+attributes), station changes come in already computed.
 """
 
 from __future__ import annotations
@@ -771,7 +771,7 @@ def build_report_context(
         The season (year) reported.
     trend_results : mapping (species, measure) -> TrendResult-like
         Fitted trends, in the order the report shows them.  Each needs the
-        TREND_API attributes ``measure, family, n_obs, n_stations, n_sites,
+        monitor.trend.TrendResult attributes ``measure, family, n_obs, n_stations, n_sites,
         years, n_years, annual_change, period_change, random_sd, dispersion,
         indices, fitted_trend, diagnostics, call, call_reason, margin,
         converged`` (and ``slope``, ``slope_se`` for upper-bound triggers).

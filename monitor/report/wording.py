@@ -52,7 +52,7 @@ CALL_MARKER = {
     C.CALL_UNCLEAR: "?",
 }
 
-# Below these the trend engine calls a series "unclear" (TREND_API classify_call); the report says why.
+# Below these the trend engine calls a series "unclear" (monitor/trend/call.py:classify_call); the report says why.
 FEW_STATIONS = MIN_TREND_STATIONS
 SHORT_SERIES = MIN_TREND_YEARS
 # An observation-level SD above this on the log scale (a typical visit-to-visit factor of

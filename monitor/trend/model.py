@@ -316,7 +316,7 @@ class TrendResult:
                              "df": df, "se_scale": scale, "reference": words}, index=self.params.index)
 
     def to_dict(self) -> dict:
-        """A JSON-ready dict (see TREND_API.md)."""
+        """A JSON-ready dict of the attributes above."""
         return {
             "measure": self.measure,
             "family": self.family,

@@ -24,7 +24,7 @@ def simulate(rng, n_station=20, years=range(2010, 2020), slope=-0.05, sd_station
 
 
 def test_default_family():
-    # TREND_API.md
+    # the attributes monitor.trend.TrendResult documents
     assert default_family("count") == "poisson-lognormal"
     assert default_family("frequency") == "binomial"
     assert default_family("pin_hits") == "binomial"
