@@ -25,26 +25,17 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from monitor import columns as C
+from monitor import measures
+from monitor.families import FAMILIES
 from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
 
-# Words for each measure, used as the subject of a sentence ("Numbers of X fell ...").
-MEASURE_SUBJECT = {
-    C.MEASURE_COUNT: "Numbers of {name}",
-    C.MEASURE_COVER: "Cover of {name}",
-    C.MEASURE_FREQUENCY: "Frequency of {name} (share of grid cells occupied)",
-    C.MEASURE_PIN_HITS: "Pin-frame hits on {name}",
-    C.MEASURE_PRESENCE: "The share of stations holding {name}",
-}
+# Words for each measure (monitor/measures.py): the subject of a sentence ("Numbers of X fell ..."),
+# and its name inside a sentence ("pin hits").
+MEASURE_SUBJECT = {code: m.subject for code, m in measures.REGISTRY.items()}
 
-MEASURE_LABEL = {
-    C.MEASURE_COUNT: "count",
-    C.MEASURE_COVER: "cover",
-    C.MEASURE_FREQUENCY: "frequency",
-    C.MEASURE_PIN_HITS: "pin hits",
-    C.MEASURE_PRESENCE: "presence",
-}
+MEASURE_LABEL = {code: m.label for code, m in measures.REGISTRY.items()}
 
 CALL_LABEL = {
     C.CALL_RISING: "Rising",
@@ -61,7 +52,7 @@ CALL_MARKER = {
     C.CALL_UNCLEAR: "?",
 }
 
-# Below these the trend engine calls a series "unclear" (TREND_API classify_call); the report says why.
+# Below these the trend engine calls a series "unclear" (monitor/trend/call.py:classify_call); the report says why.
 FEW_STATIONS = MIN_TREND_STATIONS
 SHORT_SERIES = MIN_TREND_YEARS
 # An observation-level SD above this on the log scale (a typical visit-to-visit factor of
@@ -317,8 +308,9 @@ def caveat_sentences(
         Observation-level random-effect SD [log scale]; above ``OVERDISPERSION_SD``
         the reader is told that counts vary more than chance alone gives.
     family, dispersion : optional
-        For a negative binomial fit, a size ``theta`` below 2 also counts as
-        strong overdispersion (variance more than ``mu + mu^2/2``).
+        The model family's name and fitted dispersion: where the family says the dispersion is
+        strong (``ModelFamily.strongly_overdispersed``: a negative binomial size below 2) the
+        reader is told so too, and the family's ``rate_note`` is added.
     method_changes : iterable of MethodChange
         Protocol or observer changes logged with the records.
     diagnostics : sequence of (code, message, severity)
@@ -341,8 +333,9 @@ def caveat_sentences(
             "and may change as years are added."
         )
         covered.update({"few_years", "short_series"})
+    fam = FAMILIES.get(family) if family else None
     overdispersed = (observation_sd is not None and observation_sd > OVERDISPERSION_SD) or (
-        family == "negbin" and dispersion is not None and dispersion < 2
+        fam is not None and fam.strongly_overdispersed(dispersion)
     )
     if overdispersed:
         out.append(
@@ -364,11 +357,8 @@ def caveat_sentences(
                 f"The recording method changed in {change.year}{detail}; part of the apparent change "
                 "may come from the change of method."
             )
-    if family == "logit-normal":
-        out.append(
-            "For cover the rates are changes in the odds of cover, cover / (100 − cover); when cover is "
-            "low they are close to changes in cover itself."
-        )
+    if fam is not None and fam.rate_note:
+        out.append(fam.rate_note)
     if not converged:
         out.append("The model fit did not fully converge, so treat these numbers as provisional.")
         covered.add("not_converged")
@@ -446,7 +436,7 @@ def odds_trend_sentence(name: str, measure: str, numbers: TrendNumbers, level: L
     """
     subject = measure_subject(measure, name)
     n = numbers
-    odds = "the odds of cover" if measure == C.MEASURE_COVER else "the odds"
+    odds = "the odds of cover" if measure in measures.of_kind(measures.KIND_PERCENT) else "the odds"
     ci = directed_interval_phrase(n.annual_lower, n.annual_upper)
     share = level_sentence(level)
     if n.call == C.CALL_DECLINING and level.difference < 0:
