@@ -598,6 +598,10 @@ class TrendModel:
                 k, n = entry.columns
                 if np.any(v[k] > v[n]):
                     problems.append(InputProblem("<trend data>", None, k, None, f"whole numbers from 0 to '{n}' (> 0)"))
+            # and what the family's model needs of them (the lognormal family takes logarithms)
+            need = None if problems else self.fam.check_values(v[entry.value_column])
+            if need:
+                problems.append(InputProblem("<trend data>", None, entry.value_column, None, need))
         if problems:
             raise InputError(problems)
         d[C.YEAR] = d[C.YEAR].astype(int)
