@@ -217,6 +217,19 @@ REGISTRY: dict[str, Measure] = {m.code: m for m in (
         quantity="presence", quantity_label=("Stations occupied", "share"), family="binomial", families=("binomial",), estimator=ESTIMATOR_OCCUPANCY,
         sheet_header="{species}:presence", check_name="presence_binary", check="value IN (0, 1)",
         dwc_quantity_type=None, minutes_per_quadrat=1.0),
+    Measure(
+        code=C.MEASURE_SHOOT_HEIGHT, kind=KIND_POSITIVE, columns=(C.HEIGHT,),
+        rule=ValueRule(C.MEASURE_SHOOT_HEIGHT, 0, None, False, False, "cm", "a shoot height in cm, above 0",
+                       above_minimum=True),
+        column_rules=(ColumnRule(C.HEIGHT, 0, None, False, "a shoot height in cm, above 0", above_minimum=True),),
+        description="mean shoot height in the quadrat", unit="cm", label="shoot height",
+        subject="Shoot height of {name}", estimate_unit="cm (geometric mean)", level_unit="cm",
+        quantity="height", quantity_label=("Shoot height", "cm"), family="lognormal", families=("lognormal",),
+        estimator=ESTIMATOR_GEOMETRIC_MEAN, sheet_header="{species}:shoot_height", check_name="height_positive",
+        check="(value > 0 AND n IS NULL)", dwc_quantity_type=None,
+        dwc_facts=(DarwinCoreFact("shoot height", "cm",
+                                  "mean height of the species' shoots in the quadrat, ground to tip"),),
+        minutes_per_quadrat=3.0, entry_unit="cm"),
 )}
 
 

@@ -32,6 +32,7 @@ import pandas as pd
 from scipy import stats
 
 from monitor import columns as col
+from monitor import measures
 from monitor.errors import MonitorError
 from monitor.power.model import Scenario, VarianceComponents
 from monitor.settings import MIN_YEAR_EFFECT_YEARS
@@ -90,6 +91,16 @@ def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenari
     )
 
 
+def _log_scale(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray:
+    """The measure's value on its model's scale: the logit of a percent, else the log (counts, lengths)."""
+    entry = measures.get(components.measure)
+    values = data[entry.value_column].to_numpy(float)
+    if entry.kind == measures.KIND_PERCENT:
+        p = values / 100.0
+        return np.log(p / (1 - p))
+    return np.log(values)
+
+
 def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:
     """Least-squares slope of log(count) (or logit cover) on year, t-based 95 % interval.
 
@@ -98,11 +109,7 @@ def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Sc
     ``log y_k = a + b * year_k + e_k``, ``e_k ~ N(0, s^2)`` independent; ``se(b) = s / sqrt(S_xx)``
     with ``s^2`` the residual mean square on ``n - 2`` degrees of freedom.
     """
-    if components.measure == col.MEASURE_COVER:
-        p = data[col.COVER].to_numpy(float) / 100.0
-        y = np.log(p / (1 - p))
-    else:
-        y = np.log(data[col.COUNT].to_numpy(float))
+    y = _log_scale(data, components)
     x = data[col.YEAR].to_numpy(float)
     n = y.size
     if n < 3 or not np.all(np.isfinite(y)):
@@ -153,11 +160,7 @@ def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenari
 
 
 def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
-    if components.measure == col.MEASURE_COVER:
-        p = data[col.COVER].to_numpy(float) / 100.0
-        y = np.log(p / (1 - p))
-    else:
-        y = np.log(data[col.COUNT].to_numpy(float))
+    y = _log_scale(data, components)
     return y if y.size and np.all(np.isfinite(y)) else None
 
 

@@ -565,6 +565,8 @@ def _sig(value: float, digits: int = 3) -> str:
 QUANTITY_LABEL = {"total": ("Estimated total", "")}
 for _measure in measures.REGISTRY.values():
     QUANTITY_LABEL.setdefault(_measure.quantity, _measure.quantity_label)
+# estimates said as an amount with its unit (positive continuous measures: shoot height in cm)
+_AMOUNT_UNIT = {m.quantity: m.unit for m in measures.REGISTRY.values() if m.kind == measures.KIND_POSITIVE}
 
 
 def density_unit(value: float) -> tuple[str, float]:
@@ -585,6 +587,8 @@ def _format_quantity(quantity: str, value: float, scale: tuple[str, float] | Non
     if quantity == "density":
         unit, factor = scale or density_unit(value)
         return f"{significant(value * factor, 2)} {unit}"
+    if quantity in _AMOUNT_UNIT:   # a length or other amount: "14 cm"
+        return f"{significant(value, 2)} {_AMOUNT_UNIT[quantity]}"
     return whole(value)
 
 
