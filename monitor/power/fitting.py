@@ -34,6 +34,7 @@ from scipy import stats
 from monitor import columns as col
 from monitor import measures
 from monitor.errors import MonitorError
+from monitor.families import family as family_of
 from monitor.power.model import Scenario, VarianceComponents
 from monitor.settings import MIN_YEAR_EFFECT_YEARS
 
@@ -91,16 +92,6 @@ def fit_trend_engine(data: pd.DataFrame, components: VarianceComponents, scenari
     )
 
 
-def _log_scale(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray:
-    """The measure's value on its model's scale: the logit of a percent, else the log (counts, lengths)."""
-    entry = measures.get(components.measure)
-    values = data[entry.value_column].to_numpy(float)
-    if entry.kind == measures.KIND_PERCENT:
-        p = values / 100.0
-        return np.log(p / (1 - p))
-    return np.log(values)
-
-
 def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Scenario) -> FitOutcome:
     """Least-squares slope of log(count) (or logit cover) on year, t-based 95 % interval.
 
@@ -109,7 +100,9 @@ def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Sc
     ``log y_k = a + b * year_k + e_k``, ``e_k ~ N(0, s^2)`` independent; ``se(b) = s / sqrt(S_xx)``
     with ``s^2`` the residual mean square on ``n - 2`` degrees of freedom.
     """
-    y = _log_scale(data, components)
+    y = _link_values(data, components)
+    if y is None:
+        return FAILED
     x = data[col.YEAR].to_numpy(float)
     n = y.size
     if n < 3 or not np.all(np.isfinite(y)):
@@ -160,7 +153,14 @@ def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenari
 
 
 def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
-    y = _log_scale(data, components)
+    """The family's link of the values (log of a count or length, logit of cover as a fraction);
+    None when some value has no finite link (a 0, or a cover of 0 or 100 %)."""
+    entry = measures.get(components.measure)
+    values = data[entry.value_column].to_numpy(float)
+    if entry.kind == measures.KIND_PERCENT:
+        values = values / 100.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = family_of(components.family).link(values)
     return y if y.size and np.all(np.isfinite(y)) else None
 
 

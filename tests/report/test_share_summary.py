@@ -72,7 +72,7 @@ def test_share_row_leads_with_percentage_points_against_lme4(cbpp_context, refer
 
 def test_share_row_is_read_in_that_order_on_the_page(cbpp_context):
     html = render_html(cbpp_context, {f.key: "data:," for s in cbpp_context.species for f in s.figures})
-    table = html[html.index('<table class="summary-table"'):]
+    table = html[html.index('<table class="summary-table'):]
     table = table[:table.index("</table>")]
     cells = table[table.index("<tbody>"):]
     assert cells.index("percentage points") < cells.index("a year in the odds")
