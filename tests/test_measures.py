@@ -270,7 +270,7 @@ def _check_darwin_core(archive: Path, m: measures.Measure) -> None:
 def test_every_measure_through_the_services(code, tmp_path):
     """The same walk as a user runs it: set-up, import into a database, estimates, trend, power, report
     folder and Darwin Core export from the database (slow: about half a minute a measure)."""
-    from monitor.services import estimate, exports, power, records, report, setup, trend
+    from monitor.services import estimate, exports, imports, power, report, setup, trend
 
     m = measures.REGISTRY[code]
     db = str(tmp_path / "programme.sqlite")
@@ -282,7 +282,7 @@ def test_every_measure_through_the_services(code, tmp_path):
         files = _write_seasons(folder, m, stations, n)
     with stage(code, "import"):
         for path in files:
-            records.import_records(db, path)
+            imports.import_records(db, path)
     with stage(code, "estimates"):
         table = estimate.season_table(db, YEARS[-1])
         row = table[(table["species"] == SPECIES) & (table["measure"] == code)]
