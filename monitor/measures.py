@@ -133,6 +133,10 @@ class Measure:
     trial_source: str | None = None      # k-of-n: where n comes from ("grid", "frame")
     minutes_per_quadrat: float = 5.0     # default field effort for one species [min], 1 m^2 quadrat
     entry_unit: str | None = None        # unit shown beside an entry field ("%"), if any
+    #: the value of a species looked for and not found (0), or None where absence has no value (a shoot
+    #: height is measured only on plants present): such a target may be blank on a done visit and is
+    #: never filled with 0
+    absent_value: float | None = 0.0
     aliases: tuple[str, ...] = field(default=())  # other spellings accepted in a file's measure column
 
     @property
@@ -229,7 +233,7 @@ REGISTRY: dict[str, Measure] = {m.code: m for m in (
         check="(value > 0 AND n IS NULL)", dwc_quantity_type=None,
         dwc_facts=(DarwinCoreFact("shoot height", "cm",
                                   "mean height of the species' shoots in the quadrat, ground to tip"),),
-        minutes_per_quadrat=3.0, entry_unit="cm"),
+        minutes_per_quadrat=3.0, entry_unit="cm", absent_value=None),
 )}
 
 
@@ -257,6 +261,13 @@ def k_of_n_codes() -> tuple[str, ...]:
 def by_columns() -> list[tuple[tuple[str, ...], str]]:
     """(value columns, code), most columns first: how a plain table's columns name its measure."""
     return sorted(((m.columns, code) for code, m in REGISTRY.items()), key=lambda item: -len(item[0]))
+
+
+def zero_when_absent(code: str) -> bool:
+    """A target of this measure left blank on a done visit is a missing value (or, where blanks mean zero,
+    a 0), rather than a measure that has no value when the species is absent."""
+    entry = REGISTRY.get(code)
+    return entry is None or entry.absent_value is not None
 
 
 def _sql_list(values) -> str:
