@@ -170,7 +170,7 @@ def write_dwca(path: str | os.PathLike[str], *, metadata: ProgrammeMetadata, sta
     species : DataFrame
         species, scientific_name, common_name, measure, n, sensitive.
     visits, observations, covariates : DataFrame
-        Canonical frames (FIELD_LAYOUT.md).
+        Canonical frames (``monitor.io.records``).
     sites : DataFrame, optional
         site, name, habitat (for the site events' locality and habitat).
     generalise_m : float

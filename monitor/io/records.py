@@ -1,6 +1,6 @@
 """Field-record readers: a season's visits and values from CSV or .xlsx, wide or long layout.
 
-The layouts are the agreed ones (FIELD_LAYOUT.md): the wide "field sheet" (one row per station visit,
+The layouts are those of docs/files.md ("field records"): the wide "field sheet" (one row per station visit,
 one ``<SPECIES>:<measure>`` column per target species and measure, ``cov:<name>[<unit>]`` covariate
 columns) and the long layout (one row per station, date, species and measure).  The layout is detected
 from the header: ``species``, ``measure`` and ``value`` columns mean long; ``SPECIES:measure`` columns
@@ -71,7 +71,7 @@ _VALUE_HEADER = re.compile(r"^\s*([^:\s]+)\s*:\s*([A-Za-z_ ]+?)\s*(?:/\s*(\S+))?
 
 @dataclass(frozen=True)
 class FieldRecords:
-    """A season's field records read from one file, in the canonical frames of FIELD_LAYOUT.md."""
+    """A season's field records read from one file, in the canonical frames below."""
 
     file: str
     layout: str               # "wide" or "long"

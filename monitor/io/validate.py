@@ -5,7 +5,7 @@
 :class:`monitor.errors.InputProblem` (severity "error", or "warning" for the checks a user may accept
 with a flag: a date in the future, a date outside the round's or the species' season window).
 
-Range rules per measure (design.md, "measure"): count a whole number >= 0; cover a percent 0-100;
+Range rules per measure (monitor/measures.py; common practice): count a whole number >= 0; cover a percent 0-100;
 frequency and pin hits a whole k with 0 <= k <= n and n the programme's grid or frame; presence 0 or 1.
 Vectorised over the observations so that a million rows validate in seconds.
 """
@@ -177,13 +177,6 @@ def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference
     visit_at, target_at = np.divmod(missing, n_targets)
     return [(stations[v], dates[v], targets[t][0], targets[t][1], rows[v])
             for v, t in zip(visit_at.tolist(), target_at.tolist(), strict=True)]
-
-
-def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
-    md = f"{date.month:02d}-{date.day:02d}"
-    if start <= end:
-        return start <= md <= end
-    return md >= start or md <= end  # wraps the new year
 
 
 class _Problems:

@@ -9,7 +9,7 @@ comparison and for anyone who wants the figures without the page.
 
 Nothing here fits a model or touches a database: trend results come in
 already fitted (``monitor.trend.TrendResult`` or any object with the same
-attributes, see TREND_API), station changes come in already computed.
+attributes), station changes come in already computed.
 """
 
 from __future__ import annotations
@@ -26,6 +26,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor import measures
 from monitor.errors import InputError
+from monitor.families import describe as describe_family
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
 from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
@@ -70,14 +71,6 @@ from monitor.report.wording import (
 
 PROBABILITY_PLACEMENTS = (C.PLACEMENT_RANDOM, C.PLACEMENT_STRATIFIED, C.PLACEMENT_BALANCED,
                           C.PLACEMENT_SYSTEMATIC)
-
-FAMILY_WORDS = {
-    "poisson": "Poisson counts (log link)",
-    "poisson-lognormal": "Poisson counts with an observation-level random effect for extra variation (log link)",
-    "negbin": "negative binomial counts (log link)",
-    "binomial": "binomial k-of-n (logit link)",
-    "logit-normal": "a linear mixed model on the logit of percent cover",
-}
 
 REFERENCES = (
     "Bates, D., Mächler, M., Bolker, B. and Walker, S. (2015). Fitting linear mixed-effects models "
@@ -773,7 +766,7 @@ def build_report_context(
         The season (year) reported.
     trend_results : mapping (species, measure) -> TrendResult-like
         Fitted trends, in the order the report shows them.  Each needs the
-        TREND_API attributes ``measure, family, n_obs, n_stations, n_sites,
+        monitor.trend.TrendResult attributes ``measure, family, n_obs, n_stations, n_sites,
         years, n_years, annual_change, period_change, random_sd, dispersion,
         indices, fitted_trend, diagnostics, call, call_reason, margin,
         converged`` (and ``slope``, ``slope_se`` for upper-bound triggers).
@@ -1006,7 +999,7 @@ def _species_section(i: int, row: SummaryRow, result, paragraph: str, shared: _S
         value_label = str(_attr(result, "natural_unit", "") or "")
     figures, station_frame = _species_figures(i, row, indices, value_label, marks, changes_df, shared)
     outs = tuple(shared.outcomes.get((sp, ms), ()))
-    model_text = model_sentence(FAMILY_WORDS.get(row.family, row.family), row.n_obs, row.n_stations,
+    model_text = model_sentence(describe_family(row.family), row.n_obs, row.n_stations,
                                 int(_attr(result, "n_sites", 0) or 0), row.n_years, first, last)
     fired_here = any(o.fired for o in outs)
     advice = None if fired_here else decline_advice(name, row.call, row.annual_change.estimate,
@@ -1163,7 +1156,7 @@ def _headline(summary: Sequence[SummaryRow], outcomes: Sequence[TriggerOutcome],
 
 def _methods(families: set[str], margins: set[float], software: Mapping[str, str] | None,
              random_effects: set[str]) -> Methods:
-    family_list = "; ".join(FAMILY_WORDS.get(f, f) for f in sorted(families) if f)
+    family_list = "; ".join(describe_family(f) for f in sorted(families) if f)
     margin = margin_text(margins)
     return Methods(methods_paragraphs(family_list, random_effects, margin), margin, REFERENCES,
                    software_versions(software))
