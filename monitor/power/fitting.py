@@ -33,6 +33,7 @@ from scipy import stats
 
 from monitor import columns as col
 from monitor.errors import MonitorError
+from monitor.families import family as family_of
 from monitor.power.model import Scenario, VarianceComponents
 from monitor.settings import MIN_YEAR_EFFECT_YEARS
 
@@ -98,11 +99,9 @@ def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Sc
     ``log y_k = a + b * year_k + e_k``, ``e_k ~ N(0, s^2)`` independent; ``se(b) = s / sqrt(S_xx)``
     with ``s^2`` the residual mean square on ``n - 2`` degrees of freedom.
     """
-    if components.measure == col.MEASURE_COVER:
-        p = data[col.COVER].to_numpy(float) / 100.0
-        y = np.log(p / (1 - p))
-    else:
-        y = np.log(data[col.COUNT].to_numpy(float))
+    y = _link_values(data, components)
+    if y is None:
+        return FAILED
     x = data[col.YEAR].to_numpy(float)
     n = y.size
     if n < 3 or not np.all(np.isfinite(y)):
@@ -153,11 +152,13 @@ def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenari
 
 
 def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
+    """The family's link of the values (log of a count or length, logit of cover as a fraction);
+    None when some value has no finite link (a 0, or a cover of 0 or 100 %)."""
+    values = data[col.MEASURE_COLUMNS[components.measure][0]].to_numpy(float)
     if components.measure == col.MEASURE_COVER:
-        p = data[col.COVER].to_numpy(float) / 100.0
-        y = np.log(p / (1 - p))
-    else:
-        y = np.log(data[col.COUNT].to_numpy(float))
+        values = values / 100.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = family_of(components.family).link(values)
     return y if y.size and np.all(np.isfinite(y)) else None
 
 

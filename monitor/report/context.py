@@ -26,24 +26,24 @@ import pandas as pd
 from monitor import columns as C
 from monitor import measures
 from monitor.errors import InputError
+from monitor.families import describe as describe_family
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
-from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
+from monitor.report.fits import FitRow
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
-from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_TREND_STATIONS, MIN_TREND_YEARS
 from monitor.report.wording import (
-    LevelNumbers,
-    level_sentence,
-    odds_trend_sentence,
     CALL_LABEL,
     CALL_MARKER,
     MEASURE_LABEL,
+    LevelNumbers,
     MethodChange,
     TrendNumbers,
     caveat_sentences,
     decline_advice,
     detectable_change_not_computed_sentence,
     detectable_fall_sentence,
+    level_sentence,
+    odds_trend_sentence,
     percent,
     plain_measures,
     season_label,
@@ -54,17 +54,10 @@ from monitor.report.wording import (
     trend_sentence,
     whole,
 )
+from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 PROBABILITY_PLACEMENTS = (C.PLACEMENT_RANDOM, C.PLACEMENT_STRATIFIED, C.PLACEMENT_BALANCED,
                           C.PLACEMENT_SYSTEMATIC)
-
-FAMILY_WORDS = {
-    "poisson": "Poisson counts (log link)",
-    "poisson-lognormal": "Poisson counts with an observation-level random effect for extra variation (log link)",
-    "negbin": "negative binomial counts (log link)",
-    "binomial": "binomial k-of-n (logit link)",
-    "logit-normal": "a linear mixed model on the logit of percent cover",
-}
 
 REFERENCES = (
     "Bates, D., Mächler, M., Bolker, B. and Walker, S. (2015). Fitting linear mixed-effects models "
@@ -1018,7 +1011,7 @@ def build_report_context(
             ))
         n_sites = int(_attr(result, "n_sites", 0) or 0)
         model_text = (
-            f"Model: {FAMILY_WORDS.get(family, family)}; {row.n_obs:,} values from {n_stations} stations"
+            f"Model: {describe_family(family)}; {row.n_obs:,} values from {n_stations} stations"
             + (f" in {n_sites} sites" if n_sites else "")
             + f", {n_years} seasons {first}–{last}."
         )
@@ -1150,7 +1143,7 @@ def _margin_text(margins: set[float]) -> str:
 
 def _methods(families: set[str], margins: set[float], software: Mapping[str, str] | None,
              random_effects: set[str]) -> Methods:
-    family_list = "; ".join(FAMILY_WORDS.get(f, f) for f in sorted(families) if f)
+    family_list = "; ".join(describe_family(f) for f in sorted(families) if f)
     grouping = ("a random intercept for each station nested in its site" if "site" in random_effects
                 else "a random intercept for each station")
     if "observer" in random_effects:

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 
 from monitor import columns as C
 from monitor import measures
+from monitor.families import FAMILIES
 from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
@@ -307,8 +308,9 @@ def caveat_sentences(
         Observation-level random-effect SD [log scale]; above ``OVERDISPERSION_SD``
         the reader is told that counts vary more than chance alone gives.
     family, dispersion : optional
-        For a negative binomial fit, a size ``theta`` below 2 also counts as
-        strong overdispersion (variance more than ``mu + mu^2/2``).
+        The model family's name and fitted dispersion: where the family says the dispersion is
+        strong (``ModelFamily.strongly_overdispersed``: a negative binomial size below 2) the
+        reader is told so too, and the family's ``rate_note`` is added.
     method_changes : iterable of MethodChange
         Protocol or observer changes logged with the records.
     diagnostics : sequence of (code, message, severity)
@@ -331,8 +333,9 @@ def caveat_sentences(
             "and may change as years are added."
         )
         covered.update({"few_years", "short_series"})
+    fam = FAMILIES.get(family) if family else None
     overdispersed = (observation_sd is not None and observation_sd > OVERDISPERSION_SD) or (
-        family == "negbin" and dispersion is not None and dispersion < 2
+        fam is not None and fam.strongly_overdispersed(dispersion)
     )
     if overdispersed:
         out.append(
@@ -354,11 +357,8 @@ def caveat_sentences(
                 f"The recording method changed in {change.year}{detail}; part of the apparent change "
                 "may come from the change of method."
             )
-    if family == "logit-normal":
-        out.append(
-            "For cover the rates are changes in the odds of cover, cover / (100 − cover); when cover is "
-            "low they are close to changes in cover itself."
-        )
+    if fam is not None and fam.rate_note:
+        out.append(fam.rate_note)
     if not converged:
         out.append("The model fit did not fully converge, so treat these numbers as provisional.")
         covered.add("not_converged")

@@ -21,6 +21,7 @@ from monitor import measures
 from monitor.db import Store, one_snapshot, queries
 from monitor.db import fits as fit_store
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
+from monitor.families import family as family_of
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
 from monitor.services.common import current_user, target_species
@@ -147,8 +148,14 @@ def fit_one(data: pd.DataFrame, measure: str, *, margin: float, choices: ModelCh
     model = TrendModel(data, measure=measure, family=choices.family, margin=margin,
                        observer_effect=choices.observer_effect, year_random=choices.year_random,
                        site_by_year=choices.site_by_year,
-                       observation_effect=choices.observation_effect if choices.family in (None, "binomial") else None)
+                       observation_effect=choices.observation_effect if _observation_effect_optional(choices.family)
+                       else None)
     return model.fit(profile=profile, indices=indices, fast=False)
+
+
+def _observation_effect_optional(family: str | None) -> bool:
+    """Whether the family leaves the observation-level effect to the data (None: the measure's default)."""
+    return family is None or family_of(family).observation_effect == "optional"
 
 
 def _area_tasks(task: FitTask, by: str, areas: pd.Series) -> tuple[list[FitTask], list[Diagnostic]]:

@@ -1286,12 +1286,22 @@ def _stage1(eng: LaplaceEngine, phi0, quick: bool):
     lo, hi = [b[0] for b in bounds], [b[1] for b in bounds]
     obj = lambda x: -eng.loglik_profiled(x)  # noqa: E731
     if eng.n_phi <= STAGE1_NEWTON_MAX_PARAMS:
-        snap = np.r_[np.full(eng.n_sd, SNAP_LOG_WIDTH), np.zeros(eng.n_phi - eng.n_sd)]
+        snap = np.r_[np.full(eng.n_sd, _snap_width(eng)), np.zeros(eng.n_phi - eng.n_sd)]
         tol, ftol = STAGE1_NEWTON_TOL["quick" if quick else "precise"]
         return _newton_bounded(obj, phi0, lo, hi, np.full(eng.n_phi, STAGE1_STEP), snap_width=snap, tol=tol,
                                ftol=ftol, quasi=quick)
     ftol, gtol = STAGE1_LBFGS_TOL["quick" if quick else "precise"]
     return _bounded_minimize(obj, phi0, bounds, np.full(eng.n_phi, LBFGS_STEP), ftol=ftol, gtol=gtol)
+
+
+def _snap_width(eng: LaplaceEngine) -> float:
+    """SNAP_LOG_WIDTH, narrowed for a Gaussian model whose data vary little: its SDs are on the scale
+    of its data (the log of a height may vary by 1e-2, and a real year SD of 1e-3 is then no zero), so
+    "near zero" is judged against the spread of the data about the starting fit."""
+    if not isinstance(eng.fam, Gaussian):
+        return SNAP_LOG_WIDTH
+    spread = float(np.std(eng.fam.y - eng.offset - eng.X @ eng.beta))
+    return min(SNAP_LOG_WIDTH, SNAP_LOG_WIDTH + float(np.log(spread))) if spread > 0 else SNAP_LOG_WIDTH
 
 
 def _bounds_arrays(eng: LaplaceEngine, with_beta: bool) -> tuple[np.ndarray, np.ndarray]:

@@ -154,6 +154,9 @@ def test_components_from_an_ar1_trend_carry_its_correlation():
     assert components.year_sd == pytest.approx(ref["sd"]["one"], rel=1e-3)
     iid = TrendModel(data, "count", family="negbin").fit(profile=False, indices=False)
     assert components_from_trend(iid).year_rho == 0.0
+    # the AR(1) fit warns that its interval is optimistic in short series (measured, DEVELOPERS.md)
+    assert "ar1_interval_optimistic" in {d.code for d in result.diagnostics}
+    assert "ar1_interval_optimistic" not in {d.code for d in iid.diagnostics}
 
 
 def test_power_command_takes_the_year_correlation(capsys):

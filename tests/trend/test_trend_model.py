@@ -30,7 +30,7 @@ def test_default_family():
     assert default_family("pin_hits") == "binomial"
     assert default_family("presence") == "binomial"
     assert default_family("cover") == "logit-normal"
-    assert FAMILIES == ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal")
+    assert FAMILIES == ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal", "lognormal")
     with pytest.raises(InputError):
         default_family("biomass")
 
