@@ -257,7 +257,7 @@ def field_sheet_context(
         labels.append(str(names.get(t[0]) or ""))
     labels += ["" for _ in covariates]  # a covariate's header already says what it is
     site_words = f"{td.site} {site_name}" if site_name else td.site
-    running_head = f"Site {site_words} · team {td.team} · {td.date.isoformat()}"
+    running_head = f"Field sheet · Site {site_words} · team {td.team} · {td.date.isoformat()}"
     instructions = (
         "One row per station visit. The date box holds the planned date: cross it out and write the day of "
         "the visit (YYYY-MM-DD) if it differs. Fill observers (codes separated by ';') and status (done, "

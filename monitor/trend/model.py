@@ -121,9 +121,6 @@ OVERDISPERSION_P = 0.01
 LOW_COVERAGE_FRACTION = 0.5  # common practice: a year with < half the median stations visited
 NO_OBSERVER = "(not recorded)"   # the observer level of visits whose observer cell is blank
 NATURAL_UNIT = {code: m.level_unit for code, m in measures.REGISTRY.items() if m.level_unit is not None}
-CHANGE_LABEL = {"count": "annual change", "odds": "annual change in the odds",
-                "odds of cover": "annual change in the odds of cover",
-                "geometric mean": "annual change in the geometric mean"}
 
 
 def default_family(measure: str) -> str:
@@ -260,7 +257,7 @@ class TrendResult:
     @property
     def change_label(self) -> str:
         """What the annual change is a change of, for a table heading or a sentence."""
-        return CHANGE_LABEL[self.change_scale]
+        return family_of(self.family).change_label
 
     @property
     def interval_label(self) -> str:
@@ -678,7 +675,7 @@ class TrendModel:
         if len(d) != len(self.data):
             y = y[d.index.to_numpy()]
         trials = None
-        if self.fam.density == "binomial":
+        if self.fam.has_trials:
             trials = d[columns[1]].to_numpy(float) if len(columns) > 1 else np.ones(len(d))
         return density(self.fam, y, trials), eps
 
