@@ -408,7 +408,7 @@ class TrendModel:
         ``lineage`` column names the first station of a relocation chain: the stations of one
         chain share one station effect (a moved quadrat continues its series).
     measure : str
-        count, cover, frequency, pin_hits or presence.
+        A measure code of the registry (monitor/measures.py): count, cover, frequency, pin_hits, presence, ...
     family : str, optional
         One of FAMILIES; default ``default_family(measure)``.
     year_effect : {"linear", "factor"}
