@@ -408,7 +408,7 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
                "site_year_sd": sd_site_year or 0.0, "year_rho": year_rho or 0.0}
         fam = FAMILIES[family]
         sds["residual_sd" if fam.dispersion_field == "residual_sd" else "observation_sd"] = obs_sd
-        if fam.density == "binomial":
+        if fam.has_trials:
             sds["trials"] = trials if trials is not None else 1
         components, source = VarianceComponents.from_mean(family, mean, **sds), "values given"
     station_list, year_list = _int_list(stations), _int_list(years)

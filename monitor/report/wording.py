@@ -600,3 +600,160 @@ def decline_advice(name: str, call: str, annual: float, upper: float, has_trigge
         return (f"The estimate for {name} is falling but the data cannot yet tell: keep the stations visited "
                 "every season and look again next year.")
     return None
+
+
+# --------------------------------------------------------------------------- the report's other sentences
+def trigger_cell(fired: Sequence[bool]) -> tuple[str, str]:
+    """The summary table's trigger state and its words, from whether each of a trend's triggers fired."""
+    if not fired:
+        return "none", "none set"
+    if any(fired):
+        return "fired", "\u26a0 Fired"
+    return "not fired", "Not fired"
+
+
+def headline_sentences(fired: Sequence[str], call_counts: Sequence[tuple[str, int]], n_rows: int,
+                       n_approaching: int) -> tuple[str, ...]:
+    """The "At a glance" lines: triggers fired (``fired``: "species (measure)" each), the calls counted,
+    and triggers being approached."""
+    lines = []
+    if fired:
+        lines.append(f"{len(fired)} management trigger{'s have' if len(fired) != 1 else ' has'} fired: "
+                     + "; ".join(fired) + ". Agreed responses are listed below.")
+    parts = [f"{n} {CALL_LABEL[c].lower()}" for c, n in call_counts if n]
+    lines.append(f"Of {n_rows} species and measures: " + ", ".join(parts) + ".")
+    if n_approaching:
+        lines.append(f"{n_approaching} trigger{'s are' if n_approaching != 1 else ' is'} being approached "
+                     "at the current rate.")
+    return tuple(lines)
+
+
+def comparison_note(previous_season: object, n_changed: int) -> str:
+    """The line above the comparison with last year's report."""
+    return f"Compared with the report for {previous_season}: {n_changed} call{'s' if n_changed != 1 else ''} changed."
+
+
+def visited_text(visited: int, due: int) -> str:
+    """A coverage cell: "7 of 8 (88%)"."""
+    share = f" ({visited / due * 100:.0f}%)" if due else ""
+    return f"{int(visited)} of {int(due)}{share}"
+
+
+def model_sentence(family_words: str, n_obs: int, n_stations: int, n_sites: int, n_years: int, first: int,
+                   last: int) -> str:
+    """The line under a species' figures naming the model and the data behind it."""
+    return (f"Model: {family_words}; {n_obs:,} values from {n_stations} stations"
+            + (f" in {n_sites} sites" if n_sites else "")
+            + f", {n_years} seasons {first}\u2013{last}.")
+
+
+def first_lower(text: str) -> str:
+    """Lower-case the first letter only, for use inside a sentence: codes inside a label (transect SM-T)
+    and a label that starts with a code stay as stored."""
+    return text[:1].lower() + text[1:] if text[:1].isupper() and not text[1:2].isupper() else text
+
+
+def indices_figure_alt(name: str, measure_label: str, first: int, last: int, annual_text: str,
+                       events: Sequence[str], method_years: Sequence[str]) -> str:
+    """Alt text of a species' yearly-estimates figure (``events``: "grazing 2018" each)."""
+    text = (f"Yearly index of {name} ({measure_label}) from {first} to {last}, relative to {first}, with "
+            f"95% intervals and the fitted trend line, {annual_text}.")
+    if events:
+        text += " Management events marked: " + ", ".join(events) + "."
+    if method_years:
+        text += " Method changed in " + ", ".join(method_years) + "."
+    return text
+
+
+def indices_figure_caption(value_label: str, first: int) -> str:
+    return ("Yearly estimates (points, 95% intervals) and fitted trend (line, 95% band), "
+            + (f"as {value_label}." if value_label else f"relative to {first}."))
+
+
+MAP_FIGURE_CAPTION = ("Stations coloured by their own change (orange falling, purple rising); open circles: "
+                      "too few years for a station's own trend; grey crosses: never recorded there. "
+                      "Grid north is up.")
+
+
+def map_figure_alt(n_stations: int, n_sites: int, name: str, n_fall: int, n_rise: int, n_none: int) -> str:
+    return (f"Map of {n_stations} stations"
+            + (f" in {n_sites} sites" if n_sites else "")
+            + f" coloured by each station's own annual change in {name}: {n_fall} falling "
+              f"(down triangles), {n_rise} rising (up triangles), {n_none} with too few years "
+              "(open circles).")
+
+
+def gradient_figure_alt(value_label: str, name: str, gradient_label: str, season: int, n_stations: int,
+                        low: str, high: str) -> str:
+    return (f"{value_label} of {name} against {gradient_label} in {season} at "
+            f"{n_stations} stations, from {low} to {high}.")
+
+
+def gradient_figure_caption(season: int, value_label: str, gradient_label: str) -> str:
+    return f"{season}: {first_lower(value_label)} against {first_lower(gradient_label)}."
+
+
+def margin_text(margins: Iterable[float]) -> str:
+    """The margin of change that matters in words: "±2% a year", or a range when trends differ."""
+    margins = set(margins)
+    if len(margins) == 1:
+        return f"\u00b1{percent(next(iter(margins)))} a year"
+    return "between " + " and ".join(f"\u00b1{percent(m)}" for m in (min(margins), max(margins))) + " a year"
+
+
+def methods_paragraphs(family_list: str, random_effects: Iterable[str], margin: str) -> tuple[str, str]:
+    """The two paragraphs of the methods section: the models, and what a call means."""
+    random_effects = set(random_effects)
+    grouping = ("a random intercept for each station nested in its site" if "site" in random_effects
+                else "a random intercept for each station")
+    if "observer" in random_effects:
+        grouping += ", and one for each observer"
+    if "year" in random_effects:
+        grouping += (", and a random effect for each year shared by all stations (good and bad years; the "
+                     "intervals then rest on a t reference with degrees of freedom from the number of years, "
+                     "Piepho & Ogutu 2002)")
+    first = (
+        "Each species and measure was analysed with a generalised linear mixed model fitted by maximum "
+        f"likelihood (Laplace approximation; Breslow & Clayton 1993), with {grouping}, "
+        "so that the trend is the typical change within stations rather than "
+        f"a change in which stations were visited. Models used: {family_list}. Year as a continuous "
+        "covariate gives the annual change, exp(slope) \u2212 1, with its 95% interval (for frequencies, pin hits, "
+        "presence and cover a change in the odds, p / (1 \u2212 p)); year as a factor gives the yearly estimates, "
+        "shown with the fitted trend on the measure's own scale (mean over stations). The change over the "
+        "period is the annual change compounded over the years between the first and last season."
+    )
+    second = (
+        "The models assume that change is steady on the log (or logit) scale over the period, that stations "
+        "differ only through their random effects, and that the method of recording stayed the same (changes "
+        "are marked on the plots). Missed and inaccessible visits are treated as missing, never as zero. Each "
+        "call compares the 95% interval of the annual change with zero and with a margin of "
+        f"{margin}, the smallest change this programme treats as mattering: declining or rising "
+        "when the interval lies clearly on one side, stable when it lies within the margin, unclear "
+        f"otherwise, including whenever fewer than {MIN_TREND_STATIONS} stations or {MIN_TREND_YEARS} seasons "
+        "are available (after Dixon & Pechmann 2005)."
+    )
+    return first, second
+
+
+def caution_sentences(placements: Sequence[str], non_probability: Sequence[str], margin: str) -> tuple[str, ...]:
+    """The report's standing cautions: what the stations speak for (``placements`` of every station,
+    ``non_probability`` those not placed at random), who decides, and what stable and unclear mean."""
+    if non_probability:
+        design = (f"Trends describe the monitored stations only: {len(non_probability)} of {len(placements)} "
+                  f"station{'s were' if len(placements) != 1 else ' was'} not placed at random "
+                  f"({', '.join(sorted(set(non_probability)))}), so they do not speak for the whole reserve.")
+        if len(placements) == 1:
+            design = ("Trends describe the monitored stations only: the stations were not placed at random "
+                      f"({non_probability[0]}), so they do not speak for the whole reserve.")
+    else:
+        design = ("Stations were placed by a random (probability) design, so the trends speak for the "
+                  "sampled area, within the intervals shown; they do not speak for places outside it.")
+    return (
+        design,
+        "Management decisions rest with the land manager and local rules; this report informs them and does "
+        "not make them.",
+        f"A stable call means any change is smaller than the margin ({margin}), not that "
+        "there is none; an unclear call means the data cannot tell yet, not that nothing is happening.",
+        "Indices are relative to the first season of each series; they are not population sizes.",
+        "Missed and inaccessible visits are treated as missing, never as absences.",
+    )
