@@ -7,6 +7,7 @@ from pathlib import Path
 
 import click
 
+from monitor import measures
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
 from monitor.cli.tables import trend_number_rows, write_workbook, xlsx_option
@@ -99,8 +100,8 @@ def parallel_options(func):
 @click.option("--refit", is_flag=True, help="Fit again even where a stored fit of the same data and model exists.")
 @parallel_options
 @click.option("--table", "table", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
-              help="Fit a long table from elsewhere (station, year, optional site, and count / cover_pct / "
-                   "occupied+cells / hits+pins / present) instead of the database.")
+              help="Fit a long table from elsewhere (station, year, optional site, and the columns of one measure: "
+                   + " / ".join("+".join(m.columns) for m in measures.REGISTRY.values()) + ") instead of the database.")
 @click.option("--margin", type=float, default=None,
               help=f"Margin of change that matters, fraction a year (with --table; default {DEFAULT_CHANGE_MARGIN:g}).")
 @format_option
