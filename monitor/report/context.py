@@ -31,7 +31,7 @@ from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
 from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
-from monitor.settings import DEFAULT_CHANGE_MARGIN
+from monitor.settings import DEFAULT_CHANGE_MARGIN, FEW_QUADRATS
 from monitor.report.wording import (
     LevelNumbers,
     level_sentence,
@@ -50,6 +50,7 @@ from monitor.report.wording import (
     signed_percent,
     significant,
     summary_texts,
+    few_quadrats_note,
     trigger_cell,
     headline_sentences,
     comparison_note,
@@ -89,7 +90,6 @@ REFERENCES = (
     "schemes for maps. The Cartographic Journal 40(1), 27–37.",
 )
 
-FEW_QUADRATS = 10  # below this many quadrats an estimate is flagged (as monitor.estimate does; common practice)
 
 SOFTWARE = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "Jinja2", "shapely")
 
@@ -488,6 +488,8 @@ class ReportContext:
     site_names: Mapping[str, str] = field(default_factory=dict)
     scope: str = ""                      # "" for the whole programme, else what the report is limited to
     photos: tuple = ()                   # StationPhotos, where stations have repeat photos
+    few_quadrats_note: str = few_quadrats_note()  # the estimates table's footnote for a row marked †
+    few_quadrats_threshold: int = FEW_QUADRATS
     #: target species whose trend could not be called (one season of data, ...), as dicts with the reason
     not_called: tuple[dict, ...] = ()
     fits: tuple[FitRow, ...] = ()        # every fit shown (overall and by area), when it was made

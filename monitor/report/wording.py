@@ -27,7 +27,7 @@ from dataclasses import dataclass
 from monitor import columns as C
 from monitor import measures
 from monitor.families import FAMILIES
-from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
+from monitor.settings import FEW_QUADRATS, MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
 
@@ -603,6 +603,12 @@ def decline_advice(name: str, call: str, annual: float, upper: float, has_trigge
 
 
 # --------------------------------------------------------------------------- the report's other sentences
+def few_quadrats_note() -> str:
+    """The footnote of an estimate resting on few quadrats (the mark † in the estimates table)."""
+    return (f"\u2020 Fewer than {FEW_QUADRATS} quadrats at this site: treat the estimate and its interval with "
+            "caution (a few quadrats more or less can move them a long way).")
+
+
 def trigger_cell(fired: Sequence[bool]) -> tuple[str, str]:
     """The summary table's trigger state and its words, from whether each of a trend's triggers fired."""
     if not fired:
