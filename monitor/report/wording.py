@@ -766,6 +766,10 @@ def caution_sentences(placements: Sequence[str], non_probability: Sequence[str],
 
 
 # --------------------------------------------------------------------------- this season's estimates
+# estimates said as an amount with its unit (positive continuous measures: shoot height in cm)
+_AMOUNT_UNIT = {m.quantity: m.unit for m in measures.REGISTRY.values() if m.kind == measures.KIND_POSITIVE}
+
+
 def density_unit(value: float) -> tuple[str, float]:
     """The unit a density reads best in: per m², or per hectare when below 0.01 per m²."""
     if value is not None and math.isfinite(value) and 0 < abs(value) < 0.01:
@@ -784,6 +788,8 @@ def quantity_text(quantity: str, value: float, scale: tuple[str, float] | None =
     if quantity == "density":
         unit, factor = scale or density_unit(value)
         return f"{significant(value * factor, 2)} {unit}"
+    if quantity in _AMOUNT_UNIT:   # a length or other amount: "14 cm"
+        return f"{significant(value, 2)} {_AMOUNT_UNIT[quantity]}"
     return whole(value)
 
 

@@ -338,10 +338,12 @@ def phone_sheet_fields(targets: Sequence[tuple[str, str] | tuple[str, str, int |
             label += f" ({entry.entry_unit})"
         out.append({"kind": "value", "header": _measure_header(species, measure, n), "species": species,
                     "measure": measure, "n": n, "label": label, "hint": value_rule.wording(n),
-                    "whole": value_rule.whole, "rule": value_rule.to_dict()})
+                    "whole": value_rule.whole, "rule": value_rule.to_dict(),
+                    "zero": entry.absent_value is not None})
     for name, unit in covariates:
         out.append({"kind": "covariate", "header": f"cov:{name}[{unit}]", "species": None, "measure": None,
-                    "n": None, "label": f"{name} [{unit}]", "hint": "", "whole": False, "rule": None})
+                    "n": None, "label": f"{name} [{unit}]", "hint": "", "whole": False, "rule": None,
+                    "zero": False})
     return out
 
 

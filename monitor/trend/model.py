@@ -408,7 +408,7 @@ class TrendModel:
         ``lineage`` column names the first station of a relocation chain: the stations of one
         chain share one station effect (a moved quadrat continues its series).
     measure : str
-        count, cover, frequency, pin_hits or presence.
+        A measure code of the registry (monitor/measures.py): count, cover, frequency, pin_hits, presence, ...
     family : str, optional
         One of FAMILIES; default ``default_family(measure)``.
     year_effect : {"linear", "factor"}
@@ -492,9 +492,10 @@ class TrendModel:
         if observation_effect and fam.observation_effect != "optional":
             raise InputError("an observation-level effect is set by the family for counts (poisson-lognormal) "
                              "and by the residual for cover; observation_effect applies to binomial data only")
-        if observation_effect and measure == C.MEASURE_PRESENCE:
+        if observation_effect and measures.REGISTRY[measure].kind == measures.KIND_BINARY:
             raise InputError("presence (0 or 1 a visit) cannot carry an observation-level effect")
         self.measure, self.family, self.year_effect = measure, fam.name, year_effect
+        self.entry = measures.REGISTRY[measure]   # the measure's registry entry (monitor/measures.py)
         self.fam: ModelFamily = fam
         self.observer_effect, self.site_slope = bool(observer_effect), bool(site_slope)
         self.covariates = tuple(covariates)
@@ -829,7 +830,7 @@ class TrendModel:
             cover_eps=eps, vcov=vcov, year_random=self.year_random, site_by_year=self.site_by_year,
             observation_effect=bool(olre and self.fam.observation_effect == "optional"), rho=dict(getattr(fit_lin, "rho", {}) or {}),
             slope_df=slope_df, df_method=df_method, estimator=estimator, se_scale=se_scale,
-            cover_transform=cover_transform_text(eps) if self.measure == C.MEASURE_COVER else None,
+            cover_transform=cover_transform_text(eps) if self.entry.kind == measures.KIND_PERCENT else None,
             change_scale=self.fam.change_scale, natural_unit=natural.unit, yearly=yearly, trend_line=line,
             level_change=level, base_year=self.base_year if fit_fac is not None else None,
             no_index_years=tuple(sorted(self.no_index_years)), params_df=params_df)
@@ -844,7 +845,7 @@ class TrendModel:
         """
         if self.fam.observation_effect == "always":
             return True, None
-        if self.fam.observation_effect != "optional" or self.measure == C.MEASURE_PRESENCE:
+        if self.fam.observation_effect != "optional" or self.entry.kind == measures.KIND_BINARY:
             return False, None
         if self.observation_effect is not None:
             return bool(self.observation_effect), None
@@ -1011,7 +1012,7 @@ class TrendModel:
             out.append(Diagnostic("low_coverage_years",
                                   f"Few stations were visited in {yrs} (under half the median of {per_year.median():g} a year)."))
         alt = self.fam.overdispersed_alternative
-        if alt is not None and not spec.olre and self.measure != C.MEASURE_PRESENCE:
+        if alt is not None and not spec.olre and self.entry.kind != measures.KIND_BINARY:
             ratio, p = od if od is not None else _pearson_test(spec, fit)
             if _overdispersed(ratio, p):
                 out.append(Diagnostic("overdispersion",
@@ -1106,7 +1107,7 @@ class _NaturalScale:
         self.measure, self.fam = model.measure, model.fam
         self.eps = 0.0 if eps is None else float(eps)
         self.divisor, self.scale, self.top = 1.0, 1.0, math.inf
-        if self.measure == C.MEASURE_COUNT:
+        if measures.REGISTRY[self.measure].kind == measures.KIND_COUNT:
             areas = (model.data[C.QUADRAT_AREA].dropna().unique() if C.QUADRAT_AREA in model.data.columns
                      else np.array([]))
             if len(areas) == 1 and float(areas[0]) > 0:
