@@ -86,6 +86,14 @@ def test_columns_glossary_follows_the_registry():
     assert [c for c, _ in measures.by_columns()][0] in [m.columns for m in measures.REGISTRY.values()]
 
 
+@pytest.mark.parametrize("code", measures.codes())
+def test_a_plain_tables_columns_name_its_measure(code):
+    """``monitor trend --table``: the value columns of a table say which measure it holds (k of n before
+    the single columns, so occupied+cells is frequency)."""
+    columns = {C.STATION, C.YEAR, *measures.REGISTRY[code].columns}
+    assert [m for cols, m in measures.by_columns() if set(cols) <= columns][0] == code
+
+
 def test_registry_is_a_leaf():
     """monitor.measures imports nothing of the project but the column glossary."""
     import ast

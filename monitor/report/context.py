@@ -31,7 +31,7 @@ from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
 from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
-from monitor.settings import DEFAULT_CHANGE_MARGIN
+from monitor.settings import DEFAULT_CHANGE_MARGIN, FEW_QUADRATS
 from monitor.report.wording import (
     LevelNumbers,
     level_sentence,
@@ -48,8 +48,13 @@ from monitor.report.wording import (
     plain_measures,
     season_label,
     signed_percent,
-    significant,
     summary_texts,
+    few_quadrats_note,
+    density_unit,
+    quantity_text,
+    quantity_interval_text,
+    figure_number,
+    report_title,
     trigger_cell,
     headline_sentences,
     comparison_note,
@@ -66,7 +71,6 @@ from monitor.report.wording import (
     caution_sentences,
     total_floor_note,
     trend_sentence,
-    whole,
 )
 
 PROBABILITY_PLACEMENTS = (C.PLACEMENT_RANDOM, C.PLACEMENT_STRATIFIED, C.PLACEMENT_BALANCED,
@@ -89,7 +93,6 @@ REFERENCES = (
     "schemes for maps. The Cartographic Journal 40(1), 27–37.",
 )
 
-FEW_QUADRATS = 10  # below this many quadrats an estimate is flagged (as monitor.estimate does; common practice)
 
 SOFTWARE = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "Jinja2", "shapely")
 
@@ -488,6 +491,8 @@ class ReportContext:
     site_names: Mapping[str, str] = field(default_factory=dict)
     scope: str = ""                      # "" for the whole programme, else what the report is limited to
     photos: tuple = ()                   # StationPhotos, where stations have repeat photos
+    few_quadrats_note: str = few_quadrats_note()  # the estimates table's footnote for a row marked †
+    few_quadrats_threshold: int = FEW_QUADRATS
     #: target species whose trend could not be called (one season of data, ...), as dicts with the reason
     not_called: tuple[dict, ...] = ()
     fits: tuple[FitRow, ...] = ()        # every fit shown (overall and by area), when it was made
@@ -554,59 +559,12 @@ def slug(text: str) -> str:
     return out[:40] or "x"
 
 
-def _sig(value: float, digits: int = 3) -> str:
-    if value is None or not math.isfinite(value):
-        return "n/a"
-    if value == 0:
-        return "0"
-    magnitude = int(math.floor(math.log10(abs(value))))
-    decimals = digits - 1 - magnitude
-    rounded = round(value, decimals)  # negative decimals round to tens, hundreds, ...
-    if decimals <= 0:
-        return f"{rounded:,.0f}"
-    return f"{rounded:,.{decimals}f}"
 
 
 # each measure's estimate (monitor/measures.py) and a count's site total: column heading and unit
 QUANTITY_LABEL = {"total": ("Estimated total", "")}
 for _measure in measures.REGISTRY.values():
     QUANTITY_LABEL.setdefault(_measure.quantity, _measure.quantity_label)
-# estimates said as an amount with its unit (positive continuous measures: shoot height in cm)
-_AMOUNT_UNIT = {m.quantity: m.unit for m in measures.REGISTRY.values() if m.kind == measures.KIND_POSITIVE}
-
-
-def density_unit(value: float) -> tuple[str, float]:
-    """The unit a density reads best in: per m², or per hectare when below 0.01 per m²."""
-    if value is not None and math.isfinite(value) and 0 < abs(value) < 0.01:
-        return "per ha", 10_000.0
-    return "per m²", 1.0
-
-
-def _format_quantity(quantity: str, value: float, scale: tuple[str, float] | None = None) -> str:
-    """A value of this season's estimates to sensible significant figures (2; totals whole)."""
-    if value is None or not math.isfinite(value):
-        return "n/a"
-    if quantity == "cover":
-        return f"{significant(value, 2)}%"
-    if quantity in ("frequency", "presence"):
-        return f"{significant(value * 100, 2)}%"
-    if quantity == "density":
-        unit, factor = scale or density_unit(value)
-        return f"{significant(value * factor, 2)} {unit}"
-    if quantity in _AMOUNT_UNIT:   # a length or other amount: "14 cm"
-        return f"{significant(value, 2)} {_AMOUNT_UNIT[quantity]}"
-    return whole(value)
-
-
-def _interval_text(quantity: str, lower: float | None, upper: float | None,
-                   scale: tuple[str, float] | None) -> str:
-    """``"8.2 to 18 per m²"``: the unit once, after the upper bound."""
-    if lower is None or upper is None:
-        return "—"
-    if quantity == "density":
-        unit, factor = scale or density_unit(upper)
-        return f"{significant(lower * factor, 2)} to {significant(upper * factor, 2)} {unit}"
-    return f"{_format_quantity(quantity, lower)} to {_format_quantity(quantity, upper)}"
 
 
 def software_versions(extra: Mapping[str, str] | None = None) -> tuple[tuple[str, str], ...]:
@@ -864,7 +822,7 @@ def build_report_context(
     random_effects = {effect for key in call_views for effect in (_attr(call_views[key], "random_sd", {}) or {})}
     comparison, note = _comparison(summary, previous, corrections, names)
     return ReportContext(
-        title=f"{programme.name}: monitoring report {season}",
+        title=report_title(programme.name, season),
         programme=programme, season=int(season), generated=generated,
         headline=_headline(summary, outcomes, names),
         summary=tuple(summary), triggers=tuple(outcomes), comparison=comparison, comparison_note=note,
@@ -1060,7 +1018,7 @@ def _species_figures(i: int, row: SummaryRow, indices, value_label: str, marks: 
         figures.append(FigureRef(
             key=f"{stem}-gradient", kind="gradient",
             alt=gradient_figure_alt(gradient.value_label, name, gradient.gradient_label, shared.season, len(g),
-                                    _sig(g["gradient"].min()), _sig(g["gradient"].max())),
+                                    figure_number(g["gradient"].min()), figure_number(g["gradient"].max())),
             caption=gradient_figure_caption(shared.season, gradient.value_label, gradient.gradient_label),
         ))
     return figures, station_frame
@@ -1095,8 +1053,8 @@ def _estimate_rows(estimates_df: pd.DataFrame | None, names: Mapping[str, str],
             measure_label=MEASURE_LABEL.get(str(row[C.MEASURE]), str(row[C.MEASURE])),
             site=site, quantity=q, quantity_label=label,
             estimate=value, lower=lo, upper=hi,
-            estimate_text=_format_quantity(q, value, scale),
-            interval_text=_interval_text(q, lo, hi, scale),
+            estimate_text=quantity_text(q, value, scale),
+            interval_text=quantity_interval_text(q, lo, hi, scale),
             n_stations=ns, site_name=site_names.get(site, ""), notes=tuple(notes),
             few_quadrats=ns is not None and ns < FEW_QUADRATS,
         ))

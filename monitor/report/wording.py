@@ -27,7 +27,7 @@ from dataclasses import dataclass
 from monitor import columns as C
 from monitor import measures
 from monitor.families import FAMILIES
-from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
+from monitor.settings import FEW_QUADRATS, MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
 
@@ -603,6 +603,12 @@ def decline_advice(name: str, call: str, annual: float, upper: float, has_trigge
 
 
 # --------------------------------------------------------------------------- the report's other sentences
+def few_quadrats_note() -> str:
+    """The footnote of an estimate resting on few quadrats (the mark † in the estimates table)."""
+    return (f"\u2020 Fewer than {FEW_QUADRATS} quadrats at this site: treat the estimate and its interval with "
+            "caution (a few quadrats more or less can move them a long way).")
+
+
 def trigger_cell(fired: Sequence[bool]) -> tuple[str, str]:
     """The summary table's trigger state and its words, from whether each of a trend's triggers fired."""
     if not fired:
@@ -757,3 +763,60 @@ def caution_sentences(placements: Sequence[str], non_probability: Sequence[str],
         "Indices are relative to the first season of each series; they are not population sizes.",
         "Missed and inaccessible visits are treated as missing, never as absences.",
     )
+
+
+# --------------------------------------------------------------------------- this season's estimates
+# estimates said as an amount with its unit (positive continuous measures: shoot height in cm)
+_AMOUNT_UNIT = {m.quantity: m.unit for m in measures.REGISTRY.values() if m.kind == measures.KIND_POSITIVE}
+
+
+def density_unit(value: float) -> tuple[str, float]:
+    """The unit a density reads best in: per m², or per hectare when below 0.01 per m²."""
+    if value is not None and math.isfinite(value) and 0 < abs(value) < 0.01:
+        return "per ha", 10_000.0
+    return "per m²", 1.0
+
+
+def quantity_text(quantity: str, value: float, scale: tuple[str, float] | None = None) -> str:
+    """A value of this season's estimates to sensible significant figures (2; totals whole)."""
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if quantity == "cover":
+        return f"{significant(value, 2)}%"
+    if quantity in ("frequency", "presence"):
+        return f"{significant(value * 100, 2)}%"
+    if quantity == "density":
+        unit, factor = scale or density_unit(value)
+        return f"{significant(value * factor, 2)} {unit}"
+    if quantity in _AMOUNT_UNIT:   # a length or other amount: "14 cm"
+        return f"{significant(value, 2)} {_AMOUNT_UNIT[quantity]}"
+    return whole(value)
+
+
+def quantity_interval_text(quantity: str, lower: float | None, upper: float | None,
+                   scale: tuple[str, float] | None) -> str:
+    """``"8.2 to 18 per m²"``: the unit once, after the upper bound."""
+    if lower is None or upper is None:
+        return "—"
+    if quantity == "density":
+        unit, factor = scale or density_unit(upper)
+        return f"{significant(lower * factor, 2)} to {significant(upper * factor, 2)} {unit}"
+    return f"{quantity_text(quantity, lower)} to {quantity_text(quantity, upper)}"
+
+
+def figure_number(value: float, digits: int = 3) -> str:
+    """A number in a figure's alt text: ``digits`` significant figures, grouped thousands."""
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if value == 0:
+        return "0"
+    magnitude = int(math.floor(math.log10(abs(value))))
+    decimals = digits - 1 - magnitude
+    rounded = round(value, decimals)  # negative decimals round to tens, hundreds, ...
+    if decimals <= 0:
+        return f"{rounded:,.0f}"
+    return f"{rounded:,.{decimals}f}"
+
+
+def report_title(programme_name: str, season: int) -> str:
+    return f"{programme_name}: monitoring report {season}"

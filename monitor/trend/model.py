@@ -34,7 +34,7 @@ YEAR_EFFECT_MIN_YEARS (monitor/settings.py) years with data, the fewest with whi
 anyway).  With a year effect the slope's interval, its profile interval and the call use
 a t reference with the between-year (containment) df of the engine
 (monitor.trend.glmm.coefficient_df: n_years - 2 for a straight-line trend) and the ML standard
-error scaled by sqrt(n_years / df), the REML-equivalent between-year variance (see _reference);
+error scaled to its REML equivalent, sqrt((n_years - 1 + k) / df) (see _ml_year_scale);
 without it a normal reference.  The result says which (``df_method``, ``interval_label``).
 
 Observation-level effect for k-of-n data (frequency, pin hits): binomial with a normal
@@ -269,10 +269,10 @@ class TrendResult:
     def _coef_reference(self) -> tuple[np.ndarray, np.ndarray]:
         """Per fixed effect: the reference df (inf: normal) and the factor on its standard error.
 
-        The same rule as the slope's Wald interval and call (``_coefficient_reference``): a
-        fixed effect that is constant within years (intercept, slope, year-level covariates)
-        has the t reference with the between-year df and, for an ML fit, the standard error
-        scaled by sqrt(n_years / df); the others the normal reference, unscaled.
+        The same rule as the slope's Wald interval and call (``_reference``): a fixed effect that
+        is constant within years (intercept, slope, year-level covariates) has the t reference
+        with the between-year df and, for an ML fit, the standard error times ``se_scale`` (the
+        year stratum's REML-equivalent factor); the others the normal reference, unscaled.
         """
         df = (np.full(len(self.params), math.inf) if self.params_df is None
               else np.asarray(self.params_df.reindex(self.params.index), float))
@@ -281,7 +281,7 @@ class TrendResult:
             for name in (SLOPE, INTERCEPT):
                 if name in self.params.index:
                     df[list(self.params.index).index(name)] = self.slope_df
-        scale = np.array([_coefficient_reference(float(k), self.n_years, self.reml)[1] for k in df])
+        scale = np.where(np.isfinite(df), self.se_scale, 1.0)
         return df, scale
 
     def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
@@ -290,7 +290,7 @@ class TrendResult:
         The reference is the one of the slope's Wald interval and call: with a year effect the
         fixed effects constant within years (intercept, slope) use the t reference with the
         between-year (containment) df, n_years - 2 for a straight-line trend, and the standard
-        error times sqrt(n_years / df) (ML fits; ``se_scale`` for the slope; see ``df_method``);
+        error times ``se_scale`` (ML fits; see ``df_method`` and ``_ml_year_scale``);
         the other fixed effects, and every fixed effect without a year effect, the normal (z).
         """
         df, scale = self._coef_reference()
@@ -780,7 +780,7 @@ class TrendModel:
         j = spec_lin.x_names.index(SLOPE)
         slope = float(fit_lin.beta[j])
         slope_se = float(math.sqrt(fit_lin.vcov[j, j]))
-        q, slope_df, df_method, se_scale = _reference(fit_lin, j, n_years, self.reml)
+        q, slope_df, df_method, se_scale = _reference(fit_lin, j, self.years - self.centre, self.reml)
         lo, hi = slope - q * slope_se, slope + q * slope_se
         annual = Interval(math.expm1(slope), math.expm1(lo), math.expm1(hi))
         span = self.last - self.first
@@ -1032,36 +1032,53 @@ class TrendModel:
         return out
 
 
-def _reference(fit: GlmmFit, j: int, n_years: int, reml: bool) -> tuple[float, float, str, float]:
+def _reference(fit: GlmmFit, j: int, years_t: np.ndarray, reml: bool) -> tuple[float, float, str, float]:
     """The slope's reference: (95 % multiplier of the ML standard error, df, words, SE scale).
 
     Without a year effect: the normal quantile, df inf, scale 1.  With one: the t quantile with
     the engine's between-year df (G - r: G years with data, r year-level fixed effects) times
-    the scale sqrt(G / (G - r)).  An ML variance divides the between-year residual sum of
-    squares by G where the unbiased (REML) one divides by G - r; for balanced Gaussian data the
-    slope's REML standard error is exactly the ML one times sqrt(G / (G - r)), and only then is
-    (b1 - beta1) / se a t variable with G - r df (the regression of yearly means; Patterson &
-    Thompson 1971, from memory).  Without it a t(10) interval from 12 years covers about 93 %
-    (simulated: 93.2 % of 400 Poisson data sets, see DEVELOPERS.md).  A REML fit needs no scale.
+    the scale of _ml_year_scale, which brings the ML year variance to its REML equivalent (the
+    t(G - r) pivot of the regression of yearly means is exact with the REML variance, not the ML
+    one).  A REML fit needs no scale.
     """
     coef_df = getattr(fit, "coef_df", None)
     df = math.inf if coef_df is None else float(coef_df[j])
     if not math.isfinite(df):
         return float(norm.ppf(0.975)), math.inf, str(getattr(fit, "df_method", "z")), 1.0
-    scale = _coefficient_reference(df, n_years, reml)[1]
     words = str(getattr(fit, "df_method", f"t, {df:g} df"))
-    if not reml:
-        words += f"; standard error scaled by sqrt({n_years}/{df:g}) for the ML year variance (REML-equivalent)"
+    if reml:
+        return float(t_dist.ppf(0.975, df)), df, words, 1.0
+    scale, kappa = _ml_year_scale(fit, j, np.asarray(years_t, float), df)
+    words += (f"; standard error scaled by sqrt((G - 1 + k) / {df:g}) = {scale:.4g} (k = {kappa:.3g}) for the ML "
+              "year variance (REML-equivalent)")
     return float(t_dist.ppf(0.975, df)) * scale, df, words, scale
 
 
-def _coefficient_reference(df: float, n_years: int, reml: bool) -> tuple[float, float]:
-    """(df, standard-error factor) of one fixed effect: (inf, 1) for the normal reference; for
-    the t reference with between-year df, sqrt(n_years / df) after an ML fit and 1 after REML
-    (see _reference)."""
-    if not math.isfinite(df):
-        return math.inf, 1.0
-    return df, (1.0 if reml else math.sqrt(n_years / df))
+def _ml_year_scale(fit: GlmmFit, j: int, years_t: np.ndarray, df: float) -> tuple[float, float]:
+    """(sqrt((G - 1 + k) / df), k): the factor taking the ML slope SE to its REML equivalent.
+
+    In the year stratum (G years with data) the REML variance divides the residual sum of squares
+    of the yearly values about the line by G - r (= df).  The ML variance divides it by about
+    G - 1 + k: with station (or site) effects crossed with years the intercept lies in the
+    grand-mean stratum, whose log-determinant pulls the year variance down by k = lambda_year /
+    lambda_grand mean (0 to 1), and k = 1 without such effects (then the factor is sqrt(G / df)).
+    k is read from the fit's own covariance: var(slope) = lambda_year / (S S_xx) and
+    var(level at the mean year) = lambda_grand mean / (S G), so k = S_xx var(b1) / (G var(level)).
+    Checked against lme4's REML SE (tests/trend/test_trend_year_model.py: 1.3e-4 relative on
+    unbalanced data) and against the exact t of yearly means (DEVELOPERS.md).
+    """
+    G = len(years_t)
+    kappa = 1.0
+    names = list(getattr(fit, "x_names", []))
+    V = np.asarray(fit.vcov, float)
+    if INTERCEPT in names and G > 1:
+        i0 = names.index(INTERCEPT)
+        tbar = float(np.mean(years_t))
+        sxx = float(np.sum((years_t - tbar) ** 2))
+        level = V[i0, i0] + 2 * tbar * V[i0, j] + tbar * tbar * V[j, j]
+        if level > 0 and sxx > 0:
+            kappa = float(np.clip(sxx * V[j, j] / (G * level), 0.0, 1.0))
+    return math.sqrt((G - 1 + kappa) / df), kappa
 
 
 def _estimator(fit: GlmmFit, model: TrendModel, full: bool) -> str:
