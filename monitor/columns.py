@@ -49,16 +49,17 @@ MEASURE_COVER = "cover"
 MEASURE_FREQUENCY = "frequency"   # k of n grid cells occupied
 MEASURE_PIN_HITS = "pin_hits"     # k of n point-frame pins touching
 MEASURE_PRESENCE = "presence"
-MEASURES = (MEASURE_COUNT, MEASURE_COVER, MEASURE_FREQUENCY, MEASURE_PIN_HITS, MEASURE_PRESENCE)
+# The measures themselves (value columns, ranges, units, wording, families, estimators, exports) are
+# the registry in monitor/measures.py; MEASURES (every code, in registry order) and MEASURE_COLUMNS
+# (code -> its value columns in a long analysis table) are read from it on first use.
 
-# value columns each measure fills in a long analysis table
-MEASURE_COLUMNS: dict[str, tuple[str, ...]] = {
-    MEASURE_COUNT: (COUNT,),
-    MEASURE_COVER: (COVER,),
-    MEASURE_FREQUENCY: (OCCUPIED, CELLS),
-    MEASURE_PIN_HITS: (HITS, PINS),
-    MEASURE_PRESENCE: (PRESENT,),
-}
+
+def __getattr__(name: str):
+    if name in ("MEASURES", "MEASURE_COLUMNS"):
+        from monitor import measures
+        return measures.codes() if name == "MEASURES" else {c: m.columns for c, m in measures.REGISTRY.items()}
+    raise AttributeError(f"module 'monitor.columns' has no attribute {name!r}")
+
 
 STATUS_DONE = "done"
 STATUS_PARTIAL = "partial"

@@ -189,10 +189,6 @@ class LockedError(MonitorError):
     """The season is certified (locked); unlock it with a reason first."""
 
 
-class FitWarning(UserWarning):
-    """Estimation trouble recorded on a fit result: no convergence, a variance on its bound, few data."""
-
-
 @dataclass(frozen=True)
 class Diagnostic:
     """A problem with a fit or an estimate, stored on the result and shown in reports."""

@@ -18,6 +18,8 @@ matplotlib.use("Agg")
 
 POSTGRES_URL = os.environ.get("MONITOR_TEST_POSTGRES_URL")
 REPO_ROOT = Path(__file__).resolve().parents[1]
+#: the official GPX 1.1 schema (TopoGrafix 2004), unchanged: tests/fixtures/gpx/README.md
+GPX_SCHEMA = REPO_ROOT / "tests" / "fixtures" / "gpx" / "gpx-1.1.xsd"
 
 
 def _postgres_database() -> Iterator[str]:

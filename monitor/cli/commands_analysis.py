@@ -10,6 +10,8 @@ import click
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
 from monitor.cli.tables import trend_number_rows, write_workbook, xlsx_option
+from monitor.families import FAMILIES
+from monitor.families import NAMES as FAMILY_NAMES
 from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_YEAR_EFFECT_YEARS, change_margin
 
 
@@ -75,9 +77,9 @@ def parallel_options(func):
 @click.option("--site", "sites", multiple=True, help="Only these sites (repeat for several).")
 @click.option("--from", "first_year", type=int, default=None, help="First season to use.")
 @click.option("--to", "last_year", type=int, default=None, help="Last season to use.")
-@click.option("--family", type=click.Choice(["poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal"]),
+@click.option("--family", type=click.Choice(FAMILY_NAMES),
               default=None, help="Model family (default by measure: counts poisson-lognormal, k of n binomial, "
-                                 "cover logit-normal).")
+                                 "cover logit-normal, positive values lognormal).")
 @click.option("--year-effect", "year_effect", type=click.Choice(["iid", "ar1"]), default=None,
               help="Form of the random year effect shared by all stations: independent years (iid) or an "
                    "order-1 autoregression, consecutive years alike (ar1). Default: iid from "
@@ -335,13 +337,13 @@ def _int_list(text: str) -> list[int]:
 
 @cli.command("power")
 @click.option("--species", default=None, help="Use the variance and level fitted to this stored species.")
-@click.option("--family", type=click.Choice(["poisson-lognormal", "negbin", "binomial", "logit-normal"]),
+@click.option("--family", type=click.Choice(FAMILY_NAMES),
               default="poisson-lognormal", show_default=True, help="Without --species: the model family.")
 @click.option("--mean", type=float, default=None, help="Without --species: mean count per quadrat (or proportion).")
 @click.option("--station-sd", type=float, default=0.5, show_default=True, help="Without --species: station SD.")
 @click.option("--site-sd", type=float, default=0.0, show_default=True, help="Without --species: site SD.")
 @click.option("--obs-sd", type=float, default=0.3, show_default=True,
-              help="Without --species: observation-level SD (overdispersion), or residual SD for cover.")
+              help="Without --species: observation-level SD (overdispersion), or residual SD for cover and lognormal.")
 @click.option("--sd-year", type=float, default=None,
               help="SD of the year-to-year fluctuation shared by every station (link scale, e.g. 0.15); "
                    "without --species the default is 0, with it the fitted value, which this replaces.")
@@ -404,8 +406,9 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
             raise click.UsageError("give --species (fitted to the programme) or --mean with the SDs")
         sds = {"station_sd": station_sd, "site_sd": site_sd, "year_sd": sd_year or 0.0,
                "site_year_sd": sd_site_year or 0.0, "year_rho": year_rho or 0.0}
-        sds["residual_sd" if family == "logit-normal" else "observation_sd"] = obs_sd
-        if family == "binomial":
+        fam = FAMILIES[family]
+        sds["residual_sd" if fam.dispersion_field == "residual_sd" else "observation_sd"] = obs_sd
+        if fam.density == "binomial":
             sds["trials"] = trials if trials is not None else 1
         components, source = VarianceComponents.from_mean(family, mean, **sds), "values given"
     station_list, year_list = _int_list(stations), _int_list(years)

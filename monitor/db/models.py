@@ -17,6 +17,7 @@ from sqlalchemy import CheckConstraint, Column, ForeignKey, Index, Integer, Meta
 from sqlmodel import Field, SQLModel
 
 from monitor import columns as C
+from monitor import measures
 from monitor.settings import DEFAULT_CHANGE_MARGIN
 
 NAMING_CONVENTION = {
@@ -193,10 +194,7 @@ class Target(SQLModel, table=True):
 
     __table_args__ = (
         UniqueConstraint("programme_id", "species_id", "measure", name="uq_target_programme_species_measure"),
-        CheckConstraint(
-            "(measure IN ('frequency', 'pin_hits') AND n IS NOT NULL AND n > 0) OR (measure NOT IN ('frequency', 'pin_hits') AND n IS NULL)",
-            name="n_for_k_of_n",
-        ),
+        CheckConstraint(measures.target_n_check(), name="n_for_k_of_n"),
     )
 
 
@@ -321,14 +319,9 @@ class Observation(SQLModel, table=True):
 
     __table_args__ = (
         UniqueConstraint("visit_id", "species_id", "measure", name="uq_observation_visit_species_measure"),
-        CheckConstraint("measure <> 'count' OR (value >= 0 AND value = round(value))", name="count_whole"),
-        CheckConstraint("measure <> 'cover' OR (value >= 0 AND value <= 100)", name="cover_percent"),
-        CheckConstraint(
-            "measure NOT IN ('frequency', 'pin_hits') OR (n IS NOT NULL AND n > 0 AND value >= 0 AND value <= n AND value = round(value))",
-            name="k_of_n",
-        ),
-        CheckConstraint("measure <> 'presence' OR value IN (0, 1)", name="presence_binary"),
-        CheckConstraint("measure IN ('frequency', 'pin_hits') OR n IS NULL", name="n_only_for_k_of_n"),
+        # one per measure, from the registry (monitor/measures.py); a new measure's constraint comes with
+        # its migration
+        *(CheckConstraint(sql, name=name) for name, sql in measures.observation_checks()),
     )
 
 
@@ -398,13 +391,7 @@ class ChangeLog(SQLModel, table=True):
     __table_args__ = (CheckConstraint("length(reason) > 0", name="reason_given"),)
 
 
-MEASURE_ROWS = (
-    {"code": C.MEASURE_COUNT, "description": "individuals in the quadrat", "unit": "count", "needs_n": False},
-    {"code": C.MEASURE_COVER, "description": "percent of quadrat area covered", "unit": "%", "needs_n": False},
-    {"code": C.MEASURE_FREQUENCY, "description": "grid cells occupied (k of n)", "unit": "cells", "needs_n": True},
-    {"code": C.MEASURE_PIN_HITS, "description": "point-frame pins touching (k of n)", "unit": "pins", "needs_n": True},
-    {"code": C.MEASURE_PRESENCE, "description": "present (1) or absent (0)", "unit": "0/1", "needs_n": False},
-)
+MEASURE_ROWS = measures.measure_rows()
 
 
 # --- revision 0002: stored season plans and quality flags -------------------------------------------------

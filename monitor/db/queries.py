@@ -8,6 +8,7 @@ from __future__ import annotations
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.db.store import Store
 
 
@@ -193,16 +194,12 @@ def visit_observers(store: Store, programme_id: int) -> pd.Series:
 def to_measure_columns(frame: pd.DataFrame, measure: str) -> pd.DataFrame:
     """Spread ``value`` and ``n`` into the measure's own columns (count; cover_pct; occupied+cells; ...)."""
     out = frame.copy()
-    if measure == C.MEASURE_COUNT:
-        out[C.COUNT] = out["value"].astype(int)
-    elif measure == C.MEASURE_COVER:
-        out[C.COVER] = out["value"].astype(float)
-    elif measure == C.MEASURE_FREQUENCY:
-        out[C.OCCUPIED], out[C.CELLS] = out["value"].astype(int), out["n"].astype(int)
-    elif measure == C.MEASURE_PIN_HITS:
-        out[C.HITS], out[C.PINS] = out["value"].astype(int), out["n"].astype(int)
-    elif measure == C.MEASURE_PRESENCE:
-        out[C.PRESENT] = out["value"].astype(int)
+    entry = measures.get(measure)
+    value = out["value"].astype(float)
+    # whole-number measures (count, k of n, presence) keep integer columns
+    out[entry.value_column] = value.astype(int) if entry.rule.whole else value
+    if entry.trials_column is not None:
+        out[entry.trials_column] = out["n"].astype(int)
     return out
 
 

@@ -37,7 +37,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable, Mapping
-from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -865,10 +864,4 @@ def hilbert_order(x: np.ndarray, y: np.ndarray, level: int = 16) -> np.ndarray:
         yi = np.where(flip, swap_x, swap_y)
         s //= 2
     return np.argsort(np.argsort(d, kind="stable"), kind="stable")
-
-
-def placement_summary(placement: Placement) -> dict[str, Any]:
-    """Small summary for listings: method, seed, station count, diagnostics codes."""
-    return {"method": placement.method, "seed": placement.seed, "stations": placement.n,
-            "diagnostics": [d.code for d in placement.diagnostics]}
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable
 from typing import Any
 
 import numpy as np
@@ -114,7 +114,3 @@ def few_quadrats(n: int, what: str = "estimate") -> tuple[Diagnostic, ...]:
             ),
         )
     return ()
-
-
-def as_tuple(values: Sequence[Any] | np.ndarray) -> tuple[Any, ...]:
-    return tuple(_plain(v) for v in values)

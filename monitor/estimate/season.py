@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import Diagnostic, EstimationError
 
 from ._common import check_positive_area, few_quadrats, numeric_column, require_columns
@@ -15,15 +16,6 @@ from .density import combine_strata, estimate_density, estimate_density_stratifi
 
 #: station-table column saying how a station's position was chosen (values: monitor.columns.PLACEMENTS)
 PLACEMENT = "placement"
-
-_UNITS = {
-    C.MEASURE_COUNT: "individuals per m^2",
-    C.MEASURE_COVER: "% cover",
-    C.MEASURE_FREQUENCY: "share of grid cells occupied",
-    C.MEASURE_PIN_HITS: "share of pins hit",
-    C.MEASURE_PRESENCE: "share of quadrats occupied",
-}
-
 
 def _diagnostic_text(diagnostics) -> str:
     return "; ".join(f"{d.code}: {d.message}" for d in diagnostics)
@@ -150,7 +142,7 @@ def _row_cover(rows, site_area, strata_table, design, confidence) -> dict:
 
 
 def _row_proportion(rows, measure, confidence) -> dict:
-    k_col, n_col = C.MEASURE_COLUMNS[measure]
+    k_col, n_col = measures.get(measure).columns
     what = f"{measure} estimate"
     require_columns(rows, [k_col, n_col], what)
     k = numeric_column(rows, k_col, what)
@@ -195,7 +187,7 @@ def season_estimates(
     ----------
     obs : DataFrame
         One season's observations, one row per station and species: ``station``, ``species``
-        and the measure's value columns (``monitor.columns.MEASURE_COLUMNS``).  A ``measure``
+        and the measure's value columns (``monitor.measures``).  A ``measure``
         column, if present, is filtered to ``measure``.  Zeros must be present as rows (a target
         species not seen at a visited station is a recorded 0); missed visits must be absent.
     stations : DataFrame
@@ -233,11 +225,12 @@ def season_estimates(
     ----------
     Cochran, W. G. (1977). Sampling Techniques, 3rd ed. Wiley.
     """
-    if measure not in C.MEASURES:
+    if measure not in measures.REGISTRY:
         raise EstimationError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
+    entry = measures.REGISTRY[measure]
     if on_error not in ("raise", "skip"):
         raise EstimationError(f"on_error must be 'raise' or 'skip', got {on_error!r}")
-    value_columns = list(C.MEASURE_COLUMNS[measure])
+    value_columns = list(entry.columns)
     require_columns(obs, [C.STATION, C.SPECIES, *value_columns], "observations")
     require_columns(sites, [C.SITE, C.AREA], "sites table")
     table = obs
@@ -281,14 +274,17 @@ def season_estimates(
                             "the stratified total uses the strata areas.",
                         )
                     )
-            if measure == C.MEASURE_COUNT:
+            # the measure's single-round estimator, by its registry key
+            if entry.estimator == measures.ESTIMATOR_DENSITY:
                 row = _row_count(rows, area, strata_table, design, confidence, precision)
-            elif measure == C.MEASURE_COVER:
+            elif entry.estimator == measures.ESTIMATOR_MEAN_COVER:
                 row = _row_cover(rows, area, strata_table, design, confidence)
-            elif measure == C.MEASURE_PRESENCE:
+            elif entry.estimator == measures.ESTIMATOR_OCCUPANCY:
                 row = _row_presence(rows, confidence)
-            else:
+            elif entry.estimator == measures.ESTIMATOR_PROPORTION:
                 row = _row_proportion(rows, measure, confidence)
+            else:
+                raise EstimationError(f"no single-round estimator {entry.estimator!r} (measure {measure})")
         except EstimationError as error:
             message = f"site '{site}', species '{species}': {error}"
             if on_error == "raise":
@@ -299,7 +295,7 @@ def season_estimates(
         records.append(
             {"site": site, "species": species, "measure": measure}
             | row
-            | {"unit": _UNITS[measure], "confidence": confidence, "design": design,
+            | {"unit": entry.estimate_unit, "confidence": confidence, "design": design,
                "diagnostics": _diagnostic_text(diagnostics)}
         )
     first = ["site", "species", "measure", "n", "estimate", "se", "lower", "upper"]

@@ -48,6 +48,7 @@ from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from monitor import measures
 from monitor.errors import InputError, InputProblem, ProblemCounter
 from monitor.io.headers import canonical_header
 
@@ -599,8 +600,9 @@ def _shape_expected(raw: list[str], cells: list[str], width: int, written_width:
             "row; write every cell, blank ones as nothing between two commas)")
 
 
-_WIDE_RE = re.compile(r"^\s*[^:\s]+\s*:\s*(count|cover|presence|frequency\s*/\s*\d+|pin_hits\s*/\s*\d+)\s*$",
-                      re.IGNORECASE)
+_WIDE_RE = re.compile(r"^\s*[^:\s]+\s*:\s*(" + "|".join(
+    re.escape(m.code) + (r"\s*/\s*\d+" if m.needs_n else "") for m in measures.REGISTRY.values()) + r")\s*$",
+    re.IGNORECASE)
 _COV_RE = re.compile(r"^\s*cov\s*:\s*([^\[\]]+?)\s*(?:\[\s*([^\[\]]*?)\s*\])?\s*$", re.IGNORECASE)
 
 
@@ -688,9 +690,7 @@ def parse_bool(text: str) -> bool | None:
 def parse_typed_value(label: str, field_: str, measure: str, text: str) -> float:
     """A value typed at the command line or in a form, read as a field sheet's cell would be: presence
     as 0/1 or yes/no, any other measure as a decimal number; anything else is refused naming ``field_``."""
-    from monitor.columns import MEASURE_PRESENCE
-
-    if measure == MEASURE_PRESENCE:
+    if measure in measures.of_kind(measures.KIND_BINARY):
         flag = parse_bool(text) if text.strip() else None
         if flag is None:
             raise InputError(InputProblem(label, None, field_, text, "presence as 0/1 or yes/no"))

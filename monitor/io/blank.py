@@ -11,6 +11,7 @@ import csv
 import json
 from pathlib import Path
 
+from monitor import measures
 from monitor.errors import InputError, InputProblem
 from monitor.io import filespec as FS
 
@@ -40,7 +41,8 @@ def programme_document() -> dict:
     doc = {}
     for f in FS.PROGRAMME.fields:
         if f.name == "settings":
-            doc[f.name] = {"minutes_per_quadrat": {"count": 6, "cover": 4, "frequency": 8, "pin_hits": 6},
+            doc[f.name] = {"minutes_per_quadrat": {code: m.minutes_per_quadrat
+                                                   for code, m in measures.REGISTRY.items()},
                            "setup_minutes": 5, "triggers": [_trigger()]}
         elif f.name == "protocols":
             doc[f.name] = json.loads(f.example)

@@ -41,6 +41,7 @@ import pandas as pd
 from lxml import etree
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import InputError
 from monitor.io import headers as H
 
@@ -61,9 +62,6 @@ OCCURRENCE_TERMS = ["eventID", "occurrenceID", "basisOfRecord", "scientificName"
                     "dataGeneralizations"]
 EMOF_TERMS = ["eventID", "occurrenceID", "measurementID", "measurementType", "measurementValue",
               "measurementUnit", "measurementMethod"]
-
-QUANTITY_TYPE = {C.MEASURE_COUNT: "individuals", C.MEASURE_COVER: "% cover"}
-
 
 @dataclass(frozen=True)
 class ProgrammeMetadata:
@@ -172,7 +170,7 @@ def write_dwca(path: str | os.PathLike[str], *, metadata: ProgrammeMetadata, sta
     species : DataFrame
         species, scientific_name, common_name, measure, n, sensitive.
     visits, observations, covariates : DataFrame
-        Canonical frames (FIELD_LAYOUT.md).
+        Canonical frames (``monitor.io.records``).
     sites : DataFrame, optional
         site, name, habitat (for the site events' locality and habitat).
     generalise_m : float
@@ -276,24 +274,16 @@ def write_dwca(path: str | os.PathLike[str], *, metadata: ProgrammeMetadata, sta
                "vernacularName": info.get(H.COMMON_NAME),
                "occurrenceStatus": "present" if value > 0 else "absent",
                "dataGeneralizations": location[o[C.STATION]]["dataGeneralizations"]}
-        if measure == C.MEASURE_COUNT:
-            row.update(individualCount=int(value), organismQuantity=value, organismQuantityType="individuals")
-        elif measure == C.MEASURE_COVER:
-            row.update(organismQuantity=value, organismQuantityType="% cover")
-        elif measure == C.MEASURE_FREQUENCY:
-            row.update(organismQuantity=value, organismQuantityType=f"cells occupied of {n}")
-        elif measure == C.MEASURE_PIN_HITS:
-            row.update(organismQuantity=value, organismQuantityType=f"pins touching of {n}")
+        # what each measure puts in the occurrence and in measurement-or-fact rows: the registry's mapping
+        entry = measures.get(measure)
+        if entry.kind == measures.KIND_COUNT:
+            row.update(individualCount=int(value))
+        if entry.dwc_quantity_type is not None:
+            row.update(organismQuantity=value, organismQuantityType=entry.dwc_quantity_type.format(n=n))
         occurrences.append(row)
-        facts: list[tuple[str, float, str, str]] = []
-        if measure == C.MEASURE_COVER:
-            facts.append(("cover", value, "%", "visual estimate of the percent of quadrat area covered"))
-        elif measure == C.MEASURE_FREQUENCY:
-            facts += [("occupied grid cells", value, "cells", f"cells of a {n}-cell grid in which the species is rooted"),
-                      ("grid cells", float(n) if n else None, "cells", "cells in the quadrat grid")]
-        elif measure == C.MEASURE_PIN_HITS:
-            facts += [("pins touching", value, "pins", f"pins of a {n}-pin point frame touching the species"),
-                      ("pins in frame", float(n) if n else None, "pins", "pins in the point frame")]
+        facts: list[tuple[str, float | None, str, str]] = [
+            (fact.type, value if fact.value == "value" else (float(n) if n else None), fact.unit,
+             fact.method.format(n=n)) for fact in entry.dwc_facts]
         for k, (kind, fact_value, unit, method) in enumerate(facts, start=1):
             measurements.append({"eventID": event_id, "occurrenceID": occurrence_id,
                                  "measurementID": f"{occurrence_id}:m{k}", "measurementType": kind,

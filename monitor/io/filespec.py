@@ -12,6 +12,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from monitor import columns as C
+from monitor import measures
 from monitor.io import headers as H
 from monitor.settings import (
     DEFAULT_CHANGE_MARGIN,
@@ -70,6 +71,27 @@ class FileSpec:
 
 
 F = Field
+
+def _trials_words() -> str:
+    """"Cells (frequency) or pins (pin_hits)", from the registry's k-of-n measures."""
+    words = [f"{m.trials} ({m.code})" for m in measures.REGISTRY.values() if m.needs_n]
+    return (" or ".join(words))[:1].upper() + (" or ".join(words))[1:]
+
+
+_EXAMPLE_SPECIES = ("MARVIO", "GLASED", "HEABEL", "SILGRA", "CAREXA", "DROSPA", "LUZULA")
+
+
+def _header_examples() -> str:
+    """One example field-sheet header per measure, e.g. `HEABEL:frequency/25` (cells of 25)."""
+    out = []
+    for species, m in zip(_EXAMPLE_SPECIES * 4, measures.REGISTRY.values(), strict=False):
+        if m.needs_n:
+            n = 25 if m.trials == "cells" else 10
+            out.append(f"`{m.header(species, n)}` ({m.trials} of {n})")
+        else:
+            out.append(f"`{m.header(species)}` ({m.rule.unit})")
+    return ", ".join(out)
+
 
 PROGRAMME = FileSpec(
     "programme", "programme.json", "JSON",
@@ -203,7 +225,7 @@ SPECIES = FileSpec(
         F(C.MEASURE, "choice", True, "count", "What is recorded in each quadrat.", allowed=C.MEASURES),
         F(H.COMMON_NAME, "text", False, "marsh violetwort", "Common name, printed beside the code."),
         F(H.N, "whole number > 0", False, "",
-          "Cells (frequency) or pins (pin_hits) per quadrat; required for those, blank otherwise."),
+          _trials_words() + " per quadrat; required for those, blank otherwise."),
         F(H.SENSITIVE, "yes/no", False, "no", "Yes: positions are generalised in exports.", allowed=YES_NO),
         F(H.WINDOW_START, "month-day", False, "05-01", "Start of the species' season window (MM-DD)."),
         F(H.WINDOW_END, "month-day", False, "07-15", "End of the window (MM-DD); both or neither."),
@@ -275,14 +297,13 @@ RECORDS = FileSpec(
         F(C.PROTOCOL, "code", False, "P1", "Protocol version (default: the one in force on the date)."),
         F(H.NOTES, "text", False, "ground wet", "Notes."),
         F("SPECIES:measure", "number", False, "12",
-          "One column per species and measure, e.g. `MARVIO:count`, `GLASED:cover` (percent), "
-          "`HEABEL:frequency/25` (cells of 25), `SILGRA:pin_hits/10`, `X:presence` (0/1). Blank = not "
+          "One column per species and measure: " + _header_examples() + ". Blank = not "
           "recorded; 0 = recorded absent."),
         F("cov:NAME[UNIT]", "number", False, "31", "A covariate measured at the visit, e.g. `cov:soil_moisture[%]`."),
     ),
     "monitor records import FILE",
     ("The long layout is also read: the visit columns above plus `species`, `measure`, `value` and, for "
-     "frequency and pin_hits, `n` (one row per station, date, species and measure).",),
+     f"{' and '.join(measures.k_of_n_codes())}, `n` (one row per station, date, species and measure).",),
 )
 
 RECORDS_LONG_EXTRA = (C.SPECIES, C.MEASURE, H.VALUE)

@@ -32,6 +32,7 @@ from pathlib import Path
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import InputError, InputProblem
 from monitor.io import filespec as FS
 from monitor.io import headers as H
@@ -414,7 +415,7 @@ SPECIES_REQUIRED = FS.SPECIES.required()
 SPECIES_OPTIONAL = FS.SPECIES.optional()
 SPECIES_COLUMNS = [C.SPECIES, H.SCIENTIFIC_NAME, H.COMMON_NAME, C.MEASURE, H.N, H.SENSITIVE,
                    H.WINDOW_START, H.WINDOW_END, "source_row"]
-MEASURES_WITH_N = (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS)
+MEASURES_WITH_N = measures.k_of_n_codes()   # from the registry (monitor/measures.py)
 
 
 def read_species_csv(source: str | os.PathLike[str]) -> pd.DataFrame:

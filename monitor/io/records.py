@@ -1,6 +1,6 @@
 """Field-record readers: a season's visits and values from CSV or .xlsx, wide or long layout.
 
-The layouts are the agreed ones (FIELD_LAYOUT.md): the wide "field sheet" (one row per station visit,
+The layouts are those of docs/files.md ("field records"): the wide "field sheet" (one row per station visit,
 one ``<SPECIES>:<measure>`` column per target species and measure, ``cov:<name>[<unit>]`` covariate
 columns) and the long layout (one row per station, date, species and measure).  The layout is detected
 from the header: ``species``, ``measure`` and ``value`` columns mean long; ``SPECIES:measure`` columns
@@ -26,6 +26,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import InputError, InputProblem
 from monitor.io import filespec as FS
 from monitor.io import headers as H
@@ -70,7 +71,7 @@ _VALUE_HEADER = re.compile(r"^\s*([^:\s]+)\s*:\s*([A-Za-z_ ]+?)\s*(?:/\s*(\S+))?
 
 @dataclass(frozen=True)
 class FieldRecords:
-    """A season's field records read from one file, in the canonical frames of FIELD_LAYOUT.md."""
+    """A season's field records read from one file, in the canonical frames below."""
 
     file: str
     layout: str               # "wide" or "long"
@@ -91,12 +92,12 @@ def parse_value_header(raw: str) -> tuple[str, str, int | None] | str:
     if not m:
         return "a value column <SPECIES>:<measure> such as 'ANEMNE:count' or 'PRIMUL:frequency/25'"
     species, measure, n_text = m[1], m[2].strip().lower().replace(" ", "_"), m[3]
-    if measure not in C.MEASURES:
+    if measure not in measures.REGISTRY:
         return f"a measure among {', '.join(C.MEASURES)} after the ':'"
-    if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
+    if measures.REGISTRY[measure].needs_n:
         n = parse_int(n_text) if n_text else None
         if n is None or n <= 0:
-            return f"'{species}:{measure}/<n>' with n the whole number of {'cells' if measure == C.MEASURE_FREQUENCY else 'pins'} > 0"
+            return f"'{species}:{measure}/<n>' with n the whole number of {measures.REGISTRY[measure].trials} > 0"
         return species, measure, n
     if n_text is not None:
         return f"no '/n' after measure '{measure}'"
@@ -321,14 +322,14 @@ class _Reader:
         return out
 
     def value(self, number: int, field: str, measure: str, text: str) -> float | None:
-        if measure == C.MEASURE_PRESENCE:
+        if measures.REGISTRY[measure].kind == measures.KIND_BINARY:
             flag = parse_bool(text)
             if flag is None or not text:
                 self.problems.add(number, field, text, "presence as 0/1 or yes/no")
                 return None
             return 1.0 if flag else 0.0
         if is_percent(text):
-            if measure != C.MEASURE_COVER:
+            if measures.REGISTRY[measure].kind != measures.KIND_PERCENT:
                 self.problems.add(number, field, text, f"a plain number for {measure}, not a percent (the cell "
                                                        "shows a '%' or is formatted as a percent)")
                 return None
@@ -484,7 +485,7 @@ class _Reader:
         for position, (i, (_species, measure, _n)) in enumerate(value_columns.items()):
             keyed.phase = (1, position)
             field = headers[i]
-            presence = measure == C.MEASURE_PRESENCE
+            presence = measures.REGISTRY[measure].kind == measures.KIND_BINARY
             for r, text in enumerate(columns[i]):
                 if not text:
                     continue  # blank = not recorded
@@ -577,16 +578,15 @@ class _Reader:
             measure = measure_text.lower().replace(" ", "_").replace("-", "_")
             if not species:
                 p.add(number, self.raw(C.SPECIES), None, "a species code beside a measure or value")
-            if measure not in C.MEASURES:
+            if measure not in measures.REGISTRY:
                 p.add(number, self.raw(C.MEASURE), measure_text or None, f"one of {', '.join(C.MEASURES)}")
                 continue
             n = None
-            if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
+            if measures.REGISTRY[measure].needs_n:
                 n = parse_int(n_text) if n_text else None
                 if n is None or n <= 0:
                     p.add(number, self.raw(H.N), n_text or None,
-                          f"a whole number of {'cells' if measure == C.MEASURE_FREQUENCY else 'pins'} > 0 "
-                          f"for {measure}")
+                          f"a whole number of {measures.REGISTRY[measure].trials} > 0 for {measure}")
             elif n_text:
                 p.add(number, self.raw(H.N), n_text, f"a blank n for measure '{measure}'")
             if not value_text:

@@ -5,7 +5,7 @@
 :class:`monitor.errors.InputProblem` (severity "error", or "warning" for the checks a user may accept
 with a flag: a date in the future, a date outside the round's or the species' season window).
 
-Range rules per measure (design.md, "measure"): count a whole number >= 0; cover a percent 0-100;
+Range rules per measure (monitor/measures.py; common practice): count a whole number >= 0; cover a percent 0-100;
 frequency and pin hits a whole k with 0 <= k <= n and n the programme's grid or frame; presence 0 or 1.
 Vectorised over the observations so that a million rows validate in seconds.
 """
@@ -21,9 +21,9 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures as registry
 from monitor.errors import InputError, InputProblem, ProblemCounter
 from monitor.io import headers as H
-from monitor.measures import VALUE_RULES
 
 WARNING = "warning"
 
@@ -179,11 +179,16 @@ def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference
             for v, t in zip(visit_at.tolist(), target_at.tolist(), strict=True)]
 
 
-def _in_month_day_window(date: dt.date, start: str, end: str) -> bool:
-    md = f"{date.month:02d}-{date.day:02d}"
-    if start <= end:
-        return start <= md <= end
-    return md >= start or md <= end  # wraps the new year
+class _Problems:
+    """The problems found so far in one file: ``add`` keeps them in a counter ordered by row."""
+
+    def __init__(self, file: str):
+        self.file = file
+        self.counter = ProblemCounter()
+
+    def add(self, row, field_, value, expected, severity="error") -> None:
+        row = None if row is None else int(row)
+        self.counter.add_parts(self.file, row, field_, value, expected, severity, key=(-1 if row is None else row,))
 
 
 def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariates: pd.DataFrame,
@@ -193,7 +198,7 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     Parameters
     ----------
     visits, observations, covariates : DataFrame
-        Canonical frames (FIELD_LAYOUT.md), e.g. from :func:`monitor.io.records.read_field_records`.
+        Canonical frames (docs/files.md), e.g. from :func:`monitor.io.records.read_field_records`.
     reference : Reference
         What the programme holds.
     file : str, optional
@@ -203,44 +208,53 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
     -------
     list of InputProblem
         Errors and warnings, in the order: visits, observations, covariates.
+
+    Notes
+    -----
+    One function per check: :func:`check_visits` (station, date, observers), :func:`check_repeats`
+    (a second visit in a round), then for the observations :func:`check_values_have_visits`,
+    :func:`check_species_and_measures`, :func:`check_value_ranges`, :func:`check_grid_sizes` and
+    :func:`check_species_windows`; then :func:`check_targets` and :func:`check_covariates`.
     """
-    file = file or visits.attrs.get("file") or "<records>"
-    counter = ProblemCounter()
-
-    def add(row, field_, value, expected, severity="error"):
-        row = None if row is None else int(row)
-        counter.add_parts(file, row, field_, value, expected, severity, key=(-1 if row is None else row,))
-
+    problems = _Problems(file or visits.attrs.get("file") or "<records>")
     season = reference.season_of or (lambda d: d.year)
-    station_codes = [str(s) for s in reference.stations[C.STATION]]
+    check_visits(visits, reference, season, problems)
+    check_repeats(visits, reference, season, problems)
+    if len(observations):
+        obs = _Observed.of(observations)
+        check_values_have_visits(obs, visits, problems)
+        registered, pair_at, distinct_pairs = check_species_and_measures(obs, reference, problems)
+        check_value_ranges(obs, problems)
+        check_grid_sizes(obs, registered, pair_at, distinct_pairs, problems)
+        check_species_windows(obs, reference, problems)
+    check_targets(visits, observations, reference, problems)
+    check_covariates(covariates, visits, reference, problems)
+    return ProblemList.of(problems.counter)
+
+
+def _retired_stations(reference: Reference) -> dict[str, dt.date]:
     retired = {}
     if H.RETIRED in reference.stations.columns:
         for code, when in zip(reference.stations[C.STATION], reference.stations[H.RETIRED], strict=True):
             when = _as_date(when)
             if when is not None:
                 retired[code] = when
-    known_stations = set(station_codes)
+    return retired
 
-    # --- visits ------------------------------------------------------------------------------
-    status_of: dict[tuple[str, dt.date], str] = {}
-    row_of: dict[tuple[str, dt.date], int] = {}
-    rounds: dict[tuple[str, int], list[tuple[dt.date, bool, int | None]]] = {}
-    if reference.existing_visits is not None and len(reference.existing_visits):
-        ex = reference.existing_visits
-        reps = ex[H.REPEAT] if H.REPEAT in ex.columns else [False] * len(ex)
-        for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps, strict=True):
-            date = _as_date(date)
-            rounds.setdefault((station, season(date)), []).append((date, bool(rep), None))
+
+def check_visits(visits: pd.DataFrame, reference: Reference, season: Callable[[dt.date], int],
+                 problems: _Problems) -> None:
+    """Each visit's station (of the programme, in service on the date), date (not in the future, inside the
+    round's window: warnings) and observers (in the register)."""
+    add = problems.add
+    station_codes = [str(s) for s in reference.stations[C.STATION]]
+    retired = _retired_stations(reference)
+    known_stations = set(station_codes)
     n_visits = len(visits)
     v_stations = visits[C.STATION].tolist()
     v_dates = [d if type(d) is dt.date else _as_date(d) for d in visits[C.DATE]]
     v_rows = visits[H.SOURCE_ROW].tolist() if H.SOURCE_ROW in visits.columns else [None] * n_visits
-    v_statuses = visits[C.VISIT_STATUS].tolist()
     v_teams = visits[H.OBSERVERS].tolist() if H.OBSERVERS in visits.columns else [()] * n_visits
-    v_repeats = visits[H.REPEAT].tolist() if H.REPEAT in visits.columns else [None] * n_visits
-    keys = list(zip(v_stations, v_dates, strict=True))
-    status_of.update(zip(keys, v_statuses, strict=True))
-    row_of.update(zip(keys, v_rows, strict=True))
     # cheap screens first (per distinct date and team); the full checks run only on visits they pick out
     date_suspect: dict[dt.date, bool] = {}
     for date in set(v_dates):
@@ -273,7 +287,23 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
                 if code not in reference.observers:
                     add(row, H.OBSERVERS, code,
                         "an observer in the register" + _closest(code, sorted(reference.observers)))
-    for station, date, repeat, row in zip(v_stations, v_dates, v_repeats, v_rows, strict=True):
+
+
+def check_repeats(visits: pd.DataFrame, reference: Reference, season: Callable[[dt.date], int],
+                  problems: _Problems) -> None:
+    """A second visit to a station in one round (stored or in this file) must be marked repeat = yes."""
+    rounds: dict[tuple[str, int], list[tuple[dt.date, bool, int | None]]] = {}
+    if reference.existing_visits is not None and len(reference.existing_visits):
+        ex = reference.existing_visits
+        reps = ex[H.REPEAT] if H.REPEAT in ex.columns else [False] * len(ex)
+        for station, date, rep in zip(ex[C.STATION], ex[C.DATE], reps, strict=True):
+            date = _as_date(date)
+            rounds.setdefault((station, season(date)), []).append((date, bool(rep), None))
+    n_visits = len(visits)
+    v_dates = [d if type(d) is dt.date else _as_date(d) for d in visits[C.DATE]]
+    v_rows = visits[H.SOURCE_ROW].tolist() if H.SOURCE_ROW in visits.columns else [None] * n_visits
+    v_repeats = visits[H.REPEAT].tolist() if H.REPEAT in visits.columns else [None] * n_visits
+    for station, date, repeat, row in zip(visits[C.STATION].tolist(), v_dates, v_repeats, v_rows, strict=True):
         rounds.setdefault((station, season(date)), []).append((date, bool(repeat), row))
     for (station, year), entries in rounds.items():
         if len(entries) < 2:
@@ -290,129 +320,180 @@ def validate_records(visits: pd.DataFrame, observations: pd.DataFrame, covariate
             if first_plain is None:
                 first_plain = date
             elif row is not None:
-                add(row, H.REPEAT, "no", f"repeat = yes for a second visit to {station} in the {year} round "
-                                         f"(already visited on {first_plain.isoformat()})")
+                problems.add(row, H.REPEAT, "no", f"repeat = yes for a second visit to {station} in the {year} "
+                                                  f"round (already visited on {first_plain.isoformat()})")
 
-    # --- observations -------------------------------------------------------------------------
-    obs = observations
-    if len(obs):
-        rows = obs[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in obs.columns else np.full(len(obs), None)
-        fields = obs[H.SOURCE_FIELD].to_numpy() if H.SOURCE_FIELD in obs.columns else np.full(len(obs), None)
-        stations = obs[C.STATION].to_numpy()
-        dates = obs[C.DATE].to_numpy()
-        species = obs[C.SPECIES].astype(str).to_numpy()
-        measures = obs[C.MEASURE].astype(str).to_numpy()
+
+@dataclass(frozen=True)
+class _Observed:
+    """The observation columns the checks read, as arrays (vectorised over a million rows)."""
+
+    frame: pd.DataFrame
+    rows: np.ndarray
+    fields: np.ndarray
+    stations: np.ndarray
+    dates: np.ndarray
+    species: np.ndarray
+    measures: np.ndarray
+    values: np.ndarray
+    shown: np.ndarray   # what the messages echo: the cell as typed where the reader kept it ('11', not 11.0)
+    ns: np.ndarray
+
+    @classmethod
+    def of(cls, obs: pd.DataFrame) -> _Observed:
         values = obs[H.VALUE].astype(float).to_numpy()
-        # what the messages echo: the cell as typed where the reader kept it ('11', not 11.0)
-        shown = obs[H.SOURCE_TEXT].to_numpy(dtype=object) if H.SOURCE_TEXT in obs.columns else values
-        ns = pd.to_numeric(obs[H.N], errors="coerce").to_numpy(dtype=float) if H.N in obs.columns \
-            else np.full(len(obs), np.nan)
+        return cls(
+            frame=obs,
+            rows=obs[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in obs.columns else np.full(len(obs), None),
+            fields=obs[H.SOURCE_FIELD].to_numpy() if H.SOURCE_FIELD in obs.columns else np.full(len(obs), None),
+            stations=obs[C.STATION].to_numpy(), dates=obs[C.DATE].to_numpy(),
+            species=obs[C.SPECIES].astype(str).to_numpy(), measures=obs[C.MEASURE].astype(str).to_numpy(),
+            values=values,
+            shown=obs[H.SOURCE_TEXT].to_numpy(dtype=object) if H.SOURCE_TEXT in obs.columns else values,
+            ns=pd.to_numeric(obs[H.N], errors="coerce").to_numpy(dtype=float) if H.N in obs.columns
+            else np.full(len(obs), np.nan))
 
-        # missed / inaccessible visits carry no values; values must belong to a visit in the file
-        visit_key, obs_key = _pair_codes(visits[C.STATION].to_numpy(dtype=object),
-                                         _dates(visits[C.DATE]).to_numpy(dtype=object), stations,
-                                         _dates(obs[C.DATE]).to_numpy(dtype=object))
-        first_of_key = ~pd.Series(visit_key).duplicated().to_numpy()
-        at = pd.Index(visit_key[first_of_key]).get_indexer(obs_key)
-        statuses = np.append(visits[C.VISIT_STATUS].to_numpy(dtype=object)[first_of_key], None)
-        visit_status = statuses[at]  # at = -1 (no visit in the file) picks the trailing None
-        for i in np.flatnonzero(pd.isna(visit_status)):
-            add(rows[i], fields[i], _plain(shown[i]), f"a value belonging to a visit of {stations[i]} in this file")
-        no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
-        for i in np.flatnonzero(no_values):
-            add(rows[i], fields[i], _plain(shown[i]),
-                f"a blank cell: a {visit_status[i]} visit carries no values (missing is not zero)")
 
-        # species and their measures
-        registered = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES],
-                                                             reference.species[C.MEASURE],
-                                                             reference.species.get(H.N, [None] * len(reference.species)), strict=True)}
-        species_codes = sorted({s for s, _ in registered})
-        known_species = set(species_codes)
-        unknown = ~np.isin(species, species_codes)
-        for i in np.flatnonzero(unknown):
-            add(rows[i], fields[i], species[i], "a species of the programme" + _closest(species[i], species_codes))
-        # (species, measure) pairs worked out once per distinct pair
-        pair_at, distinct_pairs = _pair_index(species, measures)
-        registered_pair = np.array([pair in registered for pair in distinct_pairs] or [False])[pair_at]
-        not_registered = ~registered_pair & ~unknown
-        for i in np.flatnonzero(not_registered):
-            ways = sorted(m for s, m in registered if s == species[i])
-            add(rows[i], fields[i], measures[i], f"a measure registered for {species[i]}: {', '.join(ways)}")
+def check_values_have_visits(obs: _Observed, visits: pd.DataFrame, problems: _Problems) -> None:
+    """Values must belong to a visit in the file; missed / inaccessible visits carry no values."""
+    visit_key, obs_key = _pair_codes(visits[C.STATION].to_numpy(dtype=object),
+                                     _dates(visits[C.DATE]).to_numpy(dtype=object), obs.stations,
+                                     _dates(obs.frame[C.DATE]).to_numpy(dtype=object))
+    first_of_key = ~pd.Series(visit_key).duplicated().to_numpy()
+    at = pd.Index(visit_key[first_of_key]).get_indexer(obs_key)
+    statuses = np.append(visits[C.VISIT_STATUS].to_numpy(dtype=object)[first_of_key], None)
+    visit_status = statuses[at]  # at = -1 (no visit in the file) picks the trailing None
+    for i in np.flatnonzero(pd.isna(visit_status)):
+        problems.add(obs.rows[i], obs.fields[i], _plain(obs.shown[i]),
+                     f"a value belonging to a visit of {obs.stations[i]} in this file")
+    no_values = np.isin(visit_status.astype(str), [C.STATUS_MISSED, C.STATUS_INACCESSIBLE])
+    for i in np.flatnonzero(no_values):
+        problems.add(obs.rows[i], obs.fields[i], _plain(obs.shown[i]),
+                     f"a blank cell: a {visit_status[i]} visit carries no values (missing is not zero)")
 
-        # ranges per measure: one rule each, from monitor.measures (the phone field sheet checks the same)
-        whole = np.isclose(values, np.round(values), rtol=0, atol=1e-9)
-        is_ = {m: measures == m for m in C.MEASURES}
-        for measure, value_rule in VALUE_RULES.items():
-            chosen = is_[measure]
-            if not chosen.any():
-                continue
-            with np.errstate(invalid="ignore"):
-                outside = values < value_rule.minimum
-                if value_rule.maximum is not None:
-                    outside |= values > value_rule.maximum
-                if value_rule.whole:
-                    outside |= ~whole
-                if value_rule.up_to_n:
-                    outside |= np.nan_to_num(ns, nan=np.inf) < values
-            for i in np.flatnonzero(chosen & outside):
-                add(rows[i], fields[i], _plain(shown[i]),
-                    value_rule.wording(None if np.isnan(ns[i]) else int(ns[i])))
-        kn = is_[C.MEASURE_FREQUENCY] | is_[C.MEASURE_PIN_HITS]
-        distinct_n = np.array([registered.get(pair) for pair in distinct_pairs] or [None], dtype=object)
-        programme_n = pd.to_numeric(pd.Series(distinct_n), errors="coerce").to_numpy(dtype=float)[pair_at]
-        bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
-        for i in np.flatnonzero(bad):
-            unit = "cells" if measures[i] == C.MEASURE_FREQUENCY else "pins"
-            shown = None if np.isnan(ns[i]) else int(ns[i])
-            add(rows[i], fields[i], f"n={shown}",
-                f"n = {int(programme_n[i])} {unit}, the programme's {'grid' if unit == 'cells' else 'frame'} "
-                f"for {species[i]}")
 
-        # species windows (phenology): warnings; month-day worked out once per distinct date
-        if reference.species_windows:
-            in_scope = np.isin(species, list(reference.species_windows))
-            if in_scope.any():
-                codes, distinct = pd.factorize(pd.Series(dates, dtype=object))
-                month_days = np.array([f"{d.month:02d}-{d.day:02d}" for d in map(_as_date, distinct)] or [""])
-                md = month_days[codes]
-                outside = np.zeros(len(species), dtype=bool)
-                for code, (start, end) in reference.species_windows.items():
-                    mask = in_scope & (species == code)
-                    if not mask.any():
-                        continue
-                    inside = (start <= md) & (md <= end) if start <= end else (md >= start) | (md <= end)
-                    outside |= mask & ~inside
-                for i in np.flatnonzero(outside):
-                    start, end = reference.species_windows[species[i]]
-                    add(rows[i], fields[i], _as_date(dates[i]).isoformat(),
-                        f"a visit inside {species[i]}'s season window {start} to {end}", WARNING)
-        del known_species
+def check_species_and_measures(obs: _Observed, reference: Reference, problems: _Problems):
+    """Species of the programme, each with a measure registered for it.
 
-    # --- targets on done visits ------------------------------------------------------------------
-    if reference.targets and not reference.blanks_mean_zero and len(visits):
-        for station, date, species_code, measure, row in _missing_targets(visits, observations, reference):
-            add(row, f"{species_code}:{measure}", None,
-                f"a value for target {species_code} ({measure}) on a done visit of {station} on "
-                f"{date.isoformat()}; 0 if absent (the programme does not treat blanks as zero)")
+    Returns the registered (species, measure) -> n, and each row's index into the distinct pairs.
+    """
+    registered = {(str(s), str(m)): n for s, m, n in zip(reference.species[C.SPECIES],
+                                                         reference.species[C.MEASURE],
+                                                         reference.species.get(H.N, [None] * len(reference.species)),
+                                                         strict=True)}
+    species_codes = sorted({s for s, _ in registered})
+    unknown = ~np.isin(obs.species, species_codes)
+    for i in np.flatnonzero(unknown):
+        problems.add(obs.rows[i], obs.fields[i], obs.species[i],
+                     "a species of the programme" + _closest(obs.species[i], species_codes))
+    # (species, measure) pairs worked out once per distinct pair
+    pair_at, distinct_pairs = _pair_index(obs.species, obs.measures)
+    registered_pair = np.array([pair in registered for pair in distinct_pairs] or [False])[pair_at]
+    not_registered = ~registered_pair & ~unknown
+    for i in np.flatnonzero(not_registered):
+        ways = sorted(m for s, m in registered if s == obs.species[i])
+        problems.add(obs.rows[i], obs.fields[i], obs.measures[i],
+                     f"a measure registered for {obs.species[i]}: {', '.join(ways)}")
+    return registered, pair_at, distinct_pairs
 
-    # --- covariates -----------------------------------------------------------------------------
-    if len(covariates):
-        for rec in covariates.itertuples(index=False):
-            c = rec._asdict()
-            key = (c[C.STATION], _as_date(c[C.DATE]))
-            row = c.get(H.SOURCE_ROW)
-            shown_field = f"cov:{c['name']}"
-            if status_of.get(key) in (C.STATUS_MISSED, C.STATUS_INACCESSIBLE):
-                add(row, shown_field, c[H.VALUE], f"a blank cell: a {status_of[key]} visit carries no values")
-            if reference.covariate_units is not None:
-                if c["name"] not in reference.covariate_units:
-                    add(row, shown_field, c["name"], "a covariate of the programme"
-                        + _closest(str(c["name"]), sorted(reference.covariate_units)))
-                elif (reference.covariate_units[c["name"]] or None) != (c.get(H.UNIT) or None):
-                    add(row, shown_field, c.get(H.UNIT),
-                        f"unit [{reference.covariate_units[c['name']]}] as the programme records {c['name']}")
-    return ProblemList.of(counter)
+
+def check_value_ranges(obs: _Observed, problems: _Problems) -> None:
+    """Each value inside its measure's range: one rule each, from the registry (monitor/measures.py; the
+    phone field sheet checks the same)."""
+    values, ns = obs.values, obs.ns
+    whole = np.isclose(values, np.round(values), rtol=0, atol=1e-9)
+    for measure, value_rule in registry.VALUE_RULES.items():
+        chosen = obs.measures == measure
+        if not chosen.any():
+            continue
+        with np.errstate(invalid="ignore"):
+            outside = values <= value_rule.minimum if value_rule.above_minimum else values < value_rule.minimum
+            if value_rule.maximum is not None:
+                outside |= values > value_rule.maximum
+            if value_rule.whole:
+                outside |= ~whole
+            if value_rule.up_to_n:
+                outside |= np.nan_to_num(ns, nan=np.inf) < values
+        for i in np.flatnonzero(chosen & outside):
+            problems.add(obs.rows[i], obs.fields[i], _plain(obs.shown[i]),
+                         value_rule.wording(None if np.isnan(ns[i]) else int(ns[i])))
+
+
+def check_grid_sizes(obs: _Observed, registered: Mapping, pair_at: np.ndarray, distinct_pairs: list,
+                     problems: _Problems) -> None:
+    """A k-of-n value's n is the programme's grid (cells) or frame (pins) for that species."""
+    kn = np.isin(obs.measures, registry.k_of_n_codes())
+    distinct_n = np.array([registered.get(pair) for pair in distinct_pairs] or [None], dtype=object)
+    programme_n = pd.to_numeric(pd.Series(distinct_n), errors="coerce").to_numpy(dtype=float)[pair_at]
+    ns = obs.ns
+    bad = kn & ~np.isnan(programme_n) & (np.isnan(ns) | (ns != programme_n))
+    for i in np.flatnonzero(bad):
+        entry = registry.get(obs.measures[i])
+        shown = None if np.isnan(ns[i]) else int(ns[i])
+        problems.add(obs.rows[i], obs.fields[i], f"n={shown}",
+                     f"n = {int(programme_n[i])} {entry.trials}, the programme's {entry.trial_source} "
+                     f"for {obs.species[i]}")
+
+
+def check_species_windows(obs: _Observed, reference: Reference, problems: _Problems) -> None:
+    """Phenology: a value outside its species' season window is a warning; month-day worked out once per
+    distinct date."""
+    if not reference.species_windows:
+        return
+    species = obs.species
+    in_scope = np.isin(species, list(reference.species_windows))
+    if not in_scope.any():
+        return
+    codes, distinct = pd.factorize(pd.Series(obs.dates, dtype=object))
+    month_days = np.array([f"{d.month:02d}-{d.day:02d}" for d in map(_as_date, distinct)] or [""])
+    md = month_days[codes]
+    outside = np.zeros(len(species), dtype=bool)
+    for code, (start, end) in reference.species_windows.items():
+        mask = in_scope & (species == code)
+        if not mask.any():
+            continue
+        inside = (start <= md) & (md <= end) if start <= end else (md >= start) | (md <= end)
+        outside |= mask & ~inside
+    for i in np.flatnonzero(outside):
+        start, end = reference.species_windows[species[i]]
+        problems.add(obs.rows[i], obs.fields[i], _as_date(obs.dates[i]).isoformat(),
+                     f"a visit inside {species[i]}'s season window {start} to {end}", WARNING)
+
+
+def check_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference: Reference,
+                  problems: _Problems) -> None:
+    """Every target species and measure has a value on a done visit, unless blanks mean zero."""
+    if not (reference.targets and not reference.blanks_mean_zero and len(visits)):
+        return
+    for station, date, species_code, measure, row in _missing_targets(visits, observations, reference):
+        problems.add(row, f"{species_code}:{measure}", None,
+                     f"a value for target {species_code} ({measure}) on a done visit of {station} on "
+                     f"{date.isoformat()}; 0 if absent (the programme does not treat blanks as zero)")
+
+
+def check_covariates(covariates: pd.DataFrame, visits: pd.DataFrame, reference: Reference,
+                     problems: _Problems) -> None:
+    """No covariate on a missed or inaccessible visit; names and units as the programme records them."""
+    if not len(covariates):
+        return
+    n_visits = len(visits)
+    v_dates = [d if type(d) is dt.date else _as_date(d) for d in visits[C.DATE]]
+    status_of = dict(zip(zip(visits[C.STATION].tolist(), v_dates, strict=True), visits[C.VISIT_STATUS].tolist(),
+                         strict=True)) if n_visits else {}
+    for rec in covariates.itertuples(index=False):
+        c = rec._asdict()
+        key = (c[C.STATION], _as_date(c[C.DATE]))
+        row = c.get(H.SOURCE_ROW)
+        shown_field = f"cov:{c['name']}"
+        if status_of.get(key) in (C.STATUS_MISSED, C.STATUS_INACCESSIBLE):
+            problems.add(row, shown_field, c[H.VALUE], f"a blank cell: a {status_of[key]} visit carries no values")
+        if reference.covariate_units is not None:
+            if c["name"] not in reference.covariate_units:
+                problems.add(row, shown_field, c["name"], "a covariate of the programme"
+                             + _closest(str(c["name"]), sorted(reference.covariate_units)))
+            elif (reference.covariate_units[c["name"]] or None) != (c.get(H.UNIT) or None):
+                problems.add(row, shown_field, c.get(H.UNIT),
+                             f"unit [{reference.covariate_units[c['name']]}] as the programme records {c['name']}")
 
 
 class ProblemList(list):

@@ -43,6 +43,7 @@ import numpy as np
 from scipy import optimize, stats
 
 from monitor.errors import DesignError
+from monitor.families import family as family_of
 from monitor.power.model import (
     Design,
     Scenario,
@@ -200,15 +201,9 @@ def yearly_index_sd(components: VarianceComponents, design: Design, annual_chang
     nodes, weights = np.polynomial.hermite_e.hermegauss(40)
     weights = weights / weights.sum()
     eta = level + sd_u * nodes
-    if family in ("poisson", "poisson-lognormal"):
-        w = s["observation_sd"] ** 2 + np.exp(-eta)
-    elif family == "negbin":
-        w = np.exp(-eta) + 1.0 / s["theta"]
-    elif family == "binomial":
-        p = 1.0 / (1.0 + np.exp(-eta))
-        w = s["observation_sd"] ** 2 + 1.0 / (components.trials * p * (1 - p))
-    else:
-        w = np.full_like(eta, s["residual_sd"] ** 2)
+    fam = family_of(family)
+    w = fam.visit_variance(eta, observation_sd=s["observation_sd"], trials=components.trials,
+                           dispersion=None if fam.dispersion_field is None else s[fam.dispersion_field])
     per_visit = 1.0 / float(np.sum(weights / w))
     if not design.panels.every_year:
         per_visit += s["station_sd"] ** 2

@@ -1,21 +1,21 @@
 """Fit one simulated data set and keep what a power study needs from the fit.
 
-Two fitters:
+The fitters::
 
-``"trend"``    the trend engine's fast path, ``monitor.trend.TrendModel(...).fit(profile=False,
-               indices=False)``: the same model family and random effects a programme's own
+    "trend"    the trend engine's fast path, monitor.trend.TrendModel(...).fit(profile=False,
+               indices=False): the same model family and random effects a programme's own
                analysis would use, the year effect included where the engine puts it by default
                (and a site-by-year effect where the population model has one; the year effect
-               as an AR(1) over years where the population model's is, ``year_rho``).  Wald test
-               of the slope against t on the engine's between-year df (``slope_df``; normal
+               as an AR(1) over years where the population model's is, year_rho).  Wald test
+               of the slope against t on the engine's between-year df (slope_df; normal
                without a year effect) with the standard error the engine's interval and call use
-               (``slope_se * se_scale``).
-``"trend-no-year"`` the same without a year effect (a reference where the truth has none).
-``"ols-log"``  ordinary least squares of the log (counts) or logit (cover) value on year, no random
+               (slope_se * se_scale).
+    "trend-no-year" the same without a year effect (a reference where the truth has none).
+    "ols-log"  ordinary least squares of the log (counts) or logit (cover) value on year, no random
                effects, t test with n - 2 degrees of freedom.  A reference for the exact
                noncentral-t check, and only valid for data with no station, site or
                overdispersion effects.
-``"yearly-means"`` least squares of the yearly means of the log (counts) or logit (cover) values on
+    "yearly-means" least squares of the yearly means of the log (counts) or logit (cover) values on
                year, t test with n_years - 2 degrees of freedom: the analysis whose power is exactly
                noncentral t when stations are balanced and the noise is normal on that scale
                (Urquhart, Paulsen & Larsen 1998), whatever the year-to-year variation.  A reference.
@@ -33,6 +33,7 @@ from scipy import stats
 
 from monitor import columns as col
 from monitor.errors import MonitorError
+from monitor.families import family as family_of
 from monitor.power.model import Scenario, VarianceComponents
 from monitor.settings import MIN_YEAR_EFFECT_YEARS
 
@@ -98,11 +99,9 @@ def fit_ols_log(data: pd.DataFrame, components: VarianceComponents, scenario: Sc
     ``log y_k = a + b * year_k + e_k``, ``e_k ~ N(0, s^2)`` independent; ``se(b) = s / sqrt(S_xx)``
     with ``s^2`` the residual mean square on ``n - 2`` degrees of freedom.
     """
-    if components.measure == col.MEASURE_COVER:
-        p = data[col.COVER].to_numpy(float) / 100.0
-        y = np.log(p / (1 - p))
-    else:
-        y = np.log(data[col.COUNT].to_numpy(float))
+    y = _link_values(data, components)
+    if y is None:
+        return FAILED
     x = data[col.YEAR].to_numpy(float)
     n = y.size
     if n < 3 or not np.all(np.isfinite(y)):
@@ -153,11 +152,13 @@ def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenari
 
 
 def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
+    """The family's link of the values (log of a count or length, logit of cover as a fraction);
+    None when some value has no finite link (a 0, or a cover of 0 or 100 %)."""
+    values = data[col.MEASURE_COLUMNS[components.measure][0]].to_numpy(float)
     if components.measure == col.MEASURE_COVER:
-        p = data[col.COVER].to_numpy(float) / 100.0
-        y = np.log(p / (1 - p))
-    else:
-        y = np.log(data[col.COUNT].to_numpy(float))
+        values = values / 100.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = family_of(components.family).link(values)
     return y if y.size and np.all(np.isfinite(y)) else None
 
 

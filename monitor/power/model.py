@@ -1,7 +1,7 @@
 """What a power study is made of: the population model, the change to detect, the design.
 
 The population model is the one the trend engine fits (``monitor.trend``), written on the link
-scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey year):
+scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey year)::
 
     eta_ijt = b0 + log(a) [counts only] + beta * t + u_i + v_j + w_t + g_jt + e_ijt
     u_i ~ N(0, (s_station * a**-b)^2),  v_j ~ N(0, s_site^2),  e_ijt ~ N(0, (s_obs * a**-b)^2)
@@ -14,7 +14,11 @@ scale for station ``i`` in site ``j`` in year offset ``t`` (0 = first survey yea
     negbin             y ~ NB2(mean exp(eta), size theta * a**(2b)) (no e)
     binomial           k ~ Binomial(n, expit(eta))                 (e optional)
     logit-normal       logit(cover/100) = eta + r,  r ~ N(0, (s_res * a**-b)^2)
-    lognormal          log(y) = eta + r  (continuous; reference family for the exact t check)
+    lognormal          log(y) = eta + r,  r ~ N(0, (s_res * a**-b)^2)   (a positive continuous value)
+
+The families are the registry's objects (``monitor.families``): each simulates its own response
+(``ModelFamily.simulate``) and gives the per-visit variance of the approximation
+(``ModelFamily.visit_variance``); the dispersion is the field its ``dispersion_field`` names.
 
 ``a`` is the quadrat area relative to the reference area at which the variance components were
 estimated, and ``b`` the user's exponent in ``SD proportional to area**-b``; beta = log(1 + r)
@@ -40,20 +44,24 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as col
-from monitor.errors import DesignError, EstimationError
+from monitor import measures
+from monitor.errors import DesignError, EstimationError, InputError
+from monitor.families import COUNT, NAMES
+from monitor.families import family as family_of
 from monitor.power.panels import RevisitDesign, parse_revisit
 from monitor.settings import DEFAULT_CHANGE_MARGIN
 
-FAMILIES = ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal", "lognormal")
+FAMILIES = NAMES   # the registry's families (monitor.families), the trend engine's
 SIDES = ("two-sided", "decline", "rise")
-_MEASURE_OF_FAMILY = {
-    "poisson": col.MEASURE_COUNT,
-    "poisson-lognormal": col.MEASURE_COUNT,
-    "negbin": col.MEASURE_COUNT,
-    "lognormal": col.MEASURE_COUNT,
-    "binomial": col.MEASURE_FREQUENCY,
-    "logit-normal": col.MEASURE_COVER,
-}
+
+
+def _default_measure(family: str, trials: int) -> str:
+    """The measure a simulated table carries by default: the first measure the family serves
+    (presence for binomial data with one trial); a family no measure serves yet writes counts."""
+    fam = family_of(family)
+    if fam.density == "binomial" and trials == 1:
+        return col.MEASURE_PRESENCE
+    return next((m for m in col.MEASURES if fam.serves(m)), col.MEASURE_COUNT)
 
 
 @dataclass(frozen=True)
@@ -63,7 +71,7 @@ class VarianceComponents:
     Parameters
     ----------
     family : str
-        One of ``FAMILIES`` (the trend engine's families, plus ``lognormal`` for reference checks).
+        One of ``FAMILIES`` (the trend engine's families, ``monitor.families``).
     intercept : float
         ``b0``: link-scale level in the first survey year for a station and site with zero random
         effects, at the reference quadrat area [log count, or logit of a proportion].
@@ -72,7 +80,7 @@ class VarianceComponents:
     observation_sd : float
         Observation-level random effect SD (overdispersion) for poisson-lognormal and binomial.
     residual_sd : float
-        Residual SD for logit-normal and lognormal [link scale].
+        Residual SD for logit-normal and lognormal [link scale] (their ``dispersion_field``).
     year_sd : float
         SD of the year effect shared by every station (w_t) [link scale].
     year_rho : float
@@ -82,7 +90,7 @@ class VarianceComponents:
     site_year_sd : float
         SD of the site-by-year effect (g_jt) [link scale].
     theta : float or None
-        NB2 size for negbin (variance = mu + mu^2/theta).
+        NB2 size for negbin (variance = mu + mu^2/theta; its ``dispersion_field``).
     trials : int
         ``n`` for binomial measures: grid cells, pins, or 1 for presence.
     measure : str or None
@@ -115,8 +123,10 @@ class VarianceComponents:
     year_rho: float = 0.0
 
     def __post_init__(self) -> None:
-        if self.family not in FAMILIES:
-            raise DesignError(f"family {self.family!r}: expected one of {', '.join(FAMILIES)}")
+        try:
+            fam = family_of(self.family)
+        except InputError:
+            raise DesignError(f"family {self.family!r}: expected one of {', '.join(FAMILIES)}") from None
         for name in ("station_sd", "site_sd", "observation_sd", "residual_sd", "year_sd", "site_year_sd"):
             value = getattr(self, name)
             if not (value >= 0 and math.isfinite(value)):
@@ -124,10 +134,9 @@ class VarianceComponents:
         if not (-1 < self.year_rho < 1):
             raise DesignError(f"year_rho (AR(1) correlation of consecutive years) must lie strictly between "
                               f"-1 and 1, got {self.year_rho!r}")
-        if self.family == "negbin" and not (self.theta is not None and self.theta > 0):
-            raise DesignError("negbin needs theta > 0 (NB2 size)")
-        if self.family in ("logit-normal", "lognormal") and self.residual_sd <= 0:
-            raise DesignError(f"{self.family} needs residual_sd > 0")
+        field_ = fam.dispersion_field
+        if field_ is not None and not (getattr(self, field_) is not None and getattr(self, field_) > 0):
+            raise DesignError(f"{self.family} needs {field_} > 0 ({fam.dispersion_name})")
         if self.trials < 1:
             raise DesignError("trials must be at least 1")
         if self.cover_resolution is not None and not 0 < self.cover_resolution <= 50:
@@ -135,25 +144,24 @@ class VarianceComponents:
         if self.stations_per_site <= 0:
             raise DesignError("stations_per_site must be positive")
         if self.measure is None:
-            measure = _MEASURE_OF_FAMILY[self.family]
-            if self.family == "binomial" and self.trials == 1:
-                measure = col.MEASURE_PRESENCE
-            object.__setattr__(self, "measure", measure)
+            object.__setattr__(self, "measure", _default_measure(self.family, self.trials))
 
     @classmethod
     def from_mean(cls, family: str, mean: float, **kwargs: float) -> VarianceComponents:
         """Build components from a mean level on the data scale.
 
-        For count families ``mean`` is the expected count per quadrat over stations, sites and
-        observations in the first year, so ``b0 = log(mean) - (s_station^2 + s_site^2 + s_obs^2)/2``
-        (lognormal mean).  For binomial and logit-normal ``mean`` is the proportion (0-1) of a
-        typical station, ``b0 = logit(mean)``.
+        For families on the log scale ``mean`` is the expected count (or value) per quadrat over
+        stations, sites and observations in the first year, so
+        ``b0 = log(mean) - (s_station^2 + s_site^2 + s_obs^2 [+ s_res^2])/2`` (lognormal mean).
+        For binomial and logit-normal ``mean`` is the proportion (0-1) of a typical station,
+        ``b0 = logit(mean)``.
         """
         sd2 = sum(kwargs.get(k, 0.0) ** 2 for k in ("station_sd", "site_sd", "observation_sd", "year_sd", "site_year_sd"))
-        if family in ("poisson", "poisson-lognormal", "negbin", "lognormal"):
+        fam = family_of(family)
+        if fam.log_scale:
             if mean <= 0:
                 raise DesignError("mean count must be positive")
-            if family == "lognormal":
+            if fam.gaussian:   # the residual is on the log scale too
                 sd2 += kwargs.get("residual_sd", 0.0) ** 2
             b0 = math.log(mean) - sd2 / 2
         else:
@@ -170,7 +178,7 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
     Uses ``result.family``, ``result.measure``, ``result.random_sd`` (keys ``station``, ``site``,
     ``observation``, and ``year`` and ``site_year`` where the model carried a year effect), the AR(1)
     correlation ``result.rho["year"]`` where the year effect was fitted as ``ar1``,
-    ``result.dispersion`` (NB2 size or logit-normal residual SD), and the fitted level in the first
+    ``result.dispersion`` (the family's dispersion: NB2 size or residual SD), and the fitted level in the first
     year from ``result.fitted_trend`` when present, else from the intercept and slope in
     ``result.params``.
 
@@ -179,6 +187,7 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
     there is no default, since a 25-cell grid and a 100-cell grid give very different power.
     """
     family = result.family
+    fam = family_of(family)
     measure = result.measure
     random_sd = dict(getattr(result, "random_sd", {}) or {})
     dispersion = getattr(result, "dispersion", None)
@@ -203,12 +212,10 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
         quadrat_area=quadrat_area,
         stations_per_site=(n_stations / n_sites) if n_sites else max(1.0, float(n_stations)),
     )
-    if family == "negbin":
-        kwargs["theta"] = float(dispersion)
-    if family == "logit-normal":
-        kwargs["residual_sd"] = float(dispersion)
-    if family == "binomial":
-        if measure == col.MEASURE_PRESENCE:
+    if fam.dispersion_field is not None:
+        kwargs[fam.dispersion_field] = float(dispersion)
+    if fam.density == "binomial":
+        if measure in measures.of_kind(measures.KIND_BINARY):
             trials = 1
         elif trials is None and data is not None:
             trials = trials_from_data(data, measure)
@@ -228,7 +235,7 @@ def _year_rho(result: object) -> float:
 
 
 def year_correlation(n_years: int, rho: float) -> np.ndarray:
-    """Correlation matrix of the year effects over ``n_years`` consecutive years: rho^|t - t'|."""
+    """Correlation matrix of the year effects over ``n_years`` consecutive years: ``rho^|t - t'|``."""
     lag = np.abs(np.subtract.outer(np.arange(n_years), np.arange(n_years)))
     return np.power(float(rho), lag) if rho != 0 else np.eye(n_years)
 
@@ -256,9 +263,10 @@ def trials_from_data(data: pd.DataFrame, measure: str) -> int | None:
 
     None when the table carries no n column for the measure or no value in it.
     """
-    column = {col.MEASURE_FREQUENCY: col.CELLS, col.MEASURE_PIN_HITS: col.PINS}.get(measure)
+    entry = measures.get(measure)
+    column = entry.trials_column
     if column is None:
-        return 1 if measure == col.MEASURE_PRESENCE else None
+        return 1 if entry.kind == measures.KIND_BINARY else None
     if column not in data.columns or col.YEAR not in data.columns:
         return None
     known = data.dropna(subset=[column])
@@ -458,7 +466,8 @@ def scaled_components(components: VarianceComponents, design: Design) -> dict[st
     """Link-scale quantities after quadrat-area scaling (see the module docstring)."""
     a = design.area_ratio(components)
     sd_factor = a ** (-design.area_exponent)
-    counts = components.family in ("poisson", "poisson-lognormal", "negbin", "lognormal")
+    # a bigger quadrat holds more individuals (the level moves by log a); a length or a share does not
+    counts = COUNT in family_of(components.family).kinds
     theta = components.theta
     return {
         "intercept": components.intercept + (math.log(a) if counts else 0.0),

@@ -6,6 +6,8 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as col
+from monitor import measures
+from monitor.families import family as family_of
 from monitor.power.model import Design, Scenario, VarianceComponents, ar1_series, scaled_components
 
 
@@ -67,40 +69,17 @@ def simulate_dataset(components: VarianceComponents, design: Design, scenario: S
            + station_effect[station_idx] + site_effect[site_idx] + site_year_effect[site_idx, year_idx])
     rng = noise_rng  # the observation-level noise and the response draws below
 
-    family = components.family
+    fam = family_of(components.family)
     frame: dict[str, object] = {col.STATION: np.array([f"Q{i:04d}" for i in range(n_st)], dtype=object)[station_idx]}
     if s["site_sd"] > 0 or n_sites > 1:
         frame[col.SITE] = np.array([f"S{j:03d}" for j in range(n_sites)], dtype=object)[site_idx]
     frame[col.YEAR] = design.first_year + year_idx
-    if family in ("poisson", "poisson-lognormal"):
-        if family == "poisson-lognormal":
-            eta = eta + rng.normal(0.0, 1.0, n) * s["observation_sd"]
-        frame[col.COUNT] = rng.poisson(np.exp(eta))
-    elif family == "negbin":
-        theta = s["theta"]
-        mu = np.exp(eta)
-        # NB2 as a gamma-Poisson mixture: lambda ~ Gamma(shape theta, scale mu/theta)
-        frame[col.COUNT] = rng.poisson(rng.gamma(theta, mu / theta))
-    elif family == "lognormal":
-        frame[col.COUNT] = np.exp(eta + rng.normal(0.0, 1.0, n) * s["residual_sd"])
-    elif family == "binomial":
-        eta = eta + rng.normal(0.0, 1.0, n) * s["observation_sd"]
-        k = rng.binomial(components.trials, 1.0 / (1.0 + np.exp(-eta)))
-        if components.measure == col.MEASURE_PRESENCE:
-            frame[col.PRESENT] = k
-        elif components.measure == col.MEASURE_PIN_HITS:
-            frame[col.HITS] = k
-            frame[col.PINS] = np.full(n, components.trials)
-        else:
-            frame[col.OCCUPIED] = k
-            frame[col.CELLS] = np.full(n, components.trials)
-    elif family == "logit-normal":
-        z = eta + rng.normal(0.0, 1.0, n) * s["residual_sd"]
-        cover = 100.0 / (1.0 + np.exp(-z))
-        if components.cover_resolution is not None:
-            step = components.cover_resolution
-            cover = np.clip(np.round(cover / step) * step, 0.0, 100.0)
-        frame[col.COVER] = cover
-    else:  # pragma: no cover - VarianceComponents validates the family
-        raise AssertionError(family)
+    # the family draws the response (its observation noise first); the measure names the columns
+    entry = measures.get(components.measure)
+    frame[entry.value_column] = fam.simulate(
+        eta, rng, observation_sd=s["observation_sd"],
+        dispersion=None if fam.dispersion_field is None else s[fam.dispersion_field],
+        trials=components.trials, resolution=components.cover_resolution)
+    if entry.trials_column is not None:   # k of n: the number of cells or pins
+        frame[entry.trials_column] = np.full(n, components.trials)
     return pd.DataFrame(frame)

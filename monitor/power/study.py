@@ -2,7 +2,7 @@
 
 For each design, R data sets are simulated from the population model (``monitor.power.model``)
 with the scenario's steady change, each is fitted (by default with the trend engine's fast path),
-and the test of no trend is made at level alpha on the stated side:
+and the test of no trend is made at level alpha on the stated side::
 
     two-sided  reject when |T| > q(1 - alpha/2)
     decline    reject when T < -q(1 - alpha)
@@ -38,6 +38,8 @@ import pandas as pd
 from scipy import optimize, stats
 
 from monitor.errors import DesignError, Diagnostic
+from monitor.families import FAMILIES as FAMILY_OBJECTS
+from monitor.families import family as family_of
 from monitor.power.approximation import (
     Approximation,
     approximate_detectable_change,
@@ -154,11 +156,13 @@ def _run_jobs(components: VarianceComponents, jobs: Sequence[_Job], fitter: str,
     (any ``concurrent.futures.Executor``, e.g. a Dask client's; ``n_workers`` then sets the chunking)."""
     if fitter not in FITTERS:
         raise DesignError(f"fitter {fitter!r}: expected one of {', '.join(FITTERS)}")
-    if fitter.startswith("trend") and components.family == "lognormal":
-        raise DesignError("the trend engine has no lognormal family; use fitter 'ols-log' for it")
-    if fitter in ("ols-log", "yearly-means") and components.family not in ("lognormal", "logit-normal"):
-        raise DesignError(f"fitter '{fitter}' regresses log or logit values: use it with the lognormal or "
-                          "logit-normal family only")
+    fam = family_of(components.family)
+    if fitter.startswith("trend") and not fam.serves(components.measure):
+        raise DesignError(f"the trend engine fits the {fam.name} family to {', '.join(fam.kinds)} values, not to "
+                          f"{components.measure}; use fitter 'ols-log' for it")
+    if fitter in ("ols-log", "yearly-means") and not fam.gaussian:
+        raise DesignError(f"fitter '{fitter}' regresses log or logit values: use it with the "
+                          f"{' or '.join(f.name for f in FAMILY_OBJECTS.values() if f.gaussian)} family only")
     if n_replicates < 1:
         raise DesignError("at least one replicate is needed")
     workers = (os.cpu_count() or 1) if n_workers is None else int(n_workers)

@@ -43,6 +43,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 
 FLAG_COLUMNS = ["kind", C.STATION, C.SPECIES, C.YEAR, "detail", "severity"]
 MAD_TO_SD = 1.4826  # 1 / Phi^-1(3/4): makes the MAD a consistent estimator of sigma for normal data
@@ -58,15 +59,16 @@ def _flags(rows: list[dict]) -> pd.DataFrame:
 def analysis_values(table: pd.DataFrame) -> pd.Series:
     """The value checked for each row: ``value`` if present, else the measure's k column.
 
-    count -> count; cover -> cover_pct; frequency -> occupied; pin_hits -> hits; presence -> present.
+    (the first of the measure's columns in the registry, monitor/measures.py: count -> count;
+    frequency -> occupied; ...)
     """
     if "value" in table.columns:
         return table["value"].astype(float)
     out = pd.Series(np.nan, index=table.index, dtype=float)
-    for measure, cols in C.MEASURE_COLUMNS.items():
-        if cols[0] in table.columns:
+    for measure, entry in measures.REGISTRY.items():
+        if entry.value_column in table.columns:
             mask = table[C.MEASURE] == measure
-            out[mask] = table.loc[mask, cols[0]].astype(float)
+            out[mask] = table.loc[mask, entry.value_column].astype(float)
     return out
 
 
@@ -78,9 +80,9 @@ def station_jumps(table: pd.DataFrame, *, threshold: float = JUMP_THRESHOLD, min
     ----------
     table : DataFrame
         Long analysis table: station, year, species, measure and ``value`` (or the measure columns of
-        monitor.columns.MEASURE_COLUMNS).  Several values in one year are averaged first.
+        monitor.measures).  Several values in one year are averaged first.
     threshold : float
-        Flag when |z| exceeds it; 3.5 after Iglewicz & Hoaglin (1993).
+        Flag when ``|z|`` exceeds it; 3.5 after Iglewicz & Hoaglin (1993).
     min_history : int
         Other years needed before a value can be judged.
     min_scale : float
@@ -96,7 +98,7 @@ def station_jumps(table: pd.DataFrame, *, threshold: float = JUMP_THRESHOLD, min
     ``z_t = (u_t - m_t) / s_t``.
     """
     data = table.assign(_value=analysis_values(table))
-    data = data[data[C.MEASURE] != C.MEASURE_PRESENCE].dropna(subset=["_value"])
+    data = data[~data[C.MEASURE].isin(measures.of_kind(measures.KIND_BINARY))].dropna(subset=["_value"])
     yearly = data.groupby([C.STATION, C.SPECIES, C.MEASURE, C.YEAR], sort=True)["_value"].mean().reset_index()
     # the series of one station, species and measure are consecutive rows (sorted); series of the same
     # length are stacked into a matrix and judged together, one leave-one-out column at a time, so the
@@ -206,7 +208,7 @@ def _observer_data(table: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple[str, .
     """The rows the observer check uses, with ``_u = log(1 + y)`` and ``_team``, the position of the row's
     team in the list returned beside (each distinct team is read once, not once a row)."""
     data = table.assign(_value=analysis_values(table))
-    data = data[data[C.MEASURE] != C.MEASURE_PRESENCE].dropna(subset=["_value"])
+    data = data[~data[C.MEASURE].isin(measures.of_kind(measures.KIND_BINARY))].dropna(subset=["_value"])
     codes, uniques = pd.factorize(data[C.OBSERVER], use_na_sentinel=False)
     data = data.assign(_u=np.log1p(np.clip(data["_value"].to_numpy(dtype=float), 0, None)), _team=codes,
                        _key=data.groupby([C.STATION, C.SPECIES, C.MEASURE], sort=True).ngroup().to_numpy())

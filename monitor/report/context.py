@@ -9,7 +9,7 @@ comparison and for anyone who wants the figures without the page.
 
 Nothing here fits a model or touches a database: trend results come in
 already fitted (``monitor.trend.TrendResult`` or any object with the same
-attributes, see TREND_API), station changes come in already computed.
+attributes), station changes come in already computed.
 """
 
 from __future__ import annotations
@@ -24,47 +24,40 @@ from importlib import metadata
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import InputError
+from monitor.families import describe as describe_family
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
-from monitor.report.fits import FitRow
 from monitor.report.figures import EventMark
+from monitor.report.fits import FitRow
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
-from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_TREND_STATIONS, MIN_TREND_YEARS
 from monitor.report.wording import (
-    LevelNumbers,
-    level_sentence,
-    odds_trend_sentence,
     CALL_LABEL,
     CALL_MARKER,
     MEASURE_LABEL,
+    LevelNumbers,
     MethodChange,
     TrendNumbers,
     caveat_sentences,
-    change_with_interval,
     decline_advice,
     detectable_change_not_computed_sentence,
     detectable_fall_sentence,
+    level_sentence,
+    odds_trend_sentence,
     percent,
     plain_measures,
-    rate_with_interval,
     season_label,
     signed_percent,
     significant,
+    summary_texts,
     total_floor_note,
     trend_sentence,
     whole,
 )
+from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 PROBABILITY_PLACEMENTS = (C.PLACEMENT_RANDOM, C.PLACEMENT_STRATIFIED, C.PLACEMENT_BALANCED,
                           C.PLACEMENT_SYSTEMATIC)
-
-FAMILY_WORDS = {
-    "poisson": "Poisson counts (log link)",
-    "poisson-lognormal": "Poisson counts with an observation-level random effect for extra variation (log link)",
-    "negbin": "negative binomial counts (log link)",
-    "binomial": "binomial k-of-n (logit link)",
-    "logit-normal": "a linear mixed model on the logit of percent cover",
-}
 
 REFERENCES = (
     "Bates, D., Mächler, M., Bolker, B. and Walker, S. (2015). Fitting linear mixed-effects models "
@@ -199,6 +192,8 @@ class SummaryRow:
     margin: float
     trigger_state: str
     trigger_text: str
+    call_line: str = ""
+    share_change: Interval | None = None  # percentage points, first year against last (shares only)
 
     def to_dict(self) -> dict:
         return {
@@ -215,6 +210,7 @@ class SummaryRow:
             "family": self.family,
             "margin": self.margin,
             "trigger": self.trigger_state,
+            **({"share_change_points": self.share_change.to_dict()} if self.share_change is not None else {}),
         }
 
 
@@ -558,13 +554,10 @@ def _sig(value: float, digits: int = 3) -> str:
     return f"{rounded:,.{decimals}f}"
 
 
-QUANTITY_LABEL = {
-    "density": ("Density", "per m²"),
-    "total": ("Estimated total", ""),
-    "cover": ("Mean cover", "%"),
-    "frequency": ("Frequency", "of cells"),
-    "presence": ("Stations occupied", "share"),
-}
+# each measure's estimate (monitor/measures.py) and a count's site total: column heading and unit
+QUANTITY_LABEL = {"total": ("Estimated total", "")}
+for _measure in measures.REGISTRY.values():
+    QUANTITY_LABEL.setdefault(_measure.quantity, _measure.quantity_label)
 
 
 def density_unit(value: float) -> tuple[str, float]:
@@ -778,7 +771,7 @@ def build_report_context(
         The season (year) reported.
     trend_results : mapping (species, measure) -> TrendResult-like
         Fitted trends, in the order the report shows them.  Each needs the
-        TREND_API attributes ``measure, family, n_obs, n_stations, n_sites,
+        monitor.trend.TrendResult attributes ``measure, family, n_obs, n_stations, n_sites,
         years, n_years, annual_change, period_change, random_sd, dispersion,
         indices, fitted_trend, diagnostics, call, call_reason, margin,
         converged`` (and ``slope``, ``slope_se`` for upper-bound triggers).
@@ -910,32 +903,33 @@ def build_report_context(
         else:
             trigger_state, trigger_text = "not fired", "Not fired"
         anchor = f"sp-{i + 1}"
-        # k-of-n and cover rates are changes in the odds: labelled so wherever they are printed
+        # k-of-n and cover rates are changes in the odds: labelled so wherever they are printed, and a
+        # share's row leads with the change of the share itself (percentage points)
         odds = str(_attr(result, "change_scale", "count") or "count") != "count"
-        annual_text = rate_with_interval(annual.estimate, annual.lower, annual.upper)
-        if odds:
-            annual_text = annual_text.replace(" a year ", " a year in the odds ", 1)
+        numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last,
+                               call, margin)
+        level = _level_numbers(_attr(result, "level_change"))
+        texts = summary_texts(numbers, period.lower, period.upper, odds=odds, level=level)
+        annual_text = texts.annual_text
+        share_change = (Interval(level.difference, level.difference_lower, level.difference_upper)
+                        if odds and level is not None and level.is_share else None)
         row = SummaryRow(
             species=sp, species_name=name, measure=ms, measure_label=measure_label, anchor=anchor,
             call=call, call_label=CALL_LABEL.get(call, call), marker=CALL_MARKER.get(call, "?"),
             annual_change=annual, period_change=period,
             annual_text=annual_text,
-            period_text=change_with_interval(period.estimate, period.lower, period.upper),
-            annual_estimate_text=f"{signed_percent(annual.estimate)} a year" + (" in the odds" if odds else ""),
-            annual_ci_text=(f"95% CI {signed_percent(annual.lower).rstrip('%')} to "
-                            f"{signed_percent(annual.upper).rstrip('%')}"),
-            period_estimate_text=signed_percent(period.estimate, 0),
-            period_ci_text=(f"95% CI {signed_percent(period.lower, 0).rstrip('%')} to "
-                            f"{signed_percent(period.upper, 0).rstrip('%')}"),
+            period_text=texts.period_text,
+            annual_estimate_text=texts.annual_estimate_text,
+            annual_ci_text=texts.annual_ci_text,
+            period_estimate_text=texts.period_estimate_text,
+            period_ci_text=texts.period_ci_text,
             first_year=first, last_year=last, n_stations=n_stations, n_years=n_years,
             n_obs=int(_attr(result, "n_obs", 0)), family=family, margin=margin,
             trigger_state=trigger_state, trigger_text=trigger_text,
+            call_line=texts.call_line, share_change=share_change,
         )
         summary.append(row)
 
-        numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last,
-                               call, margin)
-        level = _level_numbers(_attr(result, "level_change"))
         if odds and level is not None:
             paragraph = odds_trend_sentence(name, ms, numbers, level)
         else:
@@ -1017,7 +1011,7 @@ def build_report_context(
             ))
         n_sites = int(_attr(result, "n_sites", 0) or 0)
         model_text = (
-            f"Model: {FAMILY_WORDS.get(family, family)}; {row.n_obs:,} values from {n_stations} stations"
+            f"Model: {describe_family(family)}; {row.n_obs:,} values from {n_stations} stations"
             + (f" in {n_sites} sites" if n_sites else "")
             + f", {n_years} seasons {first}–{last}."
         )
@@ -1149,7 +1143,7 @@ def _margin_text(margins: set[float]) -> str:
 
 def _methods(families: set[str], margins: set[float], software: Mapping[str, str] | None,
              random_effects: set[str]) -> Methods:
-    family_list = "; ".join(FAMILY_WORDS.get(f, f) for f in sorted(families) if f)
+    family_list = "; ".join(describe_family(f) for f in sorted(families) if f)
     grouping = ("a random intercept for each station nested in its site" if "site" in random_effects
                 else "a random intercept for each station")
     if "observer" in random_effects:

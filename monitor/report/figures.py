@@ -197,7 +197,7 @@ def _site_outlines(geometry) -> list[np.ndarray]:
 
 
 def change_limit(changes: Iterable[float]) -> float:
-    """Symmetric colour limit for station changes: the 95th percentile of |change|, 5 %-50 % a year."""
+    """Symmetric colour limit for station changes: the 95th percentile of ``|change|``, 5 %-50 % a year."""
     values = np.abs(np.asarray([c for c in changes if c is not None and np.isfinite(c)], float))
     if values.size == 0:
         return 0.05

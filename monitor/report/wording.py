@@ -25,25 +25,17 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 from monitor import columns as C
+from monitor import measures
+from monitor.families import FAMILIES
+from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
 
-# Words for each measure, used as the subject of a sentence ("Numbers of X fell ...").
-MEASURE_SUBJECT = {
-    C.MEASURE_COUNT: "Numbers of {name}",
-    C.MEASURE_COVER: "Cover of {name}",
-    C.MEASURE_FREQUENCY: "Frequency of {name} (share of grid cells occupied)",
-    C.MEASURE_PIN_HITS: "Pin-frame hits on {name}",
-    C.MEASURE_PRESENCE: "The share of stations holding {name}",
-}
+# Words for each measure (monitor/measures.py): the subject of a sentence ("Numbers of X fell ..."),
+# and its name inside a sentence ("pin hits").
+MEASURE_SUBJECT = {code: m.subject for code, m in measures.REGISTRY.items()}
 
-MEASURE_LABEL = {
-    C.MEASURE_COUNT: "count",
-    C.MEASURE_COVER: "cover",
-    C.MEASURE_FREQUENCY: "frequency",
-    C.MEASURE_PIN_HITS: "pin hits",
-    C.MEASURE_PRESENCE: "presence",
-}
+MEASURE_LABEL = {code: m.label for code, m in measures.REGISTRY.items()}
 
 CALL_LABEL = {
     C.CALL_RISING: "Rising",
@@ -60,9 +52,9 @@ CALL_MARKER = {
     C.CALL_UNCLEAR: "?",
 }
 
-# Below these the trend engine calls a series "unclear" (TREND_API classify_call); the report says why.
-FEW_STATIONS = 10
-SHORT_SERIES = 5
+# Below these the trend engine calls a series "unclear" (monitor/trend/call.py:classify_call); the report says why.
+FEW_STATIONS = MIN_TREND_STATIONS
+SHORT_SERIES = MIN_TREND_YEARS
 # An observation-level SD above this on the log scale (a typical visit-to-visit factor of
 # exp(0.5) ~ 1.65 beyond Poisson noise) is worth telling a reader about.  Project convention.
 OVERDISPERSION_SD = 0.5
@@ -316,8 +308,9 @@ def caveat_sentences(
         Observation-level random-effect SD [log scale]; above ``OVERDISPERSION_SD``
         the reader is told that counts vary more than chance alone gives.
     family, dispersion : optional
-        For a negative binomial fit, a size ``theta`` below 2 also counts as
-        strong overdispersion (variance more than ``mu + mu^2/2``).
+        The model family's name and fitted dispersion: where the family says the dispersion is
+        strong (``ModelFamily.strongly_overdispersed``: a negative binomial size below 2) the
+        reader is told so too, and the family's ``rate_note`` is added.
     method_changes : iterable of MethodChange
         Protocol or observer changes logged with the records.
     diagnostics : sequence of (code, message, severity)
@@ -340,8 +333,9 @@ def caveat_sentences(
             "and may change as years are added."
         )
         covered.update({"few_years", "short_series"})
+    fam = FAMILIES.get(family) if family else None
     overdispersed = (observation_sd is not None and observation_sd > OVERDISPERSION_SD) or (
-        family == "negbin" and dispersion is not None and dispersion < 2
+        fam is not None and fam.strongly_overdispersed(dispersion)
     )
     if overdispersed:
         out.append(
@@ -363,11 +357,8 @@ def caveat_sentences(
                 f"The recording method changed in {change.year}{detail}; part of the apparent change "
                 "may come from the change of method."
             )
-    if family == "logit-normal":
-        out.append(
-            "For cover the rates are changes in the odds of cover, cover / (100 − cover); when cover is "
-            "low they are close to changes in cover itself."
-        )
+    if fam is not None and fam.rate_note:
+        out.append(fam.rate_note)
     if not converged:
         out.append("The model fit did not fully converge, so treat these numbers as provisional.")
         covered.add("not_converged")
@@ -445,7 +436,7 @@ def odds_trend_sentence(name: str, measure: str, numbers: TrendNumbers, level: L
     """
     subject = measure_subject(measure, name)
     n = numbers
-    odds = "the odds of cover" if measure == C.MEASURE_COVER else "the odds"
+    odds = "the odds of cover" if measure in measures.of_kind(measures.KIND_PERCENT) else "the odds"
     ci = directed_interval_phrase(n.annual_lower, n.annual_upper)
     share = level_sentence(level)
     if n.call == C.CALL_DECLINING and level.difference < 0:
@@ -459,6 +450,59 @@ def odds_trend_sentence(name: str, measure: str, numbers: TrendNumbers, level: L
         head = f"For {subject[0].lower() + subject[1:]} we cannot yet say which way the trend is going."
     return (f"{head} {share} In {odds} the estimate is {_point_phrase(n.annual_estimate)} "
             f"(95% CI {ci}).")
+
+
+@dataclass(frozen=True)
+class SummaryTexts:
+    """The words of one summary-table row and of the call line above a species' section.
+
+    ``period_*`` is the column that leads the row: the change over the period in percent for counts,
+    and for shares (frequency, pin hits, presence, cover) the change of the share itself in percentage
+    points; ``annual_*`` is the annual rate, labelled "in the odds" where the model's rate is one.
+    """
+
+    annual_text: str
+    period_text: str
+    annual_estimate_text: str
+    annual_ci_text: str
+    period_estimate_text: str
+    period_ci_text: str
+    call_line: str
+
+
+def summary_texts(numbers: TrendNumbers, period_lower: float, period_upper: float, *, odds: bool,
+                  level: LevelNumbers | None) -> SummaryTexts:
+    """The summary row's cells and the species' call line from a trend's numbers.
+
+    A share's model rate is a change in the odds, which is not the change of the share (a share
+    falling from 90 % to 73 % has odds falling 13 % a year): for such a trend the row leads with the
+    share's change in percentage points on the fitted trend, first year against last, with its
+    interval (``level``), and the odds rate follows, labelled as odds.
+    """
+    n = numbers
+    annual_text = rate_with_interval(n.annual_estimate, n.annual_lower, n.annual_upper)
+    in_odds = " in the odds" if odds else ""
+    if odds:
+        annual_text = annual_text.replace(" a year ", " a year in the odds ", 1)
+    annual_estimate = f"{signed_percent(n.annual_estimate)} a year{in_odds}"
+    annual_ci = f"95% CI {signed_percent(n.annual_lower).rstrip('%')} to {signed_percent(n.annual_upper).rstrip('%')}"
+    years = f"{n.first_year}–{n.last_year}"
+    if odds and level is not None and level.is_share:
+        period_estimate = f"{_points(level.difference, level)} percentage points"
+        period_ci = f"95% CI {_points(level.difference_lower, level)} to {_points(level.difference_upper, level)}"
+        what = "cover" if level.unit == "% cover" else "share"
+        period_text = (f"{what} {_level(level.first, level)} to {_level(level.last, level)}: "
+                       f"{period_estimate} ({period_ci})")
+        call_line = f"{period_text} over {years} · {annual_text}"
+    else:
+        period_estimate = signed_percent(n.period_estimate, 0) + in_odds
+        period_ci = (f"95% CI {signed_percent(period_lower, 0).rstrip('%')} to "
+                     f"{signed_percent(period_upper, 0).rstrip('%')}")
+        period_text = change_with_interval(n.period_estimate, period_lower, period_upper)
+        if odds:
+            period_text = period_text.replace(" (95% CI", " in the odds (95% CI", 1)
+        call_line = f"{annual_text} · over {years}: {period_text}"
+    return SummaryTexts(annual_text, period_text, annual_estimate, annual_ci, period_estimate, period_ci, call_line)
 
 
 # --------------------------------------------------------------------------- numbers in prose and tables

@@ -23,9 +23,9 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import DesignError
 from monitor.io.spatial import CalendarEvent, Route, Waypoint, gpx_document, icalendar_document, to_wgs84
-from monitor.measures import VALUE_RULES
 from monitor.schedule.planner import ARRIVAL, SeasonPlan, TeamDay
 
 #: the fixed leading headers of the wide field-sheet layout, in sheet order
@@ -51,13 +51,14 @@ SAFETY_CAUTIONS = (
 
 
 def _measure_header(species: str, measure: str, n: int | None) -> str:
-    if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
+    if measure not in measures.REGISTRY:
+        raise DesignError(f"unknown measure {measure!r} for species {species}")
+    entry = measures.REGISTRY[measure]
+    if entry.needs_n:
         if n is None or int(n) <= 0:
             raise DesignError(f"{species}:{measure} needs the number of cells or pins (n)")
-        return f"{species}:{measure}/{int(n)}"
-    if measure not in C.MEASURES:
-        raise DesignError(f"unknown measure {measure!r} for species {species}")
-    return f"{species}:{measure}"
+        return entry.header(species, int(n))
+    return entry.header(species)
 
 
 def field_sheet_columns(targets: Sequence[tuple[str, str] | tuple[str, str, int | None]],
@@ -327,13 +328,14 @@ def phone_sheet_fields(targets: Sequence[tuple[str, str] | tuple[str, str, int |
     for t in targets:
         species, measure = t[0], t[1]
         n = t[2] if len(t) > 2 else None
-        value_rule = VALUE_RULES[measure]
+        entry = measures.get(measure)
+        value_rule = entry.rule
         n = None if n is None or pd.isna(n) else int(n)
-        label = f"{species} {measure.replace('_', ' ')}"
+        label = f"{species} {entry.label}"
         if value_rule.up_to_n:
             label += f" (of {n} {value_rule.unit})"
-        elif measure == C.MEASURE_COVER:
-            label += " (%)"
+        elif entry.entry_unit:
+            label += f" ({entry.entry_unit})"
         out.append({"kind": "value", "header": _measure_header(species, measure, n), "species": species,
                     "measure": measure, "n": n, "label": label, "hint": value_rule.wording(n),
                     "whole": value_rule.whole, "rule": value_rule.to_dict()})

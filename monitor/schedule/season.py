@@ -27,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.design.panels import PanelDesign
 from monitor.errors import DesignError
 
@@ -121,13 +122,7 @@ def _leap(y: int) -> bool:
 
 #: default minutes per quadrat for one species and measure, for a 1 m^2 quadrat (common practice
 #: orders of magnitude; set the programme's own figures)
-DEFAULT_MINUTES = {
-    C.MEASURE_COUNT: 8.0,
-    C.MEASURE_COVER: 4.0,
-    C.MEASURE_FREQUENCY: 10.0,
-    C.MEASURE_PIN_HITS: 6.0,
-    C.MEASURE_PRESENCE: 1.0,
-}
+DEFAULT_MINUTES = {code: m.minutes_per_quadrat for code, m in measures.REGISTRY.items()}
 
 
 @dataclass(frozen=True)

@@ -90,10 +90,6 @@ class StoredPanels:
         return D.format_revisit(seen) if seen else "[]"
 
 
-def stored_panels(store: Store, programme_id: int) -> StoredPanels:
-    return StoredPanels.from_frame(queries.panels(store, programme_id))
-
-
 # --- reading helpers --------------------------------------------------------------------------------------
 
 

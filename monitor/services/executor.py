@@ -1,6 +1,6 @@
 """Where the expensive work runs: in this process, in a local process pool, or on a Dask cluster.
 
-One small seam used by the services (trend fits, power replicates):
+One small seam used by the services (trend fits, power replicates)::
 
     with open_runner(workers=4) as runner:                  # local process pool
     with open_runner(cluster="tcp://10.0.0.5:8786") as runner:   # a Dask distributed scheduler

@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DesignError, EstimationError, InputError, InputProblem
 from monitor.power import (
@@ -96,7 +97,7 @@ def components_for(db: str | None, species: str, *, programme_code: str | None =
         raise InputError(InputProblem("--species", None, None, species, "one target species and measure"))
     t = fitted[0]
     trials = None
-    if t.measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS):
+    if measures.get(t.measure).needs_n:
         # the grid or frame the records were taken with now, else the programme's set-up
         trials = trials_from_data(t.data, t.measure) if t.data is not None else None
         if trials is None:

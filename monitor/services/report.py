@@ -15,6 +15,7 @@ import pandas as pd
 
 from monitor import __version__
 from monitor import columns as C
+from monitor import measures
 from monitor.db import Store, one_snapshot, queries
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.report import GradientData, ProgrammeInfo, Trigger, build_report_context, render_report
@@ -41,19 +42,18 @@ def triggers_of(programme) -> list[Trigger]:
 
 def _estimate_rows(table: pd.DataFrame) -> pd.DataFrame:
     """The season table in the report's shape: one row per species, measure, site and quantity."""
-    quantity_of = {C.MEASURE_COVER: "cover", C.MEASURE_FREQUENCY: "frequency", C.MEASURE_PIN_HITS: "frequency",
-                   C.MEASURE_PRESENCE: "presence"}
     rows = []
     for r in table.to_dict(orient="records"):
         base = {"species": r["species"], "measure": r["measure"], "site": r["site"], "n_stations": r["n"]}
-        if r["measure"] == C.MEASURE_COUNT:
-            rows.append({**base, "quantity": "density", "estimate": r["estimate"], "lower": r["lower"],
+        entry = measures.get(r["measure"])
+        if entry.estimator == measures.ESTIMATOR_DENSITY:   # a density, and the site's total
+            rows.append({**base, "quantity": entry.quantity, "estimate": r["estimate"], "lower": r["lower"],
                          "upper": r["upper"]})
             if pd.notna(r.get("total")):
                 rows.append({**base, "quantity": "total", "estimate": r["total"], "lower": r["total_lower"],
                              "upper": r["total_upper"], "counted": r.get("counted")})
         else:
-            rows.append({**base, "quantity": quantity_of[r["measure"]], "estimate": r["estimate"],
+            rows.append({**base, "quantity": entry.quantity, "estimate": r["estimate"],
                          "lower": r["lower"], "upper": r["upper"]})
     return pd.DataFrame(rows)
 

@@ -17,9 +17,11 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.db import Store, one_snapshot, queries
 from monitor.db import fits as fit_store
 from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
+from monitor.families import family as family_of
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
 from monitor.services.common import current_user
@@ -146,8 +148,14 @@ def fit_one(data: pd.DataFrame, measure: str, *, margin: float, choices: ModelCh
     model = TrendModel(data, measure=measure, family=choices.family, margin=margin,
                        observer_effect=choices.observer_effect, year_random=choices.year_random,
                        site_by_year=choices.site_by_year,
-                       observation_effect=choices.observation_effect if choices.family in (None, "binomial") else None)
+                       observation_effect=choices.observation_effect if _observation_effect_optional(choices.family)
+                       else None)
     return model.fit(profile=profile, indices=indices, fast=False)
+
+
+def _observation_effect_optional(family: str | None) -> bool:
+    """Whether the family leaves the observation-level effect to the data (None: the measure's default)."""
+    return family is None or family_of(family).observation_effect == "optional"
 
 
 def _targets(store: Store, programme_id: int, species: list[str] | None) -> pd.DataFrame:
@@ -299,13 +307,7 @@ def _species_trends(outcomes, notes, names, keep_data: bool, skipped: list[dict]
     return out
 
 
-MEASURE_BY_COLUMNS = [
-    ((C.OCCUPIED, C.CELLS), C.MEASURE_FREQUENCY),
-    ((C.HITS, C.PINS), C.MEASURE_PIN_HITS),
-    ((C.COUNT,), C.MEASURE_COUNT),
-    ((C.COVER,), C.MEASURE_COVER),
-    ((C.PRESENT,), C.MEASURE_PRESENCE),
-]
+MEASURE_BY_COLUMNS = measures.by_columns()   # (value columns, measure), k-of-n first
 
 
 def fit_table(path: Path, *, measure: str | None = None, family: str | None = None,
@@ -332,8 +334,8 @@ def fit_table(path: Path, *, measure: str | None = None, family: str | None = No
         found = [m for cols, m in MEASURE_BY_COLUMNS if all(c in table.columns for c in cols)]
         if not found:
             raise InputError(InputProblem(path.name, 1, None, ", ".join(table.columns),
-                                          "columns station, year and one of: count; cover_pct; occupied+cells; "
-                                          "hits+pins; present"))
+                                          "columns station, year and one of: "
+                                          + "; ".join("+".join(cols) for cols, _ in MEASURE_BY_COLUMNS)))
         measure = found[0]
     missing = [InputProblem(path.name, 1, column, None, f"a column '{column}'")
                for column in (C.STATION, C.YEAR, *C.MEASURE_COLUMNS[measure]) if column not in table.columns]
@@ -346,30 +348,18 @@ def fit_table(path: Path, *, measure: str | None = None, family: str | None = No
     return SpeciesTrend(path.stem, "", measure, result, (), None)
 
 
-# what each value column must hold: (lowest, highest or None, whole numbers only, words)
-_VALUE_RULES = {
-    C.COUNT: (0, None, True, "a whole count of 0 or more"),
-    C.COVER: (0, 100, False, "a cover between 0 and 100 (%)"),
-    C.OCCUPIED: (0, None, True, "a whole number of occupied cells, 0 or more"),
-    C.CELLS: (1, None, True, "a whole number of cells, 1 or more"),
-    C.HITS: (0, None, True, "a whole number of pin hits, 0 or more"),
-    C.PINS: (1, None, True, "a whole number of pins, 1 or more"),
-    C.PRESENT: (0, 1, True, "0 (absent) or 1 (present)"),
-}
-
-
 def _checked_table(table: pd.DataFrame, measure: str, name: str) -> tuple[pd.DataFrame, list[InputProblem]]:
     """Numbers from the text of a --table file, and every cell that is not what its column needs."""
     problems: list[InputProblem] = []
 
-    def numbers(column: str, expected: str, low=None, high=None, whole=False) -> pd.Series:
+    def numbers(column: str, expected: str, low=None, high=None, whole=False, above=False) -> pd.Series:
         text = table[column].str.strip()
         values = pd.to_numeric(text, errors="coerce")
         ok = values.notna() & np.isfinite(values.to_numpy(float, na_value=np.nan))
         if whole:
             ok &= values == values.round()
         if low is not None:
-            ok &= values >= low
+            ok &= (values > low) if above else (values >= low)
         if high is not None:
             ok &= values <= high
         for i in np.flatnonzero(~ok.to_numpy()):
@@ -384,11 +374,11 @@ def _checked_table(table: pd.DataFrame, measure: str, name: str) -> tuple[pd.Dat
     out = table.copy()
     out[C.STATION] = station
     out[C.YEAR] = numbers(C.YEAR, "a whole year", whole=True)
-    for column in C.MEASURE_COLUMNS[measure]:
-        low, high, whole, expected = _VALUE_RULES[column]
-        out[column] = numbers(column, expected, low, high, whole)
-    if measure in (C.MEASURE_FREQUENCY, C.MEASURE_PIN_HITS) and not problems:
-        k, n = C.MEASURE_COLUMNS[measure]
+    entry = measures.get(measure)
+    for r in entry.column_rules:   # each value column's rule, from the registry
+        out[r.column] = numbers(r.column, r.expected, r.minimum, r.maximum, r.whole, r.above_minimum)
+    if entry.trials_column is not None and not problems:
+        k, n = entry.columns
         for i in np.flatnonzero((out[k] > out[n]).to_numpy()):
             problems.append(InputProblem(name, int(i) + 2, k, table[k].iloc[i],
                                          f"at most the number in '{n}' ({table[n].iloc[i]})"))

@@ -1,4 +1,9 @@
-"""Response distributions for the GLMM engine: full log densities and their eta-derivatives.
+"""Response densities for the GLMM engine: full log densities and their eta-derivatives.
+
+A density object belongs to ONE fit: it holds that fit's data (y, trials) and, while the
+engine searches, that fit's dispersion.  It is made from a family of the registry
+(``monitor.families``, immutable and shared) by :func:`density`, so two fits of one family,
+at the same time or interleaved, never see each other's data or dispersion.
 
 Each family gives, for a linear predictor ``eta`` on the link scale,
 
@@ -12,11 +17,13 @@ Each family gives, for a linear predictor ``eta`` on the link scale,
 
 Families
 --------
-poisson    l = y*eta - exp(eta) - log(y!)                                  (log link)
-binomial   l = k*eta - n*log(1 + exp(eta)) + log C(n, k)                   (logit link)
-negbin     NB2 with size theta, mean mu = exp(eta), Var = mu + mu^2/theta
-           l = lgamma(y+theta) - lgamma(theta) - log(y!) + theta*log(theta/(theta+mu)) + y*log(mu/(theta+mu))
-gaussian   l = -log(sigma) - log(2*pi)/2 - (y - eta)^2 / (2 sigma^2)        (identity link)
+::
+
+    poisson    l = y*eta - exp(eta) - log(y!)                                  (log link)
+    binomial   l = k*eta - n*log(1 + exp(eta)) + log C(n, k)                   (logit link)
+    negbin     NB2 with size theta, mean mu = exp(eta), Var = mu + mu^2/theta
+               l = lgamma(y+theta) - lgamma(theta) - log(y!) + theta*log(theta/(theta+mu)) + y*log(mu/(theta+mu))
+    gaussian   l = -log(sigma) - log(2*pi)/2 - (y - eta)^2 / (2 sigma^2)        (identity link)
 
 References
 ----------
@@ -28,6 +35,8 @@ from __future__ import annotations
 
 import numpy as np
 from scipy.special import expit, gammaln
+
+from monitor.families import family as family_of
 
 _ETA_MAX = 700.0
 
@@ -164,3 +173,16 @@ class Gaussian(Family):
 
     def glm_start(self):
         return self.y.copy()
+
+
+DENSITIES: dict[str, type[Family]] = {"poisson": Poisson, "binomial": Binomial, "negbin": NegativeBinomial,
+                                      "gaussian": Gaussian}
+
+
+def density(family, y: np.ndarray, trials: np.ndarray | None = None) -> Family:
+    """A new density for one fit of ``family`` (a ``monitor.families.ModelFamily`` or its name).
+
+    ``y`` is the response on the engine's scale (``ModelFamily.response``: the logit of cover,
+    the log of a positive value, counts as they are); ``trials`` the n of k-of-n data.
+    """
+    return DENSITIES[family_of(family).density](y, trials)

@@ -2,7 +2,7 @@ r"""Maximum-likelihood fitting of generalized linear mixed models (the trend eng
 
 Model
 -----
-For observation i (a visit of station j(i) in site s(i), recorded by observer o(i))
+For observation i (a visit of station j(i) in site s(i), recorded by observer o(i))::
 
     eta_i = offset_i + x_i' beta + sd_station * u_station[j(i)]
             + sum_terms sd_term * z_term,i * u_term[level_term(i)]
@@ -21,7 +21,7 @@ years get a t reference with between-year df (``coefficient_df``).
 
 Laplace approximation
 ---------------------
-With h(u) = sum_i log f(y_i | eta_i) - |u|^2 / 2 and H = -d2h/du2 at the mode u^,
+With ``h(u) = sum_i log f(y_i | eta_i) - |u|^2 / 2`` and ``H = -d2h/du2`` at the mode u^::
 
     log L(beta, sd) ~= h(u^) - log det(H) / 2.
 
@@ -1286,12 +1286,22 @@ def _stage1(eng: LaplaceEngine, phi0, quick: bool):
     lo, hi = [b[0] for b in bounds], [b[1] for b in bounds]
     obj = lambda x: -eng.loglik_profiled(x)  # noqa: E731
     if eng.n_phi <= STAGE1_NEWTON_MAX_PARAMS:
-        snap = np.r_[np.full(eng.n_sd, SNAP_LOG_WIDTH), np.zeros(eng.n_phi - eng.n_sd)]
+        snap = np.r_[np.full(eng.n_sd, _snap_width(eng)), np.zeros(eng.n_phi - eng.n_sd)]
         tol, ftol = STAGE1_NEWTON_TOL["quick" if quick else "precise"]
         return _newton_bounded(obj, phi0, lo, hi, np.full(eng.n_phi, STAGE1_STEP), snap_width=snap, tol=tol,
                                ftol=ftol, quasi=quick)
     ftol, gtol = STAGE1_LBFGS_TOL["quick" if quick else "precise"]
     return _bounded_minimize(obj, phi0, bounds, np.full(eng.n_phi, LBFGS_STEP), ftol=ftol, gtol=gtol)
+
+
+def _snap_width(eng: LaplaceEngine) -> float:
+    """SNAP_LOG_WIDTH, narrowed for a Gaussian model whose data vary little: its SDs are on the scale
+    of its data (the log of a height may vary by 1e-2, and a real year SD of 1e-3 is then no zero), so
+    "near zero" is judged against the spread of the data about the starting fit."""
+    if not isinstance(eng.fam, Gaussian):
+        return SNAP_LOG_WIDTH
+    spread = float(np.std(eng.fam.y - eng.offset - eng.X @ eng.beta))
+    return min(SNAP_LOG_WIDTH, SNAP_LOG_WIDTH + float(np.log(spread))) if spread > 0 else SNAP_LOG_WIDTH
 
 
 def _bounds_arrays(eng: LaplaceEngine, with_beta: bool) -> tuple[np.ndarray, np.ndarray]:

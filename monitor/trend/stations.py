@@ -6,6 +6,9 @@ on 2 x 2 systems, vectorised with np.bincount):
 count                        log E[y_t] = a + b t              (Poisson)
 frequency/pin_hits/presence  logit p_t = a + b t,  k ~ Bin(n, p)
 cover                        z_t = a + b t + e_t               (least squares on the adjusted logit)
+lengths (> 0)                log y_t = a + b t + e_t           (least squares on the log)
+
+The model follows the measure's kind in the registry (monitor/measures.py).
 
 annual_change = exp(b) - 1.  NaN for a station with fewer than 3 years with data, and
 where the estimate does not exist (all counts zero, all cells empty or all full).
@@ -21,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import InputError
 
 MIN_YEARS_STATION = 3
@@ -48,9 +52,10 @@ def station_changes(data: pd.DataFrame, measure: str) -> pd.DataFrame:
     """
     from .model import logit_cover
 
-    if measure not in C.MEASURE_COLUMNS:
+    if measure not in measures.REGISTRY:
         raise InputError(f"unknown measure {measure!r}; expected one of {', '.join(C.MEASURES)}")
-    cols = C.MEASURE_COLUMNS[measure]
+    entry = measures.REGISTRY[measure]
+    cols = entry.columns
     missing = [c for c in (C.STATION, C.YEAR, *cols) if c not in data.columns]
     if missing:
         raise InputError(f"station changes need column(s) {', '.join(missing)}")
@@ -66,22 +71,23 @@ def station_changes(data: pd.DataFrame, measure: str) -> pd.DataFrame:
     tbar = np.bincount(codes, weights=yr, minlength=ns) / np.maximum(cnt, 1)
     t = yr - tbar[codes]
     b = np.full(ns, np.nan)
-    if measure == C.MEASURE_COVER:
-        z, _ = logit_cover(d[C.COVER].to_numpy(float))
+    if entry.kind in (measures.KIND_PERCENT, measures.KIND_POSITIVE):
+        if entry.kind == measures.KIND_PERCENT:
+            z, _ = logit_cover(d[entry.value_column].to_numpy(float))
+        else:
+            z = np.log(d[entry.value_column].to_numpy(float))
         sxx = np.bincount(codes, weights=t * t, minlength=ns)
         sxy = np.bincount(codes, weights=t * z, minlength=ns)
         with np.errstate(invalid="ignore", divide="ignore"):
             b = sxy / sxx
     else:
-        if measure == C.MEASURE_COUNT:
-            k = d[C.COUNT].to_numpy(float)
+        k = d[entry.value_column].to_numpy(float)
+        if entry.kind == measures.KIND_COUNT:
             n = None
-        elif measure == C.MEASURE_PRESENCE:
-            k = d[C.PRESENT].to_numpy(float)
+        elif entry.kind == measures.KIND_BINARY:
             n = np.ones_like(k)
         else:
-            k = d[cols[0]].to_numpy(float)
-            n = d[cols[1]].to_numpy(float)
+            n = d[entry.trials_column].to_numpy(float)
         ksum = np.bincount(codes, weights=k, minlength=ns)
         estimable = ksum > 0
         if n is not None:

@@ -16,7 +16,7 @@ import pandas as pd
 from monitor import columns as C
 from monitor.errors import DataError, InputError, InputProblem
 from monitor.io.sheets import is_missing
-from monitor.security import new_token, safe_file
+from monitor.security import new_token
 from monitor.web import drawing
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -447,7 +447,3 @@ def trends_report(ctx: Ctx):
     made = ", ".join(p.name for p in sorted(written.iterdir()) if p.suffix in (".html", ".pdf"))
     ctx.flash("ok", f"The {year} report is built ({made}).")
     return ctx.redirect("/trends")
-
-
-def report_file(ctx: Ctx, relative: str) -> Path | None:
-    return safe_file(ctx.config.workdir / "reports", relative)

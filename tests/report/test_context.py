@@ -31,7 +31,7 @@ def test_summary_numbers_are_the_fits_numbers(full_inputs, full_context):
 
 
 def test_period_change_is_compounded_annual_change(full_inputs):
-    # TREND_API: period_change = exp(slope * (last - first)) - 1, annual_change = exp(slope) - 1
+    # monitor.trend.TrendResult: period_change = exp(slope * (last - first)) - 1, annual_change = exp(slope) - 1
     for result in full_inputs["trend_results"].values():
         first, last = result.years
         assert result.period_change.estimate == pytest.approx(

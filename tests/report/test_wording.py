@@ -21,12 +21,12 @@ from monitor.report.wording import (
 
 
 def numbers(rate, lower, upper, first=2015, last=2025, call=C.CALL_DECLINING, margin=0.01):
-    # period change compounds the annual rate over last - first years (TREND_API period_change)
+    # period change compounds the annual rate over last - first years (monitor.trend.TrendResult.period_change)
     return TrendNumbers(rate, lower, upper, (1 + rate) ** (last - first) - 1, first, last, call, margin)
 
 
-def test_issue_example_sentence():
-    # Source: the example sentence of issue 7 ("... fell by about 4% a year since 2015 (95% CI 1% to 7% a
+def test_the_headline_sentence_of_a_decline():
+    # The report's own headline form ("... fell by about 4% a year since 2015 (95% CI 1% to 7% a
     # year); over the ... years that is a fall of about a third ..."); 1 - 0.96**10 = 0.335 (arithmetic).
     text = trend_sentence("Herba exempla", C.MEASURE_COUNT, numbers(-0.04, -0.07, -0.01))
     assert text.startswith("Numbers of Herba exempla fell by about 4% a year since 2015 (95% CI 1% to 7% a year)")

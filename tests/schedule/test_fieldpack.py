@@ -3,7 +3,6 @@
 import dataclasses
 import datetime as dt
 import re
-from pathlib import Path
 
 import icalendar
 import jinja2
@@ -30,13 +29,13 @@ from monitor.schedule.fieldpack import (
     SheetStation,
     template_environment,
 )
+from tests.conftest import GPX_SCHEMA
 
-ROOT = Path(__file__).resolve().parents[2]
-SCHEMA = etree.XMLSchema(etree.parse(str(ROOT / "tests" / "io" / "gpx11_subset.xsd")))
+SCHEMA = etree.XMLSchema(etree.parse(str(GPX_SCHEMA)))  # the official GPX 1.1 schema
 EPSG = 32633  # UTM 33N; invented reserve near easting 500 km
 X0, Y0 = 500000.0, 5000000.0
 
-# the agreed wide field-sheet layout (FIELD_LAYOUT.md, "Wide field sheet layout"), transcribed
+# the agreed wide field-sheet layout (docs/files.md, "field records"), transcribed
 FIXED = ["station", "date", "observers", "status", "repeat", "protocol", "notes"]
 VALUE_PATTERNS = [
     r"^[A-Z0-9]+:count$",

@@ -17,7 +17,7 @@ from monitor import columns as C
 from monitor.db import Store, queries
 from monitor.errors import DesignError
 from monitor.services import design
-from tests.conftest import REPO_ROOT, table_counts
+from tests.conftest import GPX_SCHEMA, table_counts
 
 
 def _stations(db_url):
@@ -148,8 +148,8 @@ def test_waypoints_gpx_validates_and_geojson_round_trips(programme_db, tmp_path)
     stations = _stations(programme_db)
     in_service = stations[stations["state"] == "in_service"]
     assert n == len(in_service)
-    # GPX 1.1 schema (TopoGrafix 2004; the subset kept in tests/io)
-    schema = etree.XMLSchema(etree.parse(str(REPO_ROOT / "tests" / "io" / "gpx11_subset.xsd")))
+    # the official GPX 1.1 schema (TopoGrafix 2004, tests/fixtures/gpx)
+    schema = etree.XMLSchema(etree.parse(str(GPX_SCHEMA)))
     doc = etree.parse(str(gpx))
     assert schema.validate(doc), schema.error_log
     assert len(doc.findall("{http://www.topografix.com/GPX/1/1}wpt")) == n

@@ -18,7 +18,7 @@ from monitor.errors import DesignError
 from monitor.schedule import fieldpack
 from monitor.services import schedule, setup
 from monitor.services.imports import import_records
-from tests.conftest import REPO_ROOT, table_counts
+from tests.conftest import GPX_SCHEMA, table_counts
 
 YEARS = (2024, 2025, 2026)
 
@@ -167,7 +167,7 @@ def _fill(entry: pd.DataFrame, day: dt.date, members: tuple[str, ...]) -> pd.Dat
         else:  # a visit covariate
             values = [f"{30 + i}" for i in range(len(filled))]
         filled[column] = values
-    # one station missed: all its value boxes stay blank (FIELD_LAYOUT.md)
+    # one station missed: all its value boxes stay blank (docs/files.md, "field records")
     filled.loc[filled.index[-1], "status"] = "missed"
     filled.loc[filled.index[-1], "observers"] = ""
     filled.loc[filled.index[-1], list(filled.columns[len(fieldpack.BASE_HEADERS):])] = ""
@@ -181,7 +181,7 @@ def test_field_pack_is_read_back_by_the_records_importer(season_db, demo_source,
     folder = tmp_path / "packs" / f"{first.date.isoformat()}_{first.team}_{first.site}"
     assert [d["folder"] for d in pack.team_days] == [str(folder)]
 
-    # the printed sheet's table headers are the wide layout of FIELD_LAYOUT.md, in the entry sheet's order
+    # the printed sheet's table headers are the wide layout of docs/files.md ("field records"), in the entry sheet's order
     page = html.fromstring((folder / "field_sheet.html").read_text())
     # (a species' common name is printed under its header, in a span of its own)
     headers = [th.text_content().strip().removesuffix(th.xpath("string(.//span[@class='label'])")).strip()
@@ -252,7 +252,7 @@ def test_field_pack_gpx_and_calendar_follow_their_standards(season_db, tmp_path)
     plan = schedule.plan_season(season_db, 2027, teams=2, seed=5)
     pack = schedule.write_field_packs(season_db, 2027, tmp_path / "packs")
     assert len(pack.team_days) == len(plan.plan.team_days)
-    schema = etree.XMLSchema(etree.parse(str(REPO_ROOT / "tests" / "io" / "gpx11_subset.xsd")))
+    schema = etree.XMLSchema(etree.parse(str(GPX_SCHEMA)))  # the official GPX 1.1 schema
     for day in pack.team_days:
         doc = etree.parse(str(tmp_path / "packs" / day["folder"].rsplit("/", 1)[1] / "route.gpx"))
         # GPX 1.1 (TopoGrafix 2004): valid against the schema; start point plus one waypoint per station

@@ -1,7 +1,7 @@
 """Invented programmes and field sheets of any size, for the import tests and the import benchmark.
 
 Everything here is invented: an imaginary reserve ("Gen Fen") with generated stations, the demo's
-invented species, and seeded field sheets in the agreed wide layout (FIELD_LAYOUT.md).  No tests live
+invented species, and seeded field sheets in the wide layout (docs/files.md, "field records").  No tests live
 in this module; it only generates files.
 """
 

@@ -1,7 +1,7 @@
 """Office commands on stored records: one value (audited, locked seasons, range rules), photos, retiring a
 station, a station's history, and double entry.
 
-The range rules checked are those agreed for the measures (FIELD_LAYOUT.md and design.md "measure"): a count
+The range rules checked are those agreed for the measures (monitor/measures.py; common practice for permanent-quadrat records): a count
 is a whole number >= 0, cover a percent 0-100, k of n with 0 <= k <= n.  Values in the demo sheets are
 invented (demo_programme/generate.py).
 """

@@ -1,6 +1,6 @@
 """Zero versus missing through the whole path, for a programme whose blanks mean zero.
 
-The agreed rule (FIELD_LAYOUT.md; issue "Zero versus missing"): a blank cell on a done visit of a programme
+The rule (docs/files.md, "field records": blank = not recorded; 0 = recorded absent): a blank cell on a done visit of a programme
 that says blanks mean zero is a recorded absence (a stored 0); a partial visit's blank is not recorded; a
 missed or inaccessible visit has no values at all, and every table built from the store keeps that meaning.
 Invented programme and values.

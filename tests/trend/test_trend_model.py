@@ -24,13 +24,13 @@ def simulate(rng, n_station=20, years=range(2010, 2020), slope=-0.05, sd_station
 
 
 def test_default_family():
-    # TREND_API.md
+    # the attributes monitor.trend.TrendResult documents
     assert default_family("count") == "poisson-lognormal"
     assert default_family("frequency") == "binomial"
     assert default_family("pin_hits") == "binomial"
     assert default_family("presence") == "binomial"
     assert default_family("cover") == "logit-normal"
-    assert FAMILIES == ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal")
+    assert FAMILIES == ("poisson", "poisson-lognormal", "negbin", "binomial", "logit-normal", "lognormal")
     with pytest.raises(InputError):
         default_family("biomass")
 
