@@ -33,6 +33,7 @@ CELLS = "cells"              # gridded frequency: cells in the grid, n [integer 
 HITS = "hits"                # point frame: pins touching the species, k [integer, 0 <= k <= n]
 PINS = "pins"                # point frame: pins in the frame, n [integer > 0], often 10
 PRESENT = "present"          # presence [0/1]
+HEIGHT = "height_cm"         # mean shoot height in the quadrat [cm, > 0]
 
 # --- geometry -------------------------------------------------------------------
 X = "x"                      # easting [m], projected CRS of the programme
@@ -49,6 +50,7 @@ MEASURE_COVER = "cover"
 MEASURE_FREQUENCY = "frequency"   # k of n grid cells occupied
 MEASURE_PIN_HITS = "pin_hits"     # k of n point-frame pins touching
 MEASURE_PRESENCE = "presence"
+MEASURE_SHOOT_HEIGHT = "shoot_height"   # mean shoot height [cm]
 # The measures themselves (value columns, ranges, units, wording, families, estimators, exports) are
 # the registry in monitor/measures.py; MEASURES (every code, in registry order) and MEASURE_COLUMNS
 # (code -> its value columns in a long analysis table) are read from it on first use.

@@ -120,6 +120,16 @@ class ModelFamily:
         return self.density == "gaussian"
 
     @property
+    def change_label(self) -> str:
+        """What exp(b1) - 1 is, for a table heading or a sentence: "annual change in the odds"."""
+        return "annual change" if self.change_scale == "count" else f"annual change in the {self.change_scale}"
+
+    @property
+    def has_trials(self) -> bool:
+        """The response is k of n: the family needs the number of trials (cells, pins; 1 for presence)."""
+        return self.density == "binomial"
+
+    @property
     def has_dispersion(self) -> bool:
         return self.dispersion_name is not None
 

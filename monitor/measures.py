@@ -133,6 +133,10 @@ class Measure:
     trial_source: str | None = None      # k-of-n: where n comes from ("grid", "frame")
     minutes_per_quadrat: float = 5.0     # default field effort for one species [min], 1 m^2 quadrat
     entry_unit: str | None = None        # unit shown beside an entry field ("%"), if any
+    #: the value of a species looked for and not found (0), or None where absence has no value (a shoot
+    #: height is measured only on plants present): such a target may be blank on a done visit and is
+    #: never filled with 0
+    absent_value: float | None = 0.0
     aliases: tuple[str, ...] = field(default=())  # other spellings accepted in a file's measure column
 
     @property
@@ -217,6 +221,19 @@ REGISTRY: dict[str, Measure] = {m.code: m for m in (
         quantity="presence", quantity_label=("Stations occupied", "share"), family="binomial", families=("binomial",), estimator=ESTIMATOR_OCCUPANCY,
         sheet_header="{species}:presence", check_name="presence_binary", check="value IN (0, 1)",
         dwc_quantity_type=None, minutes_per_quadrat=1.0),
+    Measure(
+        code=C.MEASURE_SHOOT_HEIGHT, kind=KIND_POSITIVE, columns=(C.HEIGHT,),
+        rule=ValueRule(C.MEASURE_SHOOT_HEIGHT, 0, None, False, False, "cm", "a shoot height in cm, above 0",
+                       above_minimum=True),
+        column_rules=(ColumnRule(C.HEIGHT, 0, None, False, "a shoot height in cm, above 0", above_minimum=True),),
+        description="mean shoot height in the quadrat", unit="cm", label="shoot height",
+        subject="Shoot height of {name}", estimate_unit="cm (geometric mean)", level_unit="cm",
+        quantity="height", quantity_label=("Shoot height", "cm"), family="lognormal", families=("lognormal",),
+        estimator=ESTIMATOR_GEOMETRIC_MEAN, sheet_header="{species}:shoot_height", check_name="height_positive",
+        check="(value > 0 AND n IS NULL)", dwc_quantity_type=None,
+        dwc_facts=(DarwinCoreFact("shoot height", "cm",
+                                  "mean height of the species' shoots in the quadrat, ground to tip"),),
+        minutes_per_quadrat=3.0, entry_unit="cm", absent_value=None),
 )}
 
 
@@ -244,6 +261,13 @@ def k_of_n_codes() -> tuple[str, ...]:
 def by_columns() -> list[tuple[tuple[str, ...], str]]:
     """(value columns, code), most columns first: how a plain table's columns name its measure."""
     return sorted(((m.columns, code) for code, m in REGISTRY.items()), key=lambda item: -len(item[0]))
+
+
+def zero_when_absent(code: str) -> bool:
+    """A target of this measure left blank on a done visit is a missing value (or, where blanks mean zero,
+    a 0), rather than a measure that has no value when the species is absent."""
+    entry = REGISTRY.get(code)
+    return entry is None or entry.absent_value is not None
 
 
 def _sql_list(values) -> str:

@@ -27,6 +27,9 @@ one line naming the file, the key and what was expected, never replaced by a def
     From this many years with data the trend engine fits a year random effect by default (with an
     intercept and a slope at the year level, 5 years leave 3 df for the year-to-year variance);
     the power study's approximation follows the same rule.
+``FEW_QUADRATS``
+    Below this many quadrats a season's estimate (density, total, cover, gradient) carries a caution
+    in the command's output and the report (common practice).
 ``DEFAULT_SETUP_MINUTES``, ``DEFAULT_TIME_ZONE``, ``DEFAULT_PROTOCOL_DESCRIPTION``
     Minutes per station for relocating, marking and photographs; the zone of field days in calendar
     files; the protocol named in exported metadata when the programme names none.
@@ -54,6 +57,7 @@ FIELD_PACKS_OUTSIDE = "field_packs_for_outside_crews"
 MIN_TREND_YEARS = 5           # common practice minimum for a trend call
 MIN_TREND_STATIONS = 10       # common practice minimum for a trend call and for a placement
 MIN_YEAR_EFFECT_YEARS = 5     # a year random effect is fitted by default from this many years with data
+FEW_QUADRATS = 10             # below this many quadrats a season's estimate is flagged; common practice
 DEFAULT_SETUP_MINUTES = 10.0  # minutes per station (relocating, marking, photo); common practice
 DEFAULT_TIME_ZONE = "UTC"
 DEFAULT_PROTOCOL_DESCRIPTION = "permanent quadrat monitoring"
@@ -346,7 +350,7 @@ def settings_field_names() -> tuple[str, ...]:
 
 
 __all__ = ["DEFAULT_CHANGE_MARGIN", "DEFAULT_PROTOCOL_DESCRIPTION", "DEFAULT_SETUP_MINUTES", "DEFAULT_TIME_ZONE",
-           "FIELD_PACKS_OUTSIDE", "GENERALISE_M", "MIN_TREND_STATIONS", "MIN_TREND_YEARS", "MIN_YEAR_EFFECT_YEARS",
+           "FEW_QUADRATS", "FIELD_PACKS_OUTSIDE", "GENERALISE_M", "MIN_TREND_STATIONS", "MIN_TREND_YEARS", "MIN_YEAR_EFFECT_YEARS",
            "ProgrammeSettings", "SETTINGS_KEYS", "STORED_KEYS", "TRIGGER_KINDS", "TriggerSetting", "change_margin",
            "margin_problem", "parse_settings", "programme_settings", "time_zone_problem", "trigger_problem",
            "year_effect_by_default"]

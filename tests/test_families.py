@@ -109,3 +109,80 @@ def test_densities_of_one_family_keep_their_own_dispersion_when_interleaved():
 
     mu = np.exp(eta)
     assert first == pytest.approx(stats.nbinom.logpmf(y1, 1.5, 1.5 / (1.5 + mu)), rel=1e-12)
+
+
+# --- every registered family through every stage ----------------------------------------------------------
+#: a first-year level on the data scale for the simulation below (invented, for simulation only);
+#: a new family needs a line here
+LEVEL = {"poisson": 6.0, "poisson-lognormal": 6.0, "negbin": 6.0, "binomial": 0.4, "logit-normal": 0.2,
+         "lognormal": 20.0}
+TRUE_CHANGE = -0.08   # a year
+
+
+def _measure_of(name: str) -> str:
+    from monitor import measures
+
+    served = [code for code, m in measures.REGISTRY.items() if name in m.families]
+    assert served, f"no measure of the registry is fitted with family {name!r}"
+    return served[0]
+
+
+def test_every_measure_names_registered_families_that_serve_it():
+    from monitor import measures
+
+    for code, m in measures.REGISTRY.items():
+        assert m.family in m.families, code
+        for name in m.families:
+            assert family(name).serves(code), (code, name)
+    assert set(NAMES) == {name for m in measures.REGISTRY.values() for name in m.families}
+
+
+@pytest.mark.parametrize("name", NAMES)
+def test_every_family_through_simulation_fit_power_and_wording(name):
+    from monitor.power import approximate_power, components_from_trend
+    from monitor.report.wording import caveat_sentences
+
+    fam = family(name)
+    measure = _measure_of(name)
+    # power: the family simulates the measure's columns
+    extra = {fam.dispersion_field: (4.0 if fam.dispersion_field == "theta" else 0.3)} if fam.has_dispersion else {}
+    if fam.observation_effect == "always":
+        extra["observation_sd"] = 0.2
+    if fam.has_trials:
+        extra["trials"] = 1 if measure == C.MEASURE_PRESENCE else 25
+    components = VarianceComponents.from_mean(name, LEVEL[name], station_sd=0.4, year_sd=0.05, measure=measure,
+                                              **extra)
+    design = Design(n_stations=40, n_years=8)
+    data = simulate_dataset(components, design, Scenario(TRUE_CHANGE), np.random.default_rng(2026))
+    for column in C.MEASURE_COLUMNS[measure]:
+        assert column in data.columns
+    assert fam.check_values(data[C.MEASURE_COLUMNS[measure][0]].to_numpy(float)) is None
+    # trend: the engine fits the family to it and recovers the change (a 4-SE limit)
+    result = TrendModel(data, measure, family=name, site_effect=False).fit(profile=False, indices=True, fast=False)
+    assert result.family == name and result.change_scale == fam.change_scale and result.converged
+    assert abs(result.slope - math.log1p(TRUE_CHANGE)) < 4 * result.slope_se * result.se_scale
+    assert (result.dispersion is None) == (not fam.has_dispersion)
+    if fam.has_dispersion:
+        assert fam.dispersion_name in result.summary()
+    assert result.trend_line is not None and np.all(np.isfinite(result.trend_line["fit"]))
+    # power: the fit's components carry the family and its dispersion back; the approximation runs
+    back = components_from_trend(result, data=data)
+    assert back.family == name and back.measure == measure
+    if fam.has_dispersion:
+        assert getattr(back, fam.dispersion_field) == pytest.approx(result.dispersion)
+    assert 0 < approximate_power(back, design, Scenario(TRUE_CHANGE)).power <= 1
+    # report: the family's description and sentences
+    assert describe(name) == fam.description
+    caveats = caveat_sentences(40, 8, 2001, 2008, family=name, dispersion=result.dispersion)
+    assert (fam.rate_note in caveats) if fam.rate_note else all(isinstance(c, str) for c in caveats)
+
+
+def test_the_command_line_offers_every_family():
+    from click.testing import CliRunner
+
+    from monitor.cli.main import cli
+
+    for command in (["trend", "--help"], ["power", "--help"]):
+        out = CliRunner().invoke(cli, command, terminal_width=400).output
+        for name in NAMES:
+            assert name in out, (command, name)

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import contextlib
 import csv
+import dataclasses
 import datetime as dt
 import json
 import math
@@ -83,6 +84,14 @@ def test_columns_glossary_follows_the_registry():
     assert C.MEASURES == measures.codes()
     assert C.MEASURE_COLUMNS == {code: m.columns for code, m in measures.REGISTRY.items()}
     assert [c for c, _ in measures.by_columns()][0] in [m.columns for m in measures.REGISTRY.values()]
+
+
+@pytest.mark.parametrize("code", measures.codes())
+def test_a_plain_tables_columns_name_its_measure(code):
+    """``monitor trend --table``: the value columns of a table say which measure it holds (k of n before
+    the single columns, so occupied+cells is frequency)."""
+    columns = {C.STATION, C.YEAR, *measures.REGISTRY[code].columns}
+    assert [m for cols, m in measures.by_columns() if set(cols) <= columns][0] == code
 
 
 def test_registry_is_a_leaf():
@@ -270,7 +279,7 @@ def _check_darwin_core(archive: Path, m: measures.Measure) -> None:
 def test_every_measure_through_the_services(code, tmp_path):
     """The same walk as a user runs it: set-up, import into a database, estimates, trend, power, report
     folder and Darwin Core export from the database (slow: about half a minute a measure)."""
-    from monitor.services import estimate, exports, power, records, report, setup, trend
+    from monitor.services import estimate, exports, imports, power, report, setup, trend
 
     m = measures.REGISTRY[code]
     db = str(tmp_path / "programme.sqlite")
@@ -282,7 +291,7 @@ def test_every_measure_through_the_services(code, tmp_path):
         files = _write_seasons(folder, m, stations, n)
     with stage(code, "import"):
         for path in files:
-            records.import_records(db, path)
+            imports.import_records(db, path)
     with stage(code, "estimates"):
         table = estimate.season_table(db, YEARS[-1])
         row = table[(table["species"] == SPECIES) & (table["measure"] == code)]
@@ -310,3 +319,25 @@ def test_every_measure_through_the_services(code, tmp_path):
             f"the report does not word the measure ({m.label!r})"
     with stage(code, "Darwin Core export"):
         _check_darwin_core(exports.export_dwca(db, tmp_path / "dwca.zip"), m)
+
+
+def test_a_measure_without_an_absent_value_may_be_blank_and_is_never_filled_with_zero():
+    """A shoot height exists only where the plant is: a blank on a done visit is no error, and a programme
+    whose blanks mean zero adds no 0 for it (a 0 cm height would break its own rule); a count still is."""
+    from monitor.io.validate import Reference, fill_blank_targets, validate_records
+    from monitor.schedule.fieldpack import phone_sheet_fields
+
+    visits = pd.DataFrame({C.STATION: ["Q1"], C.DATE: [dt.date(2026, 6, 1)], C.VISIT_STATUS: ["done"],
+                           "source_row": [2]})
+    observations = pd.DataFrame(columns=[C.STATION, C.DATE, C.SPECIES, C.MEASURE, "value", "n", "source_row",
+                                         "source_field"])
+    targets = ((SPECIES, C.MEASURE_SHOOT_HEIGHT), (SPECIES, C.MEASURE_COUNT))
+    species = pd.DataFrame({C.SPECIES: [SPECIES, SPECIES], C.MEASURE: [c for _, c in targets], "n": [None, None]})
+    reference = Reference(stations=pd.DataFrame({C.STATION: ["Q1"]}), species=species, targets=targets,
+                          blanks_mean_zero=False, windows={}, species_windows={}, today=dt.date(2030, 1, 1))
+    problems = validate_records(visits, observations, observations.iloc[:0, :0].assign(), reference)
+    assert [p.field for p in problems] == [f"{SPECIES}:{C.MEASURE_COUNT}"]
+    filled = fill_blank_targets(visits, observations, dataclasses.replace(reference, blanks_mean_zero=True))
+    assert filled[C.MEASURE].tolist() == [C.MEASURE_COUNT] and filled["value"].tolist() == [0.0]
+    zero_buttons = {f["measure"]: f["zero"] for f in phone_sheet_fields(targets)}
+    assert zero_buttons == {C.MEASURE_SHOOT_HEIGHT: False, C.MEASURE_COUNT: True}

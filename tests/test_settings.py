@@ -188,3 +188,19 @@ def test_the_year_effect_rule_is_the_settings():
         # the power study's approximation judges the engine's slope on t(n - 2) exactly where it fits one
         df = analysis_df("trend", Design(n_stations=20, n_years=n), None)
         assert df == (n - 2 if expected else math.inf)
+
+
+def test_few_quadrats_is_one_setting():
+    from monitor.estimate import FEW_QUADRATS
+    from monitor.report.context import ReportContext
+    from monitor.report.wording import few_quadrats_note
+
+    assert FEW_QUADRATS == settings.FEW_QUADRATS
+    assert ReportContext.__dataclass_fields__["few_quadrats_threshold"].default == settings.FEW_QUADRATS
+    assert f"Fewer than {settings.FEW_QUADRATS} quadrats" in few_quadrats_note()
+    # no module or template spells the threshold as a literal beside the word quadrats
+    literal = re.compile(rf"\b{settings.FEW_QUADRATS} quadrats|\bn\W* < {settings.FEW_QUADRATS}\b")
+    offenders = [str(p.relative_to(REPO_ROOT)) for folder in ("monitor", "templates")
+                 for p in (REPO_ROOT / folder).rglob("*.*") if p.suffix in (".py", ".html")
+                 and p.name != "settings.py" and literal.search(p.read_text(encoding="utf-8"))]
+    assert offenders == []

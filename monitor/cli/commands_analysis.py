@@ -7,12 +7,13 @@ from pathlib import Path
 
 import click
 
+from monitor import measures
 from monitor.cli.main import Context, cli
 from monitor.cli.output import chosen_format, emit, format_option, progress, say
 from monitor.cli.tables import trend_number_rows, write_workbook, xlsx_option
 from monitor.families import FAMILIES
 from monitor.families import NAMES as FAMILY_NAMES
-from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_YEAR_EFFECT_YEARS, change_margin
+from monitor.settings import DEFAULT_CHANGE_MARGIN, FEW_QUADRATS, MIN_YEAR_EFFECT_YEARS, change_margin
 
 
 def _pct(x: float | None) -> str:
@@ -99,8 +100,8 @@ def parallel_options(func):
 @click.option("--refit", is_flag=True, help="Fit again even where a stored fit of the same data and model exists.")
 @parallel_options
 @click.option("--table", "table", type=click.Path(exists=True, dir_okay=False, path_type=Path), default=None,
-              help="Fit a long table from elsewhere (station, year, optional site, and count / cover_pct / "
-                   "occupied+cells / hits+pins / present) instead of the database.")
+              help="Fit a long table from elsewhere (station, year, optional site, and the columns of one measure: "
+                   + " / ".join("+".join(m.columns) for m in measures.REGISTRY.values()) + ") instead of the database.")
 @click.option("--margin", type=float, default=None,
               help=f"Margin of change that matters, fraction a year (with --table; default {DEFAULT_CHANGE_MARGIN:g}).")
 @format_option
@@ -207,7 +208,7 @@ def estimate_rows(table) -> list[dict]:
         if r.get("total") is not None and r["total"] == r["total"]:
             row["site total (95% CI)"] = f"{r['total']:,.0f} ({r['total_lower']:,.0f} to {r['total_upper']:,.0f})"
             row["quadrats for +/-20%"] = r.get("quadrats_needed")
-        row["caution"] = "fewer than 10 quadrats" if r["n"] < 10 else ""
+        row["caution"] = f"fewer than {FEW_QUADRATS} quadrats" if r["n"] < FEW_QUADRATS else ""
         rows.append(row)
     return rows
 
@@ -408,7 +409,7 @@ def power_command(ctx: Context, species, family, mean, station_sd, site_sd, obs_
                "site_year_sd": sd_site_year or 0.0, "year_rho": year_rho or 0.0}
         fam = FAMILIES[family]
         sds["residual_sd" if fam.dispersion_field == "residual_sd" else "observation_sd"] = obs_sd
-        if fam.density == "binomial":
+        if fam.has_trials:
             sds["trials"] = trials if trials is not None else 1
         components, source = VarianceComponents.from_mean(family, mean, **sds), "values given"
     station_list, year_list = _int_list(stations), _int_list(years)

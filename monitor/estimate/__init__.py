@@ -66,6 +66,7 @@ from .density import (
     estimate_density_stratified,
 )
 from .gradient import GradientFit, GradientResult, estimate_gradient
+from .lengths import GeometricMeanEstimate, estimate_geometric_mean
 from .plots import plot_gradient, plot_proportions, plot_running_mean, plot_season_comparison
 from .season import PLACEMENT, season_estimates
 
@@ -74,6 +75,7 @@ __all__ = [
     "PLACEMENT",
     "CoverEstimate",
     "DensityEstimate",
+    "GeometricMeanEstimate",
     "GradientFit",
     "GradientResult",
     "ProportionEstimate",
@@ -91,6 +93,7 @@ __all__ = [
     "estimate_density",
     "estimate_density_stratified",
     "estimate_frequency",
+    "estimate_geometric_mean",
     "estimate_gradient",
     "estimate_pin_cover",
     "plot_gradient",

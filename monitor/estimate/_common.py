@@ -12,9 +12,9 @@ import pandas as pd
 from scipy import stats
 
 from monitor.errors import Diagnostic, EstimationError
+# below this many quadrats an estimate carries a "few_quadrats" warning (one default: monitor/settings.py)
+from monitor.settings import FEW_QUADRATS as FEW_QUADRATS
 
-#: below this many quadrats an estimate carries a "few_quadrats" warning (common practice)
-FEW_QUADRATS = 10
 
 
 def _plain(value: Any) -> Any:
@@ -104,7 +104,7 @@ def require_n(n: int, minimum: int, what: str) -> None:
 
 
 def few_quadrats(n: int, what: str = "estimate") -> tuple[Diagnostic, ...]:
-    """The <10 quadrats warning (common practice)."""
+    """The few-quadrats warning (below ``FEW_QUADRATS``; common practice)."""
     if n < FEW_QUADRATS:
         return (
             Diagnostic(

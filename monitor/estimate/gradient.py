@@ -33,7 +33,7 @@ from scipy import stats
 from monitor import columns as C
 from monitor.errors import Diagnostic, EstimationError
 
-from ._common import Result, check_confidence, numeric_column, require_columns, z_quantile
+from ._common import FEW_QUADRATS, Result, check_confidence, numeric_column, require_columns, z_quantile
 
 FAMILIES = ("poisson", "negative_binomial", "auto")
 OVERDISPERSED = 1.5
@@ -110,9 +110,9 @@ def _fit_one(
     rho, p_rho = stats.spearmanr(x, y)
     design = np.column_stack([np.ones_like(x), x])
     diagnostics: list[Diagnostic] = []
-    if n < 10:
+    if n < FEW_QUADRATS:
         diagnostics.append(
-            Diagnostic("few_quadrats", f"The {label} rests on {n} quadrats (fewer than 10).")
+            Diagnostic("few_quadrats", f"The {label} rests on {n} quadrats (fewer than {FEW_QUADRATS}).")
         )
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")

@@ -13,6 +13,7 @@ from ._common import check_positive_area, few_quadrats, numeric_column, require_
 from .adequacy import quadrats_needed
 from .cover import estimate_cover, pooled_proportion, wilson_interval
 from .density import combine_strata, estimate_density, estimate_density_stratified
+from .lengths import estimate_geometric_mean
 
 #: station-table column saying how a station's position was chosen (values: monitor.columns.PLACEMENTS)
 PLACEMENT = "placement"
@@ -170,6 +171,16 @@ def _row_presence(rows, confidence) -> dict:
     }
 
 
+def _row_geometric_mean(rows, entry, confidence) -> dict:
+    what = f"{entry.label} estimate"
+    est = estimate_geometric_mean(numeric_column(rows, entry.value_column, what), confidence=confidence, what=what,
+                                  unit=entry.unit)
+    return {
+        "n": est.n, "estimate": est.geometric_mean, "se": est.se, "lower": est.lower, "upper": est.upper,
+        "note": est.note, "_diagnostics": list(est.diagnostics),
+    }
+
+
 def season_estimates(
     obs: pd.DataFrame,
     stations: pd.DataFrame,
@@ -283,6 +294,8 @@ def season_estimates(
                 row = _row_presence(rows, confidence)
             elif entry.estimator == measures.ESTIMATOR_PROPORTION:
                 row = _row_proportion(rows, measure, confidence)
+            elif entry.estimator == measures.ESTIMATOR_GEOMETRIC_MEAN:
+                row = _row_geometric_mean(rows, entry, confidence)
             else:
                 raise EstimationError(f"no single-round estimator {entry.estimator!r} (measure {measure})")
         except EstimationError as error:

@@ -208,6 +208,60 @@ def _not_a_table(data: bytes, path: Path, file: str) -> None:
                                   "program and save it as CSV (comma-separated, UTF-8) or .xlsx"))
 
 
+# --- CSV read as a stream -------------------------------------------------------------------------
+#: bytes read at a time when a CSV file is scanned before it is read line by line
+BLOCK = 1 << 20
+
+
+def _streamable(path: Path) -> tuple[bool, str, bool] | None:
+    """Scan a file once, a block at a time, without keeping it: (holds anything but white space, encoding,
+    CRLF line ends) when it can be read line by line: UTF-8 throughout (a UTF-8 byte-order mark allowed),
+    no NUL byte, lines ending in LF or CRLF.  None otherwise: then the whole file is decoded at once by
+    the encoding rule above, which also words every refusal (a stray byte, a NUL, a lone CR)."""
+    decoder = codecs.getincrementaldecoder("utf-8")()
+    anything = False
+    carriage, crlf, after_cr = 0, 0, False
+    encoding = "utf-8"
+    with path.open("rb") as handle:
+        first = True
+        while block := handle.read(BLOCK):
+            if first:
+                encoding = "utf-8-sig" if block.startswith(codecs.BOM_UTF8) else "utf-8"
+                first = False
+            if b"\x00" in block:
+                return None
+            try:
+                decoder.decode(block)
+            except UnicodeDecodeError:
+                return None
+            anything = anything or bool(block.strip())
+            carriage += block.count(b"\r")
+            crlf += block.count(b"\r\n") + (1 if after_cr and block.startswith(b"\n") else 0)
+            after_cr = block.endswith(b"\r")
+    try:
+        decoder.decode(b"", final=True)
+    except UnicodeDecodeError:
+        return None
+    if carriage != crlf:
+        return None  # a lone CR ends a line: the whole-text reading splits there
+    return anything, encoding, carriage > 0
+
+
+def _file_lines(path: Path, encoding: str, crlf: bool) -> Iterator[str]:
+    """The lines of a file that :func:`_streamable` passed, decoded one at a time (LF line ends)."""
+    with path.open("rb") as handle:
+        first = True
+        for raw in handle:
+            line = raw.decode("utf-8")  # a '\\n' byte never falls inside a UTF-8 sequence
+            if first:
+                if encoding == "utf-8-sig" and line.startswith("\ufeff"):
+                    line = line[1:]
+                first = False
+            if crlf and line.endswith("\r\n"):
+                line = line[:-2] + "\n"
+            yield line
+
+
 # --- CSV -----------------------------------------------------------------------------------------
 def _lines(text: str) -> Iterator[str]:
     """The text's lines, each with its '\\n', one at a time (no copy of the whole text)."""
@@ -219,13 +273,19 @@ def _lines(text: str) -> Iterator[str]:
         start = stop
 
 
-def _csv_rows(text: str, file: str) -> Iterator[tuple[int, list[str]]]:
-    """Split CSV text (RFC 4180) into (line number, cells), one row at a time; blank lines dropped."""
+def _csv_rows(text: str | Iterable[str], file: str) -> Iterator[tuple[int, list[str]]]:
+    """Split CSV text (RFC 4180), or its lines each ending in '\\n', into (line number, cells), one row at a
+    time; blank lines dropped."""
     # csv.field_size_limit is process-global; we guard length ourselves instead of raising it.
-    if "\r" in text:
-        text = text.replace("\r\n", "\n").replace("\r", "\n")
-    _check_separator(text, file)
-    reader = csv.reader(_lines(text), strict=True)
+    if isinstance(text, str):
+        if "\r" in text:
+            text = text.replace("\r\n", "\n").replace("\r", "\n")
+        lines: Iterator[str] = _lines(text)
+    else:
+        lines = iter(text)
+    first = list(itertools.islice(lines, 20))
+    _check_separator(first, file)
+    reader = csv.reader(itertools.chain(first, lines), strict=True)
     start = 1
     while True:
         try:
@@ -242,10 +302,10 @@ def _csv_rows(text: str, file: str) -> Iterator[tuple[int, list[str]]]:
         yield line, cells
 
 
-def _check_separator(text: str, file: str) -> None:
-    """A file separated by semicolons or tabs (what spreadsheet programs write in some locales) is named so."""
-    lines = [line for line, _ in zip(_lines(text), range(20)) if line.strip()]
-    lines = [line.rstrip("\n") for line in lines]
+def _check_separator(first: list[str], file: str) -> None:
+    """A file separated by semicolons or tabs (what spreadsheet programs write in some locales) is named so
+    (``first``: the file's first lines)."""
+    lines = [line.rstrip("\n") for line in first if line.strip()]
     if not lines:
         return
     header = lines[0]
@@ -453,6 +513,22 @@ def read_raw_table(source: str | os.PathLike[str], *, file: str | None = None, s
     path = Path(source)
     label = file or file_label(path)
     try:
+        with path.open("rb") as handle:
+            head = handle.read(512)
+        scan = None
+        if sheet is None and head[:4] != b"PK\x03\x04" and path.suffix.lower() not in (".xlsx", ".xlsm"):
+            scan = _streamable(path)  # a CSV in UTF-8: read line by line, never held whole
+        if scan is not None:
+            anything, encoding, crlf = scan
+            if not anything:
+                raise InputError(InputProblem(label, None, None, None,
+                                              "a file with a header row and data; it is empty"))
+            _not_a_table(head, path, label)
+            table = table_from_rows(((number, cells, ()) for number, cells
+                                     in _csv_rows(_file_lines(path, encoding, crlf), label)), label)
+            if not stream:
+                table.rows = list(table.rows)
+            return table
         data = path.read_bytes()
     except OSError as exc:
         raise InputError(InputProblem(label, None, None, None, f"a readable file ({exc.strerror})")) from None

@@ -15,6 +15,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from monitor import measures
+
 SHEET_NAME_LIMIT = 31  # Excel's limit on a sheet name (common practice)
 
 
@@ -95,10 +97,30 @@ ENTRY_SHEET = "records"
 LISTS_SHEET = "lists"
 
 
+def _value_validation(header: str) -> dict:
+    """The spreadsheet's check of one value column: the measure's rule from the registry
+    (``SPECIES:measure[/n]``), else (a covariate) a number of 0 or more."""
+    species_measure = header.split(":", 1)
+    code, _, n_text = (species_measure[1] if len(species_measure) == 2 else "").partition("/")
+    entry = measures.REGISTRY.get(code.strip().lower())
+    if entry is None:
+        return {"type": "decimal", "operator": "greaterThanOrEqual", "formula1": "0", "error": "A number of 0 or more"}
+    rule = entry.rule
+    kind = "whole" if rule.whole else "decimal"
+    upper = n_text.strip() if rule.up_to_n and n_text.strip().isdigit() else \
+        (None if rule.maximum is None else f"{rule.maximum:g}")
+    error = "Expected " + rule.wording(int(n_text) if n_text.strip().isdigit() else None)
+    if upper is not None:
+        return {"type": kind, "operator": "between", "formula1": f"{rule.minimum:g}", "formula2": upper, "error": error}
+    operator = "greaterThan" if rule.above_minimum else "greaterThanOrEqual"
+    return {"type": kind, "operator": operator, "formula1": f"{rule.minimum:g}", "error": error}
+
+
 def entry_workbook(path: str | Path, rows: pd.DataFrame, *, statuses: Sequence[str], observers: Sequence[str],
                    value_columns: Sequence[str], title: str | None = None) -> Path:
     """An .xlsx entry sheet: one row per planned visit, drop-down lists for the visit status and the
-    observers, whole or decimal numbers >= 0 in the value columns.
+    observers, and each value column checked by its measure's rule (``monitor.measures``: whole numbers,
+    0-100 for cover, at most n for k of n, above 0 for a length).
 
     ``rows`` holds the visit columns already filled in (station, planned date, ...); the value columns
     are left blank to fill in.  The lists live on a sheet of their own (``lists``), so a list longer
@@ -146,8 +168,7 @@ def entry_workbook(path: str | Path, rows: pd.DataFrame, *, statuses: Sequence[s
         observer.add(f"{column_of('observers')}2:{column_of('observers')}{last}")
         sheet.add_data_validation(observer)
     for name in value_columns:
-        number = DataValidation(type="decimal", operator="greaterThanOrEqual", formula1="0", allow_blank=True,
-                                showErrorMessage=True, errorTitle=name, error="A number of 0 or more")
+        number = DataValidation(**_value_validation(name), allow_blank=True, showErrorMessage=True, errorTitle=name)
         number.add(f"{column_of(name)}2:{column_of(name)}{last}")
         sheet.add_data_validation(number)
     for i, column in enumerate(columns, start=1):

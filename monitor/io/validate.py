@@ -156,8 +156,11 @@ def _missing_targets(visits: pd.DataFrame, observations: pd.DataFrame, reference
     rows = done[H.SOURCE_ROW].to_numpy() if H.SOURCE_ROW in done.columns else np.full(len(done), None)
     stations = done[C.STATION].to_numpy(dtype=object)
     dates = _dates(done[C.DATE]).to_numpy(dtype=object)
-    targets = list(reference.targets)
+    # a measure with no value where the species is absent (a shoot height) may be blank on a done visit
+    targets = [t for t in reference.targets if registry.zero_when_absent(t[1])]
     n_targets = len(targets)
+    if not n_targets:
+        return []
     target_code = {pair: k for k, pair in reversed(list(enumerate(targets)))}
     visit_key, obs_key = _pair_codes(stations, dates, observations[C.STATION].to_numpy(dtype=object),
                                      _dates(observations[C.DATE]).to_numpy(dtype=object))
@@ -548,6 +551,8 @@ def fill_blank_targets(visits: pd.DataFrame, observations: pd.DataFrame, referen
         v = rec._asdict()
         date = _as_date(v[C.DATE])
         for species_code, measure in reference.targets:
+            if not registry.zero_when_absent(measure):
+                continue   # no value exists where the species is absent (a shoot height)
             if (v[C.STATION], date, species_code, measure) not in have:
                 n = n_of.get((species_code, measure))
                 added.append({C.STATION: v[C.STATION], C.DATE: date, C.SPECIES: species_code, C.MEASURE: measure,

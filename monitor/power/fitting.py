@@ -32,6 +32,7 @@ import pandas as pd
 from scipy import stats
 
 from monitor import columns as col
+from monitor import measures
 from monitor.errors import MonitorError
 from monitor.families import family as family_of
 from monitor.power.model import Scenario, VarianceComponents
@@ -154,8 +155,9 @@ def fit_yearly_means(data: pd.DataFrame, components: VarianceComponents, scenari
 def _link_values(data: pd.DataFrame, components: VarianceComponents) -> np.ndarray | None:
     """The family's link of the values (log of a count or length, logit of cover as a fraction);
     None when some value has no finite link (a 0, or a cover of 0 or 100 %)."""
-    values = data[col.MEASURE_COLUMNS[components.measure][0]].to_numpy(float)
-    if components.measure == col.MEASURE_COVER:
+    entry = measures.get(components.measure)
+    values = data[entry.value_column].to_numpy(float)
+    if entry.kind == measures.KIND_PERCENT:
         values = values / 100.0
     with np.errstate(divide="ignore", invalid="ignore"):
         y = family_of(components.family).link(values)

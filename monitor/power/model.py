@@ -59,7 +59,7 @@ def _default_measure(family: str, trials: int) -> str:
     """The measure a simulated table carries by default: the first measure the family serves
     (presence for binomial data with one trial); a family no measure serves yet writes counts."""
     fam = family_of(family)
-    if fam.density == "binomial" and trials == 1:
+    if fam.has_trials and trials == 1:
         return col.MEASURE_PRESENCE
     return next((m for m in col.MEASURES if fam.serves(m)), col.MEASURE_COUNT)
 
@@ -214,7 +214,7 @@ def components_from_trend(result: object, *, trials: int | None = None, data: pd
     )
     if fam.dispersion_field is not None:
         kwargs[fam.dispersion_field] = float(dispersion)
-    if fam.density == "binomial":
+    if fam.has_trials:
         if measure in measures.of_kind(measures.KIND_BINARY):
             trials = 1
         elif trials is None and data is not None:

@@ -28,33 +28,50 @@ from monitor import measures
 from monitor.errors import InputError
 from monitor.families import describe as describe_family
 from monitor.report.compare import SCHEMA, CallChange, compare_with_previous
-from monitor.report.figures import EventMark
 from monitor.report.fits import FitRow
+from monitor.report.figures import EventMark
 from monitor.report.triggers import Trigger, TriggerOutcome, evaluate_triggers
+from monitor.settings import DEFAULT_CHANGE_MARGIN, FEW_QUADRATS
 from monitor.report.wording import (
+    LevelNumbers,
+    level_sentence,
+    odds_trend_sentence,
     CALL_LABEL,
     CALL_MARKER,
     MEASURE_LABEL,
-    LevelNumbers,
     MethodChange,
     TrendNumbers,
     caveat_sentences,
     decline_advice,
     detectable_change_not_computed_sentence,
     detectable_fall_sentence,
-    level_sentence,
-    odds_trend_sentence,
-    percent,
     plain_measures,
     season_label,
     signed_percent,
-    significant,
     summary_texts,
+    few_quadrats_note,
+    density_unit,
+    quantity_text,
+    quantity_interval_text,
+    figure_number,
+    report_title,
+    trigger_cell,
+    headline_sentences,
+    comparison_note,
+    visited_text,
+    model_sentence,
+    indices_figure_alt,
+    indices_figure_caption,
+    MAP_FIGURE_CAPTION,
+    map_figure_alt,
+    gradient_figure_alt,
+    gradient_figure_caption,
+    margin_text,
+    methods_paragraphs,
+    caution_sentences,
     total_floor_note,
     trend_sentence,
-    whole,
 )
-from monitor.settings import DEFAULT_CHANGE_MARGIN, MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 PROBABILITY_PLACEMENTS = (C.PLACEMENT_RANDOM, C.PLACEMENT_STRATIFIED, C.PLACEMENT_BALANCED,
                           C.PLACEMENT_SYSTEMATIC)
@@ -76,7 +93,6 @@ REFERENCES = (
     "schemes for maps. The Cartographic Journal 40(1), 27–37.",
 )
 
-FEW_QUADRATS = 10  # below this many quadrats an estimate is flagged (as monitor.estimate does; common practice)
 
 SOFTWARE = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "Jinja2", "shapely")
 
@@ -475,6 +491,8 @@ class ReportContext:
     site_names: Mapping[str, str] = field(default_factory=dict)
     scope: str = ""                      # "" for the whole programme, else what the report is limited to
     photos: tuple = ()                   # StationPhotos, where stations have repeat photos
+    few_quadrats_note: str = few_quadrats_note()  # the estimates table's footnote for a row marked †
+    few_quadrats_threshold: int = FEW_QUADRATS
     #: target species whose trend could not be called (one season of data, ...), as dicts with the reason
     not_called: tuple[dict, ...] = ()
     fits: tuple[FitRow, ...] = ()        # every fit shown (overall and by area), when it was made
@@ -541,55 +559,12 @@ def slug(text: str) -> str:
     return out[:40] or "x"
 
 
-def _sig(value: float, digits: int = 3) -> str:
-    if value is None or not math.isfinite(value):
-        return "n/a"
-    if value == 0:
-        return "0"
-    magnitude = int(math.floor(math.log10(abs(value))))
-    decimals = digits - 1 - magnitude
-    rounded = round(value, decimals)  # negative decimals round to tens, hundreds, ...
-    if decimals <= 0:
-        return f"{rounded:,.0f}"
-    return f"{rounded:,.{decimals}f}"
 
 
 # each measure's estimate (monitor/measures.py) and a count's site total: column heading and unit
 QUANTITY_LABEL = {"total": ("Estimated total", "")}
 for _measure in measures.REGISTRY.values():
     QUANTITY_LABEL.setdefault(_measure.quantity, _measure.quantity_label)
-
-
-def density_unit(value: float) -> tuple[str, float]:
-    """The unit a density reads best in: per m², or per hectare when below 0.01 per m²."""
-    if value is not None and math.isfinite(value) and 0 < abs(value) < 0.01:
-        return "per ha", 10_000.0
-    return "per m²", 1.0
-
-
-def _format_quantity(quantity: str, value: float, scale: tuple[str, float] | None = None) -> str:
-    """A value of this season's estimates to sensible significant figures (2; totals whole)."""
-    if value is None or not math.isfinite(value):
-        return "n/a"
-    if quantity == "cover":
-        return f"{significant(value, 2)}%"
-    if quantity in ("frequency", "presence"):
-        return f"{significant(value * 100, 2)}%"
-    if quantity == "density":
-        unit, factor = scale or density_unit(value)
-        return f"{significant(value * factor, 2)} {unit}"
-    return whole(value)
-
-
-def _interval_text(quantity: str, lower: float | None, upper: float | None,
-                   scale: tuple[str, float] | None) -> str:
-    """``"8.2 to 18 per m²"``: the unit once, after the upper bound."""
-    if lower is None or upper is None:
-        return "—"
-    if quantity == "density":
-        unit, factor = scale or density_unit(upper)
-        return f"{significant(lower * factor, 2)} to {significant(upper * factor, 2)} {unit}"
-    return f"{_format_quantity(quantity, lower)} to {_format_quantity(quantity, upper)}"
 
 
 def software_versions(extra: Mapping[str, str] | None = None) -> tuple[tuple[str, str], ...]:
@@ -606,11 +581,6 @@ def software_versions(extra: Mapping[str, str] | None = None) -> tuple[tuple[str
         listed = {name for name, _ in pairs}
         pairs.extend((str(k), str(v)) for k, v in extra.items() if str(k) not in listed)
     return tuple(pairs)
-
-
-def _first_lower(text: str) -> str:
-    """Lower-case the first letter only: codes inside a label (transect SM-T) stay as stored."""
-    return text[:1].lower() + text[1:] if text[:1].isupper() and not text[1:2].isupper() else text
 
 
 def _blank(value) -> bool:
@@ -682,19 +652,6 @@ def _change_applies(frame: pd.DataFrame | None, index: int, measure: str) -> boo
         return True
     named = value if isinstance(value, (list, tuple)) else str(value).replace(",", ";").split(";")
     return measure in {str(m).strip() for m in named}
-
-
-def _figure_alt_indices(name: str, measure_label: str, first: int, last: int, annual_text: str,
-                        marks: Sequence[EventMark]) -> str:
-    text = (f"Yearly index of {name} ({measure_label}) from {first} to {last}, relative to {first}, with "
-            f"95% intervals and the fitted trend line, {annual_text}.")
-    events = sorted({f"{m.label} {m.year}" for m in marks if m.kind == "event"})
-    methods = sorted({str(m.year) for m in marks if m.kind == "method"})
-    if events:
-        text += " Management events marked: " + ", ".join(events) + "."
-    if methods:
-        text += " Method changed in " + ", ".join(methods) + "."
-    return text
 
 
 class _CallView:
@@ -835,20 +792,12 @@ def build_report_context(
     if not trend_results:
         raise InputError("no trend results to report")
     names = dict(species_names or {})
-    estimates_df = _frame(estimates, "estimates")
-    coverage_df = _frame(coverage, "coverage")
-    flags_df = _frame(quality_flags, "quality_flags")
-    events_df = _frame(events, "events")
-    power_df = _frame(power, "power")
-    method_df = _frame(method_changes, "method_changes")
-    changes, change_species = _method_changes(method_df)
     site_names = {str(k): str(v) for k, v in (site_names or {}).items() if not _blank(v)}
-    site_of = ({str(s): str(t) for s, t in zip(stations[C.STATION], stations[C.SITE], strict=True)}
-               if stations is not None and C.SITE in stations.columns else {})
+    events_df = _frame(events, "events")
     if events_df is not None and len(events_df):
         _require(events_df, [C.YEAR], "events")
-    station_changes = station_changes or {}
-    gradients = gradients or {}
+    method_df = _frame(method_changes, "method_changes")
+    changes, change_species = _method_changes(method_df)
 
     # one interval throughout: the one the call was made from (profile likelihood when the engine gives
     # it, else the engine's own), so the headline, the triggers and "why this call" agree to the digit
@@ -858,322 +807,321 @@ def build_report_context(
     for outcome in outcomes:
         by_key.setdefault((outcome.trigger.species, outcome.trigger.measure), []).append(outcome)
 
-    power_rows: dict[tuple[str, str], PowerRow] = {}
-    if power_df is not None and len(power_df):
-        _require(power_df, [C.SPECIES, C.MEASURE, "detectable_change"], "power")
-        for row in power_df.to_dict("records"):
-            sp, ms = str(row[C.SPECIES]), str(row[C.MEASURE])
-            pw = float(row.get("power", 0.8) or 0.8)
-            ns = row.get("n_stations")
-            ny = row.get("n_years")
-            ns = None if ns is None or (isinstance(ns, float) and math.isnan(ns)) else int(ns)
-            ny = None if ny is None or (isinstance(ny, float) and math.isnan(ny)) else int(ny)
-            change = row.get("detectable_change")
-            change = None if change is None or not math.isfinite(float(change)) else float(change)
-            if change is None:  # never "nan%": say that it could not be computed, and why
-                text = detectable_change_not_computed_sentence(str(row.get("note") or ""))
-            else:
-                text = detectable_fall_sentence(change, pw, ns, ny)
-            power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms),
-                                            change, pw, ns, ny, text)
-
-    summary: list[SummaryRow] = []
-    sections: list[SpeciesSection] = []
-    margins = set()
-    families = set()
-    random_effects: set[str] = set()
-    for i, ((sp, ms), result) in enumerate(call_views.items()):
-        name = names.get(sp, sp)
-        annual = Interval.from_any(_attr(result, "annual_change"))
-        period = Interval.from_any(_attr(result, "period_change"))
-        first, last = (int(y) for y in _attr(result, "years"))
-        call = str(_attr(result, "call", C.CALL_UNCLEAR))
-        margin = float(programme.margin if programme.margin is not None else _attr(result, "margin", DEFAULT_CHANGE_MARGIN))
-        margins.add(margin)
-        family = str(_attr(result, "family", ""))
-        families.add(family)
-        n_stations = int(_attr(result, "n_stations", 0))
-        n_years = int(_attr(result, "n_years", last - first + 1))
-        measure_label = MEASURE_LABEL.get(ms, ms)
-        outs = by_key.get((sp, ms), [])
-        if not outs:
-            trigger_state, trigger_text = "none", "none set"
-        elif any(o.fired for o in outs):
-            trigger_state, trigger_text = "fired", "\u26a0 Fired"
-        else:
-            trigger_state, trigger_text = "not fired", "Not fired"
-        anchor = f"sp-{i + 1}"
-        # k-of-n and cover rates are changes in the odds: labelled so wherever they are printed, and a
-        # share's row leads with the change of the share itself (percentage points)
-        odds = str(_attr(result, "change_scale", "count") or "count") != "count"
-        numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last,
-                               call, margin)
-        level = _level_numbers(_attr(result, "level_change"))
-        texts = summary_texts(numbers, period.lower, period.upper, odds=odds, level=level)
-        annual_text = texts.annual_text
-        share_change = (Interval(level.difference, level.difference_lower, level.difference_upper)
-                        if odds and level is not None and level.is_share else None)
-        row = SummaryRow(
-            species=sp, species_name=name, measure=ms, measure_label=measure_label, anchor=anchor,
-            call=call, call_label=CALL_LABEL.get(call, call), marker=CALL_MARKER.get(call, "?"),
-            annual_change=annual, period_change=period,
-            annual_text=annual_text,
-            period_text=texts.period_text,
-            annual_estimate_text=texts.annual_estimate_text,
-            annual_ci_text=texts.annual_ci_text,
-            period_estimate_text=texts.period_estimate_text,
-            period_ci_text=texts.period_ci_text,
-            first_year=first, last_year=last, n_stations=n_stations, n_years=n_years,
-            n_obs=int(_attr(result, "n_obs", 0)), family=family, margin=margin,
-            trigger_state=trigger_state, trigger_text=trigger_text,
-            call_line=texts.call_line, share_change=share_change,
-        )
-        summary.append(row)
-
-        if odds and level is not None:
-            paragraph = odds_trend_sentence(name, ms, numbers, level)
-        else:
-            paragraph = trend_sentence(name, ms, numbers) + ("" if level is None else " " + level_sentence(level))
-        random_sd = dict(_attr(result, "random_sd", {}) or {})
-        random_effects.update(random_sd)
-        diagnostics = tuple(
-            (str(getattr(d, "code", "")), str(getattr(d, "message", "")), str(getattr(d, "severity", "warning")))
-            for d in (_attr(result, "diagnostics", ()) or ())
-        )
-        applies = [_change_applies(method_df, k, ms) for k in range(len(changes))]
-        sp_changes = [(c, s) for c, s, ok in zip(changes, change_species, applies, strict=True)
-                      if ok and (s is None or s == sp)]
-        caveats = caveat_sentences(
-            n_stations, n_years, first, last,
-            observation_sd=random_sd.get("observation"),
-            family=family, dispersion=_attr(result, "dispersion"),
-            method_changes=[c for c, _ in sp_changes], diagnostics=diagnostics,
-            converged=bool(_attr(result, "converged", True)),
-        )
-        changes_df_sp = station_changes.get((sp, ms))
-        species_sites = None
-        if changes_df_sp is not None and len(changes_df_sp) and site_of:
-            species_sites = {site_of[s] for s in changes_df_sp[C.STATION].astype(str) if s in site_of}
-        marks = _marks_for(sp, events_df, [c for c, _ in sp_changes], [s for _, s in sp_changes], first, last,
-                           species_sites)
-        indices = _attr(result, "indices")
-        fitted = _attr(result, "fitted_trend")
-        # the yearly estimates and the fitted line on the measure's own scale, one baseline, where the fit has them
-        yearly, line = _attr(result, "yearly"), _attr(result, "trend_line")
-        value_label = ""
-        if yearly is not None and line is not None and len(yearly):
-            indices = pd.DataFrame(yearly).rename(columns={"estimate": "index"})
-            fitted = line
-            value_label = str(_attr(result, "natural_unit", "") or "")
-        stem = f"{i + 1:02d}-{slug(sp)}-{slug(ms)}"
-        figures = []
-        if indices is not None and len(indices):
-            figures.append(FigureRef(
-                key=f"{stem}-indices", kind="indices",
-                alt=_figure_alt_indices(name, measure_label, first, last, annual_text, marks),
-                caption=("Yearly estimates (points, 95% intervals) and fitted trend (line, 95% band), "
-                         + (f"as {value_label}." if value_label else f"relative to {first}.")),
-            ))
-        changes_df = station_changes.get((sp, ms))
-        station_frame = None
-        if stations is not None and len(stations):
-            _require(stations, [C.STATION, C.X, C.Y], "stations")
-            station_frame = stations
-            if changes_df is not None and len(changes_df):
-                _require(changes_df, [C.STATION, "annual_change"], "station_changes")
-                values = pd.to_numeric(changes_df["annual_change"], errors="coerce")
-                n_fall = int((values < 0).sum())
-                n_rise = int((values >= 0).sum())
-                n_none = int(len(stations) - n_fall - n_rise)
-            else:
-                n_fall = n_rise = 0
-                n_none = len(stations)
-            figures.append(FigureRef(
-                key=f"{stem}-map", kind="map",
-                alt=(f"Map of {len(stations)} stations"
-                     + (f" in {len(sites)} sites" if sites else "")
-                     + f" coloured by each station's own annual change in {name}: {n_fall} falling "
-                       f"(down triangles), {n_rise} rising (up triangles), {n_none} with too few years "
-                       "(open circles)."),
-                caption=("Stations coloured by their own change (orange falling, purple rising); open circles: "
-                         "too few years for a station's own trend; grey crosses: never recorded there. "
-                         "Grid north is up."),
-            ))
-        gradient = gradients.get((sp, ms))
-        if gradient is not None:
-            _require(gradient.frame, ["gradient", "value"], "gradient")
-            g = gradient.frame[["gradient", "value"]].dropna()
-            figures.append(FigureRef(
-                key=f"{stem}-gradient", kind="gradient",
-                alt=(f"{gradient.value_label} of {name} against {gradient.gradient_label} in {season} at "
-                     f"{len(g)} stations, from {_sig(g['gradient'].min())} to {_sig(g['gradient'].max())}."),
-                caption=f"{season}: {_first_lower(gradient.value_label)} against {_first_lower(gradient.gradient_label)}.",
-            ))
-        n_sites = int(_attr(result, "n_sites", 0) or 0)
-        model_text = (
-            f"Model: {describe_family(family)}; {row.n_obs:,} values from {n_stations} stations"
-            + (f" in {n_sites} sites" if n_sites else "")
-            + f", {n_years} seasons {first}–{last}."
-        )
-        has_trigger = bool(by_key.get((sp, ms)))
-        fired_here = any(o.fired for o in by_key.get((sp, ms), ()))
-        advice = None if fired_here else decline_advice(name, call, annual.estimate, annual.upper, has_trigger,
-                                                               margin)
-        sections.append(SpeciesSection(
-            summary=row, paragraph=paragraph, caveats=tuple(caveats),
-            call_reason=str(_attr(result, "call_reason", "")), model_text=model_text,
-            indices=None if indices is None else pd.DataFrame(indices)[[C.YEAR, "index", "lower", "upper"]],
-            fitted_trend=None if fitted is None else pd.DataFrame(fitted)[[C.YEAR, "fit", "lower", "upper"]],
-            marks=marks, stations=station_frame, station_changes=changes_df, gradient=gradient,
-            figures=tuple(figures), triggers=tuple(by_key.get((sp, ms), ())),
-            power=power_rows.get((sp, ms)), advice=advice, interval_method=result.interval_method,
-            value_label=value_label,
-        ))
-
-    # this season's estimates
-    estimate_rows: list[EstimateRow] = []
-    if estimates_df is not None and len(estimates_df):
-        _require(estimates_df, [C.SPECIES, C.MEASURE, C.SITE, "quantity", "estimate"], "estimates")
-        for row in estimates_df.to_dict("records"):
-            q = str(row["quantity"])
-            label, _unit = QUANTITY_LABEL.get(q, (q, ""))
-            lo, hi = row.get("lower"), row.get("upper")
-            lo = None if lo is None or pd.isna(lo) else float(lo)
-            hi = None if hi is None or pd.isna(hi) else float(hi)
-            ns = row.get("n_stations")
-            ns = None if ns is None or pd.isna(ns) else int(ns)
-            value = float(row["estimate"])
-            # one unit for the estimate and both bounds of a row (per ha when the density is tiny)
-            scale = density_unit(max(abs(value), abs(hi or 0.0))) if q == "density" else None
-            notes: list[str] = []
-            counted = row.get("counted")
-            if q == "total" and lo is not None and counted is not None and not pd.isna(counted) \
-                    and counted > 0 and abs(lo - float(counted)) < 0.5:
-                notes.append(total_floor_note(float(counted)))
-            site = str(row[C.SITE])
-            estimate_rows.append(EstimateRow(
-                species=str(row[C.SPECIES]), species_name=names.get(str(row[C.SPECIES]), str(row[C.SPECIES])),
-                measure_label=MEASURE_LABEL.get(str(row[C.MEASURE]), str(row[C.MEASURE])),
-                site=site, quantity=q, quantity_label=label,
-                estimate=value, lower=lo, upper=hi,
-                estimate_text=_format_quantity(q, value, scale),
-                interval_text=_interval_text(q, lo, hi, scale),
-                n_stations=ns, site_name=site_names.get(site, ""), notes=tuple(notes),
-                few_quadrats=ns is not None and ns < FEW_QUADRATS,
-            ))
-
-    # coverage
-    coverage_obj = None
-    if coverage_df is not None or flags_df is not None:
-        site_rows: list[CoverageRow] = []
-        total = None
-        if coverage_df is not None and len(coverage_df):
-            _require(coverage_df, [C.SITE, "due", "visited", "missed", "inaccessible"], "coverage")
-
-            def cov_row(site, due, visited, missed, inaccessible):
-                share = f" ({visited / due * 100:.0f}%)" if due else ""
-                return CoverageRow(str(site), int(due), int(visited), int(missed), int(inaccessible),
-                                   f"{int(visited)} of {int(due)}{share}", site_names.get(str(site), ""))
-
-            for r in coverage_df.to_dict("records"):
-                site_rows.append(cov_row(r[C.SITE], r["due"], r["visited"], r["missed"], r["inaccessible"]))
-            total = cov_row("All sites", *(int(coverage_df[c].sum())
-                                           for c in ("due", "visited", "missed", "inaccessible")))
-        seasons = tuple(SeasonsRow(r.species, r.species_name, r.measure_label, r.n_years, r.first_year,
-                                   r.last_year) for r in summary)
-        flags: list[QualityFlag] = []
-        if flags_df is not None and len(flags_df):
-            _require(flags_df, ["message"], "quality_flags")
-            for r in flags_df.to_dict("records"):
-                if "status" in r and str(r["status"]).lower() != "open":
-                    continue
-
-                def text(v):
-                    return "" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v)
-
-                flags.append(QualityFlag(text(r.get(C.STATION)), season_label(r.get(C.YEAR)),
-                                         text(r.get(C.SPECIES)), plain_measures(text(r["message"]))))
-        coverage_obj = Coverage(tuple(site_rows), total, seasons, tuple(flags))
-
-    # comparison with last year
-    comparison = None
-    comparison_note = ""
-    if previous is not None:
-        comparison = tuple(compare_with_previous([r.to_dict() for r in summary], previous,
-                                                 corrections=corrections, names=names))
-        n_changed = sum(c.changed for c in comparison)
-        prev_season = previous.get("season", "last year")
-        comparison_note = (f"Compared with the report for {prev_season}: "
-                           f"{n_changed} call{'s' if n_changed != 1 else ''} changed.")
-
-    # headline
-    headline: list[str] = []
-    fired = [o for o in outcomes if o.fired]
-    if fired:
-        headline.append(f"{len(fired)} management trigger{'s have' if len(fired) != 1 else ' has'} fired: "
-                        + "; ".join(f"{names.get(o.trigger.species, o.trigger.species)} "
-                                    f"({MEASURE_LABEL.get(o.trigger.measure, o.trigger.measure)})"
-                                    for o in fired) + ". Agreed responses are listed below.")
-    counts = {c: sum(r.call == c for r in summary) for c in (C.CALL_DECLINING, C.CALL_RISING, C.CALL_STABLE,
-                                                              C.CALL_UNCLEAR)}
-    parts = [f"{n} {CALL_LABEL[c].lower()}" for c, n in counts.items() if n]
-    headline.append(f"Of {len(summary)} species and measures: " + ", ".join(parts) + ".")
-    approaching = [o for o in outcomes if not o.fired and o.years_to_threshold is not None]
-    if approaching:
-        headline.append(f"{len(approaching)} trigger{'s are' if len(approaching) != 1 else ' is'} being approached "
-                        "at the current rate.")
-
-    methods = _methods(families, margins, software, random_effects)
-    cautions = _cautions(programme, stations, margins)
+    shared = _Shared(
+        programme=programme, season=int(season), names=names, events=events_df, method_frame=method_df,
+        changes=changes, change_species=change_species,
+        site_of=({str(s): str(t) for s, t in zip(stations[C.STATION], stations[C.SITE], strict=True)}
+                 if stations is not None and C.SITE in stations.columns else {}),
+        stations=stations, sites=sites, station_changes=station_changes or {}, gradients=gradients or {},
+        outcomes=by_key, power=_power_rows(_frame(power, "power"), names),
+    )
+    entries = [_species_entry(i, key, result, shared) for i, (key, result) in enumerate(call_views.items())]
+    summary = [row for row, _section in entries]
+    families = {row.family for row in summary}
+    margins = {row.margin for row in summary}
+    random_effects = {effect for key in call_views for effect in (_attr(call_views[key], "random_sd", {}) or {})}
+    comparison, note = _comparison(summary, previous, corrections, names)
     return ReportContext(
-        title=f"{programme.name}: monitoring report {season}",
-        programme=programme, season=int(season), generated=generated, headline=tuple(headline),
-        summary=tuple(summary), triggers=tuple(outcomes), comparison=comparison,
-        comparison_note=comparison_note, species=tuple(sections), estimates=tuple(estimate_rows),
-        coverage=coverage_obj, power=tuple(power_rows.values()), methods=methods, cautions=cautions,
+        title=report_title(programme.name, season),
+        programme=programme, season=int(season), generated=generated,
+        headline=_headline(summary, outcomes, names),
+        summary=tuple(summary), triggers=tuple(outcomes), comparison=comparison, comparison_note=note,
+        species=tuple(section for _row, section in entries),
+        estimates=tuple(_estimate_rows(_frame(estimates, "estimates"), names, site_names)),
+        coverage=_coverage(_frame(coverage, "coverage"), _frame(quality_flags, "quality_flags"), summary,
+                           site_names),
+        power=tuple(shared.power.values()), methods=_methods(families, margins, software, random_effects),
+        cautions=_cautions(programme, stations, margins),
         sites=dict(sites or {}), names=names, site_names=site_names, scope=scope, photos=tuple(photos),
     )
 
 
-def _margin_text(margins: set[float]) -> str:
-    if len(margins) == 1:
-        return f"±{percent(next(iter(margins)))} a year"
-    return "between " + " and ".join(f"±{percent(m)}" for m in (min(margins), max(margins))) + " a year"
+# --------------------------------------------------------------------------- one function per section
+@dataclass(frozen=True)
+class _Shared:
+    """What every species' entry reads: the programme, names, marks, maps and trigger outcomes."""
+
+    programme: ProgrammeInfo
+    season: int
+    names: Mapping[str, str]
+    events: pd.DataFrame | None
+    method_frame: pd.DataFrame | None
+    changes: Sequence[MethodChange]
+    change_species: Sequence[str | None]
+    site_of: Mapping[str, str]
+    stations: pd.DataFrame | None
+    sites: Mapping[str, object] | None
+    station_changes: Mapping[tuple[str, str], pd.DataFrame]
+    gradients: Mapping[tuple[str, str], GradientData]
+    outcomes: Mapping[tuple[str, str], Sequence[TriggerOutcome]]
+    power: Mapping[tuple[str, str], PowerRow]
+
+
+def _power_rows(power_df: pd.DataFrame | None, names: Mapping[str, str]) -> dict[tuple[str, str], PowerRow]:
+    """The power table: the smallest steady fall each species' monitoring can detect."""
+    power_rows: dict[tuple[str, str], PowerRow] = {}
+    if power_df is None or not len(power_df):
+        return power_rows
+    _require(power_df, [C.SPECIES, C.MEASURE, "detectable_change"], "power")
+    for row in power_df.to_dict("records"):
+        sp, ms = str(row[C.SPECIES]), str(row[C.MEASURE])
+        pw = float(row.get("power", 0.8) or 0.8)
+        ns = row.get("n_stations")
+        ny = row.get("n_years")
+        ns = None if ns is None or (isinstance(ns, float) and math.isnan(ns)) else int(ns)
+        ny = None if ny is None or (isinstance(ny, float) and math.isnan(ny)) else int(ny)
+        change = row.get("detectable_change")
+        change = None if change is None or not math.isfinite(float(change)) else float(change)
+        if change is None:  # never "nan%": say that it could not be computed, and why
+            text = detectable_change_not_computed_sentence(str(row.get("note") or ""))
+        else:
+            text = detectable_fall_sentence(change, pw, ns, ny)
+        power_rows[(sp, ms)] = PowerRow(sp, names.get(sp, sp), MEASURE_LABEL.get(ms, ms), change, pw, ns, ny, text)
+    return power_rows
+
+
+def _species_entry(i: int, key: tuple[str, str], result, shared: _Shared) -> tuple[SummaryRow, SpeciesSection]:
+    """One species and measure: its summary row and its section."""
+    sp, ms = key
+    name = shared.names.get(sp, sp)
+    annual = Interval.from_any(_attr(result, "annual_change"))
+    period = Interval.from_any(_attr(result, "period_change"))
+    first, last = (int(y) for y in _attr(result, "years"))
+    call = str(_attr(result, "call", C.CALL_UNCLEAR))
+    programme = shared.programme
+    margin = float(programme.margin if programme.margin is not None else _attr(result, "margin", DEFAULT_CHANGE_MARGIN))
+    family = str(_attr(result, "family", ""))
+    n_stations = int(_attr(result, "n_stations", 0))
+    n_years = int(_attr(result, "n_years", last - first + 1))
+    outs = shared.outcomes.get(key, ())
+    trigger_state, trigger_text = trigger_cell([o.fired for o in outs])
+    # k-of-n and cover rates are changes in the odds: labelled so wherever they are printed, and a
+    # share's row leads with the change of the share itself (percentage points)
+    odds = str(_attr(result, "change_scale", "count") or "count") != "count"
+    numbers = TrendNumbers(annual.estimate, annual.lower, annual.upper, period.estimate, first, last, call, margin)
+    level = _level_numbers(_attr(result, "level_change"))
+    texts = summary_texts(numbers, period.lower, period.upper, odds=odds, level=level)
+    share_change = (Interval(level.difference, level.difference_lower, level.difference_upper)
+                    if odds and level is not None and level.is_share else None)
+    row = SummaryRow(
+        species=sp, species_name=name, measure=ms, measure_label=MEASURE_LABEL.get(ms, ms), anchor=f"sp-{i + 1}",
+        call=call, call_label=CALL_LABEL.get(call, call), marker=CALL_MARKER.get(call, "?"),
+        annual_change=annual, period_change=period,
+        annual_text=texts.annual_text,
+        period_text=texts.period_text,
+        annual_estimate_text=texts.annual_estimate_text,
+        annual_ci_text=texts.annual_ci_text,
+        period_estimate_text=texts.period_estimate_text,
+        period_ci_text=texts.period_ci_text,
+        first_year=first, last_year=last, n_stations=n_stations, n_years=n_years,
+        n_obs=int(_attr(result, "n_obs", 0)), family=family, margin=margin,
+        trigger_state=trigger_state, trigger_text=trigger_text,
+        call_line=texts.call_line, share_change=share_change,
+    )
+    if odds and level is not None:
+        paragraph = odds_trend_sentence(name, ms, numbers, level)
+    else:
+        paragraph = trend_sentence(name, ms, numbers) + ("" if level is None else " " + level_sentence(level))
+    return row, _species_section(i, row, result, paragraph, shared)
+
+
+def _species_section(i: int, row: SummaryRow, result, paragraph: str, shared: _Shared) -> SpeciesSection:
+    """A species' section: its paragraph, caveats, figures, triggers, power and advice."""
+    sp, ms, name = row.species, row.measure, row.species_name
+    first, last = row.first_year, row.last_year
+    random_sd = dict(_attr(result, "random_sd", {}) or {})
+    diagnostics = tuple(
+        (str(getattr(d, "code", "")), str(getattr(d, "message", "")), str(getattr(d, "severity", "warning")))
+        for d in (_attr(result, "diagnostics", ()) or ())
+    )
+    applies = [_change_applies(shared.method_frame, k, ms) for k in range(len(shared.changes))]
+    sp_changes = [(c, s) for c, s, ok in zip(shared.changes, shared.change_species, applies, strict=True)
+                  if ok and (s is None or s == sp)]
+    caveats = caveat_sentences(
+        row.n_stations, row.n_years, first, last,
+        observation_sd=random_sd.get("observation"),
+        family=row.family, dispersion=_attr(result, "dispersion"),
+        method_changes=[c for c, _ in sp_changes], diagnostics=diagnostics,
+        converged=bool(_attr(result, "converged", True)),
+    )
+    changes_df = shared.station_changes.get((sp, ms))
+    species_sites = None
+    if changes_df is not None and len(changes_df) and shared.site_of:
+        species_sites = {shared.site_of[s] for s in changes_df[C.STATION].astype(str) if s in shared.site_of}
+    marks = _marks_for(sp, shared.events, [c for c, _ in sp_changes], [s for _, s in sp_changes], first, last,
+                       species_sites)
+    indices = _attr(result, "indices")
+    fitted = _attr(result, "fitted_trend")
+    # the yearly estimates and the fitted line on the measure's own scale, one baseline, where the fit has them
+    yearly, line = _attr(result, "yearly"), _attr(result, "trend_line")
+    value_label = ""
+    if yearly is not None and line is not None and len(yearly):
+        indices = pd.DataFrame(yearly).rename(columns={"estimate": "index"})
+        fitted = line
+        value_label = str(_attr(result, "natural_unit", "") or "")
+    figures, station_frame = _species_figures(i, row, indices, value_label, marks, changes_df, shared)
+    outs = tuple(shared.outcomes.get((sp, ms), ()))
+    model_text = model_sentence(describe_family(row.family), row.n_obs, row.n_stations,
+                                int(_attr(result, "n_sites", 0) or 0), row.n_years, first, last)
+    fired_here = any(o.fired for o in outs)
+    advice = None if fired_here else decline_advice(name, row.call, row.annual_change.estimate,
+                                                    row.annual_change.upper, bool(outs), row.margin)
+    return SpeciesSection(
+        summary=row, paragraph=paragraph, caveats=tuple(caveats),
+        call_reason=str(_attr(result, "call_reason", "")), model_text=model_text,
+        indices=None if indices is None else pd.DataFrame(indices)[[C.YEAR, "index", "lower", "upper"]],
+        fitted_trend=None if fitted is None else pd.DataFrame(fitted)[[C.YEAR, "fit", "lower", "upper"]],
+        marks=marks, stations=station_frame, station_changes=changes_df, gradient=shared.gradients.get((sp, ms)),
+        figures=tuple(figures), triggers=outs,
+        power=shared.power.get((sp, ms)), advice=advice, interval_method=result.interval_method,
+        value_label=value_label,
+    )
+
+
+def _species_figures(i: int, row: SummaryRow, indices, value_label: str, marks: Sequence[EventMark],
+                     changes_df: pd.DataFrame | None, shared: _Shared) -> tuple[list[FigureRef], pd.DataFrame | None]:
+    """A species' figures (yearly estimates, map of stations' own changes, gradient) with their alt text
+    and captions, and the stations the map shows."""
+    sp, ms, name = row.species, row.measure, row.species_name
+    stem = f"{i + 1:02d}-{slug(sp)}-{slug(ms)}"
+    figures = []
+    if indices is not None and len(indices):
+        figures.append(FigureRef(
+            key=f"{stem}-indices", kind="indices",
+            alt=indices_figure_alt(name, row.measure_label, row.first_year, row.last_year, row.annual_text,
+                                   sorted({f"{m.label} {m.year}" for m in marks if m.kind == "event"}),
+                                   sorted({str(m.year) for m in marks if m.kind == "method"})),
+            caption=indices_figure_caption(value_label, row.first_year),
+        ))
+    stations, station_frame = shared.stations, None
+    if stations is not None and len(stations):
+        _require(stations, [C.STATION, C.X, C.Y], "stations")
+        station_frame = stations
+        if changes_df is not None and len(changes_df):
+            _require(changes_df, [C.STATION, "annual_change"], "station_changes")
+            values = pd.to_numeric(changes_df["annual_change"], errors="coerce")
+            n_fall = int((values < 0).sum())
+            n_rise = int((values >= 0).sum())
+            n_none = int(len(stations) - n_fall - n_rise)
+        else:
+            n_fall = n_rise = 0
+            n_none = len(stations)
+        figures.append(FigureRef(
+            key=f"{stem}-map", kind="map",
+            alt=map_figure_alt(len(stations), len(shared.sites) if shared.sites else 0, name, n_fall, n_rise, n_none),
+            caption=MAP_FIGURE_CAPTION,
+        ))
+    gradient = shared.gradients.get((sp, ms))
+    if gradient is not None:
+        _require(gradient.frame, ["gradient", "value"], "gradient")
+        g = gradient.frame[["gradient", "value"]].dropna()
+        figures.append(FigureRef(
+            key=f"{stem}-gradient", kind="gradient",
+            alt=gradient_figure_alt(gradient.value_label, name, gradient.gradient_label, shared.season, len(g),
+                                    figure_number(g["gradient"].min()), figure_number(g["gradient"].max())),
+            caption=gradient_figure_caption(shared.season, gradient.value_label, gradient.gradient_label),
+        ))
+    return figures, station_frame
+
+
+def _estimate_rows(estimates_df: pd.DataFrame | None, names: Mapping[str, str],
+                   site_names: Mapping[str, str]) -> list[EstimateRow]:
+    """This season's estimates, one row per species, measure, site and quantity."""
+    estimate_rows: list[EstimateRow] = []
+    if estimates_df is None or not len(estimates_df):
+        return estimate_rows
+    _require(estimates_df, [C.SPECIES, C.MEASURE, C.SITE, "quantity", "estimate"], "estimates")
+    for row in estimates_df.to_dict("records"):
+        q = str(row["quantity"])
+        label, _unit = QUANTITY_LABEL.get(q, (q, ""))
+        lo, hi = row.get("lower"), row.get("upper")
+        lo = None if lo is None or pd.isna(lo) else float(lo)
+        hi = None if hi is None or pd.isna(hi) else float(hi)
+        ns = row.get("n_stations")
+        ns = None if ns is None or pd.isna(ns) else int(ns)
+        value = float(row["estimate"])
+        # one unit for the estimate and both bounds of a row (per ha when the density is tiny)
+        scale = density_unit(max(abs(value), abs(hi or 0.0))) if q == "density" else None
+        notes: list[str] = []
+        counted = row.get("counted")
+        if q == "total" and lo is not None and counted is not None and not pd.isna(counted) \
+                and counted > 0 and abs(lo - float(counted)) < 0.5:
+            notes.append(total_floor_note(float(counted)))
+        site = str(row[C.SITE])
+        estimate_rows.append(EstimateRow(
+            species=str(row[C.SPECIES]), species_name=names.get(str(row[C.SPECIES]), str(row[C.SPECIES])),
+            measure_label=MEASURE_LABEL.get(str(row[C.MEASURE]), str(row[C.MEASURE])),
+            site=site, quantity=q, quantity_label=label,
+            estimate=value, lower=lo, upper=hi,
+            estimate_text=quantity_text(q, value, scale),
+            interval_text=quantity_interval_text(q, lo, hi, scale),
+            n_stations=ns, site_name=site_names.get(site, ""), notes=tuple(notes),
+            few_quadrats=ns is not None and ns < FEW_QUADRATS,
+        ))
+    return estimate_rows
+
+
+def _coverage(coverage_df: pd.DataFrame | None, flags_df: pd.DataFrame | None, summary: Sequence[SummaryRow],
+              site_names: Mapping[str, str]) -> Coverage | None:
+    """Data coverage: stations due and visited by site, seasons behind each trend, open quality flags."""
+    if coverage_df is None and flags_df is None:
+        return None
+    site_rows: list[CoverageRow] = []
+    total = None
+    if coverage_df is not None and len(coverage_df):
+        _require(coverage_df, [C.SITE, "due", "visited", "missed", "inaccessible"], "coverage")
+
+        def cov_row(site, due, visited, missed, inaccessible):
+            return CoverageRow(str(site), int(due), int(visited), int(missed), int(inaccessible),
+                               visited_text(visited, due), site_names.get(str(site), ""))
+
+        for r in coverage_df.to_dict("records"):
+            site_rows.append(cov_row(r[C.SITE], r["due"], r["visited"], r["missed"], r["inaccessible"]))
+        total = cov_row("All sites", *(int(coverage_df[c].sum()) for c in ("due", "visited", "missed", "inaccessible")))
+    seasons = tuple(SeasonsRow(r.species, r.species_name, r.measure_label, r.n_years, r.first_year, r.last_year)
+                    for r in summary)
+    flags: list[QualityFlag] = []
+    if flags_df is not None and len(flags_df):
+        _require(flags_df, ["message"], "quality_flags")
+        for r in flags_df.to_dict("records"):
+            if "status" in r and str(r["status"]).lower() != "open":
+                continue
+
+            def text(v):
+                return "" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v)
+
+            flags.append(QualityFlag(text(r.get(C.STATION)), season_label(r.get(C.YEAR)),
+                                     text(r.get(C.SPECIES)), plain_measures(text(r["message"]))))
+    return Coverage(tuple(site_rows), total, seasons, tuple(flags))
+
+
+def _comparison(summary: Sequence[SummaryRow], previous: Mapping | None, corrections: Mapping[str, int] | None,
+                names: Mapping[str, str]) -> tuple[tuple | None, str]:
+    """The comparison of this season's calls with last season's report, and the line above it."""
+    if previous is None:
+        return None, ""
+    comparison = tuple(compare_with_previous([r.to_dict() for r in summary], previous,
+                                             corrections=corrections, names=names))
+    return comparison, comparison_note(previous.get("season", "last year"), sum(c.changed for c in comparison))
+
+
+def _headline(summary: Sequence[SummaryRow], outcomes: Sequence[TriggerOutcome],
+              names: Mapping[str, str]) -> tuple[str, ...]:
+    """The "At a glance" lines."""
+    fired = [f"{names.get(o.trigger.species, o.trigger.species)} "
+             f"({MEASURE_LABEL.get(o.trigger.measure, o.trigger.measure)})" for o in outcomes if o.fired]
+    counts = [(c, sum(r.call == c for r in summary))
+              for c in (C.CALL_DECLINING, C.CALL_RISING, C.CALL_STABLE, C.CALL_UNCLEAR)]
+    approaching = [o for o in outcomes if not o.fired and o.years_to_threshold is not None]
+    return headline_sentences(fired, counts, len(summary), len(approaching))
 
 
 def _methods(families: set[str], margins: set[float], software: Mapping[str, str] | None,
              random_effects: set[str]) -> Methods:
     family_list = "; ".join(describe_family(f) for f in sorted(families) if f)
-    grouping = ("a random intercept for each station nested in its site" if "site" in random_effects
-                else "a random intercept for each station")
-    if "observer" in random_effects:
-        grouping += ", and one for each observer"
-    if "year" in random_effects:
-        grouping += (", and a random effect for each year shared by all stations (good and bad years; the "
-                     "intervals then rest on a t reference with degrees of freedom from the number of years, "
-                     "Piepho & Ogutu 2002)")
-    margin_text = _margin_text(margins)
-    first = (
-        "Each species and measure was analysed with a generalised linear mixed model fitted by maximum "
-        f"likelihood (Laplace approximation; Breslow & Clayton 1993), with {grouping}, "
-        "so that the trend is the typical change within stations rather than "
-        f"a change in which stations were visited. Models used: {family_list}. Year as a continuous "
-        "covariate gives the annual change, exp(slope) − 1, with its 95% interval (for frequencies, pin hits, "
-        "presence and cover a change in the odds, p / (1 − p)); year as a factor gives the yearly estimates, "
-        "shown with the fitted trend on the measure's own scale (mean over stations). The change over the "
-        "period is the annual change compounded over the years between the first and last season."
-    )
-    second = (
-        "The models assume that change is steady on the log (or logit) scale over the period, that stations "
-        "differ only through their random effects, and that the method of recording stayed the same (changes "
-        "are marked on the plots). Missed and inaccessible visits are treated as missing, never as zero. Each "
-        "call compares the 95% interval of the annual change with zero and with a margin of "
-        f"{margin_text}, the smallest change this programme treats as mattering: declining or rising "
-        "when the interval lies clearly on one side, stable when it lies within the margin, unclear "
-        f"otherwise, including whenever fewer than {MIN_TREND_STATIONS} stations or {MIN_TREND_YEARS} seasons "
-        "are available (after Dixon & Pechmann 2005)."
-    )
-    return Methods((first, second), margin_text, REFERENCES, software_versions(software))
+    margin = margin_text(margins)
+    return Methods(methods_paragraphs(family_list, random_effects, margin), margin, REFERENCES,
+                   software_versions(software))
 
 
 def _cautions(programme: ProgrammeInfo, stations: pd.DataFrame | None, margins: set[float]) -> tuple[str, ...]:
@@ -1182,26 +1130,8 @@ def _cautions(programme: ProgrammeInfo, stations: pd.DataFrame | None, margins: 
         placements = [str(p) for p in stations["placement"].dropna()]
     if not placements:
         placements = [programme.placement]
-    non_prob = [p for p in placements if p not in PROBABILITY_PLACEMENTS]
-    if non_prob:
-        design = (f"Trends describe the monitored stations only: {len(non_prob)} of {len(placements)} "
-                  f"station{'s were' if len(placements) != 1 else ' was'} not placed at random "
-                  f"({', '.join(sorted(set(non_prob)))}), so they do not speak for the whole reserve.")
-        if len(placements) == 1:
-            design = ("Trends describe the monitored stations only: the stations were not placed at random "
-                      f"({non_prob[0]}), so they do not speak for the whole reserve.")
-    else:
-        design = ("Stations were placed by a random (probability) design, so the trends speak for the "
-                  "sampled area, within the intervals shown; they do not speak for places outside it.")
-    return (
-        design,
-        "Management decisions rest with the land manager and local rules; this report informs them and does "
-        "not make them.",
-        f"A stable call means any change is smaller than the margin ({_margin_text(margins)}), not that "
-        "there is none; an unclear call means the data cannot tell yet, not that nothing is happening.",
-        "Indices are relative to the first season of each series; they are not population sizes.",
-        "Missed and inaccessible visits are treated as missing, never as absences.",
-    )
+    non_probability = [p for p in placements if p not in PROBABILITY_PLACEMENTS]
+    return caution_sentences(placements, non_probability, margin_text(margins))
 
 
 __all__ = [

@@ -27,7 +27,7 @@ from dataclasses import dataclass
 from monitor import columns as C
 from monitor import measures
 from monitor.families import FAMILIES
-from monitor.settings import MIN_TREND_STATIONS, MIN_TREND_YEARS
+from monitor.settings import FEW_QUADRATS, MIN_TREND_STATIONS, MIN_TREND_YEARS
 
 MINUS = "\u2212"  # typographic minus for tables
 
@@ -600,3 +600,223 @@ def decline_advice(name: str, call: str, annual: float, upper: float, has_trigge
         return (f"The estimate for {name} is falling but the data cannot yet tell: keep the stations visited "
                 "every season and look again next year.")
     return None
+
+
+# --------------------------------------------------------------------------- the report's other sentences
+def few_quadrats_note() -> str:
+    """The footnote of an estimate resting on few quadrats (the mark † in the estimates table)."""
+    return (f"\u2020 Fewer than {FEW_QUADRATS} quadrats at this site: treat the estimate and its interval with "
+            "caution (a few quadrats more or less can move them a long way).")
+
+
+def trigger_cell(fired: Sequence[bool]) -> tuple[str, str]:
+    """The summary table's trigger state and its words, from whether each of a trend's triggers fired."""
+    if not fired:
+        return "none", "none set"
+    if any(fired):
+        return "fired", "\u26a0 Fired"
+    return "not fired", "Not fired"
+
+
+def headline_sentences(fired: Sequence[str], call_counts: Sequence[tuple[str, int]], n_rows: int,
+                       n_approaching: int) -> tuple[str, ...]:
+    """The "At a glance" lines: triggers fired (``fired``: "species (measure)" each), the calls counted,
+    and triggers being approached."""
+    lines = []
+    if fired:
+        lines.append(f"{len(fired)} management trigger{'s have' if len(fired) != 1 else ' has'} fired: "
+                     + "; ".join(fired) + ". Agreed responses are listed below.")
+    parts = [f"{n} {CALL_LABEL[c].lower()}" for c, n in call_counts if n]
+    lines.append(f"Of {n_rows} species and measures: " + ", ".join(parts) + ".")
+    if n_approaching:
+        lines.append(f"{n_approaching} trigger{'s are' if n_approaching != 1 else ' is'} being approached "
+                     "at the current rate.")
+    return tuple(lines)
+
+
+def comparison_note(previous_season: object, n_changed: int) -> str:
+    """The line above the comparison with last year's report."""
+    return f"Compared with the report for {previous_season}: {n_changed} call{'s' if n_changed != 1 else ''} changed."
+
+
+def visited_text(visited: int, due: int) -> str:
+    """A coverage cell: "7 of 8 (88%)"."""
+    share = f" ({visited / due * 100:.0f}%)" if due else ""
+    return f"{int(visited)} of {int(due)}{share}"
+
+
+def model_sentence(family_words: str, n_obs: int, n_stations: int, n_sites: int, n_years: int, first: int,
+                   last: int) -> str:
+    """The line under a species' figures naming the model and the data behind it."""
+    return (f"Model: {family_words}; {n_obs:,} values from {n_stations} stations"
+            + (f" in {n_sites} sites" if n_sites else "")
+            + f", {n_years} seasons {first}\u2013{last}.")
+
+
+def first_lower(text: str) -> str:
+    """Lower-case the first letter only, for use inside a sentence: codes inside a label (transect SM-T)
+    and a label that starts with a code stay as stored."""
+    return text[:1].lower() + text[1:] if text[:1].isupper() and not text[1:2].isupper() else text
+
+
+def indices_figure_alt(name: str, measure_label: str, first: int, last: int, annual_text: str,
+                       events: Sequence[str], method_years: Sequence[str]) -> str:
+    """Alt text of a species' yearly-estimates figure (``events``: "grazing 2018" each)."""
+    text = (f"Yearly index of {name} ({measure_label}) from {first} to {last}, relative to {first}, with "
+            f"95% intervals and the fitted trend line, {annual_text}.")
+    if events:
+        text += " Management events marked: " + ", ".join(events) + "."
+    if method_years:
+        text += " Method changed in " + ", ".join(method_years) + "."
+    return text
+
+
+def indices_figure_caption(value_label: str, first: int) -> str:
+    return ("Yearly estimates (points, 95% intervals) and fitted trend (line, 95% band), "
+            + (f"as {value_label}." if value_label else f"relative to {first}."))
+
+
+MAP_FIGURE_CAPTION = ("Stations coloured by their own change (orange falling, purple rising); open circles: "
+                      "too few years for a station's own trend; grey crosses: never recorded there. "
+                      "Grid north is up.")
+
+
+def map_figure_alt(n_stations: int, n_sites: int, name: str, n_fall: int, n_rise: int, n_none: int) -> str:
+    return (f"Map of {n_stations} stations"
+            + (f" in {n_sites} sites" if n_sites else "")
+            + f" coloured by each station's own annual change in {name}: {n_fall} falling "
+              f"(down triangles), {n_rise} rising (up triangles), {n_none} with too few years "
+              "(open circles).")
+
+
+def gradient_figure_alt(value_label: str, name: str, gradient_label: str, season: int, n_stations: int,
+                        low: str, high: str) -> str:
+    return (f"{value_label} of {name} against {gradient_label} in {season} at "
+            f"{n_stations} stations, from {low} to {high}.")
+
+
+def gradient_figure_caption(season: int, value_label: str, gradient_label: str) -> str:
+    return f"{season}: {first_lower(value_label)} against {first_lower(gradient_label)}."
+
+
+def margin_text(margins: Iterable[float]) -> str:
+    """The margin of change that matters in words: "±2% a year", or a range when trends differ."""
+    margins = set(margins)
+    if len(margins) == 1:
+        return f"\u00b1{percent(next(iter(margins)))} a year"
+    return "between " + " and ".join(f"\u00b1{percent(m)}" for m in (min(margins), max(margins))) + " a year"
+
+
+def methods_paragraphs(family_list: str, random_effects: Iterable[str], margin: str) -> tuple[str, str]:
+    """The two paragraphs of the methods section: the models, and what a call means."""
+    random_effects = set(random_effects)
+    grouping = ("a random intercept for each station nested in its site" if "site" in random_effects
+                else "a random intercept for each station")
+    if "observer" in random_effects:
+        grouping += ", and one for each observer"
+    if "year" in random_effects:
+        grouping += (", and a random effect for each year shared by all stations (good and bad years; the "
+                     "intervals then rest on a t reference with degrees of freedom from the number of years, "
+                     "Piepho & Ogutu 2002)")
+    first = (
+        "Each species and measure was analysed with a generalised linear mixed model fitted by maximum "
+        f"likelihood (Laplace approximation; Breslow & Clayton 1993), with {grouping}, "
+        "so that the trend is the typical change within stations rather than "
+        f"a change in which stations were visited. Models used: {family_list}. Year as a continuous "
+        "covariate gives the annual change, exp(slope) \u2212 1, with its 95% interval (for frequencies, pin hits, "
+        "presence and cover a change in the odds, p / (1 \u2212 p)); year as a factor gives the yearly estimates, "
+        "shown with the fitted trend on the measure's own scale (mean over stations). The change over the "
+        "period is the annual change compounded over the years between the first and last season."
+    )
+    second = (
+        "The models assume that change is steady on the log (or logit) scale over the period, that stations "
+        "differ only through their random effects, and that the method of recording stayed the same (changes "
+        "are marked on the plots). Missed and inaccessible visits are treated as missing, never as zero. Each "
+        "call compares the 95% interval of the annual change with zero and with a margin of "
+        f"{margin}, the smallest change this programme treats as mattering: declining or rising "
+        "when the interval lies clearly on one side, stable when it lies within the margin, unclear "
+        f"otherwise, including whenever fewer than {MIN_TREND_STATIONS} stations or {MIN_TREND_YEARS} seasons "
+        "are available (after Dixon & Pechmann 2005)."
+    )
+    return first, second
+
+
+def caution_sentences(placements: Sequence[str], non_probability: Sequence[str], margin: str) -> tuple[str, ...]:
+    """The report's standing cautions: what the stations speak for (``placements`` of every station,
+    ``non_probability`` those not placed at random), who decides, and what stable and unclear mean."""
+    if non_probability:
+        design = (f"Trends describe the monitored stations only: {len(non_probability)} of {len(placements)} "
+                  f"station{'s were' if len(placements) != 1 else ' was'} not placed at random "
+                  f"({', '.join(sorted(set(non_probability)))}), so they do not speak for the whole reserve.")
+        if len(placements) == 1:
+            design = ("Trends describe the monitored stations only: the stations were not placed at random "
+                      f"({non_probability[0]}), so they do not speak for the whole reserve.")
+    else:
+        design = ("Stations were placed by a random (probability) design, so the trends speak for the "
+                  "sampled area, within the intervals shown; they do not speak for places outside it.")
+    return (
+        design,
+        "Management decisions rest with the land manager and local rules; this report informs them and does "
+        "not make them.",
+        f"A stable call means any change is smaller than the margin ({margin}), not that "
+        "there is none; an unclear call means the data cannot tell yet, not that nothing is happening.",
+        "Indices are relative to the first season of each series; they are not population sizes.",
+        "Missed and inaccessible visits are treated as missing, never as absences.",
+    )
+
+
+# --------------------------------------------------------------------------- this season's estimates
+# estimates said as an amount with its unit (positive continuous measures: shoot height in cm)
+_AMOUNT_UNIT = {m.quantity: m.unit for m in measures.REGISTRY.values() if m.kind == measures.KIND_POSITIVE}
+
+
+def density_unit(value: float) -> tuple[str, float]:
+    """The unit a density reads best in: per m², or per hectare when below 0.01 per m²."""
+    if value is not None and math.isfinite(value) and 0 < abs(value) < 0.01:
+        return "per ha", 10_000.0
+    return "per m²", 1.0
+
+
+def quantity_text(quantity: str, value: float, scale: tuple[str, float] | None = None) -> str:
+    """A value of this season's estimates to sensible significant figures (2; totals whole)."""
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if quantity == "cover":
+        return f"{significant(value, 2)}%"
+    if quantity in ("frequency", "presence"):
+        return f"{significant(value * 100, 2)}%"
+    if quantity == "density":
+        unit, factor = scale or density_unit(value)
+        return f"{significant(value * factor, 2)} {unit}"
+    if quantity in _AMOUNT_UNIT:   # a length or other amount: "14 cm"
+        return f"{significant(value, 2)} {_AMOUNT_UNIT[quantity]}"
+    return whole(value)
+
+
+def quantity_interval_text(quantity: str, lower: float | None, upper: float | None,
+                   scale: tuple[str, float] | None) -> str:
+    """``"8.2 to 18 per m²"``: the unit once, after the upper bound."""
+    if lower is None or upper is None:
+        return "—"
+    if quantity == "density":
+        unit, factor = scale or density_unit(upper)
+        return f"{significant(lower * factor, 2)} to {significant(upper * factor, 2)} {unit}"
+    return f"{quantity_text(quantity, lower)} to {quantity_text(quantity, upper)}"
+
+
+def figure_number(value: float, digits: int = 3) -> str:
+    """A number in a figure's alt text: ``digits`` significant figures, grouped thousands."""
+    if value is None or not math.isfinite(value):
+        return "n/a"
+    if value == 0:
+        return "0"
+    magnitude = int(math.floor(math.log10(abs(value))))
+    decimals = digits - 1 - magnitude
+    rounded = round(value, decimals)  # negative decimals round to tens, hundreds, ...
+    if decimals <= 0:
+        return f"{rounded:,.0f}"
+    return f"{rounded:,.{decimals}f}"
+
+
+def report_title(programme_name: str, season: int) -> str:
+    return f"{programme_name}: monitoring report {season}"

@@ -257,7 +257,7 @@ def field_sheet_context(
         labels.append(str(names.get(t[0]) or ""))
     labels += ["" for _ in covariates]  # a covariate's header already says what it is
     site_words = f"{td.site} {site_name}" if site_name else td.site
-    running_head = f"Site {site_words} · team {td.team} · {td.date.isoformat()}"
+    running_head = f"Field sheet · Site {site_words} · team {td.team} · {td.date.isoformat()}"
     instructions = (
         "One row per station visit. The date box holds the planned date: cross it out and write the day of "
         "the visit (YYYY-MM-DD) if it differs. Fill observers (codes separated by ';') and status (done, "
@@ -338,10 +338,12 @@ def phone_sheet_fields(targets: Sequence[tuple[str, str] | tuple[str, str, int |
             label += f" ({entry.entry_unit})"
         out.append({"kind": "value", "header": _measure_header(species, measure, n), "species": species,
                     "measure": measure, "n": n, "label": label, "hint": value_rule.wording(n),
-                    "whole": value_rule.whole, "rule": value_rule.to_dict()})
+                    "whole": value_rule.whole, "rule": value_rule.to_dict(),
+                    "zero": entry.absent_value is not None})
     for name, unit in covariates:
         out.append({"kind": "covariate", "header": f"cov:{name}[{unit}]", "species": None, "measure": None,
-                    "n": None, "label": f"{name} [{unit}]", "hint": "", "whole": False, "rule": None})
+                    "n": None, "label": f"{name} [{unit}]", "hint": "", "whole": False, "rule": None,
+                    "zero": False})
     return out
 
 

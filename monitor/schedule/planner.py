@@ -384,6 +384,47 @@ def plan_season(
     if reserve is not None:
         reserve = shapely.make_valid(reserve) if not reserve.is_valid else reserve
     seed, gen = derive_rng(rng)
+    due = _checked_due(due)
+    sites = sorted(set(due[C.SITE].astype(str)))
+    lacking = [s for s in sites if s not in crews.start_points]
+    if lacking:
+        raise DesignError(f"no start point given for site {lacking[0]}")
+    site_order = list(sites)
+    if randomise_site_order:
+        site_order = [site_order[i] for i in gen.permutation(len(site_order))]
+    starts = {s: np.asarray(crews.start_points[s], float) for s in sites}
+    pool = _Pool(due, starts, crews.path_factor, network)
+    access_until = access_until or {}
+    held, cut = _hold_back_for_access(pool, access_until)
+    unplanned = _too_long_for_a_day(pool, crews)
+    records, team_days = _assign_days(pool, due, crews, starts, {s: i for i, s in enumerate(site_order)},
+                                      route_method)
+    extra, late, diags = _left_over(pool, crews, starts, cut, route_method)
+    unplanned += late
+    diags += _hold_back_diagnostics(held, unplanned)
+
+    def listing(items: list[tuple[int, str]]) -> pd.DataFrame:
+        return pd.DataFrame({C.STATION: [due[C.STATION].iloc[i] for i, _ in items],
+                             C.SITE: [pool.site[i] for i, _ in items],
+                             REASON: [r for _, r in items]}, columns=[C.STATION, C.SITE, REASON])
+
+    return SeasonPlan(year=int(year), seed=seed, visits=pd.DataFrame(records, columns=VISIT_COLUMNS),
+                      team_days=tuple(team_days),
+                      held_back=listing(held), unplanned=listing(unplanned), extra_team_days=int(extra),
+                      site_order=tuple(site_order), diagnostics=tuple(diags),
+                      params={"randomise_site_order": randomise_site_order, "route_method": route_method,
+                              "crews": crews.to_dict(),
+                              "routing": "paths" if network is not None else "straight",
+                              "access_until": {k: (v.isoformat() if v else None) for k, v in access_until.items()}})
+
+
+#: the columns of a plan's visits, in order
+VISIT_COLUMNS = [TEAM, C.DATE, C.SITE, ORDER, C.STATION, C.X, C.Y, ARRIVAL, DEPARTURE, WALK_M, EFFORT,
+                 OVERDUE_YEARS, WINDOW_START, WINDOW_END]
+
+
+def _checked_due(due: pd.DataFrame) -> pd.DataFrame:
+    """The due-station table with its columns checked, a fresh index and overdue years (0 when absent)."""
     for col in (C.STATION, C.SITE, C.X, C.Y, WINDOW_START, WINDOW_END, EFFORT):
         if col not in due.columns:
             raise DesignError(f"due-station table lacks column {col!r}")
@@ -392,107 +433,139 @@ def plan_season(
         due[OVERDUE_YEARS] = 0
     if due[C.STATION].duplicated().any():
         raise DesignError(f"station {due[C.STATION][due[C.STATION].duplicated()].iloc[0]} is listed twice")
-    sites = sorted(set(due[C.SITE].astype(str)))
-    lacking = [s for s in sites if s not in crews.start_points]
-    if lacking:
-        raise DesignError(f"no start point given for site {lacking[0]}")
-    site_order = list(sites)
-    if randomise_site_order:
-        site_order = [site_order[i] for i in gen.permutation(len(site_order))]
-    rank = {s: i for i, s in enumerate(site_order)}
-    starts = {s: np.asarray(crews.start_points[s], float) for s in sites}
-    pool = _Pool(due, starts, crews.path_factor, network)
+    return due
 
-    held, unplanned = [], []
+
+def _hold_back_for_access(pool: _Pool, access_until: Mapping[str, dt.date | None]
+                          ) -> tuple[list[tuple[int, str]], dict[int, dt.date]]:
+    """Stations whose site's access permission lapses before their window opens are held back; a window
+    that outlasts the permission is cut short at its last day (returned by station, for the reason given
+    if the station then does not fit)."""
+    held: list[tuple[int, str]] = []
     cut: dict[int, dt.date] = {}
-    access_until = access_until or {}
-    for i in range(len(due)):
+    for i in range(len(pool.site)):
         last = access_until.get(pool.site[i])
-        if last is not None:
-            last_ord = last.toordinal()
-            if last_ord < pool.ws[i]:
-                held.append((i, f"access permission for site {pool.site[i]} lapses on {last.isoformat()}, "
-                                f"before the window opens"))
-                pool.pending[i] = False
-                continue
-            if last_ord < pool.we[i]:
-                pool.we[i] = last_ord
-                cut[i] = last
+        if last is None:
+            continue
+        last_ord = last.toordinal()
+        if last_ord < pool.ws[i]:
+            held.append((i, f"access permission for site {pool.site[i]} lapses on {last.isoformat()}, "
+                            f"before the window opens"))
+            pool.pending[i] = False
+            continue
+        if last_ord < pool.we[i]:
+            pool.we[i] = last_ord
+            cut[i] = last
+    return held, cut
+
+
+def _too_long_for_a_day(pool: _Pool, crews: CrewSettings) -> list[tuple[int, str]]:
+    """Stations that even the fastest team with the longest day cannot walk out to, record and leave."""
     max_cap = max(t.day_minutes for t in crews.teams)
     best_speed = max(t.metres_per_minute for t in crews.teams)
+    out = []
     for i in np.flatnonzero(pool.pending):
         if 2 * pool.out_m[i] / best_speed + pool.effort[i] > max_cap:
-            unplanned.append((int(i), "walk out and back plus effort exceed one working day"))
+            out.append((int(i), "walk out and back plus effort exceed one working day"))
             pool.pending[i] = False
+    return out
 
+
+def _assign_days(pool: _Pool, due: pd.DataFrame, crews: CrewSettings, starts: Mapping[str, np.ndarray],
+                 rank: Mapping[str, int], route_method: str) -> tuple[list[dict[str, Any]], list[TeamDay]]:
+    """Day by day through the season, each working team takes one site's day of work: the visits and the
+    team-days."""
     blocked = frozenset(crews.blocked_dates)
     records: list[dict[str, Any]] = []
     team_days: list[TeamDay] = []
-    if pool.pending.any():
-        first = int(pool.ws[pool.pending].min())
-        last = int(pool.we[pool.pending].max())
-        for day_ord in range(first, last + 1):
-            day = dt.date.fromordinal(day_ord)
-            for team in crews.teams:
-                if not team.works(day, blocked):
-                    continue
-                open_ = pool.pending & (pool.ws <= day_ord) & (pool.we >= day_ord)
-                if not open_.any():
-                    break
-                idx = np.flatnonzero(open_)
-                # site holding the most overdue station, then the earliest-closing window,
-                # then the site order
-                site_keys: dict[str, tuple[int, int, int]] = {}
-                for s in np.unique(pool.site[idx]):
-                    here = idx[pool.site[idx] == s]
-                    site_keys[str(s)] = (-int(pool.overdue[here].max()), int(pool.we[here].min()), rank[str(s)])
-                chosen: list[int] = []
-                for site in sorted(site_keys, key=site_keys.get):
-                    cand = idx[pool.site[idx] == site]
-                    chosen = _build_day(pool, cand, starts[site], team.day_minutes, team.metres_per_minute)
-                    if chosen:
-                        break
-                if not chosen:
-                    continue
-                site = pool.site[chosen[0]]
-                ordered = _sequence(pool, chosen, starts[site], route_method)
-                pool.pending[ordered] = False
-                clock = 0.0
-                prev = 0
-                for k, i in enumerate(ordered, start=1):
-                    walk = pool.walk(site, prev, int(pool.local[i]))
-                    clock += walk / team.metres_per_minute
-                    arrival = _add_minutes(crews.day_start, clock)
-                    clock += pool.effort[i]
-                    records.append({TEAM: team.code, C.DATE: day, C.SITE: site, ORDER: k,
-                                    C.STATION: due[C.STATION].iloc[i], C.X: pool.x[i], C.Y: pool.y[i],
-                                    ARRIVAL: arrival, DEPARTURE: _add_minutes(crews.day_start, clock),
-                                    WALK_M: walk, EFFORT: pool.effort[i], OVERDUE_YEARS: int(pool.overdue[i]),
-                                    WINDOW_START: due[WINDOW_START].iloc[i], WINDOW_END: due[WINDOW_END].iloc[i]})
-                    prev = int(pool.local[i])
-                back = pool.walk(site, prev, 0)
-                clock += back / team.metres_per_minute
-                team_days.append(TeamDay(team.code, day, site, tuple(team.members),
-                                         (float(starts[site][0]), float(starts[site][1])),
-                                         tuple(due[C.STATION].iloc[ordered]),
-                                         tour_length(list(range(1, len(ordered) + 1)), _sub_matrix(pool, ordered)),
-                                         crews.day_start, _add_minutes(crews.day_start, clock)))
+    if not pool.pending.any():
+        return records, team_days
+    first = int(pool.ws[pool.pending].min())
+    last = int(pool.we[pool.pending].max())
+    for day_ord in range(first, last + 1):
+        day = dt.date.fromordinal(day_ord)
+        for team in crews.teams:
+            if not team.works(day, blocked):
+                continue
+            open_ = pool.pending & (pool.ws <= day_ord) & (pool.we >= day_ord)
+            if not open_.any():
+                break
+            chosen = _day_of_work(pool, np.flatnonzero(open_), starts, rank, team)
+            if not chosen:
+                continue
+            site = pool.site[chosen[0]]
+            ordered = _sequence(pool, chosen, starts[site], route_method)
+            pool.pending[ordered] = False
+            team_days.append(_walk_the_day(pool, due, crews, team, day, site, starts[site], ordered, records))
+    return records, team_days
+
+
+def _day_of_work(pool: _Pool, idx: np.ndarray, starts: Mapping[str, np.ndarray], rank: Mapping[str, int],
+                 team) -> list[int]:
+    """The stations a team records in a day: the site holding the most overdue station, then the
+    earliest-closing window, then the site order; the first site that gives a day of work."""
+    site_keys: dict[str, tuple[int, int, int]] = {}
+    for s in np.unique(pool.site[idx]):
+        here = idx[pool.site[idx] == s]
+        site_keys[str(s)] = (-int(pool.overdue[here].max()), int(pool.we[here].min()), rank[str(s)])
+    for site in sorted(site_keys, key=site_keys.get):
+        cand = idx[pool.site[idx] == site]
+        chosen = _build_day(pool, cand, starts[site], team.day_minutes, team.metres_per_minute)
+        if chosen:
+            return chosen
+    return []
+
+
+def _walk_the_day(pool: _Pool, due: pd.DataFrame, crews: CrewSettings, team, day: dt.date, site: str,
+                  start: np.ndarray, ordered: list[int], records: list[dict[str, Any]]) -> TeamDay:
+    """Walk a team-day's route in order: one visit record per station (arrival, departure, walk) appended
+    to ``records``, and the team-day with its route length and finishing time."""
+    clock = 0.0
+    prev = 0
+    for k, i in enumerate(ordered, start=1):
+        walk = pool.walk(site, prev, int(pool.local[i]))
+        clock += walk / team.metres_per_minute
+        arrival = _add_minutes(crews.day_start, clock)
+        clock += pool.effort[i]
+        records.append({TEAM: team.code, C.DATE: day, C.SITE: site, ORDER: k,
+                        C.STATION: due[C.STATION].iloc[i], C.X: pool.x[i], C.Y: pool.y[i],
+                        ARRIVAL: arrival, DEPARTURE: _add_minutes(crews.day_start, clock),
+                        WALK_M: walk, EFFORT: pool.effort[i], OVERDUE_YEARS: int(pool.overdue[i]),
+                        WINDOW_START: due[WINDOW_START].iloc[i], WINDOW_END: due[WINDOW_END].iloc[i]})
+        prev = int(pool.local[i])
+    back = pool.walk(site, prev, 0)
+    clock += back / team.metres_per_minute
+    return TeamDay(team.code, day, site, tuple(team.members), (float(start[0]), float(start[1])),
+                   tuple(due[C.STATION].iloc[ordered]),
+                   tour_length(list(range(1, len(ordered) + 1)), _sub_matrix(pool, ordered)),
+                   crews.day_start, _add_minutes(crews.day_start, clock))
+
+
+def _left_over(pool: _Pool, crews: CrewSettings, starts: Mapping[str, np.ndarray], cut: Mapping[int, dt.date],
+               route_method: str) -> tuple[int, list[tuple[int, str]], list[Diagnostic]]:
+    """Stations that did not fit: the team-days more that would be needed, each station with its reason,
+    and the diagnostic saying so."""
     left = np.flatnonzero(pool.pending)
-    extra = 0
-    diags: list[Diagnostic] = []
-    if left.size:
-        team0 = max(crews.teams, key=lambda t: t.day_minutes)
-        extra = _team_days_needed(pool, left, starts, team0.day_minutes, team0.metres_per_minute, route_method)
-        for i in left:
-            if int(i) in cut:
-                unplanned.append((int(i), f"did not fit before access permission for site {pool.site[i]} "
-                                          f"lapses on {cut[int(i)].isoformat()}"))
-            else:
-                unplanned.append((int(i), "did not fit in the season window"))
-        diags.append(Diagnostic(
-            "work_does_not_fit",
-            f"{left.size} station{'s' if left.size != 1 else ''} did not fit in the season window: "
-            f"about {extra} more team-day{'s' if extra != 1 else ''} are needed"))
+    if not left.size:
+        return 0, [], []
+    team0 = max(crews.teams, key=lambda t: t.day_minutes)
+    extra = _team_days_needed(pool, left, starts, team0.day_minutes, team0.metres_per_minute, route_method)
+    unplanned = []
+    for i in left:
+        if int(i) in cut:
+            unplanned.append((int(i), f"did not fit before access permission for site {pool.site[i]} "
+                                      f"lapses on {cut[int(i)].isoformat()}"))
+        else:
+            unplanned.append((int(i), "did not fit in the season window"))
+    diag = Diagnostic(
+        "work_does_not_fit",
+        f"{left.size} station{'s' if left.size != 1 else ''} did not fit in the season window: "
+        f"about {extra} more team-day{'s' if extra != 1 else ''} are needed")
+    return extra, unplanned, [diag]
+
+
+def _hold_back_diagnostics(held: list[tuple[int, str]], unplanned: list[tuple[int, str]]) -> list[Diagnostic]:
+    diags = []
     if held:
         diags.append(Diagnostic("access_lapsed", f"{len(held)} station{'s' if len(held) != 1 else ''} held back "
                                                   "because access permission lapses before the window"))
@@ -500,22 +573,7 @@ def plan_season(
     if n_too_long:
         diags.append(Diagnostic("too_long_for_a_day", f"{n_too_long} station(s) cannot be reached and recorded "
                                                        "within one working day"))
-    visit_cols = [TEAM, C.DATE, C.SITE, ORDER, C.STATION, C.X, C.Y, ARRIVAL, DEPARTURE, WALK_M, EFFORT,
-                  OVERDUE_YEARS, WINDOW_START, WINDOW_END]
-    visits = pd.DataFrame(records, columns=visit_cols)
-
-    def listing(items: list[tuple[int, str]]) -> pd.DataFrame:
-        return pd.DataFrame({C.STATION: [due[C.STATION].iloc[i] for i, _ in items],
-                             C.SITE: [pool.site[i] for i, _ in items],
-                             REASON: [r for _, r in items]}, columns=[C.STATION, C.SITE, REASON])
-
-    return SeasonPlan(year=int(year), seed=seed, visits=visits, team_days=tuple(team_days),
-                      held_back=listing(held), unplanned=listing(unplanned), extra_team_days=int(extra),
-                      site_order=tuple(site_order), diagnostics=tuple(diags),
-                      params={"randomise_site_order": randomise_site_order, "route_method": route_method,
-                              "crews": crews.to_dict(),
-                              "routing": "paths" if network is not None else "straight",
-                              "access_until": {k: (v.isoformat() if v else None) for k, v in access_until.items()}})
+    return diags
 
 
 def nearest_neighbour_length(plan: SeasonPlan) -> float:

@@ -1,5 +1,6 @@
-"""What the record-keeping services share: who is working, a transaction run again after a transient
-failure, a station looked up by code, a reason required, a change-log row, and a stored value's change."""
+"""What the services share: who is working, a transaction run again after a transient failure, a station
+looked up by code, the target species asked for, a reason required, a change-log row, and a stored value's
+change."""
 
 from __future__ import annotations
 
@@ -14,8 +15,10 @@ from dataclasses import dataclass
 from typing import TypeVar
 
 import numpy as np
+import pandas as pd
 
-from monitor.db import Session, queries, select
+from monitor import columns as C
+from monitor.db import Session, Store, queries, select
 from monitor.db import models as M
 from monitor.errors import InputError, InputProblem, MonitorError
 
@@ -78,6 +81,19 @@ def station_by_code(session: Session, programme_id: int, code: str, label: str) 
         codes = list(session.exec(select(M.Station.code).where(M.Station.programme_id == programme_id)).all())
         raise InputError(InputProblem(label, None, "STATION", code, "a station of the programme" + closest(code, codes)))
     return station
+
+
+def target_species(store: Store, programme_id: int, species: list[str] | None) -> pd.DataFrame:
+    """The programme's target species and measures (``queries.species`` rows with a measure), only those of
+    ``species`` when given; a code that is not a target is refused naming the targets."""
+    targets = queries.species(store, programme_id).dropna(subset=[C.MEASURE])
+    if species:
+        unknown = sorted(set(species) - set(targets[C.SPECIES]))
+        if unknown:
+            raise InputError(InputProblem("--species", None, None, ", ".join(unknown),
+                                          f"a target species code ({', '.join(targets[C.SPECIES])})"))
+        targets = targets[targets[C.SPECIES].isin(species)]
+    return targets
 
 
 def need_reason(label: str, reason: str | None, why: str) -> str:

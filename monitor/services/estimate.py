@@ -23,6 +23,7 @@ from monitor.estimate import (
     season_estimates,
 )
 from monitor.estimate.plots import plot_gradient, plot_running_mean, plot_season_comparison
+from monitor.services.common import target_species
 
 
 def _season_values(store: Store, programme_id: int, year: int, *, species: str | None = None,
@@ -30,17 +31,6 @@ def _season_values(store: Store, programme_id: int, year: int, *, species: str |
     long = queries.observations_long(store, programme_id, species=species, measure=measure, sites=sites,
                                      first_year=year, last_year=year)
     return long[long["repeat_no"] == 0]
-
-
-def _targets(store: Store, programme_id: int, species: list[str] | None) -> pd.DataFrame:
-    targets = queries.species(store, programme_id).dropna(subset=[C.MEASURE])
-    if species:
-        unknown = sorted(set(species) - set(targets[C.SPECIES]))
-        if unknown:
-            raise InputError(InputProblem("--species", None, None, ", ".join(unknown),
-                                          f"a target species code ({', '.join(targets[C.SPECIES])})"))
-        targets = targets[targets[C.SPECIES].isin(species)]
-    return targets
 
 
 @one_snapshot
@@ -53,7 +43,7 @@ def season_table(db: str | None, year: int, *, programme_code: str | None = None
         stations = queries.stations(store, programme.id)
         site_table = queries.sites(store, programme.id)[[C.SITE, C.AREA]]
         frames, skipped = [], []
-        for target in _targets(store, programme.id, species).to_dict(orient="records"):
+        for target in target_species(store, programme.id, species).to_dict(orient="records"):
             values = _season_values(store, programme.id, year, species=target[C.SPECIES], measure=target[C.MEASURE],
                                     sites=sites)
             if values.empty:

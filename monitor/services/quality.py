@@ -33,6 +33,7 @@ from monitor.errors import DataError, InputError, InputProblem
 from monitor.io.programme import parse_revisit_rule
 from monitor.quality import quality_flags
 from monitor.services.common import current_user
+from monitor.services.design import as_date
 from monitor.settings import programme_settings
 
 #: note on an open flag that the checks stopped finding (it reopens if they find it again)
@@ -76,16 +77,6 @@ def flag_identity(kind: str, station: object, species: object, year: object, det
     return kind, none(station), none(species), None if year is None else int(year), subject
 
 
-def _date(value: object) -> dt.date | None:
-    if value is None or (not isinstance(value, (str, dt.date)) and pd.isna(value)):
-        return None
-    if isinstance(value, dt.datetime):
-        return value.date()
-    if isinstance(value, dt.date):
-        return value
-    return dt.date.fromisoformat(str(value)[:10])
-
-
 def check_inputs(store: Store, programme: M.Programme) -> dict:
     """The stored tables the checks read, in the frames :func:`monitor.quality.quality_flags` takes."""
     pid = programme.id
@@ -93,10 +84,10 @@ def check_inputs(store: Store, programme: M.Programme) -> dict:
     table = queries.observations_long(store, pid, columns=[C.STATION, C.SPECIES, C.MEASURE, C.YEAR, "value",
                                                            C.OBSERVER])
     visits = queries.visit_outcomes(store, pid)
-    visits[C.DATE] = [_date(d) for d in visits[C.DATE]]
+    visits[C.DATE] = [as_date(d) for d in visits[C.DATE]]
     stations = queries.stations(store, pid)
     for column in ("established", "retired"):
-        stations[column] = [_date(d) for d in stations[column]]
+        stations[column] = [as_date(d) for d in stations[column]]
     panels = queries.panels(store, pid)
     rules = [parse_revisit_rule(r) or (1, 0) for r in panels["rule"]]
     panels["visit_years"] = [a for a, _ in rules]

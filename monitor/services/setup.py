@@ -21,6 +21,7 @@ from monitor.db.engine import make_engine
 from monitor.errors import InputError, InputProblem
 from monitor.io import headers as H
 from monitor.io import programme as readers
+from monitor.io.geojson import read_json
 from monitor.io.settings import read_programme_json
 from monitor.settings import DEFAULT_CHANGE_MARGIN
 
@@ -159,7 +160,8 @@ def load_sites(session: Session, programme: M.Programme, path: Path, report: Loa
 
 
 def _feature_properties(path: Path) -> list[dict]:
-    doc = json.loads(path.read_text(encoding="utf-8-sig"))
+    """Each feature's properties (the file itself was read and checked by ``read_sites_geojson``)."""
+    _file, doc = read_json(path, "a GeoJSON file (valid UTF-8 JSON)")
     return [dict(f.get("properties") or {}) for f in doc["features"]]
 
 

@@ -24,7 +24,7 @@ from monitor.errors import Diagnostic, EstimationError, InputError, InputProblem
 from monitor.families import family as family_of
 from monitor.services import analyses
 from monitor.services.analyses import AREA_ALL, AREA_KINDS, FitTask
-from monitor.services.common import current_user
+from monitor.services.common import current_user, target_species
 from monitor.services.executor import open_runner
 from monitor.settings import DEFAULT_CHANGE_MARGIN, programme_settings
 from monitor.trend import TrendModel, TrendResult
@@ -158,17 +158,6 @@ def _observation_effect_optional(family: str | None) -> bool:
     return family is None or family_of(family).observation_effect == "optional"
 
 
-def _targets(store: Store, programme_id: int, species: list[str] | None) -> pd.DataFrame:
-    targets = queries.species(store, programme_id).dropna(subset=[C.MEASURE])
-    if species:
-        unknown = sorted(set(species) - set(targets[C.SPECIES]))
-        if unknown:
-            raise InputError(InputProblem("--species", None, None, ", ".join(unknown),
-                                          f"a target species code ({', '.join(targets[C.SPECIES])})"))
-        targets = targets[targets[C.SPECIES].isin(species)]
-    return targets
-
-
 def _area_tasks(task: FitTask, by: str, areas: pd.Series) -> tuple[list[FitTask], list[Diagnostic]]:
     """One task per area (site, stratum or region) of a species' table, in code order."""
     data = task.data
@@ -230,7 +219,7 @@ def _fit_programme(db: str | None, *, programme_code: str | None, species: list[
     store = Store.open(db)
     try:
         programme = store.programme(programme_code)
-        targets = _targets(store, programme.id, species)
+        targets = target_species(store, programme.id, species)
         areas = fit_store.area_of_stations(store, programme.id).set_index(C.STATION)[by] if by else None
         from monitor.services.relocation import lineage
 

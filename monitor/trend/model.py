@@ -34,7 +34,7 @@ YEAR_EFFECT_MIN_YEARS (monitor/settings.py) years with data, the fewest with whi
 anyway).  With a year effect the slope's interval, its profile interval and the call use
 a t reference with the between-year (containment) df of the engine
 (monitor.trend.glmm.coefficient_df: n_years - 2 for a straight-line trend) and the ML standard
-error scaled by sqrt(n_years / df), the REML-equivalent between-year variance (see _reference);
+error scaled to its REML equivalent, sqrt((n_years - 1 + k) / df) (see _ml_year_scale);
 without it a normal reference.  The result says which (``df_method``, ``interval_label``).
 
 Observation-level effect for k-of-n data (frequency, pin hits): binomial with a normal
@@ -121,9 +121,6 @@ OVERDISPERSION_P = 0.01
 LOW_COVERAGE_FRACTION = 0.5  # common practice: a year with < half the median stations visited
 NO_OBSERVER = "(not recorded)"   # the observer level of visits whose observer cell is blank
 NATURAL_UNIT = {code: m.level_unit for code, m in measures.REGISTRY.items() if m.level_unit is not None}
-CHANGE_LABEL = {"count": "annual change", "odds": "annual change in the odds",
-                "odds of cover": "annual change in the odds of cover",
-                "geometric mean": "annual change in the geometric mean"}
 
 
 def default_family(measure: str) -> str:
@@ -260,7 +257,7 @@ class TrendResult:
     @property
     def change_label(self) -> str:
         """What the annual change is a change of, for a table heading or a sentence."""
-        return CHANGE_LABEL[self.change_scale]
+        return family_of(self.family).change_label
 
     @property
     def interval_label(self) -> str:
@@ -272,10 +269,10 @@ class TrendResult:
     def _coef_reference(self) -> tuple[np.ndarray, np.ndarray]:
         """Per fixed effect: the reference df (inf: normal) and the factor on its standard error.
 
-        The same rule as the slope's Wald interval and call (``_coefficient_reference``): a
-        fixed effect that is constant within years (intercept, slope, year-level covariates)
-        has the t reference with the between-year df and, for an ML fit, the standard error
-        scaled by sqrt(n_years / df); the others the normal reference, unscaled.
+        The same rule as the slope's Wald interval and call (``_reference``): a fixed effect that
+        is constant within years (intercept, slope, year-level covariates) has the t reference
+        with the between-year df and, for an ML fit, the standard error times ``se_scale`` (the
+        year stratum's REML-equivalent factor); the others the normal reference, unscaled.
         """
         df = (np.full(len(self.params), math.inf) if self.params_df is None
               else np.asarray(self.params_df.reindex(self.params.index), float))
@@ -284,7 +281,7 @@ class TrendResult:
             for name in (SLOPE, INTERCEPT):
                 if name in self.params.index:
                     df[list(self.params.index).index(name)] = self.slope_df
-        scale = np.array([_coefficient_reference(float(k), self.n_years, self.reml)[1] for k in df])
+        scale = np.where(np.isfinite(df), self.se_scale, 1.0)
         return df, scale
 
     def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
@@ -293,7 +290,7 @@ class TrendResult:
         The reference is the one of the slope's Wald interval and call: with a year effect the
         fixed effects constant within years (intercept, slope) use the t reference with the
         between-year (containment) df, n_years - 2 for a straight-line trend, and the standard
-        error times sqrt(n_years / df) (ML fits; ``se_scale`` for the slope; see ``df_method``);
+        error times ``se_scale`` (ML fits; see ``df_method`` and ``_ml_year_scale``);
         the other fixed effects, and every fixed effect without a year effect, the normal (z).
         """
         df, scale = self._coef_reference()
@@ -411,7 +408,7 @@ class TrendModel:
         ``lineage`` column names the first station of a relocation chain: the stations of one
         chain share one station effect (a moved quadrat continues its series).
     measure : str
-        count, cover, frequency, pin_hits or presence.
+        A measure code of the registry (monitor/measures.py): count, cover, frequency, pin_hits, presence, ...
     family : str, optional
         One of FAMILIES; default ``default_family(measure)``.
     year_effect : {"linear", "factor"}
@@ -495,9 +492,10 @@ class TrendModel:
         if observation_effect and fam.observation_effect != "optional":
             raise InputError("an observation-level effect is set by the family for counts (poisson-lognormal) "
                              "and by the residual for cover; observation_effect applies to binomial data only")
-        if observation_effect and measure == C.MEASURE_PRESENCE:
+        if observation_effect and measures.REGISTRY[measure].kind == measures.KIND_BINARY:
             raise InputError("presence (0 or 1 a visit) cannot carry an observation-level effect")
         self.measure, self.family, self.year_effect = measure, fam.name, year_effect
+        self.entry = measures.REGISTRY[measure]   # the measure's registry entry (monitor/measures.py)
         self.fam: ModelFamily = fam
         self.observer_effect, self.site_slope = bool(observer_effect), bool(site_slope)
         self.covariates = tuple(covariates)
@@ -601,6 +599,10 @@ class TrendModel:
                 k, n = entry.columns
                 if np.any(v[k] > v[n]):
                     problems.append(InputProblem("<trend data>", None, k, None, f"whole numbers from 0 to '{n}' (> 0)"))
+            # and what the family's model needs of them (the lognormal family takes logarithms)
+            need = None if problems else self.fam.check_values(v[entry.value_column])
+            if need:
+                problems.append(InputProblem("<trend data>", None, entry.value_column, None, need))
         if problems:
             raise InputError(problems)
         d[C.YEAR] = d[C.YEAR].astype(int)
@@ -677,7 +679,7 @@ class TrendModel:
         if len(d) != len(self.data):
             y = y[d.index.to_numpy()]
         trials = None
-        if self.fam.density == "binomial":
+        if self.fam.has_trials:
             trials = d[columns[1]].to_numpy(float) if len(columns) > 1 else np.ones(len(d))
         return density(self.fam, y, trials), eps
 
@@ -778,7 +780,7 @@ class TrendModel:
         j = spec_lin.x_names.index(SLOPE)
         slope = float(fit_lin.beta[j])
         slope_se = float(math.sqrt(fit_lin.vcov[j, j]))
-        q, slope_df, df_method, se_scale = _reference(fit_lin, j, n_years, self.reml)
+        q, slope_df, df_method, se_scale = _reference(fit_lin, j, self.years - self.centre, self.reml)
         lo, hi = slope - q * slope_se, slope + q * slope_se
         annual = Interval(math.expm1(slope), math.expm1(lo), math.expm1(hi))
         span = self.last - self.first
@@ -832,7 +834,7 @@ class TrendModel:
             cover_eps=eps, vcov=vcov, year_random=self.year_random, site_by_year=self.site_by_year,
             observation_effect=bool(olre and self.fam.observation_effect == "optional"), rho=dict(getattr(fit_lin, "rho", {}) or {}),
             slope_df=slope_df, df_method=df_method, estimator=estimator, se_scale=se_scale,
-            cover_transform=cover_transform_text(eps) if self.measure == C.MEASURE_COVER else None,
+            cover_transform=cover_transform_text(eps) if self.entry.kind == measures.KIND_PERCENT else None,
             change_scale=self.fam.change_scale, natural_unit=natural.unit, yearly=yearly, trend_line=line,
             level_change=level, base_year=self.base_year if fit_fac is not None else None,
             no_index_years=tuple(sorted(self.no_index_years)), params_df=params_df)
@@ -847,7 +849,7 @@ class TrendModel:
         """
         if self.fam.observation_effect == "always":
             return True, None
-        if self.fam.observation_effect != "optional" or self.measure == C.MEASURE_PRESENCE:
+        if self.fam.observation_effect != "optional" or self.entry.kind == measures.KIND_BINARY:
             return False, None
         if self.observation_effect is not None:
             return bool(self.observation_effect), None
@@ -1014,7 +1016,7 @@ class TrendModel:
             out.append(Diagnostic("low_coverage_years",
                                   f"Few stations were visited in {yrs} (under half the median of {per_year.median():g} a year)."))
         alt = self.fam.overdispersed_alternative
-        if alt is not None and not spec.olre and self.measure != C.MEASURE_PRESENCE:
+        if alt is not None and not spec.olre and self.entry.kind != measures.KIND_BINARY:
             ratio, p = od if od is not None else _pearson_test(spec, fit)
             if _overdispersed(ratio, p):
                 out.append(Diagnostic("overdispersion",
@@ -1030,36 +1032,53 @@ class TrendModel:
         return out
 
 
-def _reference(fit: GlmmFit, j: int, n_years: int, reml: bool) -> tuple[float, float, str, float]:
+def _reference(fit: GlmmFit, j: int, years_t: np.ndarray, reml: bool) -> tuple[float, float, str, float]:
     """The slope's reference: (95 % multiplier of the ML standard error, df, words, SE scale).
 
     Without a year effect: the normal quantile, df inf, scale 1.  With one: the t quantile with
     the engine's between-year df (G - r: G years with data, r year-level fixed effects) times
-    the scale sqrt(G / (G - r)).  An ML variance divides the between-year residual sum of
-    squares by G where the unbiased (REML) one divides by G - r; for balanced Gaussian data the
-    slope's REML standard error is exactly the ML one times sqrt(G / (G - r)), and only then is
-    (b1 - beta1) / se a t variable with G - r df (the regression of yearly means; Patterson &
-    Thompson 1971, from memory).  Without it a t(10) interval from 12 years covers about 93 %
-    (simulated: 93.2 % of 400 Poisson data sets, see DEVELOPERS.md).  A REML fit needs no scale.
+    the scale of _ml_year_scale, which brings the ML year variance to its REML equivalent (the
+    t(G - r) pivot of the regression of yearly means is exact with the REML variance, not the ML
+    one).  A REML fit needs no scale.
     """
     coef_df = getattr(fit, "coef_df", None)
     df = math.inf if coef_df is None else float(coef_df[j])
     if not math.isfinite(df):
         return float(norm.ppf(0.975)), math.inf, str(getattr(fit, "df_method", "z")), 1.0
-    scale = _coefficient_reference(df, n_years, reml)[1]
     words = str(getattr(fit, "df_method", f"t, {df:g} df"))
-    if not reml:
-        words += f"; standard error scaled by sqrt({n_years}/{df:g}) for the ML year variance (REML-equivalent)"
+    if reml:
+        return float(t_dist.ppf(0.975, df)), df, words, 1.0
+    scale, kappa = _ml_year_scale(fit, j, np.asarray(years_t, float), df)
+    words += (f"; standard error scaled by sqrt((G - 1 + k) / {df:g}) = {scale:.4g} (k = {kappa:.3g}) for the ML "
+              "year variance (REML-equivalent)")
     return float(t_dist.ppf(0.975, df)) * scale, df, words, scale
 
 
-def _coefficient_reference(df: float, n_years: int, reml: bool) -> tuple[float, float]:
-    """(df, standard-error factor) of one fixed effect: (inf, 1) for the normal reference; for
-    the t reference with between-year df, sqrt(n_years / df) after an ML fit and 1 after REML
-    (see _reference)."""
-    if not math.isfinite(df):
-        return math.inf, 1.0
-    return df, (1.0 if reml else math.sqrt(n_years / df))
+def _ml_year_scale(fit: GlmmFit, j: int, years_t: np.ndarray, df: float) -> tuple[float, float]:
+    """(sqrt((G - 1 + k) / df), k): the factor taking the ML slope SE to its REML equivalent.
+
+    In the year stratum (G years with data) the REML variance divides the residual sum of squares
+    of the yearly values about the line by G - r (= df).  The ML variance divides it by about
+    G - 1 + k: with station (or site) effects crossed with years the intercept lies in the
+    grand-mean stratum, whose log-determinant pulls the year variance down by k = lambda_year /
+    lambda_grand mean (0 to 1), and k = 1 without such effects (then the factor is sqrt(G / df)).
+    k is read from the fit's own covariance: var(slope) = lambda_year / (S S_xx) and
+    var(level at the mean year) = lambda_grand mean / (S G), so k = S_xx var(b1) / (G var(level)).
+    Checked against lme4's REML SE (tests/trend/test_trend_year_model.py: 1.3e-4 relative on
+    unbalanced data) and against the exact t of yearly means (DEVELOPERS.md).
+    """
+    G = len(years_t)
+    kappa = 1.0
+    names = list(getattr(fit, "x_names", []))
+    V = np.asarray(fit.vcov, float)
+    if INTERCEPT in names and G > 1:
+        i0 = names.index(INTERCEPT)
+        tbar = float(np.mean(years_t))
+        sxx = float(np.sum((years_t - tbar) ** 2))
+        level = V[i0, i0] + 2 * tbar * V[i0, j] + tbar * tbar * V[j, j]
+        if level > 0 and sxx > 0:
+            kappa = float(np.clip(sxx * V[j, j] / (G * level), 0.0, 1.0))
+    return math.sqrt((G - 1 + kappa) / df), kappa
 
 
 def _estimator(fit: GlmmFit, model: TrendModel, full: bool) -> str:
@@ -1109,7 +1128,7 @@ class _NaturalScale:
         self.measure, self.fam = model.measure, model.fam
         self.eps = 0.0 if eps is None else float(eps)
         self.divisor, self.scale, self.top = 1.0, 1.0, math.inf
-        if self.measure == C.MEASURE_COUNT:
+        if measures.REGISTRY[self.measure].kind == measures.KIND_COUNT:
             areas = (model.data[C.QUADRAT_AREA].dropna().unique() if C.QUADRAT_AREA in model.data.columns
                      else np.array([]))
             if len(areas) == 1 and float(areas[0]) > 0:

@@ -38,7 +38,7 @@ def station_changes(data: pd.DataFrame, measure: str) -> pd.DataFrame:
     data : DataFrame
         Long table with ``station``, ``year`` and the measure's value columns.
     measure : str
-        count, cover, frequency, pin_hits or presence.
+        A measure code of the registry (monitor/measures.py).
 
     Returns
     -------

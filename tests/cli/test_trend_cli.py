@@ -68,6 +68,26 @@ def test_binomial_table_rows_say_odds_and_show_the_share(tmp_path, capsys):
     assert "odds" in text and "% of cells occupied" in text
 
 
+def test_shoot_height_table_is_fitted_on_the_log_scale_and_said_in_cm(tmp_path, capsys):
+    """Invented heights: log(y) = log(25) - 0.04 (t - 2017.5) + station + year + noise (lognormal family)."""
+    rng = np.random.default_rng(4)
+    st = np.repeat(np.arange(12), 6)
+    yr = np.tile(np.arange(2015, 2021), 12)
+    log_y = (np.log(25.0) - 0.04 * (yr - 2017.5) + rng.normal(0, 0.3, 12)[st] + rng.normal(0, 0.05, 6)[yr - 2015]
+             + rng.normal(0, 0.2, yr.size))
+    path = tmp_path / "heights.csv"
+    pd.DataFrame({"station": st, "year": yr, "height_cm": np.round(np.exp(log_y), 1)}).to_csv(path, index=False)
+    out = run_json(["trend", "--table", str(path)], capsys)
+    assert out["measure"] == "shoot_height" and out["family"] == "lognormal"
+    assert out["level_change"]["unit"] == "cm"
+    assert out["annual_change"]["lower"] < out["annual_change"]["estimate"] < out["annual_change"]["upper"]
+    zero = tmp_path / "zero.csv"
+    pd.DataFrame({"station": ["a", "b"], "year": [2015, 2016], "height_cm": [12.5, 0]}).to_csv(zero, index=False)
+    assert main(["trend", "--table", str(zero)]) == 1
+    assert "zero.csv, row 3, field 'height_cm': got '0.0'; expected a shoot height in cm, above 0" in \
+        capsys.readouterr().err
+
+
 @pytest.mark.parametrize("cell,expected", [
     ("", "field 'count'; expected a whole count of 0 or more (the cell is blank)"),
     ("n/a", "field 'count': got 'n/a'; expected a whole count of 0 or more"),

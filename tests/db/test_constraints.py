@@ -61,6 +61,8 @@ def _rejected(engine, sql: str) -> bool:
         _observation(25, "frequency", "25"),
         _observation(0, "pin_hits", "10"),
         _observation(1, "presence"),
+        _observation(12.5, "shoot_height"),
+        _observation(0.1, "shoot_height"),
     ],
 )
 def test_good_values_are_accepted(engine, sql):
@@ -82,6 +84,9 @@ def test_good_values_are_accepted(engine, sql):
         (_observation(2, "presence"), "presence is 0 or 1"),
         (_observation(3, "count", "25"), "n only for k of n"),
         (_observation(3, "biomass"), "measure must be known (foreign key)"),
+        (_observation(0, "shoot_height"), "shoot height > 0"),
+        (_observation(-2, "shoot_height"), "shoot height > 0"),
+        (_observation(12, "shoot_height", "10"), "no n for shoot height"),
         (
             "INSERT INTO station (id, programme_id, code, site_id, placement, x, y, crs_epsg, fix_method, quadrat_width_m,"
             " quadrat_length_m, state, retired_reason, marker, relocation_notes)"

@@ -137,3 +137,57 @@ def test_memory_does_not_grow_with_the_rows_refused(tmp_path, monkeypatch):
     assert caught.value.total == n * 5 + (n - 997)  # every cell counted: five values a row, and the repeats
     assert len(caught.value.problems) == 100
     assert peak / 1e6 < 2 * size_mb + 1.5, f"peak {peak / 1e6:.1f} MB for a {size_mb:.2f} MB file"
+
+
+CSV_VARIANTS = {
+    "plain": b"station,date\nQ01,2021-05-03\n",
+    "bom and crlf": b"\xef\xbb\xbfstation,date\r\nQ01,2021-05-03\r\nQ02,2021-05-04",
+    "a quoted cell over two crlf lines": b'station,notes\r\nQ01,"gate\r\nlocked"\r\nQ02,ok\r\n',
+    "lone cr line ends": b"station,date\rQ01,2021-05-03\r",
+    "crlf and a lone cr": b"station,date\r\nQ01,2021\r-05-03\r\n",
+    "accents": "station,notes\nQ01,Größe geschätzt\n".encode(),
+    "windows-1252": "station,notes\nQ01,Größe\n".encode("cp1252"),
+    "utf-8 with a stray byte": "station,notes\nQ01,Größe\nQ02,caf".encode() + b"\xe9\n",
+    "semicolons": b"station;date;status\nQ01;2021-05-03;done\nQ02;2021-05-04;done\n",
+    "nul": b"station,date\nQ01,\x002021\n",
+    "empty": b"",
+    "blank": b"  \n\n",
+    "only a byte-order mark": b"\xef\xbb\xbf",
+    "html": b"<!DOCTYPE html><html><body><table></table></body></html>\n",
+    "a title row": b"Field sheet 2021\nstation,date\nQ01,2021-05-03\n",
+    "a row too long": b"station,date\nQ01,2021-05-03,12\n",
+}
+
+
+#: read by the whole-file rule (not UTF-8, a NUL, a lone CR), or refused before any line is read
+WHOLE_FILE = {"lone cr line ends", "crlf and a lone cr", "windows-1252", "utf-8 with a stray byte", "nul", "empty",
+              "blank", "html"}
+
+
+@pytest.mark.parametrize("name", list(CSV_VARIANTS))
+def test_a_csv_read_line_by_line_reads_as_the_whole_text(tmp_path, monkeypatch, name):
+    """A CSV in UTF-8 is read line by line from the file (never held whole); the rows, header and every
+    refusal are those of decoding the whole file at once, whatever the line ends, also when a CRLF straddles
+    two of the blocks the file is scanned in."""
+    from monitor.io import _tables as T
+
+    path = tmp_path / "sheet.csv"
+    path.write_bytes(CSV_VARIANTS[name])
+
+    def read():
+        try:
+            table = T.read_raw_table(path)
+        except InputError as exc:
+            return "refused", [p.line() for p in exc.problems]
+        return table.raw_headers, table.headers, table.rows, [p.line() for p in table.problems().items]
+
+    used = []
+    monkeypatch.setattr(T, "_file_lines", lambda *args, real=T._file_lines: used.append(1) or real(*args))
+    streamed = read()
+    assert bool(used) == (name not in WHOLE_FILE), used
+    monkeypatch.setattr(T, "BLOCK", 3)  # CRLF pairs across block borders
+    assert read() == streamed
+    used.clear()
+    monkeypatch.setattr(T, "_streamable", lambda p: None)  # the whole-file decoding
+    assert read() == streamed
+    assert not used  # the whole-file reading was the one compared

@@ -7,6 +7,7 @@ scipy.stats.nct (scipy 1.17).  The fitter "ols-log" regresses log values on year
 no random effects the simulated power must match it within Monte-Carlo error.
 """
 
+import dataclasses
 import math
 
 import matplotlib
@@ -17,6 +18,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from monitor import columns as col
 from monitor.errors import DesignError
 from monitor.power import (
     Design,
@@ -97,8 +99,10 @@ def test_progress_reports_every_replicate():
 
 
 def test_fitter_must_suit_the_family():
-    with pytest.raises(DesignError):
-        simulate_power(COMPONENTS, Design(5, 5), Scenario(-0.05), rng=np.random.default_rng(1), n_replicates=2,
+    # the trend engine fits the lognormal family to a positive measure, not to counts
+    as_counts = dataclasses.replace(COMPONENTS, measure=col.MEASURE_COUNT)
+    with pytest.raises(DesignError, match="lognormal"):
+        simulate_power(as_counts, Design(5, 5), Scenario(-0.05), rng=np.random.default_rng(1), n_replicates=2,
                        fitter="trend")
     counts = VarianceComponents(family="poisson", intercept=1.0)
     with pytest.raises(DesignError):

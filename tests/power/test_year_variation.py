@@ -16,6 +16,7 @@ Invented parameters only.
 import math
 
 import numpy as np
+import pandas as pd
 import pytest
 from scipy import stats
 
@@ -49,10 +50,15 @@ def lognormal(year_sd: float, residual_sd: float, **kw) -> VarianceComponents:
     return VarianceComponents.from_mean("lognormal", 10.0, residual_sd=residual_sd, year_sd=year_sd, **kw)
 
 
+def _values(data, components) -> pd.Series:
+    """The simulated values of the family's measure (the measure registry names its column)."""
+    return data[col.MEASURE_COLUMNS[components.measure][0]]
+
+
 def test_simulated_year_effects_have_the_stated_sd_and_are_shared_by_every_station():
     components = lognormal(0.3, 1e-6, stations_per_site=1000)
     data = simulate_dataset(components, Design(5, 400), Scenario(0.0), np.random.default_rng(1))
-    y = np.log(data[col.COUNT])
+    y = np.log(_values(data, components))
     by_year = y.groupby(data[col.YEAR])
     assert float(by_year.std().max()) < 1e-4  # every station sees the same year effect
     means = by_year.mean().to_numpy()
@@ -64,7 +70,7 @@ def test_site_by_year_effects_are_shared_within_a_site_only():
     components = VarianceComponents.from_mean("lognormal", 10.0, residual_sd=1e-6, site_year_sd=0.4,
                                               stations_per_site=10)
     data = simulate_dataset(components, Design(400, 3, n_sites=40), Scenario(0.0), np.random.default_rng(2))
-    y = np.log(data[col.COUNT])
+    y = np.log(_values(data, components))
     within = y.groupby([data[col.SITE], data[col.YEAR]]).std()
     assert float(within.max()) < 1e-4
     cells = y.groupby([data[col.SITE], data[col.YEAR]]).mean()
@@ -77,8 +83,8 @@ def test_designs_from_one_seed_share_their_year_effects():
     components = lognormal(0.3, 1e-6, stations_per_site=1000)
     a = simulate_dataset(components, Design(20, 6), Scenario(0.0), np.random.default_rng(5))
     b = simulate_dataset(components, Design(40, 11), Scenario(0.0), np.random.default_rng(5))
-    ya = np.log(a[col.COUNT]).groupby(a[col.YEAR]).mean().to_numpy()
-    yb = np.log(b[col.COUNT]).groupby(b[col.YEAR]).mean().to_numpy()
+    ya = np.log(_values(a, components)).groupby(a[col.YEAR]).mean().to_numpy()
+    yb = np.log(_values(b, components)).groupby(b[col.YEAR]).mean().to_numpy()
     np.testing.assert_allclose(ya, yb[:6], atol=1e-5)
 
 

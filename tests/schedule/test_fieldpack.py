@@ -288,3 +288,69 @@ def test_printed_sheet_every_page_placed_and_page_one_holds_stations(plan, tmp_p
     assert sum(first.count(s.station) > 0 for s in ctx.stations) >= 3
     assert first.count(ctx.date) >= 4                                  # the date whole on its lines
     assert "Safety first" in first                                     # the full notes at the end
+
+
+# a realistic team-day: eight species (each measure kind) with common names, two earlier visits a station
+EIGHT = [("ANEMNE", "count"), ("CALLUV", "cover"), ("PRIMUL", "frequency", 25), ("SUCCIS", "pin_hits", 10),
+         ("GENTIA", "presence"), ("ORCHMA", "count"), ("THYMPO", "cover"), ("POLYVU", "frequency", 25)]
+EIGHT_NAMES = {"ANEMNE": "wood windflower", "CALLUV": "moor heather", "PRIMUL": "pale cowslip",
+               "SUCCIS": "devil's-bit scabious", "GENTIA": "field gentian", "ORCHMA": "early purple orchid",
+               "THYMPO": "wild thyme", "POLYVU": "common milkwort"}
+
+
+def _eight_species_sheet(plan, tmp_path):
+    from monitor.schedule.fieldpack import write_sheet_pdf
+
+    td = plan.team_days[0]
+    visits, obs = [], []
+    for station in td.stations:
+        for year in (2024, 2025):
+            day = dt.date(year, 6, 3)
+            visits.append({"station": station, "date": day, "observers": ("OBS01", "OBS02"), "status": "done"})
+            for species, measure, *n in EIGHT:
+                obs.append({"station": station, "date": day, "species": species, "measure": measure,
+                            "value": 7.0 if measure != "presence" else 1.0, "n": n[0] if n else None})
+    ctx = field_sheet_context(plan, td.team, td.date, STATIONS, crs=EPSG, targets=EIGHT, covariates=COVARIATES,
+                              visits=pd.DataFrame(visits), observations=pd.DataFrame(obs),
+                              programme="Heath quadrats", protocol="P2", species_names=EIGHT_NAMES,
+                              generated=dt.datetime(2026, 5, 1, tzinfo=dt.UTC), site_name="Long Heath")
+    ctx = dataclasses.replace(ctx, stations=ctx.stations * 2)   # a day of 12 stations
+    # rendered and printed as the field pack does (services.schedule: render_field_sheet, write_sheet_pdf)
+    return ctx, write_sheet_pdf(render_field_sheet(ctx), tmp_path / "field_sheet.pdf")
+
+
+def test_printed_sheet_page_one_gives_its_room_to_stations(plan, tmp_path):
+    """With eight species, page 1 holds five stations' blocks (three before the header was made compact);
+    the full safety notes stay on the sheet, after the stations, and page 1 points to them."""
+    from pypdf import PdfReader
+
+    ctx, path = _eight_species_sheet(plan, tmp_path)
+    pages = [" ".join(page.extract_text().split()) for page in PdfReader(str(path)).pages]
+    per_page = [len(re.findall(r"\b\d+\. Q\d{3} · arrive", text)) for text in pages]
+    assert sum(per_page) == len(ctx.stations)
+    assert per_page[0] >= 5, per_page
+    assert "Safety first" in pages[0] and "Safety in the field" in pages[-1]
+    assert all(caution.split(":")[0][:30] in " ".join(pages) for caution in ctx.cautions)
+
+
+def test_printed_sheet_species_codes_never_break(plan, tmp_path):
+    """Every species code is read back whole from the header of every page (no line break inside a code),
+    and the common name is there too; in the HTML the code is its own unbreakable element. Observer codes
+    of earlier visits break, if at all, only after their ';'."""
+    from pypdf import PdfReader
+
+    ctx, path = _eight_species_sheet(plan, tmp_path)
+    for page in PdfReader(str(path)).pages:
+        words = page.extract_text().split()
+        for species, *_ in EIGHT:
+            assert species in words, (species, words[:80])
+        observers = [word for word in words if "OBS0" in word]   # earlier visits (the team is OBS1, OBS2)
+        assert observers and all(re.fullmatch(r"(OBS0[12];?)+", word) for word in observers), observers
+    flat = " ".join(PdfReader(str(path)).pages[0].extract_text().split())
+    assert "wild thyme" in flat and "moor heather" in flat
+    doc = etree.HTML(render_field_sheet(ctx))
+    codes = [span.text for span in doc.xpath('//th/span[@class="code"]')]
+    assert codes == [species for species, *_ in EIGHT] + ["cov"]
+    html = render_field_sheet(ctx)
+    css = html[html.index("<style>"):html.index("</style>")]
+    assert re.search(r"th\.c-value \.code \{[^}]*white-space: nowrap", css)

@@ -92,3 +92,40 @@ def test_lognormal_fit_matches_lmer(key):
     assert crit == pytest.approx(ref["loglik"], abs=1e-3)
     # the annual change is exp(b1) - 1: the change of the geometric mean (sleepstudy: +3.4 % a day)
     assert math.expm1(f.beta[1]) == pytest.approx(math.expm1(ref["fixef"]["t"]), abs=1e-4)
+
+
+def test_trend_model_of_a_positive_measure_matches_lmer_on_oxboys():
+    # the whole trend model on nlme's Oxboys as a positive measure (heights in cm): Subject ->
+    # station, Occasion -> year; lme4 1.1-31 lmer(log(height) ~ t + (1 | Subject) + (1 | fOccasion),
+    # REML = FALSE), t = Occasion - 5 (the trend model centres years at the middle of the series)
+    from monitor import columns as C
+    from monitor import measures
+    from monitor.errors import InputError
+    from monitor.trend import TrendModel
+
+    measure = measures.of_kind(measures.KIND_POSITIVE)[0]
+    column = measures.get(measure).value_column
+    data = pd.DataFrame({C.STATION: OX["Subject"].astype(str), C.YEAR: OX["Occasion"], column: OX["height"]})
+    r = TrendModel(data, measure, family="lognormal", site_effect=False).fit(profile=True, indices=True, fast=False)
+    ref = REF["oxboys_year_ml"]
+    assert r.year_random == "iid" and r.converged
+    assert r.slope == pytest.approx(ref["fixef"]["t"], abs=1e-4)
+    assert r.params["(Intercept)"] == pytest.approx(ref["fixef"]["(Intercept)"], abs=1e-4)
+    assert r.slope_se == pytest.approx(ref["se"]["t"], rel=1e-3)
+    assert r.random_sd["station"] == pytest.approx(ref["sd"]["Subject"], rel=1e-3)
+    assert r.random_sd["year"] == pytest.approx(ref["sd"]["fOccasion"], rel=1e-3)
+    assert r.dispersion == pytest.approx(ref["sigma"], rel=1e-3)
+    assert r.loglik == pytest.approx(ref["loglik"], abs=1e-3)
+    # the annual change is that of the geometric mean; the line is on the measure's own scale
+    assert r.change_scale == "geometric mean" and "geometric mean" in r.change_label
+    assert r.annual_change.estimate == pytest.approx(math.expm1(ref["fixef"]["t"]), abs=1e-4)
+    assert r.trend_line["fit"].is_monotonic_increasing and r.annual_change_profile is not None
+    # the mean over stations and visits: exp(eta + (s_station^2 + sigma^2) / 2) at the middle occasion
+    s2 = ref["sd"]["Subject"] ** 2 + ref["sigma"] ** 2
+    mid = r.trend_line.set_index("year").loc[5, "fit"]
+    assert mid == pytest.approx(math.exp(ref["fixef"]["(Intercept)"] + s2 / 2), rel=1e-3)
+    # a height of 0 cannot be modelled on the log scale: refused, naming the column
+    bad = data.copy()
+    bad.loc[3, column] = 0.0
+    with pytest.raises(InputError, match=column):
+        TrendModel(bad, measure, family="lognormal")

@@ -27,6 +27,17 @@ def nb_frame():
     return YEAR.drop(columns="count").rename(columns={"count_nb": "count"})
 
 
+def reml_equivalent_scale(r, n_years=12, df=10):
+    """sqrt((G - 1 + k) / df) with k = S_xx var(b1) / (G var(level at the mean year)), from the fit's
+    covariance (the rule of monitor.trend.model._ml_year_scale, written out again here)."""
+    V = r.vcov
+    t_ = np.arange(n_years) - (n_years - 1) / 2     # 12 consecutive years, centred
+    level = V.loc["(Intercept)", "(Intercept)"]      # the mean year is the centre
+    k = float(np.sum(t_ ** 2)) * V.loc["year", "year"] / (n_years * level)
+    assert 0 < k < 1
+    return math.sqrt((n_years - 1 + k) / df)
+
+
 def test_default_year_effect_rule():
     assert YEAR_EFFECT_MIN_YEARS == 5
     d = nb_frame()
@@ -45,9 +56,11 @@ def test_trend_with_year_effect_uses_t_reference():
     assert r.slope_se == pytest.approx(ref["se"]["t"], rel=1e-3)
     assert r.random_sd["year"] == pytest.approx(ref["sd"]["fyear"], rel=1e-3)
     assert r.slope_df == 10 and "containment" in r.df_method and r.estimator == "ml-laplace"
-    # scipy.stats.t, times sqrt(12 / 10): the ML year variance brought to its REML-equivalent
-    # (monitor.trend.model._reference; 12 years with data, 10 between-year df)
-    q = t.ppf(0.975, 10) * math.sqrt(12 / 10)
+    # scipy.stats.t, times the factor bringing the ML year variance to its REML equivalent
+    # (monitor.trend.model._ml_year_scale; 12 years with data, 10 between-year df)
+    assert r.se_scale == pytest.approx(reml_equivalent_scale(r), rel=1e-12)
+    assert math.sqrt(11 / 10) < r.se_scale < math.sqrt(12 / 10)
+    q = t.ppf(0.975, 10) * r.se_scale
     assert r.annual_change.lower == pytest.approx(math.expm1(r.slope - q * r.slope_se), rel=1e-12)
     assert r.annual_change.upper == pytest.approx(math.expm1(r.slope + q * r.slope_se), rel=1e-12)
     out = r.to_dict()
@@ -64,25 +77,26 @@ def test_trend_with_year_effect_uses_t_reference():
 def test_conf_int_and_frame_use_the_reference_of_the_slope_interval():
     # The fixed-effect table and conf_int() use the reference of the Wald interval and call:
     # t with the between-year (containment) df, 12 years - 2 = 10, quantile from scipy.stats.t,
-    # and the ML standard error scaled by sqrt(12 / 10); estimates and SEs against glmmTMB 1.1.5
-    # glmmTMB(count_nb ~ t + (1|site) + (1|station) + (1|fyear), nbinom2)
+    # and the ML standard error times the REML-equivalent factor; estimates and SEs against glmmTMB
+    # 1.1.5 glmmTMB(count_nb ~ t + (1|site) + (1|station) + (1|fyear), nbinom2)
     r = TrendModel(nb_frame(), "count", family="negbin").fit(profile=False, indices=False, fast=False)
     ref = REF["negbin_year"]
-    q = t.ppf(0.975, 10) * math.sqrt(12 / 10)
+    scale = reml_equivalent_scale(r)
+    q = t.ppf(0.975, 10) * scale
     ci, frame = r.conf_int(), r.to_frame()
     for ours, theirs in (("year", "t"), ("(Intercept)", "(Intercept)")):
         est, se = ref["fixef"][theirs], ref["se"][theirs]
         assert ci.loc[ours, "lower"] == pytest.approx(est - q * se, abs=2e-4), ours
         assert ci.loc[ours, "upper"] == pytest.approx(est + q * se, abs=2e-4), ours
-        assert frame.loc[ours, "df"] == 10 and frame.loc[ours, "se_scale"] == pytest.approx(math.sqrt(1.2))
-        assert frame.loc[ours, "reference"] == "t, 10 df, SE x 1.095"
+        assert frame.loc[ours, "df"] == 10 and frame.loc[ours, "se_scale"] == pytest.approx(scale)
+        assert frame.loc[ours, "reference"] == f"t, 10 df, SE x {scale:.4g}"
     # the same bounds as the annual change (exp(b1) - 1) that the call reads
     assert math.expm1(ci.loc["year", "lower"]) == pytest.approx(r.annual_change.lower, rel=1e-12)
     assert math.expm1(ci.loc["year", "upper"]) == pytest.approx(r.annual_change.upper, rel=1e-12)
     assert list(frame.columns) == ["estimate", "se", "lower", "upper", "df", "se_scale", "reference"]
     # 90 % intervals take scipy's 0.95 quantile
     assert r.conf_int(0.10).loc["year", "upper"] == pytest.approx(
-        r.slope + t.ppf(0.95, 10) * math.sqrt(1.2) * r.slope_se, rel=1e-12)
+        r.slope + t.ppf(0.95, 10) * scale * r.slope_se, rel=1e-12)
     # a covariate that varies within years keeps the normal reference, unscaled
     rng = np.random.default_rng(3)
     d = nb_frame().assign(wet=lambda x: rng.normal(0, 1, len(x)))
@@ -96,19 +110,29 @@ def test_conf_int_and_frame_use_the_reference_of_the_slope_interval():
 
 def test_conf_int_of_reml_and_ml_cover_against_lmer():
     # lme4 1.1-31 lmer(z ~ t + (1|site) + (1|station) + (1|fyear)), REML and ML: the REML interval is
-    # estimate -/+ t(0.975, 10) x its SE (no scaling); the ML one scales the ML SE by sqrt(12 / 10)
+    # estimate -/+ t(0.975, 10) x its SE (no scaling); the ML fit's SE times its factor is lmer's REML
+    # SE of the slope (the factor's purpose), here on unbalanced data (651 of 720 station-years)
     cover = YEAR.assign(cover_pct=100 / (1 + np.exp(-YEAR["z"])))
-    for reml, key, scale in ((True, "gaussian_year_reml", 1.0), (False, "gaussian_year_ml", math.sqrt(1.2))):
-        r = TrendModel(cover, "cover", reml=reml).fit(profile=False, indices=False, fast=False)
+    reml_se = REF["gaussian_year_reml"]["se"]["t"]
+    ml = TrendModel(cover, "cover").fit(profile=False, indices=False, fast=False)
+    assert ml.slope_se == pytest.approx(REF["gaussian_year_ml"]["se"]["t"], rel=1e-3)
+    assert ml.slope_se * ml.se_scale == pytest.approx(reml_se, rel=1e-3)
+    # ...which the old factor sqrt(G / (G - 2)) missed by 3 %
+    assert abs(ml.slope_se * math.sqrt(12 / 10) / reml_se - 1) > 0.03
+    for reml, key in ((True, "gaussian_year_reml"), (False, "gaussian_year_ml")):
+        r = TrendModel(cover, "cover", reml=reml).fit(profile=False, indices=False, fast=False) if reml else ml
         ref = REF[key]
         ci = r.conf_int()
-        q = t.ppf(0.975, 10) * scale
+        q = t.ppf(0.975, 10) * (1.0 if reml else r.se_scale)
         for ours, theirs in (("year", "t"), ("(Intercept)", "(Intercept)")):
             est, se = ref["fixef"][theirs], ref["se"][theirs]
             # z in the fixture is rounded to 6 decimals before the logistic: 1e-4 on the estimates
             assert ci.loc[ours, "lower"] == pytest.approx(est - q * se, abs=2e-4), (key, ours)
             assert ci.loc[ours, "upper"] == pytest.approx(est + q * se, abs=2e-4), (key, ours)
-        assert r.to_frame().loc["year", "reference"] == ("t, 10 df" if reml else "t, 10 df, SE x 1.095")
+        assert r.to_frame().loc["year", "reference"] == ("t, 10 df" if reml else f"t, 10 df, SE x {r.se_scale:.4g}")
+    # the ML slope interval is lmer's REML interval (to its estimate's and SE's tolerances)
+    est = REF["gaussian_year_reml"]["fixef"]["t"]
+    assert ml.conf_int().loc["year", "lower"] == pytest.approx(est - t.ppf(0.975, 10) * reml_se, abs=2e-4)
     # without a year effect: the normal reference everywhere
     r0 = TrendModel(cover, "cover", year_random="none").fit(profile=False, indices=False, fast=False)
     f0 = r0.to_frame()
@@ -120,7 +144,7 @@ def test_profile_interval_uses_t_quantile():
     m = TrendModel(YEAR, "frequency")   # occupied of 20 cells, binomial with a year effect
     r = m.fit(profile=True, indices=False)
     q = t.ppf(0.975, r.slope_df) * r.se_scale   # the Wald interval's multiplier (see the test above)
-    assert r.se_scale == pytest.approx(math.sqrt(r.n_years / r.slope_df))
+    assert math.sqrt((r.n_years - 1) / r.slope_df) <= r.se_scale <= math.sqrt(r.n_years / r.slope_df)
     lo, hi = np.log1p(r.annual_change_profile.lower), np.log1p(r.annual_change_profile.upper)
     # independent check: refit with the slope fixed at each bound (as an offset); the
     # likelihood-ratio statistic there is the square of the t quantile

@@ -28,7 +28,8 @@ def test_fields_carry_the_importers_rule_for_each_measure_and_the_programmes_gri
     assert by_measure[C.MEASURE_FREQUENCY]["rule"]["up_to_n"] and "n = 25" in by_measure[C.MEASURE_FREQUENCY]["hint"]
     assert "n = 10" in by_measure[C.MEASURE_PIN_HITS]["hint"]
     assert fields[-1] == {"kind": "covariate", "header": "cov:soil_moisture[%]", "species": None, "measure": None,
-                          "n": None, "label": "soil_moisture [%]", "hint": "", "whole": False, "rule": None}
+                          "n": None, "label": "soil_moisture [%]", "hint": "", "whole": False, "rule": None,
+                          "zero": False}
 
 
 def test_every_measure_has_a_rule_and_the_importer_words_it_the_same():
@@ -41,7 +42,8 @@ def test_every_measure_has_a_rule_and_the_importer_words_it_the_same():
 
     assert set(VALUE_RULES) == set(C.MEASURES)
     bad = {C.MEASURE_COUNT: 2.5, C.MEASURE_COVER: 101.0, C.MEASURE_FREQUENCY: 26.0, C.MEASURE_PIN_HITS: 11.0,
-           C.MEASURE_PRESENCE: 2.0}
+           C.MEASURE_PRESENCE: 2.0, C.MEASURE_SHOOT_HEIGHT: 0.0}
+    assert set(bad) == set(C.MEASURES), "a bad value for every measure in the registry"
     ns = {C.MEASURE_FREQUENCY: 25, C.MEASURE_PIN_HITS: 10}
     for measure, value in bad.items():
         day = dt.date(2020, 6, 1)
