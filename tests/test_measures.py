@@ -139,12 +139,15 @@ def _simulated(m: measures.Measure, n_stations: int, trials: int | None) -> pd.D
     """Six seasons of the measure's columns from the power stage's model of its default family."""
     from monitor.power import Design, Scenario, VarianceComponents, simulate_dataset
 
+    from monitor.families import family as family_of
+
     family = m.family
-    extra = {"residual_sd": 0.3} if family in ("logit-normal", "lognormal") else {}
-    if family == "poisson-lognormal":
+    fam = family_of(family)   # its dispersion and observation effect, from the family registry
+    extra = {}
+    if fam.has_dispersion:
+        extra[fam.dispersion_field] = 5.0 if fam.dispersion_field == "theta" else 0.3
+    if fam.observation_effect == "always":
         extra["observation_sd"] = 0.2
-    if family == "negbin":
-        extra["theta"] = 5.0
     if m.needs_n:
         extra["trials"] = trials
     components = VarianceComponents.from_mean(family, TYPICAL_LEVEL[family], station_sd=0.4, site_sd=0.2,

@@ -38,7 +38,8 @@ autodoc_default_options = {"show-inheritance": True}
 source_suffix = {".rst": "restructuredtext", ".md": "markdown"}
 root_doc = "api/index"
 exclude_patterns = ["api/_ext"]
-# tutorial.md marks its code blocks `console` and `csv file=NAME` (run by tests/test_tutorial.py)
+# tutorial.md marks its code blocks `console` and `csv file=NAME` (run by tests/test_tutorial.py; the
+# csv lexer is registered in setup() below)
 myst_heading_anchors = 3
 
 html_theme = "alabaster"
@@ -71,4 +72,8 @@ def _references_as_paragraphs(app, what, name, obj, options, lines):
 
 
 def setup(app):
+    from pygments.lexers.special import TextLexer
+
     app.connect("autodoc-process-docstring", _references_as_paragraphs, priority=400)
+    # tutorial.md's ```csv file=NAME blocks (Pygments has no CSV lexer): shown as plain text
+    app.add_lexer("csv", TextLexer)
