@@ -344,3 +344,30 @@ def test_a_measure_without_an_absent_value_may_be_blank_and_is_never_filled_with
     assert filled[C.MEASURE].tolist() == [C.MEASURE_COUNT] and filled["value"].tolist() == [0.0]
     zero_buttons = {f["measure"]: f["zero"] for f in phone_sheet_fields(targets)}
     assert zero_buttons == {C.MEASURE_SHOOT_HEIGHT: False, C.MEASURE_COUNT: True}
+
+
+def test_entry_workbook_checks_each_value_column_by_its_measures_rule(tmp_path):
+    """The .xlsx entry sheet's data validation (read back with openpyxl) follows the registry's rule."""
+    from openpyxl import load_workbook
+
+    from monitor.io.sheets import entry_workbook
+
+    headers = {code: measures.REGISTRY[code].header(SPECIES, 25 if measures.REGISTRY[code].needs_n else None)
+               for code in measures.codes()}
+    rows = pd.DataFrame({"station": ["Q1"], "date": ["2026-06-01"], "status": [""]})
+    path = entry_workbook(tmp_path / "entry.xlsx", rows, statuses=C.VISIT_STATUSES, observers=["OBS01"],
+                          value_columns=[*headers.values(), "cov:soil[%]"])
+    sheet = load_workbook(path).worksheets[0]
+    column_of = {cell.value: cell.column_letter for cell in sheet[1]}
+    rule_of = {str(v.sqref).split(":")[0]: v for v in sheet.data_validations.dataValidation}
+    for code, header in headers.items():
+        rule, v = measures.REGISTRY[code].rule, rule_of[f"{column_of[header]}2"]
+        assert v.type == ("whole" if rule.whole else "decimal"), code
+        assert float(v.formula1) == rule.minimum
+        if rule.up_to_n:
+            assert (v.operator, v.formula2) == ("between", "25")
+        elif rule.maximum is not None:
+            assert (v.operator, float(v.formula2)) == ("between", rule.maximum)
+        else:
+            assert v.operator == ("greaterThan" if rule.above_minimum else "greaterThanOrEqual")
+    assert rule_of[f"{column_of['cov:soil[%]']}2"].operator == "greaterThanOrEqual"
