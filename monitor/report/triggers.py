@@ -39,14 +39,16 @@ from dataclasses import dataclass
 from monitor.errors import InputError
 from monitor.report.wording import percent
 from monitor.settings import TRIGGER_KINDS as TRIGGER_KINDS  # the one list (monitor/settings.py)
-from monitor.settings import trigger_problem
+from monitor.settings import TriggerSetting, trigger_problem
 
 Z95 = 1.959963984540054  # scipy.stats.norm.ppf(0.975)
 
 
 @dataclass(frozen=True)
-class Trigger:
+class Trigger(TriggerSetting):
     """A management trigger agreed in advance.
+
+    The fields are the settings loader's (:class:`monitor.settings.TriggerSetting`): one definition.
 
     Attributes
     ----------
@@ -64,14 +66,6 @@ class Trigger:
     years : int, optional
         ``"decline"`` only: the number of years the decline is counted over.
     """
-
-    species: str
-    measure: str
-    objective: str
-    kind: str
-    threshold: float
-    response: str
-    years: int | None = None
 
     def __post_init__(self) -> None:
         wrong = trigger_problem(self.kind, self.threshold, self.years)  # the settings loader's rule

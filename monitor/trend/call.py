@@ -30,7 +30,7 @@ import math
 
 from monitor.columns import CALL_DECLINING, CALL_RISING, CALL_STABLE, CALL_UNCLEAR
 from monitor.errors import InputError
-from monitor.settings import DEFAULT_CHANGE_MARGIN as DEFAULT_MARGIN  # one source: monitor/settings.py
+from monitor.settings import DEFAULT_CHANGE_MARGIN as DEFAULT_MARGIN  # noqa: F401  (re-exported; one source: monitor/settings.py)
 from monitor.settings import MIN_TREND_STATIONS as MIN_STATIONS
 from monitor.settings import MIN_TREND_YEARS as MIN_YEARS
 

@@ -10,7 +10,6 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
-from report_testdata import demo_inputs
 
 from monitor import columns as C
 from monitor.report import build_report_context, plot_station_map, render_html, render_report
