@@ -49,6 +49,7 @@ import numpy as np
 import pandas as pd
 
 from monitor import columns as C
+from monitor import measures
 from monitor.errors import Diagnostic, EstimationError
 
 from ._common import (
@@ -298,7 +299,7 @@ def pooled_proportion(
     """
     k = np.asarray(successes, dtype=float)
     n_i = np.asarray(trials, dtype=float)
-    what = "pin-hit cover" if measure == C.MEASURE_PIN_HITS else "frequency"
+    what = measures.get(measure).label  # "frequency", "pin hits"
     if k.shape != n_i.shape or k.ndim != 1:
         raise EstimationError(f"{what}: successes and trials must be equal-length sequences")
     if not (np.all(np.isfinite(k)) and np.all(np.isfinite(n_i))):
@@ -399,7 +400,7 @@ def pooled_proportion(
 def _proportion_frame(
     quadrats: pd.DataFrame, k_col: str, n_col: str, measure: str, confidence: float
 ) -> ProportionEstimate:
-    what = "frequency estimate" if measure == C.MEASURE_FREQUENCY else "pin-hit cover estimate"
+    what = f"{measures.get(measure).label} estimate"
     require_columns(quadrats, [k_col, n_col], what)
     k = numeric_column(quadrats, k_col, what)
     n = numeric_column(quadrats, n_col, what)

@@ -6,6 +6,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from monitor import measures
+
 from .adequacy import RunningMean
 from .change import SeasonComparison
 from .cover import ProportionEstimate
@@ -105,7 +107,7 @@ def plot_proportions(result: ProportionEstimate, ax: Axes | None = None) -> Figu
     ax.set_xticks(position, [q.station for q in result.per_quadrat], rotation=90, fontsize="x-small")
     ax.set_ylim(0, 1)
     ax.set_xlabel("quadrat")
-    ax.set_ylabel("share of cells occupied" if result.measure == "frequency" else "share of pins hit")
+    ax.set_ylabel(measures.get(result.measure).estimate_unit)  # "share of grid cells occupied", ...
     ax.legend(fontsize="small")
     return figure
 
