@@ -17,8 +17,11 @@ People log in with their own roles and are made members of one group (``monitor 
 
 from __future__ import annotations
 
+import time
+
 from sqlalchemy import text
 from sqlalchemy.engine import Engine
+from sqlalchemy.exc import OperationalError
 
 from monitor.db.models import metadata
 from monitor.errors import DataError
@@ -45,8 +48,27 @@ def _quote(name: str) -> str:
     return '"' + name.replace('"', '""') + '"'
 
 
+DEADLOCK_RETRIES = 3  # ALTER TABLE ... OWNER TO takes each table's strongest lock: on a live database it can
+                      # deadlock with a running transaction; PostgreSQL rolls the victim back whole, so the
+                      # idempotent setup is simply run again
+
+
 def setup_roles(engine: Engine) -> list[str]:
-    """Create (if needed) the three group roles and grant them what they may do.  Idempotent."""
+    """Create (if needed) the three group roles and grant them what they may do.  Idempotent.
+
+    A deadlock with other work on the database (SQLSTATE 40P01, the whole transaction rolled back) is
+    retried up to ``DEADLOCK_RETRIES`` times."""
+    for attempt in range(1, DEADLOCK_RETRIES + 1):
+        try:
+            return _setup_roles_once(engine)
+        except OperationalError as err:
+            if getattr(err.orig, "sqlstate", None) != "40P01" or attempt == DEADLOCK_RETRIES:
+                raise
+            time.sleep(0.2 * attempt)
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def _setup_roles_once(engine: Engine) -> list[str]:
     database = _require_postgresql(engine)
     names = {g: role_name(database, g) for g in GROUPS}
     tables = [t.name for t in metadata.sorted_tables] + ["alembic_version"]

@@ -95,3 +95,47 @@ def test_only_the_owner_changes_the_schema(shared, capsys):
     engine = make_engine(url)
     assert migrate.current_revision(engine) == migrate.head_revision()
     engine.dispose()
+
+
+class _PgError(Exception):
+    def __init__(self, sqlstate):
+        super().__init__(sqlstate)
+        self.sqlstate = sqlstate
+
+
+def test_role_setup_runs_again_after_a_deadlock_and_only_then(monkeypatch):
+    """SQLSTATE 40P01 is PostgreSQL's deadlock_detected (PostgreSQL 15 docs, Appendix A, error codes): the
+    victim's transaction is rolled back whole, so the idempotent setup may run again; any other error is
+    raised at once."""
+    from sqlalchemy.exc import OperationalError
+
+    from monitor.db import roles
+
+    calls = []
+
+    def once(engine, failures):
+        calls.append(engine)
+        if len(calls) <= failures:
+            raise OperationalError("ALTER TABLE station OWNER TO x", {}, _PgError("40P01"))
+        return ["done"]
+
+    monkeypatch.setattr(roles.time, "sleep", lambda s: None)
+    monkeypatch.setattr(roles, "_setup_roles_once", lambda e: once(e, 1))
+    assert roles.setup_roles("engine") == ["done"] and len(calls) == 2
+
+    calls.clear()
+    monkeypatch.setattr(roles, "_setup_roles_once", lambda e: once(e, roles.DEADLOCK_RETRIES))
+    with pytest.raises(OperationalError):
+        roles.setup_roles("engine")
+    assert len(calls) == roles.DEADLOCK_RETRIES
+
+    calls.clear()
+
+    def other(engine):
+        calls.append(engine)
+        raise OperationalError("GRANT", {}, _PgError("42501"))  # insufficient_privilege
+
+    monkeypatch.setattr(roles, "_setup_roles_once", other)
+    with pytest.raises(OperationalError):
+        roles.setup_roles("engine")
+    assert len(calls) == 1
