@@ -131,6 +131,7 @@ class Measure:
     dwc_facts: tuple[DarwinCoreFact, ...] = ()
     trials: str | None = None            # k-of-n: what n counts ("cells", "pins")
     trial_source: str | None = None      # k-of-n: where n comes from ("grid", "frame")
+    k_words: str | None = None           # k-of-n: what k counts, in words ("cells occupied", "pin hits")
     minutes_per_quadrat: float = 5.0     # default field effort for one species [min], 1 m^2 quadrat
     entry_unit: str | None = None        # unit shown beside an entry field ("%"), if any
     #: the value of a species looked for and not found (0), or None where absence has no value (a shoot
@@ -173,7 +174,7 @@ def _k_of_n(code: str, k: str, n: str, trials: str, source: str, *, label: str, 
         sheet_header="{species}:" + code + "/{n}", check_name="k_of_n",
         check="(n IS NOT NULL AND n > 0 AND value >= 0 AND value <= n AND value = round(value))",
         dwc_quantity_type=dwc, dwc_facts=(k_fact, n_fact), trials=trials, trial_source=source,
-        minutes_per_quadrat=minutes)
+        k_words=k_words, minutes_per_quadrat=minutes)
 
 
 REGISTRY: dict[str, Measure] = {m.code: m for m in (

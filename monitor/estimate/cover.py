@@ -369,7 +369,7 @@ def pooled_proportion(
                 severity="info",
             )
         )
-    unit = "cells occupied" if measure == C.MEASURE_FREQUENCY else "pin hits"
+    unit = measures.get(measure).k_words  # "occupied cells", "pin hits"
     note = (
         f"Pooled share = all {unit} / all trials (ratio estimator). Interval: Wilson score interval on "
         f"the effective sample size (trials / design effect {deff:.2f}, adjusted to {m - 1} df), "
