@@ -48,6 +48,7 @@ from monitor.report.wording import (
     plain_measures,
     season_label,
     signed_percent,
+    SummaryTexts,
     summary_texts,
     few_quadrats_note,
     density_unit,
@@ -178,7 +179,7 @@ class ProgrammeInfo:
 class SummaryRow:
     """One line of the summary table: a species and measure.
 
-    ``annual_text`` and ``period_text`` are printed as they stand; ``marker`` is
+    ``texts`` holds the cells printed as they stand and the call line; ``marker`` is
     a shape (▲ ▼ ● ?) that carries the call without colour.  ``trigger_state``
     is "fired", "not fired" or "none" (no trigger set).
     """
@@ -193,12 +194,7 @@ class SummaryRow:
     marker: str
     annual_change: Interval
     period_change: Interval
-    annual_text: str
-    period_text: str
-    annual_estimate_text: str
-    annual_ci_text: str
-    period_estimate_text: str
-    period_ci_text: str
+    texts: SummaryTexts                  # the row's cells and the call line (report/wording.py)
     first_year: int
     last_year: int
     n_stations: int
@@ -208,7 +204,6 @@ class SummaryRow:
     margin: float
     trigger_state: str
     trigger_text: str
-    call_line: str = ""
     share_change: Interval | None = None  # percentage points, first year against last (shares only)
 
     def to_dict(self) -> dict:
@@ -907,16 +902,11 @@ def _species_entry(i: int, key: tuple[str, str], result, shared: _Shared) -> tup
         species=sp, species_name=name, measure=ms, measure_label=MEASURE_LABEL.get(ms, ms), anchor=f"sp-{i + 1}",
         call=call, call_label=CALL_LABEL.get(call, call), marker=CALL_MARKER.get(call, "?"),
         annual_change=annual, period_change=period,
-        annual_text=texts.annual_text,
-        period_text=texts.period_text,
-        annual_estimate_text=texts.annual_estimate_text,
-        annual_ci_text=texts.annual_ci_text,
-        period_estimate_text=texts.period_estimate_text,
-        period_ci_text=texts.period_ci_text,
+        texts=texts,
         first_year=first, last_year=last, n_stations=n_stations, n_years=n_years,
         n_obs=int(_attr(result, "n_obs", 0)), family=family, margin=margin,
         trigger_state=trigger_state, trigger_text=trigger_text,
-        call_line=texts.call_line, share_change=share_change,
+        share_change=share_change,
     )
     if odds and level is not None:
         paragraph = odds_trend_sentence(name, ms, numbers, level)
@@ -988,7 +978,7 @@ def _species_figures(i: int, row: SummaryRow, indices, value_label: str, marks: 
     if indices is not None and len(indices):
         figures.append(FigureRef(
             key=f"{stem}-indices", kind="indices",
-            alt=indices_figure_alt(name, row.measure_label, row.first_year, row.last_year, row.annual_text,
+            alt=indices_figure_alt(name, row.measure_label, row.first_year, row.last_year, row.texts.annual_text,
                                    sorted({f"{m.label} {m.year}" for m in marks if m.kind == "event"}),
                                    sorted({str(m.year) for m in marks if m.kind == "method"})),
             caption=indices_figure_caption(value_label, row.first_year),

@@ -27,7 +27,7 @@ def test_summary_numbers_are_the_fits_numbers(full_inputs, full_context):
         assert row.call == result.call
         # printed with one decimal and a typographic minus (design notes: "-4.1 % a year (95 % CI ...)")
         expected = f"{abs(result.annual_change.estimate) * 100:.1f}%"
-        assert expected in row.annual_text
+        assert expected in row.texts.annual_text
 
 
 def test_period_change_is_compounded_annual_change(full_inputs):

@@ -49,25 +49,25 @@ def reference():
 def test_share_row_leads_with_percentage_points_against_lme4(cbpp_context, reference):
     row = cbpp_context.summary[0]
     estimate, lower, upper = reference["difference"]  # lme4: about -15.4 points (-22.2 to -8.6)
-    assert row.period_estimate_text.endswith("percentage points")
-    assert _numbers(row.period_estimate_text) == [pytest.approx(estimate, abs=0.5)]  # printed to whole points
-    ci = _numbers(row.period_ci_text.replace("95% CI", ""))
+    assert row.texts.period_estimate_text.endswith("percentage points")
+    assert _numbers(row.texts.period_estimate_text) == [pytest.approx(estimate, abs=0.5)]  # printed to whole points
+    ci = _numbers(row.texts.period_ci_text.replace("95% CI", ""))
     assert ci[0] == pytest.approx(lower, abs=0.02 * abs(estimate) + 0.5)
     assert ci[1] == pytest.approx(upper, abs=0.02 * abs(estimate) + 0.05)
-    assert "odds" not in row.period_estimate_text
+    assert "odds" not in row.texts.period_estimate_text
     # the share first and last period on the fitted line (lme4 via integrate: 20.3 % -> 4.9 %)
-    first, last = _numbers(row.period_text.split(":")[0])
+    first, last = _numbers(row.texts.period_text.split(":")[0])
     assert first == pytest.approx(reference["first"][0], abs=0.5)
     assert last == pytest.approx(reference["last"][0], abs=0.05)
     # the odds rate is shown second and labelled as odds (exp(t) - 1 = -43 % a year, lme4 fixef)
-    assert row.annual_estimate_text.endswith("a year in the odds")
+    assert row.texts.annual_estimate_text.endswith("a year in the odds")
     odds_rate = 100 * (math.exp(reference["fixef"]["t"]) - 1)
-    assert _numbers(row.annual_estimate_text)[0] == pytest.approx(odds_rate, abs=0.15)
+    assert _numbers(row.texts.annual_estimate_text)[0] == pytest.approx(odds_rate, abs=0.15)
     # the JSON carries the share change in percentage points beside the odds-scale changes
     shown = row.to_dict()["share_change_points"]
     assert shown["estimate"] == pytest.approx(estimate, abs=0.03)
     # the call line above the species' section leads with the share as well
-    assert row.call_line.startswith("share ") and row.call_line.index("percentage points") < row.call_line.index("odds")
+    assert row.texts.call_line.startswith("share ") and row.texts.call_line.index("percentage points") < row.texts.call_line.index("odds")
 
 
 def test_share_row_is_read_in_that_order_on_the_page(cbpp_context):
@@ -89,7 +89,7 @@ def test_count_rows_keep_percent_changes():
     context = build_report_context(**demo_inputs(np.random.default_rng(3), 2, with_extras=False))
     for row in context.summary:
         assert row.measure == C.MEASURE_COUNT
-        assert "percentage points" not in row.period_estimate_text and "odds" not in row.annual_estimate_text
-        assert row.period_estimate_text.endswith("%") and row.share_change is None
+        assert "percentage points" not in row.texts.period_estimate_text and "odds" not in row.texts.annual_estimate_text
+        assert row.texts.period_estimate_text.endswith("%") and row.share_change is None
         # the period cell is the change over the period the trend engine gives (exp(b (last - first)) - 1)
-        assert _numbers(row.period_estimate_text)[0] == pytest.approx(100 * row.period_change.estimate, abs=0.5)
+        assert _numbers(row.texts.period_estimate_text)[0] == pytest.approx(100 * row.period_change.estimate, abs=0.5)

@@ -44,7 +44,7 @@ def test_share_trend_is_said_as_a_share_and_the_rate_as_odds(share_fit, share_co
     r = share_fit
     assert r.call == "declining" and r.change_scale == "odds"
     row = share_context.summary[0]
-    assert "a year in the odds" in row.annual_text and row.annual_estimate_text.endswith("in the odds")
+    assert "a year in the odds" in row.texts.annual_text and row.texts.annual_estimate_text.endswith("in the odds")
     para = share_context.species[0].paragraph
     lc = r.level_change
     # the share itself, first and last year of the fitted trend, and the change in percentage points
