@@ -107,6 +107,7 @@ from monitor.families import logit_cover as logit_cover
 from .call import DEFAULT_MARGIN, MIN_STATIONS, MIN_YEARS, classify_call
 from .families import Poisson, density
 from .glmm import YEAR_EFFECT_MIN_YEARS, GlmmFit, GlmmSpec, Term, default_year_effect, fit_glmm, year_terms
+from .year_level import year_level_ar1
 
 FAMILIES = NAMES   # the registry's family names (monitor.families)
 YEAR_RANDOM = ("iid", "ar1", "none")   # the year effect: independent, AR(1) over calendar years, none
@@ -538,16 +539,6 @@ class TrendModel:
                 "no_year_effect",
                 "The model was asked to leave out the year-to-year effect: if good and bad years are shared "
                 "by the stations, the interval is too narrow and the call too confident."))
-        elif year_random == "ar1":
-            # measured (DEVELOPERS.md, power with AR(1) year effects): rho 0.4, 15 stations x 15 years,
-            # 52 of 400 trend-free series had a 95 % interval excluding no change; the ML correlation
-            # and year SD from a short series are too small, and so is the slope's standard error
-            self._notes.append(Diagnostic(
-                "ar1_interval_optimistic",
-                f"An AR(1) year effect is estimated from only {len(self.years)} years: its correlation and SD "
-                "come out too small in short series, so the interval is narrower than it should be (in "
-                "simulation over 15 years, 13 % of series with no trend had a 95 % interval excluding no "
-                "change, instead of 5 %). Read the interval and the call with caution.", "info"))
         self.year_random = year_random
         self.no_index_years = self._degenerate_years()
         if base_year is None:
@@ -781,6 +772,13 @@ class TrendModel:
         slope = float(fit_lin.beta[j])
         slope_se = float(math.sqrt(fit_lin.vcov[j, j]))
         q, slope_df, df_method, se_scale = _reference(fit_lin, j, self.years - self.centre, self.reml)
+        # the year-as-factor model: yearly estimates, and the yearly levels an AR(1) correction rests on
+        fit_fac = spec_fac = None
+        if indices or self.year_effect == "factor" or self.year_random == "ar1":
+            fit_fac, spec_fac = self._fit_factor(olre, diags)
+        if self.year_random == "ar1" and math.isfinite(slope_df):
+            q, df_method, se_scale = self._ar1_reference(fit_lin, spec_fac, fit_fac, slope_df, q, df_method,
+                                                         se_scale, diags)
         lo, hi = slope - q * slope_se, slope + q * slope_se
         annual = Interval(math.expm1(slope), math.expm1(lo), math.expm1(hi))
         span = self.last - self.first
@@ -798,10 +796,6 @@ class TrendModel:
                 prof = Interval(math.expm1(slope), math.expm1(plo), math.expm1(phi_))
             except (EstimationError, FloatingPointError, np.linalg.LinAlgError, ValueError) as exc:
                 diags.append(Diagnostic("profile_failed", f"The profile-likelihood interval could not be computed ({exc})."))
-        # factor model: yearly estimates (the years with an estimate only)
-        fit_fac = spec_fac = None
-        if indices or self.year_effect == "factor":
-            fit_fac, spec_fac = self._fit_factor(olre, diags)
         natural = _NaturalScale(self, eps)
         # one averaging variance (the trend model's) for points and line: one baseline on both scales
         s2 = natural.marginal_variance(fit_lin)
@@ -863,6 +857,60 @@ class TrendModel:
                 f"p = {p:.2g}), so the model has an observation-level effect.", "info"))
             return True, (ratio, p)
         return False, (ratio, p)
+
+    def _ar1_reference(self, fit_lin, spec_fac, fit_fac, df: float, q: float, words: str, scale: float,
+                       diags: list[Diagnostic]) -> tuple[float, str, float]:
+        """The slope's reference with an AR(1) year effect: (95 % multiplier, words, SE scale).
+
+        The ML (or REML) slope SE is scaled by the year-level correction of monitor/trend/year_level.py,
+        computed from the year-as-factor model's yearly levels and their covariance; t with the
+        between-year df stays the reference.  Without yearly levels (fewer than 4, or no factor fit)
+        the iid rule's reference is kept and a note says the interval may be too narrow.
+        """
+        levels = self._yearly_levels(spec_fac, fit_fac)
+        if levels is None or len(levels[0]) < 4:
+            diags.append(Diagnostic(
+                "ar1_interval_optimistic",
+                "The AR(1) year effect's interval could not be widened for the uncertainty of its correlation "
+                "(no yearly levels to work from), so it may be too narrow. Read the interval and the call "
+                "with caution."))
+            return q, words, scale
+        t, a, V = levels
+        corr = year_level_ar1(t, a, V)
+        factor = corr.factor_reml if self.reml else corr.factor
+        base = str(getattr(fit_lin, "df_method", f"t, {df:g} df"))
+        words = (f"{base}; standard error scaled by {factor:.4g} for the AR(1) year effect (year-level REML "
+                 f"likelihood integrated over the correlation: mean {corr.rho_mean:.2f}, ML {corr.rho_ml:.2f})")
+        diags.append(Diagnostic(
+            "ar1_interval_widened",
+            f"The years' correlation is estimated from only {len(t)} yearly levels, so the interval is widened "
+            f"(standard error x {factor:.2f}) to carry its uncertainty. When consecutive years are strongly "
+            "alike (correlation 0.7 or more) in a short series the interval may still be too narrow "
+            "(DEVELOPERS.md).", "info"))
+        return float(t_dist.ppf(0.975, df)) * factor, words, factor
+
+    def _yearly_levels(self, spec, fit) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+        """(centred years, link-scale levels, their covariance) from the year-as-factor model."""
+        if fit is None:
+            return None
+        k0 = spec.x_names.index(INTERCEPT)
+        rows, years = [], []
+        for y in self.years:
+            y = int(y)
+            if y in self.no_index_years:
+                continue
+            c = np.zeros(len(spec.x_names))
+            c[k0] = 1.0
+            name = f"year[{y}]"
+            if name in spec.x_names:
+                c[spec.x_names.index(name)] = 1.0
+            elif y != self.base_year:
+                continue
+            rows.append(c)
+            years.append(y)
+        C_ = np.array(rows)
+        V = C_ @ np.asarray(fit.vcov, float) @ C_.T
+        return np.array(years, float) - self.centre, C_ @ np.asarray(fit.beta, float), (V + V.T) / 2
 
     def _fit_factor(self, olre: bool, diags: list[Diagnostic]):
         """The year-as-factor model on the years that have an estimate; (None, None) if it cannot be fitted."""

@@ -155,9 +155,11 @@ def test_components_from_an_ar1_trend_carry_its_correlation():
     assert components.year_sd == pytest.approx(ref["sd"]["one"], rel=1e-3)
     iid = TrendModel(data, "count", family="negbin").fit(profile=False, indices=False)
     assert components_from_trend(iid).year_rho == 0.0
-    # the AR(1) fit warns that its interval is optimistic in short series (measured, DEVELOPERS.md)
-    assert "ar1_interval_optimistic" in {d.code for d in result.diagnostics}
-    assert "ar1_interval_optimistic" not in {d.code for d in iid.diagnostics}
+    # the AR(1) fit widens its interval for the uncertainty of the correlation (monitor/trend/year_level.py)
+    # and says so; the iid fit does not
+    assert "ar1_interval_widened" in {d.code for d in result.diagnostics}
+    assert "ar1_interval_widened" not in {d.code for d in iid.diagnostics}
+    assert result.se_scale > 1.0 and "AR(1)" in result.df_method
 
 
 def test_power_command_takes_the_year_correlation(capsys):
