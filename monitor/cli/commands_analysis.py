@@ -83,8 +83,9 @@ def parallel_options(func):
                                  "cover logit-normal, positive values lognormal).")
 @click.option("--year-effect", "year_effect", type=click.Choice(["iid", "ar1"]), default=None,
               help="Form of the random year effect shared by all stations: independent years (iid) or an "
-                   "order-1 autoregression, consecutive years alike (ar1). Default: iid from "
-                   f"{MIN_YEAR_EFFECT_YEARS} years with data.")
+                   "order-1 autoregression, consecutive years alike (ar1; its interval is widened for "
+                   "the uncertainty of the years' correlation, and may still be narrow when years are "
+                   f"strongly alike). Default: iid from {MIN_YEAR_EFFECT_YEARS} years with data.")
 @click.option("--no-year-effect", "no_year_effect", is_flag=True,
               help="Leave out the random year effect (intervals then ignore good and bad years shared by the "
                    "stations, and are too narrow when there are such years).")
