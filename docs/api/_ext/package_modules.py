@@ -37,8 +37,11 @@ class PackageModules(SphinxDirective):
     def run(self):
         lines: list[str] = []
         for name in public_modules(self.arguments[0], shallow="shallow" in self.options):
-            title = f"``{name}``"
-            lines += [title, "-" * len(title), "", f".. automodule:: {name}", "   :members:", "   :ignore-module-all:", ""]
+            # the package itself sits under the page's own title (one heading, not the same name twice)
+            if name != self.arguments[0]:
+                title = f"``{name}``"
+                lines += [title, "-" * len(title), ""]
+            lines += [f".. automodule:: {name}", "   :members:", "   :ignore-module-all:", ""]
             module = importlib.import_module(name)
             if getattr(module, "__file__", None):
                 self.env.note_dependency(module.__file__)
