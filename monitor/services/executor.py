@@ -156,6 +156,11 @@ def open_runner(workers: int | None = None, cluster: str | None = None) -> Itera
         runner.close()
 
 
+#: how long to wait for a Dask scheduler to answer before the address is refused (a busy scheduler on a
+#: shared network can take seconds; a wrong address is refused when this runs out)
+CONNECT_TIMEOUT = "20s"
+
+
 def _connect(address: str):
     try:
         from distributed import Client
@@ -163,7 +168,7 @@ def _connect(address: str):
         raise MonitorError("running on a cluster needs Dask's distributed package: "
                            "pip install 'monitor[cluster]'") from exc
     try:
-        return Client(address, timeout="20s", set_as_default=False)
+        return Client(address, timeout=CONNECT_TIMEOUT, set_as_default=False)
     except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(InputProblem("--cluster", None, None, address,
                                       f"the address of a running Dask scheduler, e.g. tcp://host:8786 ({exc})")) from None

@@ -89,8 +89,11 @@ def test_power_replicates_on_a_dask_cluster_equal_the_local_run(cluster):
         pd.testing.assert_frame_equal(a.replicates, b.replicates, check_exact=True)
 
 
-def test_a_wrong_cluster_address_is_one_clear_error():
+def test_a_wrong_cluster_address_is_one_clear_error(monkeypatch):
     from monitor.errors import InputError
+    from monitor.services import executor
+
+    monkeypatch.setattr(executor, "CONNECT_TIMEOUT", "2s")   # nothing listens on port 9: no need to wait 20 s
 
     with pytest.raises(InputError, match="--cluster"):
         with open_runner(cluster="tcp://127.0.0.1:9"):
