@@ -893,22 +893,8 @@ class TrendModel:
         """(centred years, link-scale levels, their covariance) from the year-as-factor model."""
         if fit is None:
             return None
-        k0 = spec.x_names.index(INTERCEPT)
-        rows, years = [], []
-        for y in self.years:
-            y = int(y)
-            if y in self.no_index_years:
-                continue
-            c = np.zeros(len(spec.x_names))
-            c[k0] = 1.0
-            name = f"year[{y}]"
-            if name in spec.x_names:
-                c[spec.x_names.index(name)] = 1.0
-            elif y != self.base_year:
-                continue
-            rows.append(c)
-            years.append(y)
-        C_ = np.array(rows)
+        years = [int(y) for y in self.years if int(y) not in self.no_index_years]
+        C_ = np.array([_level_contrast(spec, y) for y in years])
         V = C_ @ np.asarray(fit.vcov, float) @ C_.T
         return np.array(years, float) - self.centre, C_ @ np.asarray(fit.beta, float), (V + V.T) / 2
 
@@ -943,7 +929,6 @@ class TrendModel:
         z = norm.ppf(0.975)
         per_year = self.data.groupby(C.YEAR)["_station_key"].nunique()
         nat, rel = [], []
-        k0 = spec.x_names.index(INTERCEPT)
         for y in self.years:
             y = int(y)
             if y in self.no_index_years:
@@ -952,11 +937,9 @@ class TrendModel:
                 nat.append((y, 0.0 if zero else top, 0.0 if zero else math.nan, math.nan if zero else top))
                 rel.append((y, 0.0 if zero else math.nan, 0.0 if zero else math.nan, math.nan))
                 continue
-            c = np.zeros(len(spec.x_names))
-            c[k0] = 1.0
+            c = _level_contrast(spec, y)
             name = f"year[{y}]"
             if name in spec.x_names:
-                c[spec.x_names.index(name)] = 1.0
                 kk = spec.x_names.index(name)
                 b, s = fit.beta[kk], math.sqrt(fit.vcov[kk, kk])
                 rel.append((y, math.exp(b), math.exp(b - z * s), math.exp(b + z * s)))
@@ -1078,6 +1061,17 @@ class TrendModel:
                                   f"and {full_} are 100 %. The annual change is the change in the adjusted "
                                   "odds of cover.", "info"))
         return out
+
+
+def _level_contrast(spec: GlmmSpec, year: int) -> np.ndarray:
+    """The year-as-factor model's contrast for a year's level: the intercept (the base year) plus the
+    year's own effect where it has one."""
+    c = np.zeros(len(spec.x_names))
+    c[spec.x_names.index(INTERCEPT)] = 1.0
+    name = f"year[{year}]"
+    if name in spec.x_names:
+        c[spec.x_names.index(name)] = 1.0
+    return c
 
 
 def _reference(fit: GlmmFit, j: int, years_t: np.ndarray, reml: bool) -> tuple[float, float, str, float]:
