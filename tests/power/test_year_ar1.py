@@ -160,6 +160,12 @@ def test_components_from_an_ar1_trend_carry_its_correlation():
     assert "ar1_interval_widened" in {d.code for d in result.diagnostics}
     assert "ar1_interval_widened" not in {d.code for d in iid.diagnostics}
     assert result.se_scale > 1.0 and "AR(1)" in result.df_method
+    # ... and the reported interval is the widened one: slope +/- t(df) x factor x ML SE (scipy.stats.t)
+    from scipy.stats import t as t_dist
+
+    half = t_dist.ppf(0.975, result.slope_df) * result.se_scale * result.slope_se
+    assert result.annual_change.upper == pytest.approx(math.expm1(result.slope + half), rel=1e-12)
+    assert result.annual_change.lower == pytest.approx(math.expm1(result.slope - half), rel=1e-12)
 
 
 def test_power_command_takes_the_year_correlation(capsys):
